@@ -1,0 +1,249 @@
+"""The review: details, an ordered table of study rows, and the appraiser's notes.
+
+Design invariants
+-----------------
+* Everything here is immutable (frozen dataclasses, tuples). An edit makes a new value.
+* A :class:`StudyRow` holds what the user entered, on the natural scale as printed in
+  the paper (an odds ratio of 0.8, not its log). Derived values (``y``, ``se``) are never
+  stored here: :mod:`lopside.stats.effects` computes them from the row and the measure.
+* Text the user typed that could not be read as a number is kept in ``StudyRow.unread``
+  (field name -> text) so nothing typed is ever lost; the row check reports it.
+* No Qt, no numpy: this module is importable from a plain Python prompt.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field, fields, replace
+from typing import Any
+
+#: Effect measures the tool understands.
+MEASURES: tuple[str, ...] = ("OR", "RR", "HR", "RD", "MD", "SMD")
+#: Measures analysed on the natural-log scale.
+RATIO_MEASURES: frozenset[str] = frozenset({"OR", "RR", "HR"})
+#: Measures that can be computed from 2x2 counts.
+BINARY_MEASURES: frozenset[str] = frozenset({"OR", "RR", "RD"})
+#: Measures that can be computed from means/SDs.
+CONTINUOUS_MEASURES: frozenset[str] = frozenset({"MD", "SMD"})
+
+MEASURE_NAMES: dict[str, str] = {
+    "OR": "odds ratio",
+    "RR": "risk ratio",
+    "HR": "hazard ratio",
+    "RD": "risk difference",
+    "MD": "mean difference",
+    "SMD": "standardised mean difference (Hedges' g)",
+}
+
+#: Risk-of-bias levels (the trade's usual three), lower case as stored.
+RISK_OF_BIAS_LEVELS: tuple[str, ...] = ("low", "some concerns", "high")
+
+#: Numeric study-table columns (DESIGN.md section 3), in display order.
+NUMERIC_FIELDS: tuple[str, ...] = (
+    "estimate",
+    "lower",
+    "upper",
+    "level",
+    "se",
+    "p",
+    "int_events",
+    "int_total",
+    "ctl_events",
+    "ctl_total",
+    "int_mean",
+    "int_sd",
+    "int_n",
+    "ctl_mean",
+    "ctl_sd",
+    "ctl_n",
+    "n",
+)
+#: Text columns.
+TEXT_FIELDS: tuple[str, ...] = ("study", "risk_of_bias", "subgroup")
+#: All study-table columns in the order of the contract.
+TABLE_COLUMNS: tuple[str, ...] = (
+    "study",
+    "year",
+    *NUMERIC_FIELDS,
+    "risk_of_bias",
+    "subgroup",
+    "exclude",
+)
+
+
+@dataclass(frozen=True, slots=True)
+class StudyRow:
+    """One study as entered (natural scale, as printed in the paper).
+
+    Any subset of the entry routes may be filled: estimate + lower/upper (+ level),
+    estimate + se, estimate + p, 2x2 counts per arm, or means/SDs/ns per arm.
+    ``level`` is the CI level in percent (``None`` means the review's level).
+    ``p_bound`` is ``"<"`` when the paper printed "P < 0.05" rather than a value.
+    """
+
+    study: str = ""
+    year: int | None = None
+    estimate: float | None = None
+    lower: float | None = None
+    upper: float | None = None
+    level: float | None = None
+    se: float | None = None
+    p: float | None = None
+    p_bound: str | None = None
+    int_events: float | None = None
+    int_total: float | None = None
+    ctl_events: float | None = None
+    ctl_total: float | None = None
+    int_mean: float | None = None
+    int_sd: float | None = None
+    int_n: float | None = None
+    ctl_mean: float | None = None
+    ctl_sd: float | None = None
+    ctl_n: float | None = None
+    n: float | None = None
+    risk_of_bias: str | None = None
+    subgroup: str | None = None
+    exclude: bool = False
+    #: field name -> text the user typed that could not be read (kept, never lost)
+    unread: tuple[tuple[str, str], ...] = ()
+
+    def with_values(self, **changes: Any) -> StudyRow:
+        """Return a copy with fields changed (a new value; rows are immutable)."""
+        return replace(self, **changes)
+
+    def unread_dict(self) -> dict[str, str]:
+        return dict(self.unread)
+
+    def has_counts(self) -> bool:
+        return all(
+            v is not None for v in (self.int_events, self.int_total, self.ctl_events, self.ctl_total)
+        )
+
+    def has_means(self) -> bool:
+        return all(
+            v is not None
+            for v in (self.int_mean, self.int_sd, self.int_n, self.ctl_mean, self.ctl_sd, self.ctl_n)
+        )
+
+    def total_n(self) -> float | None:
+        """Total participants: ``n`` if given, else the arm totals, else ``None``."""
+        if self.n is not None:
+            return self.n
+        if self.int_total is not None and self.ctl_total is not None:
+            return self.int_total + self.ctl_total
+        if self.int_n is not None and self.ctl_n is not None:
+            return self.int_n + self.ctl_n
+        return None
+
+    def to_dict(self) -> dict[str, Any]:
+        out: dict[str, Any] = {}
+        for f in fields(self):
+            value = getattr(self, f.name)
+            if f.name == "unread":
+                if value:
+                    out["unread"] = dict(value)
+                continue
+            if value is None or (f.name == "exclude" and value is False):
+                continue
+            out[f.name] = value
+        return out
+
+
+@dataclass(frozen=True, slots=True)
+class PublishedResult:
+    """The pooled result as printed in the paper (natural scale)."""
+
+    estimate: float | None = None
+    lower: float | None = None
+    upper: float | None = None
+    #: the model as printed, free text ("random effects", "Mantel-Haenszel fixed", ...)
+    model: str = ""
+
+    def is_complete(self) -> bool:
+        return None not in (self.estimate, self.lower, self.upper)
+
+
+@dataclass(frozen=True, slots=True)
+class ReviewDetails:
+    """What the review is about and how its effects are expressed."""
+
+    title: str = ""
+    question: str = ""
+    outcome: str = ""
+    measure: str = "OR"
+    #: confidence level of the intervals printed in the paper, percent
+    ci_level: float = 95.0
+    #: which direction favours the intervention: "lower" (e.g. OR < 1 is good) or "higher"
+    favours: str = "lower"
+    #: labels for the two arms, used in "favours ..." captions
+    int_label: str = "intervention"
+    ctl_label: str = "control"
+    published: PublishedResult = field(default_factory=PublishedResult)
+    appraiser: str = ""
+    #: free text shown on screen and on the sheet; invented demo reviews say so here
+    source_note: str = ""
+
+
+#: The alternative explanations of funnel asymmetry, in the order we present them.
+CAUSES: tuple[str, ...] = (
+    "selection",
+    "methods",
+    "heterogeneity",
+    "artefact",
+    "chance",
+)
+CAUSE_TITLES: dict[str, str] = {
+    "selection": "Selective publication and reporting",
+    "methods": "Weaker methods in smaller studies",
+    "heterogeneity": "True differences between studies",
+    "artefact": "Artefact of the effect measure or test",
+    "chance": "Chance",
+}
+#: Judgements the appraiser can record per cause.
+JUDGEMENTS: tuple[str, ...] = ("not judged", "unlikely", "possible", "likely")
+#: Ratings for the publication-bias domain.
+DOMAIN_RATINGS: tuple[str, ...] = ("undetected", "suspected (mixed evidence)", "strongly suspected")
+
+
+@dataclass(frozen=True, slots=True)
+class CauseNote:
+    judgement: str = "not judged"
+    notes: str = ""
+
+
+@dataclass(frozen=True, slots=True)
+class AppraisalNotes:
+    """The appraiser's own judgements (saved in the project file)."""
+
+    causes: tuple[tuple[str, CauseNote], ...] = tuple((c, CauseNote()) for c in CAUSES)
+    #: the appraiser's rating of the publication-bias domain; "" = accept the suggestion
+    rating_override: str = ""
+    rating_reason: str = ""
+    general: str = ""
+
+    def cause(self, key: str) -> CauseNote:
+        return dict(self.causes).get(key, CauseNote())
+
+    def with_cause(self, key: str, note: CauseNote) -> AppraisalNotes:
+        d = dict(self.causes)
+        d[key] = note
+        return replace(self, causes=tuple((c, d.get(c, CauseNote())) for c in CAUSES))
+
+
+@dataclass(frozen=True, slots=True)
+class Review:
+    details: ReviewDetails = field(default_factory=ReviewDetails)
+    studies: tuple[StudyRow, ...] = ()
+    notes: AppraisalNotes = field(default_factory=AppraisalNotes)
+
+    @property
+    def measure(self) -> str:
+        return self.details.measure
+
+    def with_studies(self, studies: tuple[StudyRow, ...] | list[StudyRow]) -> Review:
+        return replace(self, studies=tuple(studies))
+
+    def with_details(self, **changes: Any) -> Review:
+        return replace(self, details=replace(self.details, **changes))
+
+    def with_notes(self, notes: AppraisalNotes) -> Review:
+        return replace(self, notes=notes)
