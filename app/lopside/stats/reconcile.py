@@ -79,7 +79,7 @@ def reconcile(
     *,
     ratio: bool,
     published_model: str = "",
-    loo: dict[str, list[tuple[int, str, float]]] | None = None,
+    loo=None,
 ) -> Reconciliation | NotComputable:
     """Compare pooled estimates with the published (estimate, lower, upper).
 
@@ -91,9 +91,10 @@ def reconcile(
         Published estimate and limits on the *analysis* scale (logs for ratios).
     ratio : bool
         Compare on the natural scale (exp) for ratio measures.
-    loo : dict, optional
-        For the closest model: list of (row, label, leave-one-out estimate) to find rows
-        whose removal brings the estimate closest to the published one.
+    loo : callable, optional
+        ``loo(model_key)`` returns a list of (row, label, leave-one-out estimate) for that
+        model; used to find rows whose removal brings the estimate closest to the
+        published one.
     """
     est, lo, hi = published
     if not all(math.isfinite(x) for x in published):
@@ -134,10 +135,10 @@ def reconcile(
             "interval level, or whether the paper analysed a different set of studies."
         )
     suspicious: list[tuple[int, str, str]] = []
-    if verdict != "agrees" and loo and best.model in loo:
+    if verdict != "agrees" and loo is not None:
         base = _rel(best.estimate, est, ratio)
         scored = []
-        for row, label, e in loo[best.model]:
+        for row, label, e in loo(best.model):
             if math.isfinite(e):
                 scored.append((_rel(e, est, ratio), row, label))
         scored.sort()

@@ -1,0 +1,7 @@
+"""``python -m lopside`` runs the same entry point as the ``lopside`` command."""
+
+import sys
+
+from .cli import main
+
+sys.exit(main())

@@ -1,0 +1,349 @@
+"""One analysis: a review and settings in, one immutable result out.
+
+Design invariant: every statistic shown anywhere (window, CLI text, JSON, PDF sheet) is
+read from the :class:`AnalysisResult` returned by :func:`analyse`. Nothing downstream
+computes a statistic of its own.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import math
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+
+from .model.review import BINARY_MEASURES, RATIO_MEASURES, Review
+from .settings import AnalysisSettings
+from .stats.data import StudyData
+from .stats.results import NotComputable, PooledEstimate
+
+
+@dataclass(frozen=True, slots=True)
+class ExcludedStudy:
+    row: int
+    label: str
+    reason: str
+    y: float | None = None
+    se: float | None = None
+
+
+@dataclass(frozen=True, slots=True, eq=False)
+class AnalysisResult:
+    """Everything Lopside knows about one review under one set of settings.
+
+    Fields hold frozen results from :mod:`lopside.stats` or :class:`NotComputable`
+    with the reason. ``derived`` and ``problems`` cover every table row (in table order);
+    ``data`` holds only the studies that enter the analysis.
+    """
+
+    review: Review
+    settings: AnalysisSettings
+    measure: str
+    confidence_level: float
+    derived: tuple[Any, ...]
+    problems: tuple[Any, ...]
+    data: StudyData
+    excluded: tuple[ExcludedStudy, ...]
+    fixed: PooledEstimate | NotComputable
+    random: PooledEstimate | NotComputable
+    random_by_method: dict[str, PooledEstimate | NotComputable]
+    random_hksj_by_method: dict[str, PooledEstimate | NotComputable]
+    mantel_haenszel: PooledEstimate | NotComputable
+    peto: PooledEstimate | NotComputable
+    heterogeneity: Any
+    reconciliation: Any
+    tests: dict[str, Any]
+    recommendation: Any
+    applicability: tuple[Any, ...]
+    trim_fill: Any
+    pet_peese: Any
+    limit: Any
+    selection: Any
+    leave_one_out: Any
+    cumulative: Any
+    failsafe: Any
+    subgroups: dict[str, Any]
+    meta_regression: dict[str, Any]
+    power: Any = None
+    fingerprint: str = ""
+    notes: tuple[str, ...] = field(default_factory=tuple)
+
+    @property
+    def k(self) -> int:
+        return self.data.k
+
+    @property
+    def is_ratio(self) -> bool:
+        return self.measure in RATIO_MEASURES
+
+    @property
+    def excluded_points(self) -> tuple[tuple[float, float, str], ...]:
+        return tuple(
+            (e.y, e.se, e.label) for e in self.excluded if e.y is not None and e.se is not None
+        )
+
+    def recommended_test(self):
+        rec = self.recommendation
+        if isinstance(rec, NotComputable) or rec is None:
+            return rec
+        return self.tests.get(rec.key)
+
+
+def fingerprint(review: Review, measure: str) -> str:
+    """SHA-256 of the entered study data and measure (for the sheet's footer)."""
+    payload = json.dumps(
+        {"measure": measure, "studies": [s.to_dict() for s in review.studies]},
+        sort_keys=True,
+        ensure_ascii=True,
+        default=str,
+    )
+    return hashlib.sha256(payload.encode("ascii")).hexdigest()
+
+
+def _nan_array(values) -> np.ndarray:
+    return np.array([np.nan if v is None else float(v) for v in values], dtype=float)
+
+
+def build_study_data(review: Review, measure: str, derived) -> tuple[StudyData, tuple]:
+    """Arrays of the included, usable studies, and the list of those left out (with why)."""
+    keep: list[int] = []
+    excluded: list[ExcludedStudy] = []
+    for i, (row, d) in enumerate(zip(review.studies, derived)):
+        label = row.study or f"Row {i + 1}"
+        usable = d.y is not None and d.se is not None and math.isfinite(d.y) and d.se > 0
+        if row.exclude:
+            excluded.append(
+                ExcludedStudy(i, label, "excluded by the appraiser", d.y if usable else None,
+                              d.se if usable else None)
+            )
+        elif not usable:
+            why = "; ".join(d.problems) if d.problems else "no usable effect and standard error"
+            excluded.append(ExcludedStudy(i, label, why))
+        else:
+            keep.append(i)
+    rows = [review.studies[i] for i in keep]
+    ds = [derived[i] for i in keep]
+
+    def col(name):
+        return _nan_array(getattr(d, name, None) for d in ds)
+
+    data = StudyData(
+        measure=measure,
+        y=np.array([d.y for d in ds], dtype=float),
+        se=np.array([d.se for d in ds], dtype=float),
+        labels=tuple(r.study or f"Row {i + 1}" for i, r in zip(keep, rows)),
+        rows=tuple(keep),
+        n=col("n_total"),
+        n1=col("n1"),
+        n0=col("n0"),
+        a=col("a"),
+        b=col("b"),
+        c=col("c"),
+        d=col("d"),
+        se_modified=col("se_modified"),
+        asd=col("asd"),
+        asd_var=col("asd_var"),
+        risk_of_bias=tuple((r.risk_of_bias or "").strip().lower() for r in rows),
+        subgroup=tuple((r.subgroup or "").strip() for r in rows),
+    )
+    return data, tuple(excluded)
+
+
+def _published_on_scale(review: Review, measure: str):
+    p = review.details.published
+    if not p.is_complete():
+        return None
+    vals = (p.estimate, p.lower, p.upper)
+    if measure in RATIO_MEASURES:
+        if min(vals) <= 0:
+            return None
+        return tuple(math.log(v) for v in vals)
+    return tuple(float(v) for v in vals)
+
+
+def _leave_one_out_estimates(data: StudyData, model_key: str, measure: str):
+    """(row, label, estimate without that study) under one model, for the reconciliation."""
+    from .stats import binary
+    from .stats import pooling as pl
+
+    key = model_key.removesuffix("+HKSJ")
+    out = []
+    for i in range(data.k):
+        mask = np.ones(data.k, dtype=bool)
+        mask[i] = False
+        sub = data.subset(mask)
+        if key == "FE-IV":
+            r = pl.fixed_effect(sub.y, sub.v)
+        elif key == "MH":
+            r = binary.mantel_haenszel(sub.a, sub.b, sub.c, sub.d, measure)
+        elif key == "Peto":
+            r = binary.peto(sub.a, sub.b, sub.c, sub.d)
+        else:
+            r = pl.random_effects(sub.y, sub.v, method=key)
+        out.append((data.rows[i], data.labels[i], r.estimate if r else float("nan")))
+    return out
+
+
+def _safe(fn, *args, **kw):
+    """Run one statistic; an unexpected numerical failure becomes NotComputable, not a crash."""
+    try:
+        return fn(*args, **kw)
+    except (ValueError, ArithmeticError, np.linalg.LinAlgError) as exc:
+        return NotComputable(f"could not be computed for these data ({exc})")
+
+
+def analyse(
+    review: Review,
+    settings: AnalysisSettings | None = None,
+    *,
+    with_power: bool = False,
+    power_progress=None,
+) -> AnalysisResult:
+    """Analyse a review: derive effects, pool, test, adjust; return one frozen result."""
+    from .intake.checks import check_rows
+    from .stats import adjust, applicability, asymmetry, binary, moderators, sensitivity
+    from .stats import pooling as pl
+    from .stats.effects import derive_all
+    from .stats.reconcile import reconcile
+
+    settings = settings or AnalysisSettings()
+    measure = settings.measure or review.details.measure
+    level = review.details.ci_level
+    conf = 0.95  # pooled results are reported at 95 % whatever the paper's study CIs used
+
+    derived = derive_all(
+        review.studies,
+        measure,
+        ci_level=level,
+        ci_method=settings.ci_method,
+        smd_correction=settings.smd_correction,
+    )
+    problems = check_rows(review.studies, measure, level)
+    data, excluded = build_study_data(review, measure, derived)
+    y, v = data.y, data.v
+
+    fixed = _safe(pl.fixed_effect, y, v, confidence_level=conf)
+    by_method = {
+        m: _safe(pl.random_effects, y, v, method=m, confidence_level=conf)
+        for m in pl.TAU2_METHODS
+    }
+    hksj_by_method = {
+        m: _safe(pl.random_effects, y, v, method=m, hksj=True, confidence_level=conf)
+        for m in pl.TAU2_METHODS
+    }
+    random = (hksj_by_method if settings.hksj else by_method)[settings.tau2_method]
+
+    if measure in BINARY_MEASURES and data.has_counts():
+        mh = _safe(binary.mantel_haenszel, data.a, data.b, data.c, data.d, measure,
+                   confidence_level=conf)
+    else:
+        mh = NotComputable("Mantel-Haenszel pooling needs 2x2 counts for every study")
+    if measure == "OR" and data.has_counts():
+        peto = _safe(binary.peto, data.a, data.b, data.c, data.d, confidence_level=conf)
+    else:
+        peto = NotComputable("Peto pooling needs 2x2 counts and the odds ratio")
+
+    het = _safe(pl.heterogeneity, y, v, tau2_method=settings.tau2_method, confidence_level=conf)
+
+    loo = _safe(sensitivity.leave_one_out, data, tau2_method=settings.tau2_method)
+    cumulative = _safe(sensitivity.cumulative, data, tau2_method=settings.tau2_method)
+
+    published = _published_on_scale(review, measure)
+    if published is None:
+        recon: Any = NotComputable("no published pooled result with its CI was entered")
+    else:
+        models: dict[str, Any] = {"FE-IV": fixed, "MH": mh, "Peto": peto}
+        models.update(by_method)
+        models.update({f"{m}+HKSJ": r for m, r in hksj_by_method.items()})
+        recon = _safe(
+            reconcile,
+            models,
+            published,
+            ratio=measure in RATIO_MEASURES,
+            published_model=review.details.published.model,
+            loo=lambda key: _leave_one_out_estimates(data, key, measure),
+        )
+
+    tests = asymmetry.run_all(data, alpha=settings.test_alpha)
+    tau2 = random.tau2 if isinstance(random, PooledEstimate) else 0.0
+    recommendation = _safe(applicability.recommend, data, tau2)
+    if isinstance(het, NotComputable):
+        rules = _safe(applicability.applicability, data, None, None)
+    else:
+        rules = _safe(applicability.applicability, data, het.i2, het.pvalue)
+
+    trim_fill = _safe(
+        adjust.trim_and_fill,
+        data,
+        estimator=settings.trimfill_estimator,
+        side=settings.trimfill_side,
+        trim_model=settings.trimfill_trim_model,
+        fill_model=settings.trimfill_fill_model,
+        tau2_method=settings.tau2_method,
+    )
+    pet_peese = _safe(
+        adjust.pet_peese, data, alpha=settings.petpeese_alpha, sided=settings.petpeese_sided
+    )
+    limit = _safe(adjust.limit_meta_analysis, data, tau2_method=settings.tau2_method)
+    selection = _safe(adjust.selection_model, data, cuts=settings.selection_cuts)
+    failsafe = _safe(sensitivity.fail_safe_n, data, trivial=settings.orwin_trivial)
+
+    subgroups: dict[str, Any] = {}
+    meta_reg: dict[str, Any] = {}
+    for by in ("risk_of_bias", "subgroup"):
+        labels = getattr(data, by)
+        if len({x for x in labels if x}) >= 2:
+            subgroups[by] = _safe(moderators.subgroup_analysis, data, by=by,
+                                  tau2_method=settings.tau2_method)
+            meta_reg[by] = _safe(moderators.meta_regression, data, by)
+
+    power = None
+    if with_power:
+        from .stats.power import simulate_power
+
+        power = _safe(
+            simulate_power,
+            data,
+            test="recommended",
+            reps=settings.power_reps,
+            seed=settings.power_seed,
+            selection=settings.power_selection,
+            alpha=settings.test_alpha,
+            progress=power_progress,
+        )
+
+    return AnalysisResult(
+        review=review,
+        settings=settings,
+        measure=measure,
+        confidence_level=conf,
+        derived=tuple(derived),
+        problems=tuple(problems),
+        data=data,
+        excluded=excluded,
+        fixed=fixed,
+        random=random,
+        random_by_method=by_method,
+        random_hksj_by_method=hksj_by_method,
+        mantel_haenszel=mh,
+        peto=peto,
+        heterogeneity=het,
+        reconciliation=recon,
+        tests=tests,
+        recommendation=recommendation,
+        applicability=tuple(rules) if not isinstance(rules, NotComputable) else (),
+        trim_fill=trim_fill,
+        pet_peese=pet_peese,
+        limit=limit,
+        selection=selection,
+        leave_one_out=loo,
+        cumulative=cumulative,
+        failsafe=failsafe,
+        subgroups=subgroups,
+        meta_regression=meta_reg,
+        power=power,
+        fingerprint=fingerprint(review, measure),
+    )

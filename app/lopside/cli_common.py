@@ -1,0 +1,78 @@
+"""Open any file Lopside accepts: a project file, a CSV/XLSX study table, or pasted text."""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Any
+
+from .intake.errors import IntakeError
+from .model.project_file import SUFFIX, ProjectFileError, load
+from .model.review import MEASURES, Review, ReviewDetails, StudyRow
+
+ACCEPTED = (SUFFIX, ".json", ".csv", ".xlsx", ".txt")
+
+
+class InputError(ValueError):
+    """Bad input for a headless command; the message names the file and what to do."""
+
+
+def guess_measure(rows: tuple[StudyRow, ...]) -> str | None:
+    """OR for count tables, MD for mean/SD tables; None when the rows carry only estimates."""
+    if rows and all(r.has_counts() for r in rows):
+        return "OR"
+    if rows and all(r.has_means() for r in rows):
+        return "MD"
+    return None
+
+
+def review_from_rows(rows, measure: str | None, name: str) -> Review:
+    m = measure or guess_measure(tuple(rows))
+    if m is None:
+        raise InputError(
+            f"{name}: the rows give effect estimates but the file does not say which measure "
+            f"they are. Add --measure with one of {', '.join(MEASURES)}."
+        )
+    return Review(details=ReviewDetails(title=Path(name).stem, measure=m), studies=tuple(rows))
+
+
+def load_review_file(path: str | Path, measure: str | None = None) -> tuple[Review, dict[str, Any]]:
+    """Read FILE into a review; ``measure`` overrides (or supplies) the measure.
+
+    Raises :class:`InputError` (or the intake/project errors, which are ValueErrors) with a
+    message that names the file and, where it applies, the row and field.
+    """
+    p = Path(path)
+    if measure is not None and measure not in MEASURES:
+        raise InputError(f"--measure {measure}: use one of {', '.join(MEASURES)}.")
+    if not p.exists():
+        raise InputError(f"{p}: no such file.")
+    if p.is_dir():
+        raise InputError(f"{p}: is a folder; give a project file, CSV, XLSX or .txt file.")
+    suffix = p.suffix.lower()
+    if suffix in (SUFFIX, ".json"):
+        review, settings = load(p)
+        if measure:
+            review = review.with_details(measure=measure)
+        return review, settings
+    if suffix in (".csv", ".xlsx"):
+        from .intake.table import read_table
+
+        table = read_table(p)
+        return review_from_rows(table.rows, measure, p.name), {}
+    if suffix == ".txt":
+        from .intake.paste import read_pasted
+
+        try:
+            text = p.read_text(encoding="utf-8-sig")
+        except UnicodeDecodeError:
+            text = p.read_text(encoding="cp1252", errors="replace")
+        pasted = read_pasted(text, measure)
+        if not pasted.rows:
+            raise InputError(f"{p.name}: no study rows could be read.\n{pasted.account()}")
+        return review_from_rows(pasted.rows, measure, p.name), {}
+    raise InputError(
+        f"{p.name}: Lopside opens {', '.join(ACCEPTED)} files; this one is '{suffix or 'none'}'."
+    )
+
+
+INPUT_ERRORS = (InputError, IntakeError, ProjectFileError)

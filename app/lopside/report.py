@@ -1,0 +1,210 @@
+"""Turn an :class:`~lopside.analysis.AnalysisResult` into the JSON of the contract.
+
+The contract keys (DESIGN.md section 3) are built explicitly; every other result is added
+by a generic conversion of its frozen dataclass, so new statistics appear without code
+here. Non-finite numbers become ``null``; a result that could not be computed becomes
+``null`` at the contract key and its reason is listed under ``not_computable``.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import math
+from typing import Any
+
+import numpy as np
+
+from . import __version__
+from .stats.results import ConfidenceInterval, NotComputable, PooledEstimate
+
+
+def plain(obj: Any) -> Any:
+    """JSON-ready copy of a result: dataclasses to dicts, arrays to lists, NaN to None."""
+    if isinstance(obj, NotComputable):
+        return {"not_computable": obj.reason}
+    if isinstance(obj, ConfidenceInterval):
+        return {"low": plain(obj.low), "high": plain(obj.high)}
+    if dataclasses.is_dataclass(obj) and not isinstance(obj, type):
+        out = {}
+        for f in dataclasses.fields(obj):
+            if f.name.startswith("_"):
+                continue
+            value = getattr(obj, f.name)
+            if callable(value):
+                continue
+            out[f.name] = plain(value)
+        return out
+    if isinstance(obj, dict):
+        return {str(k): plain(v) for k, v in obj.items()}
+    if isinstance(obj, (list, tuple)):
+        if hasattr(obj, "_asdict"):
+            return {k: plain(v) for k, v in obj._asdict().items()}
+        return [plain(v) for v in obj]
+    if isinstance(obj, np.ndarray):
+        return [plain(v) for v in obj.tolist()]
+    if isinstance(obj, (np.floating, float)):
+        f = float(obj)
+        return f if math.isfinite(f) else None
+    if isinstance(obj, (np.integer,)):
+        return int(obj)
+    if isinstance(obj, (np.bool_,)):
+        return bool(obj)
+    if isinstance(obj, (str, int, bool)) or obj is None:
+        return obj
+    if callable(obj):
+        return None
+    return str(obj)
+
+
+def _num(x) -> float | None:
+    if x is None:
+        return None
+    try:
+        f = float(x)
+    except (TypeError, ValueError):
+        return None
+    return f if math.isfinite(f) else None
+
+
+def _pooled(p: PooledEstimate | NotComputable, *, random: bool) -> dict[str, Any] | None:
+    if not isinstance(p, PooledEstimate):
+        return None
+    d = {
+        "estimate": _num(p.estimate),
+        "se": _num(p.se),
+        "ci_low": _num(p.ci.low),
+        "ci_high": _num(p.ci.high),
+        "p": _num(p.pvalue),
+        "model": p.model,
+    }
+    if random:
+        d.update(
+            tau2=_num(p.tau2),
+            method=p.model,
+            hksj=p.hksj,
+            pi_low=_num(p.pi.low) if p.pi else None,
+            pi_high=_num(p.pi.high) if p.pi else None,
+        )
+    return d
+
+
+def _get(obj, *names, default=None):
+    for n in names:
+        if obj is not None and hasattr(obj, n):
+            return getattr(obj, n)
+    return default
+
+
+def to_json(result) -> dict[str, Any]:
+    """The ``check --json`` object."""
+    nc: dict[str, str] = {}
+
+    def note(key: str, value):
+        if isinstance(value, NotComputable):
+            nc[key] = value.reason
+        return value
+
+    data = result.data
+    studies = []
+    included_rows = set(data.rows)
+    for i, (row, d) in enumerate(zip(result.review.studies, result.derived)):
+        studies.append(
+            {
+                "row": i + 1,
+                "study": row.study,
+                "y": _num(d.y),
+                "se": _num(d.se),
+                "included": i in included_rows,
+                "route": getattr(d, "route", ""),
+                "how": getattr(d, "route_text", ""),
+            }
+        )
+    note("pooled.fixed", result.fixed)
+    note("pooled.random", result.random)
+    het = note("heterogeneity", result.heterogeneity)
+    tests_out: dict[str, Any] = {}
+    for key, t in result.tests.items():
+        note(f"tests.{key}", t)
+        if isinstance(t, NotComputable) or t is None:
+            tests_out[key] = None
+            continue
+        entry = plain(t)
+        # the contract's short names beside the full result
+        entry.setdefault("p", _num(_get(t, "pvalue")))
+        if key == "egger":
+            entry.update(
+                intercept=_num(t.intercept), se=_num(t.intercept_se), t=_num(t.statistic),
+                df=_num(t.df), p=_num(t.pvalue),
+            )
+        elif key == "begg":
+            entry.update(tau=_num(t.statistic), z=_num(_get(t, "z")), p=_num(t.pvalue))
+        tests_out[key] = entry
+    for key in ("egger", "begg", "harbord", "peters"):
+        tests_out.setdefault(key, None)
+    tf = note("trim_fill", result.trim_fill)
+    if isinstance(tf, NotComputable):
+        trim = None
+    else:
+        adj = _get(tf, "adjusted")
+        trim = plain(tf)
+        trim.update(
+            k0=int(tf.k0),
+            side=tf.side,
+            estimate=_num(adj.estimate) if isinstance(adj, PooledEstimate) else None,
+            ci_low=_num(adj.ci.low) if isinstance(adj, PooledEstimate) else None,
+            ci_high=_num(adj.ci.high) if isinstance(adj, PooledEstimate) else None,
+        )
+    rec = result.recommendation
+    out: dict[str, Any] = {
+        "lopside_version": __version__,
+        "title": result.review.details.title,
+        "measure": result.measure,
+        "scale": "natural log" if result.is_ratio else "as entered",
+        "k": result.k,
+        "studies": studies,
+        "excluded": [plain(e) for e in result.excluded],
+        "problems": [plain(p) for p in result.problems],
+        "pooled": {
+            "fixed": _pooled(result.fixed, random=False),
+            "random": _pooled(result.random, random=True),
+            "random_by_method": {
+                m: _pooled(p, random=True) for m, p in result.random_by_method.items()
+            },
+            "random_hksj_by_method": {
+                m: _pooled(p, random=True) for m, p in result.random_hksj_by_method.items()
+            },
+            "mantel_haenszel": _pooled(result.mantel_haenszel, random=False),
+            "peto": _pooled(result.peto, random=False),
+        },
+        "heterogeneity": None
+        if isinstance(het, NotComputable)
+        else {
+            "q": _num(het.q),
+            "df": het.df,
+            "p": _num(het.pvalue),
+            "i2": _num(het.i2),
+            "tau2": _num(het.tau2),
+            "h": _num(het.h),
+            "i2_ci": plain(het.i2_ci),
+            "tau2_ci": plain(het.tau2_ci),
+            "tau2_method": het.tau2_method,
+        },
+        "reconciliation": plain(result.reconciliation),
+        "tests": tests_out,
+        "recommended_test": None if isinstance(rec, NotComputable) or rec is None else plain(rec),
+        "applicability": [plain(r) for r in result.applicability],
+        "trim_fill": trim,
+        "pet_peese": plain(result.pet_peese),
+        "limit": plain(result.limit),
+        "selection_model": plain(result.selection),
+        "leave_one_out": plain(result.leave_one_out),
+        "cumulative": plain(result.cumulative),
+        "fail_safe_n": plain(result.failsafe),
+        "subgroups": plain(result.subgroups),
+        "meta_regression": plain(result.meta_regression),
+        "power": plain(result.power) if result.power is not None else None,
+        "fingerprint_sha256": result.fingerprint,
+        "settings": result.settings.to_dict(),
+    }
+    out["not_computable"] = nc
+    return out
