@@ -261,6 +261,7 @@ def review_from_dict(doc: Any) -> tuple[Review, dict[str, Any]]:
         favours=favours,
         int_label=_text(det.get("int_label"), "details, int_label") or "intervention",
         ctl_label=_text(det.get("ctl_label"), "details, ctl_label") or "control",
+        published=published,
         appraiser=_text(det.get("appraiser"), "details, appraiser"),
         source_note=_text(det.get("source_note"), "details, source_note"),
     )

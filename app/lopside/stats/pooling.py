@@ -168,15 +168,31 @@ def restricted_loglik(y, v, tau2: float) -> float:
 
 
 def tau2_reml(y, v, *, max_iter: int = _MAX_ITER) -> Tau2Estimate:
-    """REML by Fisher scoring (Viechtbauer 2005), started from DL, step-halving, capped.
+    """REML: the global maximiser of the restricted likelihood on tau^2 >= 0.
 
-    Non-convergence within ``max_iter`` is reported, not hidden.
+    Fisher scoring (Viechtbauer 2005) with step-halving and a cap, started from the best
+    of DL and a coarse grid: the restricted likelihood can have a local maximum inside
+    (0, inf) that is lower than its value at the boundary 0, so scoring from DL alone can
+    stop at the wrong place. Non-convergence within ``max_iter`` is reported, not hidden.
     """
     y, v = _as_arrays(y, v)
     k = y.size
     if k < 2:
         return Tau2Estimate("REML", 0.0, note="one study: no between-study variance")
-    tau2 = tau2_dl(y, v).tau2
+    start = tau2_dl(y, v).tau2
+    est = _reml_scoring(y, v, start, max_iter)
+    scale = max(float(np.var(y)), float(np.median(v)), start, 1e-12)
+    grid = np.concatenate(([0.0], scale * np.logspace(-4, 2, 49)))
+    lls = np.array([restricted_loglik(y, v, t) for t in grid])
+    best = int(np.argmax(lls))
+    if lls[best] > restricted_loglik(y, v, est.tau2) + 1e-10:
+        est = _reml_scoring(y, v, float(grid[best]), max_iter)
+        if restricted_loglik(y, v, est.tau2) < lls[best]:
+            est = Tau2Estimate("REML", float(grid[best]), est.converged, est.iterations, est.note)
+    return est
+
+
+def _reml_scoring(y: np.ndarray, v: np.ndarray, tau2: float, max_iter: int) -> Tau2Estimate:
     ll = restricted_loglik(y, v, tau2)
     for it in range(1, max_iter + 1):
         w = 1.0 / (v + tau2)
