@@ -8,10 +8,22 @@ from pathlib import Path
 APP = Path(__file__).resolve().parents[1] / "app"
 
 CORE = [
-    "lopside.model.review", "lopside.model.project_file", "lopside.settings", "lopside.analysis",
-    "lopside.report", "lopside.cli", "lopside.cli_common", "lopside.intake", "lopside.stats.effects",
-    "lopside.stats.pooling", "lopside.stats.asymmetry", "lopside.stats.adjust", "lopside.figures",
-    "lopside.appraise", "lopside.sheet", "lopside.summary",
+    "lopside.model.review",
+    "lopside.model.project_file",
+    "lopside.settings",
+    "lopside.analysis",
+    "lopside.report",
+    "lopside.cli",
+    "lopside.cli_common",
+    "lopside.intake",
+    "lopside.stats.effects",
+    "lopside.stats.pooling",
+    "lopside.stats.asymmetry",
+    "lopside.stats.adjust",
+    "lopside.figures",
+    "lopside.appraise",
+    "lopside.sheet",
+    "lopside.summary",
 ]
 
 

@@ -64,8 +64,9 @@ def test_reml_maximises_restricted_likelihood(y, v):
         mu = (w * y).sum() / w.sum()
         return 0.5 * (np.log(v + t).sum() + np.log(w.sum()) + (w * (y - mu) ** 2).sum())
 
-    opt = optimize.minimize_scalar(negll, bounds=(0, 20), method="bounded",
-                                   options={"xatol": 1e-12})
+    opt = optimize.minimize_scalar(
+        negll, bounds=(0, 20), method="bounded", options={"xatol": 1e-12}
+    )
     best = opt.x if negll(opt.x) < negll(0.0) else 0.0
     reml = pl.tau2_reml(y, v)
     assert reml.converged

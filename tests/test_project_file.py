@@ -20,14 +20,25 @@ from lopside.model.review import (
 def _review() -> Review:
     rows = (
         StudyRow(study="Ærøskøbing 2001", year=2001, estimate=0.8, lower=0.6, upper=1.1),
-        StudyRow(study="Row two", int_events=3, int_total=40, ctl_events=0, ctl_total=41,
-                 risk_of_bias="high", subgroup="A", exclude=True),
+        StudyRow(
+            study="Row two",
+            int_events=3,
+            int_total=40,
+            ctl_events=0,
+            ctl_total=41,
+            risk_of_bias="high",
+            subgroup="A",
+            exclude=True,
+        ),
         StudyRow(study="Typed badly", estimate=1.2, unread=(("lower", "0,9x"),)),
     )
     notes = AppraisalNotes().with_cause("methods", CauseNote("likely", "small trials unblinded"))
     return Review(
-        details=ReviewDetails(title="Invented τ² review", measure="OR",
-                              published=PublishedResult(0.8, 0.7, 0.95, "random effects")),
+        details=ReviewDetails(
+            title="Invented τ² review",
+            measure="OR",
+            published=PublishedResult(0.8, 0.7, 0.95, "random effects"),
+        ),
         studies=rows,
         notes=notes,
     )
@@ -48,7 +59,7 @@ def test_round_trip_is_identical(tmp_path):
         ('{"lopside_project": 1, "studies": [', "damaged or incomplete"),
         ('{"lopside_project": 7}', "format version 7"),
         ('{"something": 1}', "not a Lopside project"),
-        ('[1, 2]', "not a Lopside project"),
+        ("[1, 2]", "not a Lopside project"),
         ('{"lopside_project": 1, "studies": [{"estimate": "big"}]}', "study 1, estimate"),
         ('{"lopside_project": 1, "studies": [{"colour": 3}]}', "unknown field"),
         ('{"lopside_project": 1, "details": {"measure": "XYZ"}}', "details, measure"),

@@ -24,9 +24,29 @@ INVENTED = (
     "Lopside works. It describes no real drug, trial or patient."
 )
 SURNAMES = [
-    "Arkwright", "Belhaven", "Carrow", "Dunmore", "Elstree", "Fenwick", "Garrod", "Holloway",
-    "Ingleby", "Jarrow", "Kestle", "Lindqvist", "Marchetti", "Nakamura-Ellis", "Okonjo",
-    "Pellew", "Quarrie", "Rosendahl", "Szabo", "Treharne", "Uddin", "Vasquez-Mora", "Whitlow",
+    "Arkwright",
+    "Belhaven",
+    "Carrow",
+    "Dunmore",
+    "Elstree",
+    "Fenwick",
+    "Garrod",
+    "Holloway",
+    "Ingleby",
+    "Jarrow",
+    "Kestle",
+    "Lindqvist",
+    "Marchetti",
+    "Nakamura-Ellis",
+    "Okonjo",
+    "Pellew",
+    "Quarrie",
+    "Rosendahl",
+    "Szabo",
+    "Treharne",
+    "Uddin",
+    "Vasquez-Mora",
+    "Whitlow",
     "Yardley",
 ]
 
@@ -144,8 +164,7 @@ def relapse_review(rng: np.random.Generator) -> Review:
         )
     return Review(
         details=ReviewDetails(
-            title="Maintenance orvelimab after first remission of a fictional autoimmune "
-            "condition",
+            title="Maintenance orvelimab after first remission of a fictional autoimmune condition",
             question="Does maintenance orvelimab delay relapse compared with observation?",
             outcome="Time to first relapse",
             measure="HR",
@@ -219,7 +238,9 @@ def pasted_text(review: Review) -> str:
         w = 100 / len(review.studies)
         lines.append(f"{s.study}  {s.estimate:.2f} ({s.lower:.2f}\u2013{s.upper:.2f})  {w:.1f}%")
     lines.append("Total (95% CI)\t\t100.0%")
-    lines.append("Heterogeneity: Tau\u00b2 = 0.01; Chi\u00b2 = 12.3, df = 10 (P = 0.27); I\u00b2 = 19%")
+    lines.append(
+        "Heterogeneity: Tau\u00b2 = 0.01; Chi\u00b2 = 12.3, df = 10 (P = 0.27); I\u00b2 = 19%"
+    )
     return "\n".join(lines) + "\n"
 
 

@@ -116,8 +116,13 @@ def build_study_data(review: Review, measure: str, derived) -> tuple[StudyData, 
         usable = d.y is not None and d.se is not None and math.isfinite(d.y) and d.se > 0
         if row.exclude:
             excluded.append(
-                ExcludedStudy(i, label, "excluded by the appraiser", d.y if usable else None,
-                              d.se if usable else None)
+                ExcludedStudy(
+                    i,
+                    label,
+                    "excluded by the appraiser",
+                    d.y if usable else None,
+                    d.se if usable else None,
+                )
             )
         elif not usable:
             why = "; ".join(d.problems) if d.problems else "no usable effect and standard error"
@@ -227,8 +232,7 @@ def analyse(
 
     fixed = _safe(pl.fixed_effect, y, v, confidence_level=conf)
     by_method = {
-        m: _safe(pl.random_effects, y, v, method=m, confidence_level=conf)
-        for m in pl.TAU2_METHODS
+        m: _safe(pl.random_effects, y, v, method=m, confidence_level=conf) for m in pl.TAU2_METHODS
     }
     hksj_by_method = {
         m: _safe(pl.random_effects, y, v, method=m, hksj=True, confidence_level=conf)
@@ -237,8 +241,9 @@ def analyse(
     random = (hksj_by_method if settings.hksj else by_method)[settings.tau2_method]
 
     if measure in BINARY_MEASURES and data.has_counts():
-        mh = _safe(binary.mantel_haenszel, data.a, data.b, data.c, data.d, measure,
-                   confidence_level=conf)
+        mh = _safe(
+            binary.mantel_haenszel, data.a, data.b, data.c, data.d, measure, confidence_level=conf
+        )
     else:
         mh = NotComputable("Mantel-Haenszel pooling needs 2x2 counts for every study")
     if measure == "OR" and data.has_counts():
@@ -296,8 +301,9 @@ def analyse(
     for by in ("risk_of_bias", "subgroup"):
         labels = getattr(data, by)
         if len({x for x in labels if x}) >= 2:
-            subgroups[by] = _safe(moderators.subgroup_analysis, data, by=by,
-                                  tau2_method=settings.tau2_method)
+            subgroups[by] = _safe(
+                moderators.subgroup_analysis, data, by=by, tau2_method=settings.tau2_method
+            )
             meta_reg[by] = _safe(moderators.meta_regression, data, by)
 
     power = None

@@ -29,18 +29,31 @@ def add_analysis_arguments(p: argparse.ArgumentParser) -> None:
     p.add_argument("file", metavar="FILE", help="project file, CSV/XLSX study table or .txt")
     p.add_argument("--measure", choices=MEASURES, help="effect measure (overrides the file's)")
     p.add_argument(
-        "--tau2", dest="tau2_method", choices=("REML", "PM", "DL"), default=None,
+        "--tau2",
+        dest="tau2_method",
+        choices=("REML", "PM", "DL"),
+        default=None,
         help="between-study variance estimator (default REML)",
     )
     p.add_argument("--hksj", action="store_true", help="Hartung-Knapp interval (modified)")
     p.add_argument(
-        "--ci-method", choices=("z", "t", "auto"), default=None,
+        "--ci-method",
+        choices=("z", "t", "auto"),
+        default=None,
         help="how the paper's study CIs were computed (default z)",
     )
-    p.add_argument("--fill-side", choices=("auto", "left", "right"), default=None,
-                   help="trim and fill: side of the missing studies")
-    p.add_argument("--fill-estimator", choices=("L0", "R0"), default=None,
-                   help="trim and fill: estimator of the number missing")
+    p.add_argument(
+        "--fill-side",
+        choices=("auto", "left", "right"),
+        default=None,
+        help="trim and fill: side of the missing studies",
+    )
+    p.add_argument(
+        "--fill-estimator",
+        choices=("L0", "R0"),
+        default=None,
+        help="trim and fill: estimator of the number missing",
+    )
 
 
 def settings_from_args(args, base: AnalysisSettings) -> AnalysisSettings:
@@ -83,9 +96,11 @@ def cmd_check(args) -> int:
         return _fail(str(exc))
     progress = None
     if args.power and not args.json and sys.stderr.isatty():
+
         def progress(done, total):
             print(f"\rpower simulation {done}/{total}", end="", file=sys.stderr)
             return True
+
     result = analyse(review, settings, with_power=args.power, power_progress=progress)
     if args.json:
         from .report import to_json
@@ -130,8 +145,11 @@ def build_parser() -> argparse.ArgumentParser:
     c = sub.add_parser("check", help="print the analysis summary")
     add_analysis_arguments(c)
     c.add_argument("--json", action="store_true", help="print the JSON object instead of text")
-    c.add_argument("--power", action="store_true",
-                   help="also simulate the recommended test's power for this review")
+    c.add_argument(
+        "--power",
+        action="store_true",
+        help="also simulate the recommended test's power for this review",
+    )
     c.set_defaults(func=cmd_check)
     s = sub.add_parser("sheet", help="write the appraisal sheet (PDF)")
     add_analysis_arguments(s)
@@ -151,8 +169,11 @@ def build_parser() -> argparse.ArgumentParser:
 def window_main(argv: list[str]) -> int:
     wp = argparse.ArgumentParser(prog="lopside", description="Open the Lopside window.")
     wp.add_argument("file", nargs="?", metavar="FILE", help="review or study table to open")
-    wp.add_argument("--self-test", action="store_true",
-                    help="build the window offscreen, analyse a sample, write a sheet, exit")
+    wp.add_argument(
+        "--self-test",
+        action="store_true",
+        help="build the window offscreen, analyse a sample, write a sheet, exit",
+    )
     wp.add_argument("--version", action="version", version=f"Lopside {__version__}")
     args = wp.parse_args(argv)
     if args.self_test:

@@ -133,8 +133,11 @@ def to_json(result) -> dict[str, Any]:
         entry.setdefault("p", _num(_get(t, "pvalue")))
         if key == "egger":
             entry.update(
-                intercept=_num(t.intercept), se=_num(t.intercept_se), t=_num(t.statistic),
-                df=_num(t.df), p=_num(t.pvalue),
+                intercept=_num(t.intercept),
+                se=_num(t.intercept_se),
+                t=_num(t.statistic),
+                df=_num(t.df),
+                p=_num(t.pvalue),
             )
         elif key == "begg":
             entry.update(tau=_num(t.statistic), z=_num(_get(t, "z")), p=_num(t.pvalue))

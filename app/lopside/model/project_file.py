@@ -228,7 +228,9 @@ def review_from_dict(doc: Any) -> tuple[Review, dict[str, Any]]:
             f"version {FORMAT_VERSION}. Open it with the Lopside version that wrote it."
         )
     if _depth(doc, MAX_DEPTH) > MAX_DEPTH:
-        raise ProjectFileError("The project file is nested more deeply than a project can be.")
+        raise ProjectFileError(
+            "The project file is nested more deeply than a project can be."
+        ) from None
     det = doc.get("details", {})
     if not isinstance(det, dict):
         raise ProjectFileError("details: expected an object.")
@@ -311,7 +313,9 @@ def loads(text: str) -> tuple[Review, dict[str, Any]]:
             f"{exc.msg}). Open the last good copy or the autosave."
         ) from None
     except RecursionError:
-        raise ProjectFileError("The project file is nested more deeply than a project can be.")
+        raise ProjectFileError(
+            "The project file is nested more deeply than a project can be."
+        ) from None
     return review_from_dict(doc)
 
 

@@ -115,13 +115,21 @@ class StudyRow:
 
     def has_counts(self) -> bool:
         return all(
-            v is not None for v in (self.int_events, self.int_total, self.ctl_events, self.ctl_total)
+            v is not None
+            for v in (self.int_events, self.int_total, self.ctl_events, self.ctl_total)
         )
 
     def has_means(self) -> bool:
         return all(
             v is not None
-            for v in (self.int_mean, self.int_sd, self.int_n, self.ctl_mean, self.ctl_sd, self.ctl_n)
+            for v in (
+                self.int_mean,
+                self.int_sd,
+                self.int_n,
+                self.ctl_mean,
+                self.ctl_sd,
+                self.ctl_n,
+            )
         )
 
     def total_n(self) -> float | None:

@@ -107,8 +107,9 @@ def reconcile(
         dl = _rel(m.ci.low, lo, ratio)
         dh = _rel(m.ci.high, hi, ratio)
         comps.append(
-            ModelComparison(key, _label(key), m.estimate, m.ci.low, m.ci.high, de, dl, dh,
-                            max(de, dl, dh))
+            ModelComparison(
+                key, _label(key), m.estimate, m.ci.low, m.ci.high, de, dl, dh, max(de, dl, dh)
+            )
         )
     if not comps:
         return NotComputable("no pooled estimate could be computed from the rows")
@@ -145,8 +146,12 @@ def reconcile(
         for d, row, label in scored[:3]:
             if d < base * 0.5:
                 suspicious.append(
-                    (row, label, f"without it the difference falls from {base * 100:.1f} % "
-                                 f"to {d * 100:.1f} %")
+                    (
+                        row,
+                        label,
+                        f"without it the difference falls from {base * 100:.1f} % "
+                        f"to {d * 100:.1f} %",
+                    )
                 )
     return Reconciliation(
         published_estimate=est,
