@@ -1,0 +1,351 @@
+"""The application object shared by the window and scripts: one review being appraised.
+
+Design invariants
+-----------------
+* A :class:`Session` owns the review, the analysis settings, the file path, the dirty flag
+  and the edit history. It imports no Qt; the window wraps it and adds only UI hooks.
+* Every change to the review goes through :meth:`Session.do` (or undo/redo), which goes
+  through :func:`lopside.edits.apply`. Listeners hear "about to change" before and
+  "changed" after, with a :class:`lopside.edits.Change` saying what changed.
+* :meth:`Session.analyse` is the only way the window gets numbers. It is cached on the
+  identity of the study table, the review details and the settings (all immutable), so
+  an edit to the appraiser's notes does not re-run the statistics and views can tell
+  from identities what needs redrawing.
+* The dirty flag compares a state id: each distinct state of the review gets a new id;
+  undo returns to the id it had, so undoing back to the saved state is clean again.
+"""
+
+from __future__ import annotations
+
+import itertools
+from collections.abc import Callable
+from dataclasses import dataclass, replace
+from pathlib import Path
+from typing import Any
+
+from . import edits as ed
+from .model.review import Review, ReviewDetails
+from .settings import AnalysisSettings
+
+Listener = Callable[[ed.Change], None]
+
+_ids = itertools.count(1)
+
+
+@dataclass(slots=True)
+class _Step:
+    """One entry of the history: the edit, its inverse, and the state ids around it."""
+
+    edit: ed.Edit
+    inverse: ed.Edit
+    before: int
+    after: int
+
+
+class Session:
+    """One review being appraised, with undo, a dirty flag and a cached analysis.
+
+    Parameters
+    ----------
+    review : Review, optional
+        Starts with an empty review when omitted.
+    settings : AnalysisSettings, optional
+    path : str or Path, optional
+        The project file the review was read from (None for a new or imported review).
+    """
+
+    def __init__(
+        self,
+        review: Review | None = None,
+        settings: AnalysisSettings | None = None,
+        path: str | Path | None = None,
+    ) -> None:
+        self._review = review or Review()
+        self._settings = settings or AnalysisSettings()
+        self._path: Path | None = Path(path) if path else None
+        self._undo: list[_Step] = []
+        self._redo: list[_Step] = []
+        self._state = next(_ids)
+        self._saved_state = self._state
+        self._settings_dirty = False
+        self._merge_barrier = True
+        self._about: list[Listener] = []
+        self._changed: list[Listener] = []
+        self._cache: list[tuple[tuple, Any]] = []
+        self._power: tuple[tuple, Any] | None = None
+        #: the file an imported review came from (CSV, XLSX, .txt); not saved over
+        self.imported_from: Path | None = None
+
+    # ---------------------------------------------------------------- state
+
+    @property
+    def review(self) -> Review:
+        return self._review
+
+    @property
+    def settings(self) -> AnalysisSettings:
+        return self._settings
+
+    @property
+    def path(self) -> Path | None:
+        return self._path
+
+    @property
+    def dirty(self) -> bool:
+        """True when there are changes since the last save (or since opening)."""
+        return self._state != self._saved_state or self._settings_dirty
+
+    @property
+    def state_id(self) -> int:
+        """Changes whenever the review changes (autosave uses it to see new work)."""
+        return self._state
+
+    def display_name(self) -> str:
+        """The file name, or the review title, or "Untitled review"."""
+        if self._path is not None:
+            return self._path.name
+        if self.imported_from is not None:
+            return f"{self.imported_from.name} (imported)"
+        return self._review.details.title or "Untitled review"
+
+    # ---------------------------------------------------------------- listeners
+
+    def add_listener(
+        self, *, about_to_change: Listener | None = None, changed: Listener | None = None
+    ) -> None:
+        """Be told before and after each change (e.g. a Qt model brackets row inserts)."""
+        if about_to_change is not None:
+            self._about.append(about_to_change)
+        if changed is not None:
+            self._changed.append(changed)
+
+    def remove_listener(self, fn: Listener) -> None:
+        for lst in (self._about, self._changed):
+            while fn in lst:
+                lst.remove(fn)
+
+    def _emit(self, which: list[Listener], change: ed.Change) -> None:
+        for fn in list(which):
+            fn(change)
+
+    # ---------------------------------------------------------------- edits
+
+    def _apply(self, edit: ed.Edit) -> ed.Edit:
+        new_review, inverse = ed.apply(edit, self._review)  # raises before any change
+        change = ed.change_of(edit)
+        self._emit(self._about, change)
+        self._review = new_review
+        self._emit(self._changed, change)
+        return inverse
+
+    def do(self, edit: ed.Edit, *, merge: bool = True) -> bool:
+        """Apply ``edit`` and record it; returns True when it merged into the last step.
+
+        Raises :class:`lopside.edits.EditError` (nothing changes) when it does not fit.
+        """
+        last = self._undo[-1] if self._undo else None
+        merged_edit = None
+        if merge and last is not None and not self._merge_barrier:
+            merged_edit = ed.merge(last.edit, edit)
+        inverse = self._apply(edit)
+        self._redo.clear()
+        new_state = next(_ids)
+        if merged_edit is not None and last is not None:
+            last.edit = merged_edit
+            last.after = new_state
+            self._state = new_state
+            return True
+        self._undo.append(_Step(edit, inverse, self._state, new_state))
+        self._state = new_state
+        self._merge_barrier = False
+        return False
+
+    def undo(self) -> ed.Edit | None:
+        """Undo the last step; returns its edit (None when there is nothing to undo)."""
+        if not self._undo:
+            return None
+        step = self._undo.pop()
+        self._apply(step.inverse)
+        self._redo.append(step)
+        self._state = step.before
+        self._merge_barrier = True
+        return step.edit
+
+    def redo(self) -> ed.Edit | None:
+        """Redo the last undone step; returns its edit (None when there is none)."""
+        if not self._redo:
+            return None
+        step = self._redo.pop()
+        step.inverse = self._apply(step.edit)
+        self._undo.append(step)
+        self._state = step.after
+        self._merge_barrier = True
+        return step.edit
+
+    @property
+    def can_undo(self) -> bool:
+        return bool(self._undo)
+
+    @property
+    def can_redo(self) -> bool:
+        return bool(self._redo)
+
+    def undo_text(self) -> str:
+        return ed.describe(self._undo[-1].edit) if self._undo else ""
+
+    def redo_text(self) -> str:
+        return ed.describe(self._redo[-1].edit) if self._redo else ""
+
+    def history(self) -> tuple[ed.Edit, ...]:
+        """The edits that can be undone, oldest first."""
+        return tuple(s.edit for s in self._undo)
+
+    def break_merge(self) -> None:
+        """The next edit starts a new undo step (e.g. the user left the cell)."""
+        self._merge_barrier = True
+
+    # ---------------------------------------------------------------- whole-review changes
+
+    def reset(
+        self,
+        review: Review,
+        settings: AnalysisSettings | None = None,
+        path: str | Path | None = None,
+        *,
+        dirty: bool = False,
+        imported_from: str | Path | None = None,
+    ) -> None:
+        """Start over on another review (New, Open, recovery). Clears the history."""
+        change = ed.Change("reset")
+        self._emit(self._about, change)
+        self._review = review
+        self._settings = settings or AnalysisSettings()
+        self._path = Path(path) if path else None
+        self.imported_from = Path(imported_from) if imported_from else None
+        self._undo.clear()
+        self._redo.clear()
+        self._state = next(_ids)
+        self._saved_state = -1 if dirty else self._state
+        self._settings_dirty = False
+        self._merge_barrier = True
+        self._cache.clear()
+        self._power = None
+        self._emit(self._changed, change)
+
+    def new(self) -> None:
+        """An empty review."""
+        self.reset(Review(details=ReviewDetails()))
+
+    def open(self, path: str | Path, measure: str | None = None) -> None:
+        """Open a project file, or import a CSV/XLSX study table or a .txt of pasted rows.
+
+        Raises the intake/project-file errors (ValueErrors with a message for the user).
+        """
+        from .cli_common import load_review_file
+        from .model.project_file import SUFFIX
+
+        p = Path(path)
+        review, saved = load_review_file(p, measure)
+        settings = AnalysisSettings.from_dict(saved)
+        if p.suffix.lower() in (SUFFIX, ".json"):
+            self.reset(review, settings, p)
+        else:
+            self.reset(review, settings, None, dirty=True, imported_from=p)
+
+    def save(self, path: str | Path | None = None) -> Path:
+        """Save atomically to ``path`` (or the current path); the session becomes clean."""
+        from .model.project_file import SUFFIX, save
+
+        target = Path(path) if path else self._path
+        if target is None:
+            raise ValueError("No file name yet: choose where to save the review.")
+        if not target.suffix:
+            target = target.with_suffix(SUFFIX)
+        save(self._review, target, self._settings.to_dict())
+        self._path = target
+        self.imported_from = None
+        self.mark_saved()
+        return target
+
+    def mark_saved(self) -> None:
+        self._saved_state = self._state
+        self._settings_dirty = False
+        self._merge_barrier = True
+
+    def set_settings(self, settings: AnalysisSettings) -> None:
+        """Change the analysis settings (saved with the project; not an undo step)."""
+        if settings == self._settings:
+            return
+        change = ed.Change("settings")
+        self._emit(self._about, change)
+        self._settings = settings
+        self._settings_dirty = True
+        self._emit(self._changed, change)
+
+    def update_settings(self, **changes: Any) -> None:
+        self.set_settings(replace(self._settings, **changes))
+
+    # ---------------------------------------------------------------- analysis
+
+    def analysis_key(self) -> tuple:
+        """The immutable inputs of the analysis (compared by identity)."""
+        return (self._review.studies, self._review.details, self._settings)
+
+    def _lookup(self, key: tuple):
+        for k, result in self._cache:
+            if all(a is b for a, b in zip(k, key)):
+                return result
+        return None
+
+    def analyse(self):
+        """The analysis of the current review (cached; see the module docstring).
+
+        The returned result always carries the current review (with its notes), and the
+        power simulation when one was run for exactly these inputs.
+        """
+        from .analysis import analyse
+
+        key = self.analysis_key()
+        result = self._lookup(key)
+        if result is None:
+            result = analyse(self._review, self._settings)
+            self._cache.insert(0, (key, result))
+            del self._cache[8:]  # a few states back, so undo is instant
+        if self._power is not None and all(a is b for a, b in zip(self._power[0], key)):
+            if result.power is not self._power[1]:
+                result = replace(result, power=self._power[1])
+        if result.review is not self._review:
+            result = replace(result, review=self._review)
+        return result
+
+    def store_power(self, key: tuple, power: Any) -> bool:
+        """Keep a power result computed for ``key``; False (dropped) if the review moved on."""
+        if not all(a is b for a, b in zip(key, self.analysis_key())):
+            return False
+        self._power = (key, power)
+        return True
+
+    def power_is_current(self) -> bool:
+        return self._power is not None and all(
+            a is b for a, b in zip(self._power[0], self.analysis_key())
+        )
+
+    def run_power(self, progress=None):
+        """Run the power simulation synchronously (scripts; the window uses a worker).
+
+        Returns the power result (or NotComputable) and keeps it for this review.
+        """
+        from .analysis import analyse
+
+        key = self.analysis_key()
+        result = analyse(self._review, self._settings, with_power=True, power_progress=progress)
+        self.store_power(key, result.power)
+        return result.power
+
+    def export_sheet(self, path: str | Path, *, include_forest: bool = False) -> Path:
+        """Write the appraisal sheet (PDF) for the current review and analysis."""
+        from .sheet import write_sheet
+
+        out = Path(path)
+        write_sheet(self.analyse(), out, include_forest=include_forest)
+        return out
