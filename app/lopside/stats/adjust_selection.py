@@ -1,0 +1,355 @@
+"""Step-function selection model (Vevea & Hedges 1995, Psychometrika 60:419).
+
+Random-effects model θ_i ~ N(μ, τ²), y_i | θ_i ~ N(θ_i, s_i²), with publication weights
+that are constant within intervals of the one-sided p-value (methods.md section 5.4):
+
+    f(y_i) = ω_{j(i)} φ((y_i − μ)/σ̃_i)/σ̃_i / Σ_j ω_j P_ij,   σ̃_i² = s_i² + τ²,
+
+ω_1 = 1 for the most significant interval. Fitted by maximum likelihood over μ, τ ≥ 0
+(optimised as τ with a lower bound of 0, so the likelihood is smooth at τ² = 0) and
+log ω_j (j ≥ 2, bounded to ±ln 1000 so that a runaway weight is detected rather than
+followed), with L-BFGS-B from two starting points and a restart from the best.
+
+Standard errors are Wald, from a central-difference numerical Hessian of the
+log-likelihood at the maximum. The likelihood-ratio test compares with the same model
+with every ω = 1 (plain ML random effects), χ² on J − 1 df.
+
+Cautions (methods.md 5.4): the LRT is very sensitive to a misspecified random-effects
+distribution, the adjusted estimate is more variable than the unadjusted one, and with
+few studies the model is often not estimable. Use it as a sensitivity analysis.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from .data import StudyData
+from .pooling import TAU2_METHODS, random_effects
+from .results import ConfidenceInterval, NotComputable
+
+DIRECTIONS: tuple[str, ...] = ("positive", "negative", "auto")
+_LOGW_BOUND = math.log(1000.0)
+
+SE_METHOD = (
+    "Wald standard errors from a numerical (central-difference) Hessian of the "
+    "log-likelihood at its maximum; normal (z) interval for μ; SE of ω by the delta "
+    "method from log ω."
+)
+
+
+@dataclass(frozen=True, slots=True)
+class SelectionModelResult:
+    """Result of :func:`selection_model`.
+
+    Attributes
+    ----------
+    mu, se, ci, statistic, pvalue
+        Adjusted estimate μ (analysis scale), its Wald SE, interval and z test of μ = 0.
+    tau2 : float
+        Between-study variance under the selection model.
+    omega, omega_se : tuple
+        Publication weights per p-interval (ω_1 = 1 fixed, its SE is None).
+    cutpoints : tuple of float
+        One-sided p-value cut-points (the last interval runs to p = 1).
+    intervals : tuple of str
+        Interval labels, e.g. "p ≤ 0.025", "p > 0.025".
+    counts : tuple of int
+        Number of studies per interval.
+    direction : str
+        "positive" or "negative": the direction in which one-sided p-values are computed.
+    direction_rule : str
+        How the direction was chosen.
+    loglik, loglik_unadjusted : float
+        Maximised log-likelihoods with and without selection.
+    unadjusted_mu, unadjusted_tau2 : float
+        ML random-effects estimates without selection (the comparison model of the LRT).
+    lrt_statistic, lrt_df, lrt_pvalue
+        Likelihood-ratio test of ω = 1 (χ² with J − 1 df).
+    """
+
+    mu: float
+    se: float
+    ci: ConfidenceInterval
+    statistic: float
+    pvalue: float
+    tau2: float
+    omega: tuple[float, ...]
+    omega_se: tuple[float | None, ...]
+    cutpoints: tuple[float, ...]
+    intervals: tuple[str, ...]
+    counts: tuple[int, ...]
+    direction: str
+    direction_rule: str
+    loglik: float
+    loglik_unadjusted: float
+    unadjusted_mu: float
+    unadjusted_tau2: float
+    lrt_statistic: float
+    lrt_df: int
+    lrt_pvalue: float
+    converged: bool
+    k: int
+    se_method: str = SE_METHOD
+    confidence_level: float = 0.95
+    note: str = ""
+
+
+def _interval_labels(cuts: tuple[float, ...]) -> tuple[str, ...]:
+    labels = [f"p ≤ {cuts[0]:g}"]
+    for lo, hi in zip(cuts[:-1], cuts[1:]):
+        labels.append(f"{lo:g} < p ≤ {hi:g}")
+    labels.append(f"p > {cuts[-1]:g}")
+    return tuple(labels)
+
+
+class _Model:
+    """Negative log-likelihood of the step-function model for fixed data."""
+
+    def __init__(self, y: np.ndarray, se: np.ndarray, cuts: tuple[float, ...]):
+        from scipy.special import ndtr, ndtri
+
+        self.y, self.se, self.v = y, se, se**2
+        self.J = len(cuts) + 1
+        # z-boundaries z_j = Φ⁻¹(1 − c_j) for c_0 = 0 … c_J = 1 (from +inf down to -inf)
+        zc = np.concatenate([[np.inf], ndtri(1.0 - np.asarray(cuts)), [-np.inf]])
+        with np.errstate(invalid="ignore"):
+            self.bounds = se[:, None] * zc[None, :]  # k x (J+1), on the y scale
+        p = ndtr(-y / se)  # one-sided p in the positive direction
+        self.interval = np.searchsorted(np.asarray(cuts), p, side="left")
+        self.counts = np.bincount(self.interval, minlength=self.J)
+        self._ndtr = ndtr
+
+    def negll(self, theta: np.ndarray, *, selection: bool = True) -> float:
+        mu, tau = float(theta[0]), float(theta[1])
+        st2 = self.v + tau * tau
+        st = np.sqrt(st2)
+        r = self.y - mu
+        ll = -0.5 * np.log(2.0 * np.pi * st2) - 0.5 * r * r / st2
+        if selection:
+            logw = np.concatenate([[0.0], theta[2:]])
+            with np.errstate(invalid="ignore"):
+                cdf = self._ndtr((self.bounds - mu) / st[:, None])
+            cdf[:, 0] = 1.0
+            cdf[:, -1] = 0.0
+            P = cdf[:, :-1] - cdf[:, 1:]
+            A = P @ np.exp(logw)
+            if np.any(A <= 0):
+                return 1e300
+            ll = ll + logw[self.interval] - np.log(A)
+        return float(-ll.sum())
+
+
+def _fit(model: _Model, starts: list[np.ndarray], bounds, selection: bool):
+    from scipy.optimize import minimize
+
+    def f(t):
+        return model.negll(t, selection=selection)
+
+    best = None
+    for x0 in starts:
+        res = minimize(f, x0, method="L-BFGS-B", bounds=bounds, options={"maxiter": 2000})
+        if best is None or res.fun < best.fun:
+            best = res
+    # Restart from the best point: L-BFGS-B can stop early on flat stretches.
+    again = minimize(f, best.x, method="L-BFGS-B", bounds=bounds, options={"maxiter": 2000})
+    ok = bool(best.success or again.success) and abs(again.fun - best.fun) < 1e-5 * max(
+        1.0, abs(best.fun)
+    )
+    if again.fun < best.fun:
+        best = again
+    return best, ok
+
+
+def _hessian(f, x: np.ndarray, free: np.ndarray) -> np.ndarray:
+    """Central-difference Hessian of f over the coordinates ``free``."""
+    idx = np.flatnonzero(free)
+    m = idx.size
+    h = 1e-4 * np.maximum(1.0, np.abs(x))
+    H = np.empty((m, m))
+    f0 = f(x)
+    for a in range(m):
+        i = idx[a]
+        ei = np.zeros_like(x)
+        ei[i] = h[i]
+        H[a, a] = (f(x + ei) - 2.0 * f0 + f(x - ei)) / h[i] ** 2
+        for b in range(a + 1, m):
+            j = idx[b]
+            ej = np.zeros_like(x)
+            ej[j] = h[j]
+            val = (f(x + ei + ej) - f(x + ei - ej) - f(x - ei + ej) + f(x - ei - ej)) / (
+                4.0 * h[i] * h[j]
+            )
+            H[a, b] = H[b, a] = val
+    return H
+
+
+def selection_model(
+    data: StudyData,
+    *,
+    cuts: tuple[float, ...] = (0.025,),
+    direction: str = "auto",
+    tau2_method: str = "REML",
+    confidence_level: float = 0.95,
+) -> SelectionModelResult | NotComputable:
+    """Vevea & Hedges step-function selection model with random effects.
+
+    Parameters
+    ----------
+    data : StudyData
+    cuts : tuple of float
+        Increasing one-sided p-value cut-points in (0, 1); default (0.025,), i.e. a
+        single step at two-sided p = 0.05 in the favoured direction. More steps, e.g.
+        (0.025, 0.05, 0.5), need more studies.
+    direction : {"auto", "positive", "negative"}
+        Direction in which results count as "significant". "auto" uses the sign of the
+        random-effects pooled estimate (``tau2_method``).
+    tau2_method : {"DL", "PM", "REML"}
+        Only used for the "auto" direction and the starting values.
+    confidence_level : float
+
+    Returns
+    -------
+    SelectionModelResult or NotComputable
+        NotComputable when a p-interval holds no study, when there are fewer than
+        (number of parameters + 2) studies, when the fit does not converge, when a
+        weight runs to its boundary, or when the likelihood is flat.
+    """
+    from scipy.special import chdtrc, ndtr, ndtri
+
+    if direction not in DIRECTIONS:
+        raise ValueError(f"unknown direction {direction!r}; use one of {DIRECTIONS}")
+    if tau2_method not in TAU2_METHODS:
+        raise ValueError(f"unknown tau² method {tau2_method!r}; use one of {TAU2_METHODS}")
+    cuts = tuple(float(c) for c in cuts)
+    if (
+        not cuts
+        or any(not 0.0 < c < 1.0 for c in cuts)
+        or any(b <= a for a, b in zip(cuts[:-1], cuts[1:]))
+    ):
+        raise ValueError("cuts must be increasing values strictly between 0 and 1")
+
+    y = np.asarray(data.y, dtype=float)
+    se = np.asarray(data.se, dtype=float)
+    k = y.size
+    J = len(cuts) + 1
+    n_par = 2 + (J - 1)
+    if k < n_par + 2:
+        return NotComputable(
+            f"the selection model with {J} p-value intervals has {n_par} parameters and "
+            f"needs at least {n_par + 2} studies; there are {k}"
+        )
+    re = random_effects(y, se**2, method=tau2_method)
+    if isinstance(re, NotComputable):
+        return re
+    if direction == "auto":
+        dir_used = "negative" if re.estimate < 0 else "positive"
+        direction_rule = (
+            f"automatic: the random-effects pooled estimate is {dir_used} "
+            f"({re.estimate:.3g}), so p-values are one-sided in that direction"
+        )
+    else:
+        dir_used = direction
+        direction_rule = f"chosen by the user: one-sided p-values favour {direction} effects"
+    sign = 1.0 if dir_used == "positive" else -1.0
+    yw = sign * y
+
+    model = _Model(yw, se, cuts)
+    labels = _interval_labels(cuts)
+    counts = tuple(int(c) for c in model.counts)
+    empty = [labels[j] for j in range(J) if counts[j] == 0]
+    if empty:
+        return NotComputable(
+            "the selection model is not estimable: no study falls in the interval "
+            + ", ".join(empty)
+            + " (one-sided p in the "
+            + dir_used
+            + " direction); use fewer cut-points"
+        )
+
+    mu0 = sign * re.estimate
+    tau0 = math.sqrt(re.tau2) if re.tau2 > 0 else 0.1 * float(np.median(se))
+    bounds_null = [(None, None), (0.0, None)]
+    null, ok_null = _fit(model, [np.array([mu0, tau0])], bounds_null, selection=False)
+    bounds = bounds_null + [(-_LOGW_BOUND, _LOGW_BOUND)] * (J - 1)
+    starts = [
+        np.concatenate([[mu0, tau0], np.zeros(J - 1)]),
+        np.concatenate([[0.5 * mu0, tau0], np.full(J - 1, math.log(0.5))]),
+    ]
+    fit, ok = _fit(model, starts, bounds, selection=True)
+    if not (ok and ok_null):
+        return NotComputable(
+            "the selection model is not estimable: the likelihood maximisation did not "
+            "converge for these data"
+        )
+    x = np.asarray(fit.x, dtype=float)
+    logw = x[2:]
+    at_edge = [labels[j + 1] for j in range(J - 1) if abs(logw[j]) > _LOGW_BOUND - 1e-2]
+    if at_edge:
+        return NotComputable(
+            "the selection model is not estimable: the publication weight for "
+            + ", ".join(at_edge)
+            + " runs to its limit (the data push it towards 0 or infinity)"
+        )
+
+    note_parts = []
+    tau_zero = x[1] <= 1e-6 * max(1.0, float(np.median(se)))
+    free = np.ones(x.size, dtype=bool)
+    if tau_zero:
+        x[1] = 0.0
+        free[1] = False
+        note_parts.append("τ² was estimated at 0 (boundary); the SEs treat it as fixed")
+    H = _hessian(lambda t: model.negll(t, selection=True), x, free)
+    eig = np.linalg.eigvalsh(0.5 * (H + H.T))
+    if not np.all(np.isfinite(eig)) or eig.min() <= 1e-8 * max(1.0, abs(eig.max())):
+        return NotComputable(
+            "the selection model is not estimable: the likelihood is flat in at least one "
+            "direction, so the data cannot pin down the weights and the estimate together"
+        )
+    cov_free = np.linalg.inv(H)
+    cov = np.zeros((x.size, x.size))
+    cov[np.ix_(free, free)] = cov_free
+    se_x = np.sqrt(np.clip(np.diag(cov), 0.0, None))
+
+    mu = sign * float(x[0])
+    se_mu = float(se_x[0])
+    crit = float(ndtri(0.5 + confidence_level / 2.0))
+    stat = mu / se_mu
+    omega = (1.0,) + tuple(float(math.exp(t)) for t in logw)
+    omega_se = (None,) + tuple(float(math.exp(logw[j]) * se_x[2 + j]) for j in range(J - 1))
+    ll_adj = -float(fit.fun)
+    ll_null = -float(null.fun)
+    lrt = max(0.0, 2.0 * (ll_adj - ll_null))
+    if k < 20:
+        note_parts.append(
+            "fewer than 20 studies: selection-model estimates are unstable and the "
+            "interval may be too narrow"
+        )
+    return SelectionModelResult(
+        mu=mu,
+        se=se_mu,
+        ci=ConfidenceInterval(mu - crit * se_mu, mu + crit * se_mu),
+        statistic=float(stat),
+        pvalue=float(2.0 * ndtr(-abs(stat))),
+        tau2=float(x[1] ** 2),
+        omega=omega,
+        omega_se=omega_se,
+        cutpoints=cuts,
+        intervals=labels,
+        counts=counts,
+        direction=dir_used,
+        direction_rule=direction_rule,
+        loglik=ll_adj,
+        loglik_unadjusted=ll_null,
+        unadjusted_mu=sign * float(null.x[0]),
+        unadjusted_tau2=float(null.x[1] ** 2),
+        lrt_statistic=float(lrt),
+        lrt_df=J - 1,
+        lrt_pvalue=float(chdtrc(J - 1, lrt)),
+        converged=True,
+        k=int(k),
+        confidence_level=confidence_level,
+        note="; ".join(note_parts),
+    )

@@ -1,0 +1,332 @@
+"""Leave-one-out, cumulative meta-analysis by precision, and fail-safe N.
+
+All estimates are on the analysis scale (log for ratio measures) and come from
+:mod:`lopside.stats.pooling`, so they match the main analysis exactly.
+
+Fail-safe N is offered only because readers meet it in published reviews; each result
+carries :data:`FAIL_SAFE_CAUTION` and the window, CLI and sheet must show it with the
+number (Cochrane Handbook 5.1 §10.4.4.3 does not recommend it).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from .data import StudyData
+from .pooling import TAU2_METHODS, cochran_q, fixed_effect, random_effects
+from .results import NotComputable, PooledEstimate
+
+FAIL_SAFE_CAUTION = (
+    "Fail-safe N is not recommended (Cochrane Handbook 5.1, section 10.4.4.3): the number "
+    "depends heavily on what is assumed about the results of the unpublished studies, the "
+    "different versions give widely different numbers, and it asks whether significance "
+    "would be lost rather than how large the effect is and how precisely it is known. It "
+    "also ignores heterogeneity and the size of the studies."
+)
+
+
+def _i2(y: np.ndarray, v: np.ndarray) -> float | NotComputable:
+    k = y.size
+    if k < 2:
+        return NotComputable("I² needs at least two studies")
+    q = cochran_q(y, v)
+    return max(0.0, (q - (k - 1)) / q) * 100.0 if q > 0 else 0.0
+
+
+def _labels(data: StudyData) -> tuple[str, ...]:
+    if len(data.labels) == data.k:
+        return data.labels
+    return tuple(f"Study {i + 1}" for i in range(data.k))
+
+
+# --------------------------------------------------------------------------------------
+# Leave-one-out
+
+
+@dataclass(frozen=True, slots=True)
+class LeaveOneOutRow:
+    """The pooled result without one study.
+
+    ``i2`` is in percent (NotComputable when one study remains).
+    """
+
+    omitted: str
+    index: int
+    fixed: PooledEstimate
+    random: PooledEstimate
+    tau2: float
+    i2: float | NotComputable
+
+
+@dataclass(frozen=True, slots=True)
+class LeaveOneOutResult:
+    rows: tuple[LeaveOneOutRow, ...]
+    full_fixed: PooledEstimate
+    full_random: PooledEstimate
+    tau2_method: str
+    hksj: bool
+    confidence_level: float = 0.95
+
+
+def leave_one_out(
+    data: StudyData,
+    *,
+    tau2_method: str = "REML",
+    hksj: bool = False,
+    confidence_level: float = 0.95,
+) -> LeaveOneOutResult | NotComputable:
+    """Pool without each study in turn (fixed and random effects, τ², I²).
+
+    Parameters
+    ----------
+    data : StudyData
+    tau2_method : {"DL", "PM", "REML"}
+    hksj : bool
+        Use the modified Hartung-Knapp-Sidik-Jonkman interval for the random effects.
+    confidence_level : float
+
+    Returns
+    -------
+    LeaveOneOutResult or NotComputable
+        NotComputable with fewer than three studies (two must remain).
+    """
+    if tau2_method not in TAU2_METHODS:
+        raise ValueError(f"unknown tau² method {tau2_method!r}; use one of {TAU2_METHODS}")
+    y = np.asarray(data.y, dtype=float)
+    v = np.asarray(data.se, dtype=float) ** 2
+    k = y.size
+    if k < 3:
+        return NotComputable("leave-one-out needs at least three studies")
+    labels = _labels(data)
+    rows = []
+    for i in range(k):
+        keep = np.arange(k) != i
+        fe = fixed_effect(y[keep], v[keep], confidence_level=confidence_level)
+        re = random_effects(
+            y[keep], v[keep], method=tau2_method, hksj=hksj, confidence_level=confidence_level
+        )
+        rows.append(
+            LeaveOneOutRow(
+                omitted=labels[i],
+                index=i,
+                fixed=fe,
+                random=re,
+                tau2=re.tau2,
+                i2=_i2(y[keep], v[keep]),
+            )
+        )
+    return LeaveOneOutResult(
+        rows=tuple(rows),
+        full_fixed=fixed_effect(y, v, confidence_level=confidence_level),
+        full_random=random_effects(
+            y, v, method=tau2_method, hksj=hksj, confidence_level=confidence_level
+        ),
+        tau2_method=tau2_method,
+        hksj=hksj,
+        confidence_level=confidence_level,
+    )
+
+
+# --------------------------------------------------------------------------------------
+# Cumulative meta-analysis by precision
+
+
+@dataclass(frozen=True, slots=True)
+class CumulativeStep:
+    """Pooled result of the ``k`` most precise studies (``added`` is the k-th)."""
+
+    added: str
+    index: int
+    k: int
+    se_added: float
+    fixed: PooledEstimate
+    random: PooledEstimate
+
+
+@dataclass(frozen=True, slots=True)
+class CumulativeResult:
+    steps: tuple[CumulativeStep, ...]
+    order: str
+    tau2_method: str
+    hksj: bool
+    confidence_level: float = 0.95
+
+
+def cumulative(
+    data: StudyData,
+    *,
+    tau2_method: str = "REML",
+    hksj: bool = False,
+    confidence_level: float = 0.95,
+) -> CumulativeResult | NotComputable:
+    """Cumulative meta-analysis, most precise study first.
+
+    A drift of the estimate as less precise studies are added is a picture of a
+    small-study effect. Studies with equal SE keep their table order.
+
+    Returns
+    -------
+    CumulativeResult or NotComputable
+        NotComputable with fewer than two studies.
+    """
+    if tau2_method not in TAU2_METHODS:
+        raise ValueError(f"unknown tau² method {tau2_method!r}; use one of {TAU2_METHODS}")
+    y = np.asarray(data.y, dtype=float)
+    se = np.asarray(data.se, dtype=float)
+    v = se**2
+    k = y.size
+    if k < 2:
+        return NotComputable("a cumulative meta-analysis needs at least two studies")
+    labels = _labels(data)
+    order = np.argsort(se, kind="mergesort")
+    steps = []
+    for m in range(1, k + 1):
+        idx = order[:m]
+        j = int(order[m - 1])
+        steps.append(
+            CumulativeStep(
+                added=labels[j],
+                index=j,
+                k=m,
+                se_added=float(se[j]),
+                fixed=fixed_effect(y[idx], v[idx], confidence_level=confidence_level),
+                random=random_effects(
+                    y[idx], v[idx], method=tau2_method, hksj=hksj, confidence_level=confidence_level
+                ),
+            )
+        )
+    return CumulativeResult(
+        steps=tuple(steps),
+        order="most precise (smallest SE) first",
+        tau2_method=tau2_method,
+        hksj=hksj,
+        confidence_level=confidence_level,
+    )
+
+
+# --------------------------------------------------------------------------------------
+# Fail-safe N
+
+
+@dataclass(frozen=True, slots=True)
+class FailSafeN:
+    """A fail-safe N, always shown with ``caution``.
+
+    Attributes
+    ----------
+    method : str
+        "Rosenthal" or "Orwin".
+    n : float
+        The number of unpublished null studies (not rounded; 0 when already not met).
+    n_whole : int
+        ``n`` rounded up to whole studies.
+    formula : str
+        The formula in words with the values used.
+    tolerance : float or None
+        Rosenthal's 5k + 10 (for Rosenthal only).
+    caution : str
+        :data:`FAIL_SAFE_CAUTION`.
+    """
+
+    method: str
+    n: float
+    n_whole: int
+    formula: str
+    k: int
+    tolerance: float | None = None
+    caution: str = FAIL_SAFE_CAUTION
+    note: str = ""
+
+
+def fail_safe_n(
+    data: StudyData, *, trivial: float | None = None, alpha: float = 0.05
+) -> FailSafeN | NotComputable:
+    """Orwin's fail-safe N when a ``trivial`` effect is given, otherwise Rosenthal's.
+
+    Parameters
+    ----------
+    data : StudyData
+    trivial : float, optional
+        Trivial effect on the analysis scale for Orwin's version (log scale for ratios).
+    alpha : float
+        One-tailed level for Rosenthal's version.
+    """
+    if trivial is None:
+        return fail_safe_rosenthal(data, alpha=alpha)
+    return fail_safe_orwin(data, trivial)
+
+
+def fail_safe_rosenthal(data: StudyData, *, alpha: float = 0.05) -> FailSafeN | NotComputable:
+    """Rosenthal's (1979) fail-safe N: N = (Σz_i)²/z_α² − k, one-tailed ``alpha``.
+
+    z_i = y_i/SE_i; z_α = Φ⁻¹(1 − α) (1.645 for one-tailed 0.05). The unpublished studies
+    are assumed to average z = 0.
+    """
+    from scipy.special import ndtri
+
+    y = np.asarray(data.y, dtype=float)
+    se = np.asarray(data.se, dtype=float)
+    k = y.size
+    if k < 1:
+        return NotComputable("no study has a usable effect and standard error")
+    z = y / se
+    sz = float(z.sum())
+    za = float(ndtri(1.0 - alpha))
+    n = sz**2 / za**2 - k
+    note = ""
+    # n < 0 exactly when the combined (Stouffer) z = Σz/√k is already below z_α in size.
+    if n < 0:
+        n = 0.0
+        note = "the combined result is not significant even without unpublished studies"
+    return FailSafeN(
+        method="Rosenthal",
+        n=float(n),
+        n_whole=int(math.ceil(n - 1e-9)) if n > 0 else 0,
+        formula=f"(Σz)²/z_α² − k = ({sz:.4g})²/{za:.4g}² − {k}, one-tailed α = {alpha:g}",
+        k=int(k),
+        tolerance=float(5 * k + 10),
+        note=note,
+    )
+
+
+def fail_safe_orwin(data: StudyData, trivial_effect: float) -> FailSafeN | NotComputable:
+    """Orwin's (1983) fail-safe N: N = k(ȳ − y_c)/y_c.
+
+    ȳ is the fixed-effect mean and ``trivial_effect`` (y_c) the effect the user would
+    regard as trivial, on the analysis scale (e.g. ln 0.95 for an odds ratio of 0.95).
+    The unpublished studies are assumed to average 0.
+    """
+    y = np.asarray(data.y, dtype=float)
+    v = np.asarray(data.se, dtype=float) ** 2
+    k = y.size
+    if k < 1:
+        return NotComputable("no study has a usable effect and standard error")
+    yc = float(trivial_effect)
+    if not math.isfinite(yc) or yc == 0.0:
+        return NotComputable(
+            "Orwin's fail-safe N needs a trivial effect different from the null (not 0 on "
+            "the analysis scale)"
+        )
+    fe = fixed_effect(y, v)
+    ybar = fe.estimate
+    note = ""
+    if ybar * yc <= 0:
+        return NotComputable(
+            "the trivial effect lies on the other side of the null from the pooled "
+            "estimate; enter it in the direction of the pooled effect"
+        )
+    n = k * (ybar - yc) / yc
+    if n < 0:
+        n = 0.0
+        note = "the pooled estimate is already no larger than the trivial effect"
+    return FailSafeN(
+        method="Orwin",
+        n=float(n),
+        n_whole=int(math.ceil(n - 1e-9)) if n > 0 else 0,
+        formula=f"k(ȳ − y_c)/y_c = {k}·({ybar:.4g} − {yc:.4g})/{yc:.4g}",
+        k=int(k),
+        note=note,
+    )
