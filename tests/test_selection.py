@@ -153,7 +153,7 @@ def test_direction_negative_is_the_mirror_image():
 def test_result_fields_are_consistent():
     rng = np.random.default_rng(6)
     y, se = _simulate(rng, 40, 0.2, 0.1, publish_nonsig=0.5)
-    r = selection_model(_data(y, se), cuts=(0.025, 0.5))
+    r = selection_model(_data(y, se), cutpoints=(0.025, 0.5))
     assert r.intervals == ("p ≤ 0.025", "0.025 < p ≤ 0.5", "p > 0.5")
     p = stats.norm.sf(y / se)
     assert r.counts == (
@@ -182,7 +182,7 @@ def test_empty_interval_is_not_estimable():
 def test_too_few_studies_is_not_estimable():
     r = selection_model(_data([0.5, 0.1, 0.2], [0.1, 0.2, 0.3]))
     assert isinstance(r, NotComputable) and "needs at least 5" in r.reason
-    r = selection_model(_data(np.zeros(5), np.ones(5)), cuts=(0.025, 0.05, 0.5))
+    r = selection_model(_data(np.zeros(5), np.ones(5)), cutpoints=(0.025, 0.05, 0.5))
     assert isinstance(r, NotComputable) and "needs at least 7" in r.reason
 
 
@@ -199,4 +199,4 @@ def test_weight_running_to_the_boundary_is_reported():
 
 def test_bad_cutpoints_are_a_programming_error():
     with pytest.raises(ValueError):
-        selection_model(_data(np.zeros(6), np.ones(6)), cuts=(0.5, 0.025))
+        selection_model(_data(np.zeros(6), np.ones(6)), cutpoints=(0.5, 0.025))

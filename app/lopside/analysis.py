@@ -293,7 +293,7 @@ def analyse(
         adjust.pet_peese, data, alpha=settings.petpeese_alpha, sided=settings.petpeese_sided
     )
     limit = _safe(adjust.limit_meta_analysis, data, tau2_method=settings.tau2_method)
-    selection = _safe(adjust.selection_model, data, cuts=settings.selection_cuts)
+    selection = _safe(adjust.selection_model, data, cutpoints=settings.selection_cutpoints)
     failsafe = _safe(sensitivity.fail_safe_n, data, trivial=settings.orwin_trivial)
 
     subgroups: dict[str, Any] = {}

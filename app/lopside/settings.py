@@ -29,7 +29,7 @@ class AnalysisSettings:
         Trim-and-fill options (L0 | R0; auto | left | right; FE | RE; RE | FE).
     petpeese_alpha, petpeese_sided
         Level and sidedness of the PET test in the conditional PET-PEESE rule.
-    selection_cuts : tuple of float
+    selection_cutpoints : tuple of float
         One-sided p cut-points of the step-function selection model.
     orwin_trivial : float or None
         Trivial effect for Orwin's fail-safe N, on the analysis scale (None = not run).
@@ -50,7 +50,7 @@ class AnalysisSettings:
     trimfill_fill_model: str = "RE"
     petpeese_alpha: float = 0.10
     petpeese_sided: str = "two"
-    selection_cuts: tuple[float, ...] = (0.025,)
+    selection_cutpoints: tuple[float, ...] = (0.025,)
     orwin_trivial: float | None = None
     power_reps: int = 10_000
     power_seed: int = 20261201
@@ -58,7 +58,7 @@ class AnalysisSettings:
 
     def to_dict(self) -> dict[str, Any]:
         d = asdict(self)
-        d["selection_cuts"] = list(self.selection_cuts)
+        d["selection_cutpoints"] = list(self.selection_cutpoints)
         return d
 
     @classmethod
@@ -74,7 +74,7 @@ class AnalysisSettings:
             value = d[f.name]
             default = getattr(base, f.name)
             try:
-                if f.name == "selection_cuts":
+                if f.name == "selection_cutpoints":
                     value = tuple(float(x) for x in value)
                 elif f.name == "measure":
                     value = None if value is None else str(value)

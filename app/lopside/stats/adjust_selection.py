@@ -97,28 +97,28 @@ class SelectionModelResult:
     note: str = ""
 
 
-def _interval_labels(cuts: tuple[float, ...]) -> tuple[str, ...]:
-    labels = [f"p ≤ {cuts[0]:g}"]
-    for lo, hi in zip(cuts[:-1], cuts[1:]):
+def _interval_labels(cutpoints: tuple[float, ...]) -> tuple[str, ...]:
+    labels = [f"p ≤ {cutpoints[0]:g}"]
+    for lo, hi in zip(cutpoints[:-1], cutpoints[1:]):
         labels.append(f"{lo:g} < p ≤ {hi:g}")
-    labels.append(f"p > {cuts[-1]:g}")
+    labels.append(f"p > {cutpoints[-1]:g}")
     return tuple(labels)
 
 
 class _Model:
     """Negative log-likelihood of the step-function model for fixed data."""
 
-    def __init__(self, y: np.ndarray, se: np.ndarray, cuts: tuple[float, ...]):
+    def __init__(self, y: np.ndarray, se: np.ndarray, cutpoints: tuple[float, ...]):
         from scipy.special import ndtr, ndtri
 
         self.y, self.se, self.v = y, se, se**2
-        self.J = len(cuts) + 1
+        self.J = len(cutpoints) + 1
         # z-boundaries z_j = Φ⁻¹(1 − c_j) for c_0 = 0 … c_J = 1 (from +inf down to -inf)
-        zc = np.concatenate([[np.inf], ndtri(1.0 - np.asarray(cuts)), [-np.inf]])
+        zc = np.concatenate([[np.inf], ndtri(1.0 - np.asarray(cutpoints)), [-np.inf]])
         with np.errstate(invalid="ignore"):
             self.bounds = se[:, None] * zc[None, :]  # k x (J+1), on the y scale
         p = ndtr(-y / se)  # one-sided p in the positive direction
-        self.interval = np.searchsorted(np.asarray(cuts), p, side="left")
+        self.interval = np.searchsorted(np.asarray(cutpoints), p, side="left")
         self.counts = np.bincount(self.interval, minlength=self.J)
         self._ndtr = ndtr
 
@@ -189,7 +189,7 @@ def _hessian(f, x: np.ndarray, free: np.ndarray) -> np.ndarray:
 def selection_model(
     data: StudyData,
     *,
-    cuts: tuple[float, ...] = (0.025,),
+    cutpoints: tuple[float, ...] = (0.025,),
     direction: str = "auto",
     tau2_method: str = "REML",
     confidence_level: float = 0.95,
@@ -199,7 +199,7 @@ def selection_model(
     Parameters
     ----------
     data : StudyData
-    cuts : tuple of float
+    cutpoints : tuple of float
         Increasing one-sided p-value cut-points in (0, 1); default (0.025,), i.e. a
         single step at two-sided p = 0.05 in the favoured direction. More steps, e.g.
         (0.025, 0.05, 0.5), need more studies.
@@ -223,18 +223,18 @@ def selection_model(
         raise ValueError(f"unknown direction {direction!r}; use one of {DIRECTIONS}")
     if tau2_method not in TAU2_METHODS:
         raise ValueError(f"unknown tau² method {tau2_method!r}; use one of {TAU2_METHODS}")
-    cuts = tuple(float(c) for c in cuts)
+    cutpoints = tuple(float(c) for c in cutpoints)
     if (
-        not cuts
-        or any(not 0.0 < c < 1.0 for c in cuts)
-        or any(b <= a for a, b in zip(cuts[:-1], cuts[1:]))
+        not cutpoints
+        or any(not 0.0 < c < 1.0 for c in cutpoints)
+        or any(b <= a for a, b in zip(cutpoints[:-1], cutpoints[1:]))
     ):
-        raise ValueError("cuts must be increasing values strictly between 0 and 1")
+        raise ValueError("cutpoints must be increasing values strictly between 0 and 1")
 
     y = np.asarray(data.y, dtype=float)
     se = np.asarray(data.se, dtype=float)
     k = y.size
-    J = len(cuts) + 1
+    J = len(cutpoints) + 1
     n_par = 2 + (J - 1)
     if k < n_par + 2:
         return NotComputable(
@@ -256,8 +256,8 @@ def selection_model(
     sign = 1.0 if dir_used == "positive" else -1.0
     yw = sign * y
 
-    model = _Model(yw, se, cuts)
-    labels = _interval_labels(cuts)
+    model = _Model(yw, se, cutpoints)
+    labels = _interval_labels(cutpoints)
     counts = tuple(int(c) for c in model.counts)
     empty = [labels[j] for j in range(J) if counts[j] == 0]
     if empty:
@@ -336,7 +336,7 @@ def selection_model(
         tau2=float(x[1] ** 2),
         omega=omega,
         omega_se=omega_se,
-        cutpoints=cuts,
+        cutpoints=cutpoints,
         intervals=labels,
         counts=counts,
         direction=dir_used,

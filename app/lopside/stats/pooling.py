@@ -167,6 +167,16 @@ def restricted_loglik(y, v, tau2: float) -> float:
     return float(-0.5 * (np.log(v + tau2).sum() + math.log(w.sum()) + (w * (y - mu) ** 2).sum()))
 
 
+def _restricted_loglik_grid(y: np.ndarray, v: np.ndarray, grid: np.ndarray) -> np.ndarray:
+    """restricted_loglik at many tau^2 values at once (one row per grid value)."""
+    vt = v[None, :] + grid[:, None]
+    w = 1.0 / vt
+    sw = w.sum(axis=1)
+    mu = (w * y[None, :]).sum(axis=1) / sw
+    rss = (w * (y[None, :] - mu[:, None]) ** 2).sum(axis=1)
+    return -0.5 * (np.log(vt).sum(axis=1) + np.log(sw) + rss)
+
+
 def tau2_reml(y, v, *, max_iter: int = _MAX_ITER) -> Tau2Estimate:
     """REML: the global maximiser of the restricted likelihood on tau^2 >= 0.
 
@@ -183,7 +193,7 @@ def tau2_reml(y, v, *, max_iter: int = _MAX_ITER) -> Tau2Estimate:
     est = _reml_scoring(y, v, start, max_iter)
     scale = max(float(np.var(y)), float(np.median(v)), start, 1e-12)
     grid = np.concatenate(([0.0], scale * np.logspace(-4, 2, 49)))
-    lls = np.array([restricted_loglik(y, v, t) for t in grid])
+    lls = _restricted_loglik_grid(y, v, grid)
     best = int(np.argmax(lls))
     if lls[best] > restricted_loglik(y, v, est.tau2) + 1e-10:
         est = _reml_scoring(y, v, float(grid[best]), max_iter)
