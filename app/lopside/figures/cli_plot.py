@@ -1,0 +1,245 @@
+"""The ``lopside plot`` command: draw one figure of a review to PNG, SVG or PDF.
+
+    lopside plot FILE [--kind funnel|forest|cumulative|radial] -o OUT.png|.svg|.pdf
+                 [--measure M] [--size column|page|slide] [--axis se|precision|variance|size]
+                 [--model fixed|random] [--colour-by none|subgroup|risk_of_bias]
+                 [--no-contours] [--egger-line] [--show-filled] [--labels [NAMES]]
+                 [--tau2 REML|PM|DL] [--hksj]
+
+Exit status 0 on success; 2 on bad input, with one message on stderr that names the
+problem and what to do.
+"""
+
+from __future__ import annotations
+
+import argparse
+import sys
+from pathlib import Path
+
+KINDS = ("funnel", "forest", "cumulative", "radial")
+MEASURE_CHOICES = ("OR", "RR", "HR", "RD", "MD", "SMD")
+
+
+def add_plot_arguments(parser: argparse.ArgumentParser) -> None:
+    """Add the ``plot`` arguments to ``parser``.
+
+    Arguments (attribute names on the parsed namespace in brackets):
+
+    * ``FILE`` [file] — project file, CSV/XLSX study table or .txt of pasted rows.
+    * ``--kind`` [kind] — funnel (default), forest, cumulative or radial.
+    * ``-o/--output OUT`` [output] — required; the suffix .png, .svg or .pdf sets the format.
+    * ``--measure M`` [measure] — OR, RR, HR, RD, MD or SMD (overrides the file's).
+    * ``--size`` [size] — column (85 mm, default), page (180 mm) or slide (16:9).
+    * ``--axis`` [axis] — funnel's vertical axis: se (default), precision, variance, size.
+    * ``--model`` [model] — fixed or random centre for the funnel (default: settings).
+    * ``--colour-by`` [colour_by] — none (default), subgroup or risk_of_bias.
+    * ``--no-contours`` [no_contours] — leave out the significance bands.
+    * ``--egger-line`` [egger_line] — overlay Egger's regression line (funnel, radial).
+    * ``--show-filled`` [show_filled] — add trim-and-fill studies and adjusted estimate.
+    * ``--labels [NAMES]`` [labels] — name studies on the funnel: all, or a comma list.
+    * ``--tau2`` [tau2_method], ``--hksj`` [hksj] — random-effects options.
+    """
+    parser.add_argument("file", metavar="FILE", help="project file, CSV/XLSX study table or .txt")
+    parser.add_argument(
+        "--kind", choices=KINDS, default="funnel", help="which figure (default funnel)"
+    )
+    parser.add_argument(
+        "-o", "--output", required=True, metavar="OUT", help="output file: .png, .svg or .pdf"
+    )
+    parser.add_argument(
+        "--measure", choices=MEASURE_CHOICES, help="effect measure (overrides the file's)"
+    )
+    parser.add_argument(
+        "--size",
+        choices=("column", "page", "slide"),
+        default="column",
+        help="figure size (default column)",
+    )
+    parser.add_argument(
+        "--axis",
+        choices=("se", "precision", "variance", "size"),
+        default="se",
+        help="funnel's vertical axis (default se)",
+    )
+    parser.add_argument("--model", choices=("fixed", "random"), default=None, help="funnel centre")
+    parser.add_argument(
+        "--colour-by",
+        dest="colour_by",
+        choices=("none", "subgroup", "risk_of_bias"),
+        default="none",
+        help="colour studies by subgroup or risk of bias",
+    )
+    parser.add_argument(
+        "--no-contours", dest="no_contours", action="store_true", help="no significance bands"
+    )
+    parser.add_argument(
+        "--egger-line", dest="egger_line", action="store_true", help="draw Egger's line"
+    )
+    parser.add_argument(
+        "--show-filled", dest="show_filled", action="store_true", help="show trim-and-fill studies"
+    )
+    parser.add_argument(
+        "--labels",
+        nargs="?",
+        const="all",
+        default=None,
+        metavar="NAMES",
+        help="name studies on the funnel: all (no value), or a comma-separated list",
+    )
+    parser.add_argument(
+        "--tau2",
+        dest="tau2_method",
+        choices=("REML", "PM", "DL"),
+        default=None,
+        help="tau² estimator",
+    )
+    parser.add_argument("--hksj", action="store_true", help="Hartung-Knapp interval (modified)")
+
+
+def _fail(message: str) -> int:
+    print(f"lopside: {message}", file=sys.stderr)
+    return 2
+
+
+def run_plot(args: argparse.Namespace) -> int:
+    """Run ``lopside plot`` with parsed ``args`` (see :func:`add_plot_arguments`).
+
+    Returns
+    -------
+    int
+        0 on success, 2 on bad input (message on stderr).
+    """
+    from dataclasses import replace
+
+    from ..cli_common import load_review_file
+    from ..intake.errors import IntakeError
+    from ..model.project_file import ProjectFileError
+    from ..settings import AnalysisSettings
+    from .common import FigureInputError
+    from .export import format_for
+
+    out = Path(args.output)
+    try:
+        fmt = format_for(out)
+    except ValueError as exc:
+        return _fail(f"-o {out}: {exc}.")
+    if out.parent and not out.parent.exists():
+        return _fail(
+            f"-o {out}: the folder {out.parent} does not exist; create it or pick another."
+        )
+
+    input_errors: tuple[type[BaseException], ...] = (IntakeError, ProjectFileError)
+    try:
+        from ..cli_common import INPUT_ERRORS
+
+        input_errors = tuple(INPUT_ERRORS)
+    except ImportError:  # an older cli_common: the two documented error types only
+        pass
+    try:
+        review, saved = load_review_file(args.file, getattr(args, "measure", None))
+    except input_errors as exc:
+        return _fail(str(exc))
+    settings = saved if isinstance(saved, AnalysisSettings) else AnalysisSettings.from_dict(saved)
+    changes = {}
+    if getattr(args, "measure", None):
+        changes["measure"] = args.measure
+    if getattr(args, "tau2_method", None):
+        changes["tau2_method"] = args.tau2_method
+    if getattr(args, "hksj", False):
+        changes["hksj"] = True
+    if getattr(args, "model", None):
+        changes["funnel_model"] = args.model
+    settings = replace(settings, **changes)
+
+    from ..analysis import analyse
+
+    result = analyse(review, settings)
+    if result.data.k == 0:
+        return _fail(
+            f"{args.file}: no study has a usable effect and standard error, so there is "
+            "nothing to plot. Run 'lopside check' to see what each row is missing."
+        )
+    try:
+        fig = build_figure(result, args)
+    except FigureInputError as exc:
+        return _fail(f"{args.file}: {exc}")
+    from .export import save_figure
+
+    try:
+        save_figure(fig, out, fmt)
+    except OSError as exc:
+        return _fail(f"-o {out}: cannot write the figure ({exc.strerror or exc}).")
+    print(f"wrote {out}")
+    return 0
+
+
+def build_figure(result, args: argparse.Namespace):
+    """The figure ``args.kind`` asks for, built from an analysis result.
+
+    Raises
+    ------
+    FigureInputError
+        When the result cannot make that figure (the message says why).
+    """
+    from .adaptors import (
+        cumulative_input_from_result,
+        forest_input_from_result,
+        funnel_input_from_result,
+        radial_input_from_result,
+    )
+    from .common import FigureInputError
+
+    kind = getattr(args, "kind", "funnel")
+    size = getattr(args, "size", "column")
+    if kind == "funnel":
+        from .funnel import FunnelOptions, funnel_figure
+
+        show = bool(getattr(args, "show_filled", False))
+        opts = FunnelOptions(
+            axis=getattr(args, "axis", "se"),
+            model=getattr(args, "model", None),
+            contours=not getattr(args, "no_contours", False),
+            colour_by=getattr(args, "colour_by", "none"),
+            egger_line=bool(getattr(args, "egger_line", False)),
+            adjusted_line=show,
+            show_filled=show,
+            labels=getattr(args, "labels", None) or (),
+        )
+        inp = funnel_input_from_result(result, opts)
+        if opts.colour_by != "none" and not any(inp.groups):
+            field = "subgroup" if opts.colour_by == "subgroup" else "risk_of_bias"
+            raise FigureInputError(
+                f"--colour-by {opts.colour_by}: no study has a {field} entry; fill in the "
+                f"{field} column or leave out --colour-by."
+            )
+        return funnel_figure(inp, opts, size)
+    if kind == "forest":
+        from .forest import forest_figure
+
+        rows, pooled, opts = forest_input_from_result(result)
+        return forest_figure(rows, pooled, replace_size(opts, size))
+    if kind == "cumulative":
+        from .companions import cumulative_figure
+
+        inp = cumulative_input_from_result(result, getattr(args, "model", None))
+        if inp is None:
+            reason = getattr(getattr(result, "cumulative", None), "reason", "")
+            raise FigureInputError(
+                "the cumulative plot could not be made" + (f": {reason}" if reason else "")
+            )
+        return cumulative_figure(inp, size)
+    if kind == "radial":
+        from .companions import radial_figure
+
+        return radial_figure(
+            radial_input_from_result(result),
+            size,
+            egger_line=bool(getattr(args, "egger_line", False)),
+        )
+    raise FigureInputError(f"unknown figure kind {kind!r}; use one of {', '.join(KINDS)}")
+
+
+def replace_size(opts, size: str):
+    from dataclasses import replace
+
+    return replace(opts, size=size)
