@@ -230,17 +230,19 @@ def with_published(review: Review, model: str) -> Review:
 
 
 def pasted_text(review: Review) -> str:
-    """The HR review as a reader would copy it from a PDF forest table."""
-    lines = [
-        "Study or subgroup\tHazard Ratio IV, Random, 95% CI\tWeight",
-    ]
-    for s in review.studies:
-        w = 100 / len(review.studies)
+    """The HR review as a reader would copy it from a PDF forest table (weights, totals)."""
+    from lopside.analysis import analyse
+
+    res = analyse(review)
+    het = res.heterogeneity
+    lines = ["Trial\tHazard ratio (95% CI)\tWeight"]
+    for s, w in zip(review.studies, res.random.weights):
         lines.append(f"{s.study}  {s.estimate:.2f} ({s.lower:.2f}\u2013{s.upper:.2f})  {w:.1f}%")
-    lines.append("Total (95% CI)\t\t100.0%")
+    pub = review.details.published
     lines.append(
-        "Heterogeneity: Tau\u00b2 = 0.01; Chi\u00b2 = 12.3, df = 10 (P = 0.27); I\u00b2 = 19%"
+        f"Total (95% CI)  {pub.estimate:.2f} ({pub.lower:.2f}\u2013{pub.upper:.2f})  100.0%"
     )
+    lines.append(f"Heterogeneity across trials: I\u00b2 = {het.i2:.0f}%, P = {het.pvalue:.2f}")
     return "\n".join(lines) + "\n"
 
 
