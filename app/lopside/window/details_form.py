@@ -1,0 +1,239 @@
+"""The review details form: what the review is about and how its effects are expressed."""
+
+from __future__ import annotations
+
+from PySide6.QtCore import Qt, Signal
+from PySide6.QtWidgets import (
+    QComboBox,
+    QDoubleSpinBox,
+    QFormLayout,
+    QGroupBox,
+    QHBoxLayout,
+    QLabel,
+    QLineEdit,
+    QScrollArea,
+    QVBoxLayout,
+    QWidget,
+)
+
+from .. import edits as ed
+from ..model.review import MEASURE_NAMES, MEASURES
+from ..session import Session
+from . import messages as M
+
+FAVOURS_TEXT = {
+    "lower": "Lower values favour the intervention (e.g. fewer deaths)",
+    "higher": "Higher values favour the intervention (e.g. more responders)",
+}
+_BAD_STYLE = "QLineEdit { background: #F7C9C3; }"
+
+
+def measure_combo(parent=None) -> QComboBox:
+    """A pick list of the measures, showing their names, with the code as item data."""
+    box = QComboBox(parent)
+    for m in MEASURES:
+        box.addItem(f"{m} \u2013 {MEASURE_NAMES[m]}", m)
+    box.setAccessibleName("Effect measure")
+    return box
+
+
+class DetailsForm(QScrollArea):
+    """Edits review details through ``push`` (SetDetail edits); refreshes from the session."""
+
+    status = Signal(str)
+
+    def __init__(self, session: Session, push, parent=None) -> None:
+        super().__init__(parent)
+        self.session = session
+        self.push = push
+        self.setWidgetResizable(True)
+        self.setFrameShape(QScrollArea.NoFrame)
+        inner = QWidget()
+        self.setWidget(inner)
+        outer = QVBoxLayout(inner)
+
+        about = QGroupBox("The review")
+        form = QFormLayout(about)
+        form.setFieldGrowthPolicy(QFormLayout.AllNonFixedFieldsGrow)
+        self.title = self._line("Title", "e.g. Vantoprine for delirium after surgery (invented)")
+        self.question = self._line("Question", "Population, intervention, comparison")
+        self.outcome = self._line("Outcome", "e.g. delirium within 7 days")
+        self.appraiser = self._line("Appraiser", "Your name (printed on the sheet)")
+        form.addRow("&Title:", self.title)
+        form.addRow("&Question:", self.question)
+        form.addRow("&Outcome:", self.outcome)
+        form.addRow("A&ppraiser:", self.appraiser)
+        outer.addWidget(about)
+
+        scale = QGroupBox("How the effects are expressed")
+        f2 = QFormLayout(scale)
+        f2.setFieldGrowthPolicy(QFormLayout.AllNonFixedFieldsGrow)
+        self.measure = measure_combo()
+        self.ci_level = QDoubleSpinBox()
+        self.ci_level.setRange(50.1, 99.9)
+        self.ci_level.setDecimals(1)
+        self.ci_level.setSuffix(" %")
+        self.ci_level.setAccessibleName("Confidence level of the study intervals")
+        self.favours = QComboBox()
+        for key, text in FAVOURS_TEXT.items():
+            self.favours.addItem(text, key)
+        self.favours.setAccessibleName("Direction that favours the intervention")
+        self.int_label = self._line("Intervention arm label", "intervention")
+        self.ctl_label = self._line("Comparator arm label", "control")
+        f2.addRow("&Measure:", self.measure)
+        f2.addRow("CI &level of the studies:", self.ci_level)
+        f2.addRow("&Favours:", self.favours)
+        arms = QHBoxLayout()
+        arms.addWidget(self.int_label)
+        arms.addWidget(QLabel("vs"))
+        arms.addWidget(self.ctl_label)
+        f2.addRow("Arm labels:", arms)
+        outer.addWidget(scale)
+
+        pub = QGroupBox("Published pooled result (as printed)")
+        f3 = QFormLayout(pub)
+        self.pub_estimate = self._line("Published pooled estimate", "e.g. 0.72")
+        self.pub_lower = self._line("Published CI lower limit", "lower")
+        self.pub_upper = self._line("Published CI upper limit", "upper")
+        self.pub_model = self._line("Model as printed", "e.g. random effects, M-H")
+        row = QHBoxLayout()
+        row.addWidget(self.pub_estimate)
+        row.addWidget(QLabel("("))
+        row.addWidget(self.pub_lower)
+        row.addWidget(QLabel("to"))
+        row.addWidget(self.pub_upper)
+        row.addWidget(QLabel(")"))
+        f3.addRow("&Estimate (CI):", row)
+        f3.addRow("Mo&del as printed:", self.pub_model)
+        self.pub_problem = QLabel()
+        self.pub_problem.setWordWrap(True)
+        self.pub_problem.setStyleSheet("color: #9B2C1F;")
+        f3.addRow(self.pub_problem)
+        outer.addWidget(pub)
+
+        self.source_note = QLabel()
+        self.source_note.setWordWrap(True)
+        self.source_note.setStyleSheet("color: #616E7C;")
+        outer.addWidget(self.source_note)
+        outer.addStretch(1)
+
+        self._texts = {
+            "title": self.title,
+            "question": self.question,
+            "outcome": self.outcome,
+            "appraiser": self.appraiser,
+            "int_label": self.int_label,
+            "ctl_label": self.ctl_label,
+            "published.model": self.pub_model,
+        }
+        self._numbers = {
+            "published.estimate": self.pub_estimate,
+            "published.lower": self.pub_lower,
+            "published.upper": self.pub_upper,
+        }
+        #: the model value each number box last showed (see refresh)
+        self._shown: dict[str, float | None] = {}
+        for field, w in self._texts.items():
+            w.editingFinished.connect(lambda f=field, w=w: self._text_done(f, w))
+        for field, w in self._numbers.items():
+            w.editingFinished.connect(lambda f=field, w=w: self._number_done(f, w))
+        self.measure.activated.connect(self._measure_done)
+        self.favours.activated.connect(
+            lambda _i: self._push(ed.SetDetail("favours", self.favours.currentData()))
+        )
+        self.ci_level.editingFinished.connect(self._level_done)
+        self.refresh()
+
+    def _line(self, name: str, placeholder: str) -> QLineEdit:
+        w = QLineEdit()
+        w.setPlaceholderText(placeholder)
+        w.setAccessibleName(name)
+        return w
+
+    def _push(self, edit: ed.Edit) -> None:
+        self.push(edit)
+
+    # ------------------------------------------------------------------ commits
+
+    def _current(self, field: str):
+        d = self.session.review.details
+        if field.startswith("published."):
+            return getattr(d.published, field.split(".", 1)[1])
+        return getattr(d, field)
+
+    def _text_done(self, field: str, w: QLineEdit) -> None:
+        text = w.text().strip()
+        if text != (self._current(field) or ""):
+            self._push(ed.SetDetail(field, text))
+
+    def _number_done(self, field: str, w: QLineEdit) -> None:
+        from ..intake.numbers import parse_number
+
+        text = w.text().strip()
+        if not text:
+            value = None
+        else:
+            reading = parse_number(text)
+            if not reading.ok:
+                # the text stays in the box (nothing typed is discarded) and is not used
+                w.setStyleSheet(_BAD_STYLE)
+                msg = M.DETAIL_UNREAD.format(text=text)
+                w.setToolTip(msg)
+                self.pub_problem.setText(msg)
+                self.status.emit(msg)
+                return
+            value = reading.value
+        w.setStyleSheet("")
+        w.setToolTip("")
+        self.pub_problem.setText("")
+        if value != self._current(field):
+            self._shown[field] = value
+            self._push(ed.SetDetail(field, value))
+
+    def _measure_done(self, _index: int) -> None:
+        m = self.measure.currentData()
+        if m != self.session.review.details.measure:
+            self._push(ed.SetDetail("measure", m))
+
+    def _level_done(self) -> None:
+        v = round(self.ci_level.value(), 1)
+        if v != self.session.review.details.ci_level:
+            self._push(ed.SetDetail("ci_level", v))
+
+    # ------------------------------------------------------------------ refresh
+
+    def refresh(self) -> None:
+        """Show the session's details (without making edits)."""
+        from ..edits import format_number
+
+        d = self.session.review.details
+        for field, w in self._texts.items():
+            value = self._current(field) or ""
+            if w.text() != value and not w.hasFocus():
+                w.setText(value)
+        for field, w in self._numbers.items():
+            value = self._current(field)
+            # a box holding unreadable text keeps it unless the value itself changed
+            # (by undo, open or paste) since the box last showed it
+            if field in self._shown and self._shown[field] == value and w.styleSheet():
+                continue
+            self._shown[field] = value
+            w.setText(format_number(value))
+            w.setStyleSheet("")
+            w.setToolTip("")
+        self.pub_problem.setText("")
+        for box, value in ((self.measure, d.measure), (self.favours, d.favours)):
+            i = box.findData(value)
+            if i >= 0 and box.currentIndex() != i:
+                box.blockSignals(True)
+                box.setCurrentIndex(i)
+                box.blockSignals(False)
+        if abs(self.ci_level.value() - d.ci_level) > 1e-9:
+            self.ci_level.blockSignals(True)
+            self.ci_level.setValue(d.ci_level)
+            self.ci_level.blockSignals(False)
+        self.source_note.setText(d.source_note)
+        self.source_note.setVisible(bool(d.source_note))
+
+    def focus_first(self) -> None:
+        self.title.setFocus(Qt.TabFocusReason)

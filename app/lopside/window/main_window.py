@@ -1,0 +1,869 @@
+"""The Lopside main window: the study table and review details on the left, live views right.
+
+Design invariants
+-----------------
+* The window wraps a :class:`lopside.session.Session`; every change is an edit pushed on
+  the :class:`~lopside.window.undo.EditStack`; every number shown comes from
+  ``session.analyse()``.
+* Views update ~50 ms after the last edit (one analysis per burst of typing), and only the
+  visible view redraws; the others catch up when they are shown.
+* Questions that would open a modal dialog (recover? save changes? which file?) go through
+  the ``ask_*`` callables, which tests replace.
+"""
+
+from __future__ import annotations
+
+import time
+from collections.abc import Callable
+from pathlib import Path
+
+from PySide6.QtCore import QByteArray, Qt, QTimer, QUrl, Signal
+from PySide6.QtGui import QAction, QDesktopServices, QGuiApplication, QImage, QKeySequence
+from PySide6.QtWidgets import (
+    QApplication,
+    QFileDialog,
+    QInputDialog,
+    QLabel,
+    QMainWindow,
+    QMessageBox,
+    QSplitter,
+    QTabWidget,
+)
+
+from .. import edits as ed
+from ..model.project_file import SUFFIX
+from ..model.review import MEASURE_NAMES, MEASURES
+from ..session import Session
+from . import messages as M
+from . import prefs as P
+from .autosave import Autosaver, Recoverable, find_recoverable
+from .causes import CausesPanel
+from .details_form import DetailsForm
+from .paste_dialog import PasteDialog
+from .plots import CompanionPanel, ForestPanel, FunnelPanel
+from .power_panel import PowerPanel
+from .sections import SectionsPanel
+from .study_panel import StudyPanel
+from .undo import EditStack
+from .workers import SheetWorker
+
+DEBOUNCE_MS = 50
+OPEN_FILTER = (
+    "Reviews and study tables (*.lopside *.json *.csv *.xlsx *.txt);;"
+    "Lopside projects (*.lopside);;Study tables (*.csv *.xlsx);;Pasted rows (*.txt)"
+)
+ACCEPTED_SUFFIXES = (SUFFIX, ".json", ".csv", ".xlsx", ".txt")
+
+
+# ------------------------------------------------------------------ summary section choices
+
+
+def _pooled_sections(result):
+    from .. import summary as S
+
+    out = [
+        S.data_section(result),
+        S.reconciliation_section(result),
+        S.pooled_section(result),
+        S.heterogeneity_section(result),
+    ]
+    sg = S.subgroups_section(result)
+    if sg is not None:
+        out.append(sg)
+    return out
+
+
+def _tests_sections(result):
+    from .. import summary as S
+
+    out = [S.tests_section(result), S.applicability_section(result)]
+    try:
+        from ..appraise import appraise
+
+        out.insert(0, S.small_study_section(appraise(result)))
+    except ImportError:
+        pass
+    return out
+
+
+def _adjust_sections(result):
+    from .. import summary as S
+
+    return [S.adjustments_section(result), S.sensitivity_section(result)]
+
+
+# ------------------------------------------------------------------ default questions
+
+
+def _ask_recover(window, items: list[Recoverable]) -> Recoverable | None:
+    r = items[0]
+    answer = QMessageBox.question(
+        window,
+        M.RECOVER_TITLE,
+        M.RECOVER_TEXT.format(name=r.name, when=r.when()),
+        QMessageBox.Yes | QMessageBox.No,
+        QMessageBox.Yes,
+    )
+    return r if answer == QMessageBox.Yes else None
+
+
+def _ask_save_changes(window, name: str) -> str:
+    answer = QMessageBox.question(
+        window,
+        M.UNSAVED_TITLE,
+        M.UNSAVED_TEXT.format(name=name),
+        QMessageBox.Save | QMessageBox.Discard | QMessageBox.Cancel,
+        QMessageBox.Save,
+    )
+    return {QMessageBox.Save: "save", QMessageBox.Discard: "discard"}.get(answer, "cancel")
+
+
+def _ask_open_path(window, folder: str) -> str:
+    path, _ = QFileDialog.getOpenFileName(window, "Open a review", folder, OPEN_FILTER)
+    return path
+
+
+def _ask_save_path(window, folder: str, title: str, filt: str) -> str:
+    path, _ = QFileDialog.getSaveFileName(window, title, folder, filt)
+    return path
+
+
+def _ask_measure(window, name: str) -> str | None:
+    items = [f"{m} \u2013 {MEASURE_NAMES[m]}" for m in MEASURES]
+    text, ok = QInputDialog.getItem(
+        window, "Which measure?", M.ASK_MEASURE.format(name=name), items, 0, False
+    )
+    return text.split(" ", 1)[0] if ok else None
+
+
+def _ask_open_sheet(window, path: str) -> bool:
+    answer = QMessageBox.question(
+        window,
+        "Sheet written",
+        M.SHEET_DONE.format(path=path) + "\n\nOpen it now?",
+        QMessageBox.Yes | QMessageBox.No,
+        QMessageBox.Yes,
+    )
+    return answer == QMessageBox.Yes
+
+
+class MainWindow(QMainWindow):
+    """The window. ``ask_*`` keyword arguments replace the modal questions (tests)."""
+
+    analysed = Signal(object)
+
+    def __init__(
+        self,
+        session: Session | None = None,
+        *,
+        prefs: P.Prefs | None = None,
+        autosave: bool = True,
+        ask_recover: Callable | None = None,
+        ask_save_changes: Callable | None = None,
+        ask_open_path: Callable | None = None,
+        ask_save_path: Callable | None = None,
+        ask_measure: Callable | None = None,
+        ask_open_sheet: Callable | None = None,
+        open_url: Callable[[QUrl], object] | None = None,
+    ) -> None:
+        super().__init__()
+        self.session = session or Session()
+        self.prefs = prefs or P.Prefs()
+        self.ask_recover = ask_recover or (lambda items: _ask_recover(self, items))
+        self.ask_save_changes = ask_save_changes or (lambda name: _ask_save_changes(self, name))
+        self.ask_open_path = ask_open_path or (lambda folder: _ask_open_path(self, folder))
+        self.ask_save_path = ask_save_path or (
+            lambda folder, title, filt: _ask_save_path(self, folder, title, filt)
+        )
+        self.ask_measure = ask_measure or (lambda name: _ask_measure(self, name))
+        self.ask_open_sheet = ask_open_sheet or (lambda path: _ask_open_sheet(self, path))
+        self.open_url = open_url or QDesktopServices.openUrl
+        self.result = None
+        self.analysis_error = ""
+        self.sheet_worker: SheetWorker | None = None
+        self.last_message = ""
+        self._closing_ok = False
+
+        self.setWindowTitle("Lopside")
+        self.setAcceptDrops(True)
+        self.stack = EditStack(self.session, self)
+        self.stack.cleanChanged.connect(lambda _c: self._update_title())
+
+        # left: studies and review details
+        self.left = QTabWidget()
+        self.left.setObjectName("left tabs")
+        self.studies = StudyPanel(self.session, self.stack)
+        self.details = DetailsForm(self.session, self.stack.push_edit)
+        self.left.addTab(self.studies, "&Studies")
+        self.left.addTab(self.details, "Review &details")
+
+        # right: live views
+        self.views = QTabWidget()
+        self.views.setObjectName("view tabs")
+        self.views.setUsesScrollButtons(True)
+        self.funnel = FunnelPanel()
+        self.forest = ForestPanel()
+        self.companions = CompanionPanel()
+        self.pooled = SectionsPanel("Pooled results", _pooled_sections)
+        self.tests = SectionsPanel("Tests", _tests_sections)
+        self.adjust = SectionsPanel("Adjustments", _adjust_sections)
+        self.causes = CausesPanel(self.session, self.stack.push_edit)
+        self.power = PowerPanel(self.session)
+        self.view_panels = (
+            self.funnel,
+            self.forest,
+            self.companions,
+            self.pooled,
+            self.tests,
+            self.adjust,
+            self.causes,
+            self.power,
+        )
+        for panel, title in zip(
+            self.view_panels,
+            (
+                "Funnel",
+                "Forest",
+                "Cumulative/radial",
+                "Pooled",
+                "Tests",
+                "Adjust",
+                "Causes",
+                "Power",
+            ),
+        ):
+            self.views.addTab(panel, title)
+        self._stale: set = set(self.view_panels)
+
+        self.split = QSplitter(Qt.Horizontal)
+        self.split.addWidget(self.left)
+        self.split.addWidget(self.views)
+        self.split.setStretchFactor(0, 5)
+        self.split.setStretchFactor(1, 6)
+        self.split.setChildrenCollapsible(False)
+        self.setCentralWidget(self.split)
+        self.status_label = QLabel("")
+        self.statusBar().addPermanentWidget(self.status_label)
+
+        # updates
+        self._timer = QTimer(self)
+        self._timer.setSingleShot(True)
+        self._timer.setInterval(DEBOUNCE_MS)
+        self._timer.timeout.connect(self.update_views)
+        self.session.add_listener(changed=self._session_changed)
+        self.views.currentChanged.connect(self._view_shown)
+        self.studies.selection_changed.connect(self.funnel.set_selected_rows)
+        self.funnel.point_clicked.connect(self._point_clicked)
+        self.funnel.model_changed.connect(lambda m: self.session.update_settings(funnel_model=m))
+        self.funnel.options_changed.connect(self._save_funnel_options)
+        self.studies.measure_chosen.connect(self._measure_chosen)
+        self.studies.buttons["paste"].clicked.connect(lambda: self.open_paste_dialog())
+        self.studies.table.paste_requested.connect(self.paste_clipboard)
+        self.studies.table.delete_cells_requested.connect(self.studies.clear_selected_cells)
+        self.studies.mode_changed.connect(lambda m: self.prefs.set(P.ENTRY_MODE, m))
+        self.details.status.connect(self.say)
+        self.power.power_done.connect(lambda _p: self.update_views())
+
+        self._build_menus()
+        self._restore_prefs()
+        self.autosaver = Autosaver(self.session, parent=self) if autosave else None
+        self._update_title()
+        self._set_tab_order()
+
+    # ------------------------------------------------------------------ menus
+
+    def _action(self, text: str, slot, shortcut=None, tip: str = "") -> QAction:
+        a = QAction(text, self)
+        if shortcut is not None:
+            a.setShortcut(QKeySequence(shortcut))
+        if tip:
+            a.setStatusTip(tip)
+            a.setToolTip(tip)
+        a.triggered.connect(lambda _checked=False: slot())
+        return a
+
+    def _build_menus(self) -> None:
+        mb = self.menuBar()
+        f = mb.addMenu("&File")
+        self.act_new = self._action("&New review", self.new_review, QKeySequence.New)
+        self.act_open = self._action(
+            "&Open\u2026",
+            self.open_dialog,
+            QKeySequence.Open,
+            "Open a project, CSV/XLSX study table or pasted .txt",
+        )
+        f.addAction(self.act_new)
+        f.addAction(self.act_open)
+        self.samples_menu = f.addMenu("Open a s&ample review (invented)")
+        self.samples_menu.aboutToShow.connect(self._fill_samples)
+        self.recent_menu = f.addMenu("Open &recent")
+        self.recent_menu.aboutToShow.connect(self._fill_recent)
+        f.addSeparator()
+        self.act_save = self._action("&Save", self.save, QKeySequence.Save)
+        self.act_save_as = self._action("Save &as\u2026", self.save_as, QKeySequence.SaveAs)
+        f.addAction(self.act_save)
+        f.addAction(self.act_save_as)
+        f.addSeparator()
+        self.act_sheet = self._action(
+            "&Export appraisal sheet (PDF)\u2026", self.export_sheet, "Ctrl+Shift+E"
+        )
+        self.act_figure = self._action(
+            "Export the &figure shown\u2026", self.export_figure, "Ctrl+Shift+F"
+        )
+        self.act_copy_funnel = self._action(
+            "&Copy the funnel plot as an image", self.copy_funnel, "Ctrl+Shift+C"
+        )
+        self.act_print = self._action(
+            "&Print the funnel plot\u2026", self.print_funnel, QKeySequence.Print
+        )
+        for a in (self.act_sheet, self.act_figure, self.act_copy_funnel, self.act_print):
+            f.addAction(a)
+        f.addSeparator()
+        f.addAction(self._action("&Quit", self.close, QKeySequence.Quit))
+
+        e = mb.addMenu("&Edit")
+        self.act_undo = self.stack.createUndoAction(self, "&Undo")
+        self.act_undo.setShortcut(QKeySequence.Undo)
+        self.act_redo = self.stack.createRedoAction(self, "&Redo")
+        self.act_redo.setShortcut(QKeySequence.Redo)
+        e.addAction(self.act_undo)
+        e.addAction(self.act_redo)
+        e.addSeparator()
+        s = self.studies
+        e.addAction(
+            self._action("&Paste rows from a paper\u2026", self.open_paste_dialog, "Ctrl+Shift+V")
+        )
+        e.addAction(self._action("&Add a row", s.add_row, "Ctrl+Shift+N"))
+        e.addAction(self._action("D&uplicate rows", s.duplicate_rows, "Ctrl+D"))
+        e.addAction(self._action("&Delete rows", s.delete_rows, "Ctrl+Shift+Del"))
+        e.addAction(self._action("Move row &up", lambda: s.move_current(-1), "Ctrl+Shift+Up"))
+        e.addAction(self._action("Move row do&wn", lambda: s.move_current(1), "Ctrl+Shift+Down"))
+        e.addAction(self._action("&Leave out / bring back", s.toggle_exclude, "Ctrl+E"))
+
+        v = mb.addMenu("&View")
+        v.addAction(self._action("The &study table", lambda: self._show_left(0), "Ctrl+Shift+T"))
+        v.addAction(self._action("The review &details", lambda: self._show_left(1), "Ctrl+Shift+R"))
+        v.addSeparator()
+        for i in range(self.views.count()):
+            v.addAction(
+                self._action(self.views.tabText(i), lambda i=i: self._show_view(i), f"Ctrl+{i + 1}")
+            )
+
+        h = mb.addMenu("&Help")
+        h.addAction(self._action("&Methods guide", self.show_guide, QKeySequence.HelpContents))
+        h.addAction(self._action("&About Lopside", self.show_about))
+
+    def _show_left(self, i: int) -> None:
+        self.left.setCurrentIndex(i)
+        if i == 0:
+            self.studies.table.setFocus(Qt.ShortcutFocusReason)
+        else:
+            self.details.focus_first()
+
+    def _show_view(self, i: int) -> None:
+        self.views.setCurrentIndex(i)
+        self.views.currentWidget().setFocus(Qt.ShortcutFocusReason)
+
+    def _set_tab_order(self) -> None:
+        s = self.studies
+        order = [s.mode_box, s.measure_box, *s.buttons.values(), s.table, s.problems, self.views]
+        for a, b in zip(order, order[1:]):
+            self.setTabOrder(a, b)
+
+    def _fill_samples(self) -> None:
+        from ..paths import sample_reviews
+
+        self.samples_menu.clear()
+        try:
+            samples = sample_reviews()
+        except OSError:
+            samples = []
+        if not samples:
+            a = self.samples_menu.addAction("(no sample reviews installed)")
+            a.setEnabled(False)
+        for p in samples:
+            self.samples_menu.addAction(p.name, lambda p=p: self.open_path(p, remember=False))
+
+    def _fill_recent(self) -> None:
+        self.recent_menu.clear()
+        items = self.prefs.recent_files()
+        if not items:
+            a = self.recent_menu.addAction("(none yet)")
+            a.setEnabled(False)
+        for i, p in enumerate(items):
+            self.recent_menu.addAction(f"&{i + 1} {Path(p).name}", lambda p=p: self.open_path(p))
+
+    # ------------------------------------------------------------------ prefs
+
+    def _restore_prefs(self) -> None:
+        geo = self.prefs.get_bytes(P.GEOMETRY)
+        if geo is not None:
+            self.restoreGeometry(geo)
+        else:
+            self.resize(1366, 740)
+        split = self.prefs.get_bytes(P.SPLITTER)
+        if split is not None:
+            self.split.restoreState(split)
+        else:
+            self.split.setSizes([610, 756])
+        self.views.setCurrentIndex(
+            max(0, min(self.prefs.get_int(P.VIEW_TAB, 0), self.views.count() - 1))
+        )
+        mode = self.prefs.get_str(P.ENTRY_MODE, "ci")
+        self.studies.set_mode(mode)
+        state = {}
+        for k, default in self.funnel.option_state().items():
+            key = P.FUNNEL_PREFIX + k
+            if isinstance(default, bool):
+                state[k] = self.prefs.get_bool(key, default)
+            else:
+                state[k] = self.prefs.get_str(key, default)
+        self.funnel.set_option_state(state)
+
+    def _save_prefs(self) -> None:
+        self.prefs.set(P.GEOMETRY, self.saveGeometry())
+        self.prefs.set(P.SPLITTER, self.split.saveState())
+        self.prefs.set(P.VIEW_TAB, self.views.currentIndex())
+        self.prefs.set(P.ENTRY_MODE, self.studies.model.mode)
+        self._save_funnel_options()
+        self.prefs.sync()
+
+    def _save_funnel_options(self) -> None:
+        for k, v in self.funnel.option_state().items():
+            self.prefs.set(P.FUNNEL_PREFIX + k, v)
+
+    # ------------------------------------------------------------------ start-up
+
+    def finish_startup(self, path: str | None = None) -> None:
+        """After the window is shown: recover unsaved work, open ``path``, first analysis."""
+        recovered = False
+        if self.autosaver is not None:
+            items = find_recoverable(self.autosaver.folder)
+            if items:
+                chosen = self.ask_recover(items)
+                if chosen is not None:
+                    recovered = self.recover(chosen)
+                for r in items:
+                    r.discard()
+        if path and not recovered:
+            self.open_path(path)
+        elif self.session.review.studies and not recovered:
+            self.studies.suggest_mode()
+        self.update_views()
+
+    def recover(self, item: Recoverable) -> bool:
+        from ..model import project_file
+        from ..settings import AnalysisSettings
+
+        try:
+            review, saved = project_file.load(item.review_file)
+        except ValueError as exc:
+            self.say(M.OPEN_FAILED.format(name=item.review_file.name, error=exc))
+            return False
+        self.session.reset(
+            review, AnalysisSettings.from_dict(saved), item.original or None, dirty=True
+        )
+        self.stack.reset()
+        self.studies.suggest_mode()
+        self.say(M.RECOVERED.format(name=item.name))
+        if self.autosaver is not None:
+            self.autosaver.save_now()  # our own autosave now holds the recovered work
+        return True
+
+    # ------------------------------------------------------------------ session events
+
+    def _session_changed(self, change: ed.Change) -> None:
+        if change.kind in ("details", "reset"):
+            self.details.refresh()
+            self.studies.refresh_measure()
+        if change.kind in ("notes", "reset"):
+            self.causes.refresh_notes()
+        if change.kind == "settings":
+            self.funnel.set_model(self.session.settings.funnel_model)
+        if change.kind == "reset":
+            self.funnel.set_model(self.session.settings.funnel_model)
+        self._update_title()
+        self._timer.start()
+
+    def _measure_chosen(self, measure: str) -> None:
+        if measure != self.session.review.measure:
+            self.stack.push_edit(ed.SetDetail("measure", measure))
+
+    def update_views(self) -> None:
+        """Analyse (cached) and refresh the visible views; the rest are marked stale."""
+        self._timer.stop()
+        try:
+            result = self.session.analyse()
+            self.analysis_error = ""
+        except ModuleNotFoundError as exc:
+            result = None
+            self.analysis_error = M.NOT_AVAILABLE.format(part=exc.name)
+        except Exception as exc:  # noqa: BLE001 - shown to the user; the window stays up
+            result = None
+            self.analysis_error = M.ANALYSIS_FAILED.format(error=f"{type(exc).__name__}: {exc}")
+        self.result = result
+        self.studies.show_result(result)
+        self._stale = set(self.view_panels)
+        self._refresh_panel(self.views.currentWidget())
+        self._update_status()
+        self.analysed.emit(result)
+
+    def _refresh_panel(self, panel) -> None:
+        if panel is None or panel not in self._stale:
+            return
+        self._stale.discard(panel)
+        if self.result is None and self.analysis_error and hasattr(panel, "show_message"):
+            panel.show_message(self.analysis_error)
+            return
+        panel.show_result(self.result)
+
+    def _view_shown(self, _index: int) -> None:
+        self._refresh_panel(self.views.currentWidget())
+
+    def refresh_all_views(self) -> None:
+        """Bring every view up to date now (screenshots, self-test)."""
+        for p in self.view_panels:
+            self._refresh_panel(p)
+
+    def _update_status(self) -> None:
+        r = self.result
+        if r is None:
+            self.status_label.setText(self.analysis_error or M.NO_ANALYSIS)
+            return
+        try:
+            from ..summary import pooled_text
+
+            text = f"k = {r.k} \u00b7 random effects {pooled_text(r.random, r.measure)}"
+        except (ImportError, AttributeError, TypeError):
+            text = f"k = {r.k}"
+        self.status_label.setText(text)
+
+    def _update_title(self) -> None:
+        self.setWindowTitle(f"{self.session.display_name()}[*] \u2013 Lopside")
+        self.setWindowModified(self.session.dirty)
+
+    def _point_clicked(self, row: int) -> None:
+        self._show_left(0)
+        self.studies.select_row(row)
+
+    def say(self, text: str, ms: int = 6000) -> None:
+        self.last_message = text
+        self.statusBar().showMessage(text, ms)
+
+    # ------------------------------------------------------------------ paste
+
+    def open_paste_dialog(self, text: str | None = None) -> PasteDialog:
+        """Open the paste dialog (window-modal, not blocking) and return it."""
+        dlg = PasteDialog(self.session.review.measure, text or "", self)
+        dlg.accepted.connect(lambda: self.insert_paste(dlg))
+        dlg.setWindowModality(Qt.WindowModal)
+        dlg.show()
+        self.paste_dialog = dlg
+        return dlg
+
+    def insert_paste(self, dlg: PasteDialog) -> bool:
+        """Insert what the dialog read, as ONE undo step."""
+        rows = dlg.rows()
+        if not rows:
+            return False
+        idx = self.studies.table.currentIndex()
+        at = idx.row() + 1 if idx.isValid() else len(self.session.review.studies)
+        edits: list[ed.Edit] = [ed.PasteBlock(at, tuple(rows))]
+        m = dlg.chosen_measure()
+        if m:
+            edits.append(ed.SetDetail("measure", m))
+        pub = dlg.chosen_published()
+        if pub is not None and not self.session.review.details.published.is_complete():
+            edits.append(ed.SetDetail("published", pub))
+        n = len(rows)
+        ok = self.stack.push_many(f"paste {n} row{'s' if n != 1 else ''}", edits)
+        self.studies.suggest_mode()
+        self.studies.select_row(at)
+        return ok
+
+    def paste_clipboard(self) -> None:
+        """Ctrl+V: one value goes into the current cell; anything more opens the preview."""
+        text = QGuiApplication.clipboard().text()
+        if not text:
+            return
+        one = text.strip("\r\n")
+        idx = self.studies.table.currentIndex()
+        if "\n" not in one and "\t" not in one and idx.isValid():
+            if idx.flags() & Qt.ItemIsEditable:
+                self.studies.model.setData(idx, one, Qt.EditRole)
+            return
+        self.open_paste_dialog(text)
+
+    # ------------------------------------------------------------------ files
+
+    def _maybe_save(self) -> bool:
+        """Ask about unsaved changes; True when it is fine to drop the current review."""
+        self.causes.flush()
+        if not self.session.dirty:
+            return True
+        answer = self.ask_save_changes(self.session.display_name())
+        if answer == "save":
+            return self.save()
+        return answer == "discard"
+
+    def new_review(self) -> None:
+        if not self._maybe_save():
+            return
+        self.session.new()
+        self.stack.reset()
+        self.update_views()
+
+    def open_dialog(self) -> None:
+        if not self._maybe_save():
+            return
+        path = self.ask_open_path(self.prefs.last_folder())
+        if path:
+            self.open_path(path, ask=False)
+
+    def open_path(self, path, *, remember: bool = True, ask: bool = True) -> bool:
+        """Open a project or import a study table; errors are shown, never raised."""
+        from ..cli_common import INPUT_ERRORS
+
+        if ask and not self._maybe_save():
+            return False
+        p = Path(path)
+        measure = None
+        for _attempt in range(2):
+            try:
+                self.session.open(p, measure)
+                break
+            except INPUT_ERRORS as exc:
+                if measure is None and "measure" in str(exc) and p.suffix.lower() != SUFFIX:
+                    measure = self.ask_measure(p.name)
+                    if measure:
+                        continue
+                self._open_failed(p, exc)
+                return False
+            except (OSError, ValueError) as exc:
+                self._open_failed(p, exc)
+                return False
+        self.stack.reset()
+        self.studies.suggest_mode()
+        if remember:
+            self.prefs.add_recent(p)
+            self.prefs.set(P.LAST_FOLDER, str(p.resolve().parent))
+        self.update_views()
+        self.say(f"Opened {p.name}.")
+        return True
+
+    def _open_failed(self, p: Path, exc: Exception) -> None:
+        msg = M.OPEN_FAILED.format(name=p.name, error=exc)
+        self.say(msg, 15000)
+        QTimer.singleShot(
+            0,
+            lambda: (
+                QMessageBox.warning(self, "Could not open", msg)
+                if self.isVisible() and not _headless()
+                else None
+            ),
+        )
+
+    def save(self) -> bool:
+        self.causes.flush()
+        if self.session.path is None:
+            return self.save_as()
+        return self._save_to(self.session.path)
+
+    def save_as(self) -> bool:
+        self.causes.flush()
+        folder = self.prefs.last_folder()
+        suggested = str(
+            Path(folder) / ((self.session.review.details.title or "review")[:60] + SUFFIX)
+        )
+        path = self.ask_save_path(suggested, "Save the review", f"Lopside project (*{SUFFIX})")
+        if not path:
+            return False
+        return self._save_to(Path(path))
+
+    def _save_to(self, path: Path) -> bool:
+        try:
+            saved = self.session.save(path)
+        except (OSError, ValueError) as exc:
+            self.say(M.SAVE_FAILED.format(name=Path(path).name, error=exc), 15000)
+            return False
+        self.stack.mark_clean()
+        self.prefs.add_recent(saved)
+        self.prefs.set(P.LAST_FOLDER, str(saved.parent))
+        if self.autosaver is not None:
+            self.autosaver.remove()
+        self._update_title()
+        self.say(M.SAVED.format(name=saved.name))
+        return True
+
+    def dragEnterEvent(self, event) -> None:  # noqa: N802 - Qt API
+        urls = event.mimeData().urls() if event.mimeData().hasUrls() else []
+        if any(
+            u.isLocalFile() and Path(u.toLocalFile()).suffix.lower() in ACCEPTED_SUFFIXES
+            for u in urls
+        ):
+            event.acceptProposedAction()
+        else:
+            event.ignore()
+
+    def dropEvent(self, event) -> None:  # noqa: N802 - Qt API
+        for u in event.mimeData().urls():
+            p = Path(u.toLocalFile())
+            if p.suffix.lower() in ACCEPTED_SUFFIXES:
+                event.acceptProposedAction()
+                QTimer.singleShot(0, lambda p=p: self.open_path(p))
+                return
+
+    # ------------------------------------------------------------------ exports
+
+    def export_sheet(self, path: str | None = None) -> SheetWorker | None:
+        """Write the PDF sheet in a worker; returns the worker (started)."""
+        self.causes.flush()
+        self.update_views()
+        if self.result is None:
+            self.say(M.SHEET_FAILED.format(error=self.analysis_error or M.NO_ANALYSIS))
+            return None
+        if path is None:
+            base = self.session.path.stem if self.session.path else "appraisal"
+            path = self.ask_save_path(
+                str(Path(self.prefs.last_folder()) / f"{base}-sheet.pdf"),
+                "Export the appraisal sheet",
+                "PDF (*.pdf)",
+            )
+            if not path:
+                return None
+        w = SheetWorker(self.result, path, parent=self)
+        w.finished_with.connect(self._sheet_done)
+        w.failed.connect(lambda msg: self.say(M.SHEET_FAILED.format(error=msg), 15000))
+        self.sheet_worker = w
+        self.say("Writing the appraisal sheet\u2026", 0)
+        w.start()
+        return w
+
+    def _sheet_done(self, path: str) -> None:
+        self.say(M.SHEET_DONE.format(path=path))
+        if self.ask_open_sheet(path):
+            self.open_url(QUrl.fromLocalFile(path))
+
+    def _current_figure_panel(self):
+        w = self.views.currentWidget()
+        return w if w in (self.funnel, self.forest, self.companions) else self.funnel
+
+    def funnel_export_figure(self):
+        """A fresh funnel Figure at the sheet's size (not the window's canvas size)."""
+        if self.result is None:
+            return None
+        from ..figures.adaptors import funnel_input_from_result as adaptor
+        from ..figures.funnel import funnel_figure
+
+        opts = self.funnel.funnel_options(self.result)
+        return funnel_figure(adaptor(self.result, opts), opts, size="page")
+
+    def export_figure(self, path: str | None = None) -> bool:
+        from ..figures.export import save_figure
+
+        panel = self._current_figure_panel()
+        if self.result is None:
+            return False
+        if path is None:
+            path = self.ask_save_path(
+                str(Path(self.prefs.last_folder()) / f"{panel.objectName().lower()}.png"),
+                "Export the figure",
+                "PNG image (*.png);;SVG drawing (*.svg);;PDF (*.pdf)",
+            )
+            if not path:
+                return False
+        try:
+            if panel is self.funnel:
+                fig = self.funnel_export_figure()
+            else:
+                panel.show_result(self.result)
+                panel.draw_now()
+                fig = panel.figure
+            if fig is None:
+                return False
+            save_figure(fig, path)
+        except (OSError, ValueError) as exc:
+            self.say(M.SHEET_FAILED.format(error=exc))
+            return False
+        self.say(M.EXPORTED_FIGURE.format(path=path))
+        return True
+
+    def funnel_image(self, dpi: int = 200) -> QImage | None:
+        from ..figures.export import figure_bytes
+
+        fig = self.funnel_export_figure()
+        if fig is None:
+            return None
+        img = QImage.fromData(QByteArray(figure_bytes(fig, "png", dpi=dpi)), "PNG")
+        return None if img.isNull() else img
+
+    def copy_funnel(self) -> bool:
+        try:
+            img = self.funnel_image()
+        except (ImportError, ValueError) as exc:
+            self.say(str(exc))
+            return False
+        if img is None:
+            return False
+        QGuiApplication.clipboard().setImage(img)
+        self.say(M.COPIED_FUNNEL)
+        return True
+
+    def print_funnel(self, printer=None) -> bool:
+        from PySide6.QtGui import QPainter
+        from PySide6.QtPrintSupport import QPrintDialog, QPrinter
+
+        if printer is None:
+            printer = QPrinter(QPrinter.HighResolution)
+            dlg = QPrintDialog(printer, self)
+            if dlg.exec() != QPrintDialog.Accepted:
+                return False
+        img = self.funnel_image(dpi=300)
+        if img is None:
+            return False
+        painter = QPainter(printer)
+        try:
+            rect = painter.viewport()
+            size = img.size()
+            size.scale(rect.size(), Qt.KeepAspectRatio)
+            painter.setViewport(rect.x(), rect.y(), size.width(), size.height())
+            painter.setWindow(img.rect())
+            painter.drawImage(0, 0, img)
+        finally:
+            painter.end()
+        return True
+
+    # ------------------------------------------------------------------ help
+
+    def show_guide(self) -> None:
+        from .help import GuideDialog
+
+        self.guide = GuideDialog(self)
+        self.guide.show()
+
+    def show_about(self) -> None:
+        from .help import show_about
+
+        show_about(self)
+
+    # ------------------------------------------------------------------ closing
+
+    def closeEvent(self, event) -> None:  # noqa: N802 - Qt API
+        if not self._closing_ok and not self._maybe_save():
+            event.ignore()
+            return
+        self.power.shutdown()
+        if self.sheet_worker is not None and self.sheet_worker.isRunning():
+            self.sheet_worker.wait(15000)
+        self._save_prefs()
+        if self.autosaver is not None:
+            self.autosaver.close()
+        event.accept()
+
+
+def _headless() -> bool:
+    return QApplication.platformName() in ("offscreen", "minimal")
+
+
+def now() -> float:
+    return time.perf_counter()

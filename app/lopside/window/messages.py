@@ -1,0 +1,65 @@
+"""User-facing words of the window, in one place (tests assert them; wording stays consistent)."""
+
+from __future__ import annotations
+
+APP_NAME = "Lopside"
+ORG_NAME = "Lopside"
+ORG_DOMAIN = "lopside.invalid"
+
+NOT_AVAILABLE = (
+    "This view is not available in this build: the part that computes it ({part}) "
+    "is missing. The rest of the window works without it."
+)
+NO_ANALYSIS = "Enter at least two studies with an effect and its standard error to see this."
+ANALYSIS_FAILED = "The analysis could not be run: {error}"
+STALE_POWER = "The review has changed since the power was simulated: run it again."
+POWER_CANCELLED = "Power simulation cancelled."
+POWER_EXPLAIN = (
+    "How often would the recommended test detect funnel asymmetry in a review with these "
+    "studies' standard errors? The simulation repeats the review many times with a known "
+    "amount of selective publication."
+)
+
+UNSAVED_TITLE = "Unsaved changes"
+UNSAVED_TEXT = "“{name}” has changes that are not saved. Save them before closing?"
+RECOVER_TITLE = "Recover unsaved work"
+RECOVER_TEXT = (
+    "Lopside did not close normally last time. Unsaved work on “{name}” (autosaved {when}) "
+    "can be recovered. Recover it now?"
+)
+RECOVERED = "Recovered the autosaved work on “{name}”. Save it to keep it."
+OPEN_FAILED = "Could not open {name}: {error}"
+SAVE_FAILED = "Could not save {name}: {error}"
+SAVED = "Saved {name}."
+ASK_MEASURE = (
+    "The rows in {name} give effect estimates but do not say which measure they are. "
+    "Which measure did the paper use?"
+)
+
+CELL_UNREAD = "“{text}” could not be read as {what}. It is kept here; type {hint}."
+CELL_UNREAD_HINT = {
+    "year": "a four-digit year",
+    "exclude": "yes or no",
+    "p": "a P value such as 0.03 or <0.001",
+}
+DETAIL_UNREAD = "“{text}” is not a number; the published result is not used until it is one."
+
+PASTE_TITLE = "Paste rows from a paper"
+PASTE_HELP = (
+    "Paste the rows of the review's forest-plot table (one study per line), as copied from the "
+    "PDF or web page. Lopside shows how it read each line before anything is added."
+)
+PASTE_NOTHING = "No study rows read yet."
+PASTE_COUNT = "{n_study} studies read · {n_skip} lines skipped · {n_nu} not understood"
+
+SHEET_DONE = "The appraisal sheet was written to {path}."
+SHEET_FAILED = "The appraisal sheet could not be written: {error}"
+COPIED_FUNNEL = "Funnel plot copied to the clipboard."
+EXPORTED_FIGURE = "Figure written to {path}."
+
+ABOUT_TEXT = (
+    "<h3>Lopside {version}</h3>"
+    "<p>Appraise small-study effects and publication bias in a published meta-analysis, "
+    "offline.</p><p><b>Caution.</b> {caution}</p>"
+    "<p>The sample reviews shipped with Lopside are invented for demonstration.</p>"
+)

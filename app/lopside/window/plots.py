@@ -1,0 +1,672 @@
+"""Figure panels: the pure builders of lopside.figures drawn on a FigureCanvasQTAgg.
+
+Design invariants
+-----------------
+* matplotlib is imported the first time a panel is drawn, never at window start-up.
+* A panel draws only when it is visible and only when what it shows changed: each panel
+  keeps the key (identities of the result parts it reads, plus its options) of its last
+  drawing and skips a redraw with the same key.
+* The builders compute no statistic and neither does this module; hover and click map a
+  marker back to its table row through the result's ``data.rows``.
+"""
+
+from __future__ import annotations
+
+from dataclasses import replace
+
+from PySide6.QtCore import QPoint, Qt, Signal
+from PySide6.QtGui import QCursor
+from PySide6.QtWidgets import (
+    QCheckBox,
+    QComboBox,
+    QHBoxLayout,
+    QLabel,
+    QSizePolicy,
+    QStackedLayout,
+    QToolTip,
+    QVBoxLayout,
+    QWidget,
+)
+
+from . import messages as M
+
+
+class FigurePanel(QWidget):
+    """A lazily created matplotlib canvas with a message area for what cannot be drawn."""
+
+    drawn = Signal()
+
+    def __init__(self, name: str, parent=None) -> None:
+        super().__init__(parent)
+        self.setObjectName(name)
+        self.setAccessibleName(name)
+        self._outer = QVBoxLayout(self)
+        self._outer.setContentsMargins(2, 2, 2, 2)
+        self.controls = QHBoxLayout()
+        self._outer.addLayout(self.controls)
+        self._stack_host = QWidget()
+        self._stack = QStackedLayout(self._stack_host)
+        self.message = QLabel(M.NO_ANALYSIS)
+        self.message.setWordWrap(True)
+        self.message.setAlignment(Qt.AlignCenter)
+        self._stack.addWidget(self.message)
+        self._outer.addWidget(self._stack_host, 1)
+        self.figure = None
+        self.canvas = None
+        self.result = None
+        self._last_key = None
+        self._pending = False
+        self.artists: dict = {}
+        self.draw_count = 0
+
+    # ---------------------------------------------------------------- canvas
+
+    def ensure_canvas(self) -> None:
+        if self.canvas is not None:
+            return
+        from matplotlib.backends.backend_qtagg import FigureCanvasQTAgg
+        from matplotlib.figure import Figure
+
+        self.figure = Figure(figsize=(6, 5), dpi=100, layout="constrained")
+        self.canvas = FigureCanvasQTAgg(self.figure)
+        self.canvas.setSizePolicy(QSizePolicy.Expanding, QSizePolicy.Expanding)
+        self.canvas.setFocusPolicy(Qt.ClickFocus)
+        self.canvas.setAccessibleName(f"{self.objectName()} figure")
+        self._stack.addWidget(self.canvas)
+        self._connect_canvas()
+
+    def _connect_canvas(self) -> None:
+        """Subclasses hook mouse events here."""
+
+    # ---------------------------------------------------------------- updates
+
+    def show_result(self, result, *, force: bool = False) -> None:
+        self.result = result
+        if force:
+            self._last_key = None
+        if not self.isVisible():
+            self._pending = True
+            return
+        self.redraw()
+
+    def showEvent(self, event) -> None:  # noqa: N802 - Qt API
+        super().showEvent(event)
+        if self._pending:
+            self.redraw()
+
+    def key(self, result) -> tuple:
+        """What the drawing depends on (compared with ``is``/``==``)."""
+        return (result,)
+
+    def redraw(self) -> None:
+        self._pending = False
+        result = self.result
+        if result is None:
+            self._show_message(M.NO_ANALYSIS)
+            self._last_key = None
+            return
+        key = self.key(result)
+        if self._last_key is not None and _same(key, self._last_key):
+            return
+        try:
+            self.ensure_canvas()
+        except ImportError as exc:
+            self._show_message(M.NOT_AVAILABLE.format(part=getattr(exc, "name", "matplotlib")))
+            return
+        try:
+            ok = self.build(result)
+        except ModuleNotFoundError as exc:
+            self._show_message(M.NOT_AVAILABLE.format(part=exc.name))
+            return
+        except ValueError as exc:  # FigureInputError: nothing to plot, with the reason
+            self._show_message(str(exc))
+            self._last_key = key
+            return
+        if ok is False:
+            return
+        self._last_key = key
+        self._stack.setCurrentWidget(self.canvas)
+        self._request_draw()
+        self.draw_count += 1
+        self.drawn.emit()
+
+    def _request_draw(self) -> None:
+        self.canvas.draw_idle()
+
+    def build(self, result) -> bool | None:  # pragma: no cover - overridden
+        raise NotImplementedError
+
+    def _show_message(self, text: str) -> None:
+        self.message.setText(text)
+        self._stack.setCurrentWidget(self.message)
+
+    def showing_figure(self) -> bool:
+        return self.canvas is not None and self._stack.currentWidget() is self.canvas
+
+    def draw_now(self) -> None:
+        """Render synchronously (benchmarks, exports, screenshots)."""
+        if self._pending:
+            self.redraw()
+        if self.canvas is not None:
+            self.canvas.draw()
+
+
+def _same(a: tuple, b: tuple) -> bool:
+    if len(a) != len(b):
+        return False
+    return all(
+        x is y or (isinstance(x, (str, int, float, bool, tuple)) and x == y) for x, y in zip(a, b)
+    )
+
+
+# --------------------------------------------------------------------------------------
+# Funnel
+
+
+FUNNEL_OPTION_KEYS = (
+    "axis",
+    "contours",
+    "colour_by",
+    "egger_line",
+    "show_filled",
+    "labels",
+    "adjusted_line",
+    "limit_line",
+)
+
+
+class FunnelPanel(FigurePanel):
+    """The contour-enhanced funnel plot with its options as controls.
+
+    ``point_clicked(row)`` is emitted with the table row of a clicked study.
+    """
+
+    point_clicked = Signal(int)
+    options_changed = Signal()
+    model_changed = Signal(str)
+
+    def __init__(self, parent=None) -> None:
+        super().__init__("Funnel plot", parent)
+        self.options = None  # a FunnelOptions, created with the first drawing
+        self._opts_state = {
+            "axis": "se",
+            "model": "fixed",
+            "contours": True,
+            "colour_by": "none",
+            "egger_line": False,
+            "show_filled": True,
+            "adjusted_line": False,
+            "limit_line": False,
+            "labels": "none",
+        }
+        self.selected_rows: tuple[int, ...] = ()
+        self._points: list[tuple[float, float, int]] = []  # data x, data y, table row
+        self._highlight = None
+        row1 = self.controls
+        self.axis_box = QComboBox()
+        for key, text in (
+            ("se", "Standard error"),
+            ("precision", "Precision"),
+            ("variance", "Variance"),
+            ("size", "Participants"),
+        ):
+            self.axis_box.addItem(text, key)
+        self.axis_box.setAccessibleName("Vertical axis of the funnel")
+        self.axis_box.setToolTip("What the vertical axis shows")
+        self.model_box = QComboBox()
+        self.model_box.addItem("Fixed effect", "fixed")
+        self.model_box.addItem("Random effects", "random")
+        self.model_box.setAccessibleName("Model the funnel is centred on")
+        self.model_box.setToolTip("Which pooled estimate the funnel is centred on")
+        self.colour_box = QComboBox()
+        for key, text in (
+            ("none", "No colours"),
+            ("subgroup", "Colour by subgroup"),
+            ("risk_of_bias", "Colour by risk of bias"),
+        ):
+            self.colour_box.addItem(text, key)
+        self.colour_box.setAccessibleName("Colour the studies by")
+        self.labels_box = QComboBox()
+        for key, text in (("none", "No names"), ("selected", "Name selected"), ("all", "Name all")):
+            self.labels_box.addItem(text, key)
+        self.labels_box.setAccessibleName("Study names on the plot")
+        for lab, w in (("Axis:", self.axis_box), ("Centre:", self.model_box)):
+            ql = QLabel(lab)
+            ql.setBuddy(w)
+            row1.addWidget(ql)
+            row1.addWidget(w)
+        row1.addWidget(self.colour_box)
+        row1.addWidget(self.labels_box)
+        row1.addStretch(1)
+        row2 = QHBoxLayout()
+        self.contours_box = QCheckBox("&Significance bands")
+        self.egger_box = QCheckBox("&Egger line")
+        self.filled_box = QCheckBox("Filled st&udies")
+        self.adjusted_box = QCheckBox("Adjusted estimates")
+        for w, tip in (
+            (self.contours_box, "Shade where a study would be significant at p < 0.10/0.05/0.01"),
+            (self.egger_box, "Draw the Egger regression line"),
+            (self.filled_box, "Show the studies imputed by trim and fill (hollow)"),
+            (self.adjusted_box, "Mark the trim-and-fill and limit meta-analysis estimates"),
+        ):
+            w.setToolTip(tip)
+            row2.addWidget(w)
+        row2.addStretch(1)
+        self._outer.insertLayout(1, row2)
+        self.hint = QLabel("Hover over a study to see it; click to select its row.")
+        self.hint.setStyleSheet("color: #616E7C;")
+        self._outer.addWidget(self.hint)
+        self._sync_controls()
+        for box in (self.axis_box, self.colour_box, self.labels_box):
+            box.currentIndexChanged.connect(self._controls_changed)
+        self.model_box.currentIndexChanged.connect(self._model_changed)
+        for cb in (self.contours_box, self.egger_box, self.filled_box, self.adjusted_box):
+            cb.toggled.connect(self._controls_changed)
+
+    # ---------------------------------------------------------------- options
+
+    def option_state(self) -> dict:
+        return dict(self._opts_state)
+
+    def set_option_state(self, state: dict) -> None:
+        for k, v in state.items():
+            if k in self._opts_state and type(v) is type(self._opts_state[k]):
+                self._opts_state[k] = v
+        self._sync_controls()
+
+    def _sync_controls(self) -> None:
+        s = self._opts_state
+        widgets = (
+            self.axis_box,
+            self.model_box,
+            self.colour_box,
+            self.labels_box,
+            self.contours_box,
+            self.egger_box,
+            self.filled_box,
+            self.adjusted_box,
+        )
+        for w in widgets:
+            w.blockSignals(True)
+        for box, key in (
+            (self.axis_box, "axis"),
+            (self.model_box, "model"),
+            (self.colour_box, "colour_by"),
+            (self.labels_box, "labels"),
+        ):
+            i = box.findData(s[key])
+            if i >= 0:
+                box.setCurrentIndex(i)
+        self.contours_box.setChecked(s["contours"])
+        self.egger_box.setChecked(s["egger_line"])
+        self.filled_box.setChecked(s["show_filled"])
+        self.adjusted_box.setChecked(s["adjusted_line"])
+        for w in widgets:
+            w.blockSignals(False)
+
+    def _controls_changed(self, *_args) -> None:
+        s = self._opts_state
+        s["axis"] = self.axis_box.currentData()
+        s["colour_by"] = self.colour_box.currentData()
+        s["labels"] = self.labels_box.currentData()
+        s["contours"] = self.contours_box.isChecked()
+        s["egger_line"] = self.egger_box.isChecked()
+        s["show_filled"] = self.filled_box.isChecked()
+        s["adjusted_line"] = s["limit_line"] = self.adjusted_box.isChecked()
+        self.options_changed.emit()
+        self.redraw()
+
+    def _model_changed(self, *_args) -> None:
+        self._opts_state["model"] = self.model_box.currentData()
+        self.model_changed.emit(self._opts_state["model"])  # the window updates the settings
+        self.options_changed.emit()
+
+    def set_model(self, model: str) -> None:
+        if model in ("fixed", "random") and model != self._opts_state["model"]:
+            self._opts_state["model"] = model
+            self._sync_controls()
+
+    def funnel_options(self, result):
+        from ..figures.funnel import FunnelOptions
+
+        s = self._opts_state
+        labels: object = ()
+        if s["labels"] == "all":
+            labels = "all"
+        elif s["labels"] == "selected" and result is not None:
+            rows = set(self.selected_rows)
+            labels = tuple(lab for lab, r in zip(result.data.labels, result.data.rows) if r in rows)
+        return FunnelOptions(
+            axis=s["axis"],
+            model=s["model"],
+            contours=s["contours"],
+            colour_by=s["colour_by"],
+            egger_line=s["egger_line"],
+            show_filled=s["show_filled"],
+            adjusted_line=s["adjusted_line"],
+            limit_line=s["limit_line"],
+            labels=labels,
+        )
+
+    # ---------------------------------------------------------------- drawing
+
+    def key(self, result) -> tuple:
+        labels = self.selected_rows if self._opts_state["labels"] == "selected" else ()
+        # the funnel reads the data, pooled results, tests and trim and fill only
+        return (
+            result.data,
+            result.fixed,
+            result.random,
+            result.trim_fill,
+            tuple(sorted(self._opts_state.items())),
+            labels,
+        )
+
+    def build(self, result):
+        from ..figures.adaptors import funnel_input_from_result as adaptor
+        from ..figures.funnel import draw_funnel
+
+        opts = self.funnel_options(result)
+        inp = adaptor(result, opts)
+        self.figure.clear()
+        self._highlight = None
+        ax = self.figure.add_subplot()
+        self.artists = draw_funnel(ax, inp, opts, size="page")
+        self.axes = ax
+        self._collect_points(result, inp)
+        self._draw_highlight()
+        return True
+
+    def _collect_points(self, result, inp) -> None:
+        """Marker positions (data coordinates) and the table row of each."""
+        import numpy as np
+
+        self._points = []
+        ys = np.asarray(inp.y, dtype=float)
+        rows = result.data.rows
+        for coll in self.artists.get("studies") or ():
+            try:
+                offs = np.asarray(coll.get_offsets(), dtype=float)
+            except AttributeError:
+                continue
+            for x, v in offs:
+                # a marker's x is the study's effect: find the study it belongs to
+                matches = np.flatnonzero(np.isclose(ys, x, rtol=0, atol=1e-12))
+                if matches.size:
+                    i = int(matches[0])
+                    if matches.size > 1:  # equal effects: tell them apart by the SE axis
+                        i = int(min(matches, key=lambda j: abs(self._vpos(inp, j) - v)))
+                    self._points.append((float(x), float(v), rows[i] if i < len(rows) else i))
+
+    def _vpos(self, inp, j: int) -> float:
+        import numpy as np
+
+        se = float(np.asarray(inp.se, dtype=float)[j])
+        axis = self._opts_state["axis"]
+        if axis == "precision":
+            return 1.0 / se
+        if axis == "variance":
+            return se * se
+        if axis == "size":
+            n = np.asarray(inp.n, dtype=float)
+            return float(n[j]) if n.size > j else se
+        return se
+
+    def points(self) -> list[tuple[float, float, int]]:
+        return list(self._points)
+
+    def row_at(self, px: float, py: float, radius: float = 8.0) -> int | None:
+        """The table row of the marker nearest to display point (px, py), within radius."""
+        if not self._points or getattr(self, "axes", None) is None:
+            return None
+        import numpy as np
+
+        pts = np.array([(x, v) for x, v, _ in self._points])
+        disp = self.axes.transData.transform(pts)
+        d = np.hypot(disp[:, 0] - px, disp[:, 1] - py)
+        i = int(np.argmin(d))
+        return self._points[i][2] if d[i] <= radius else None
+
+    def display_point_of_row(self, row: int) -> tuple[float, float] | None:
+        for x, v, r in self._points:
+            if r == row:
+                px, py = self.axes.transData.transform((x, v))
+                return float(px), float(py)
+        return None
+
+    def _connect_canvas(self) -> None:
+        self.canvas.mpl_connect("motion_notify_event", self._on_move)
+        self.canvas.mpl_connect("button_press_event", self._on_click)
+
+    def _on_move(self, event) -> None:
+        if event.inaxes is None or self.result is None:
+            QToolTip.hideText()
+            return
+        row = self.row_at(event.x, event.y)
+        if row is None:
+            QToolTip.hideText()
+            return
+        QToolTip.showText(QCursor.pos() + QPoint(12, 12), self.describe_row(row), self.canvas)
+
+    def describe_row(self, row: int) -> str:
+        """Label and values of the study in ``row`` (words from the summary formatter)."""
+        res = self.result
+        study = res.review.studies[row]
+        d = res.derived[row]
+        try:
+            from ..summary import fmt_effect, fmt_se
+
+            eff = fmt_effect(d.y, res.measure)
+            se = fmt_se(d.se)
+        except (ImportError, TypeError):
+            eff, se = f"{d.y:.3g}", f"{d.se:.3g}"
+        label = study.study or f"Row {row + 1}"
+        if study.year:
+            label += f" ({study.year})"
+        return f"{label}\n{res.measure} {eff}, SE {se} (analysis scale)\nRow {row + 1}"
+
+    def _on_click(self, event) -> None:
+        if event.inaxes is None:
+            return
+        row = self.row_at(event.x, event.y)
+        if row is not None:
+            self.point_clicked.emit(row)
+
+    def set_selected_rows(self, rows) -> None:
+        rows = tuple(sorted(set(rows)))
+        if rows == self.selected_rows:
+            return
+        self.selected_rows = rows
+        if self._opts_state["labels"] == "selected":
+            self.redraw()
+            return
+        if self.canvas is not None and self.showing_figure():
+            self._draw_highlight()
+            self.canvas.draw_idle()
+
+    def _draw_highlight(self) -> None:
+        if getattr(self, "axes", None) is None:
+            return
+        if self._highlight is not None:
+            try:
+                self._highlight.remove()
+            except (ValueError, AttributeError):
+                pass
+            self._highlight = None
+        pts = [(x, v) for x, v, r in self._points if r in set(self.selected_rows)]
+        if not pts:
+            return
+        from ..figures import style
+
+        xs, vs = zip(*pts)
+        self._highlight = self.axes.scatter(
+            xs, vs, s=260, facecolors="none", edgecolors=style.INK, linewidths=1.6, zorder=6
+        )
+
+
+# --------------------------------------------------------------------------------------
+# Forest and companions
+
+
+class BuiltFigurePanel(FigurePanel):
+    """A panel for builders that make their own Figure (forest, cumulative).
+
+    The figure keeps the size the builder chose (it grows with the number of studies) and
+    scrolls inside the panel, so nothing is squeezed or cut off.
+    """
+
+    def ensure_canvas(self) -> None:
+        if self.canvas is not None:
+            return
+        from PySide6.QtWidgets import QScrollArea
+
+        self.scroll = QScrollArea()
+        self.scroll.setWidgetResizable(False)
+        self.scroll.setAlignment(Qt.AlignHCenter | Qt.AlignTop)
+        self.scroll.setAccessibleName(f"{self.objectName()} figure")
+        self._stack.addWidget(self.scroll)
+        self.canvas = self.scroll  # what showing_figure() looks for
+
+    def set_figure(self, fig) -> None:
+        from matplotlib.backends.backend_qtagg import FigureCanvasQTAgg
+
+        old = self.scroll.takeWidget()
+        if old is not None:
+            old.deleteLater()
+        self.figure = fig
+        canvas = FigureCanvasQTAgg(fig)
+        self.scroll.setWidget(canvas)
+        self.figure_canvas = canvas
+        self._fit()
+
+    def _fit(self) -> None:
+        """Scale the figure to the panel's width (its proportions are the builder's)."""
+        c = getattr(self, "figure_canvas", None)
+        if c is None or self.figure is None:
+            return
+        w, h = self.figure.get_size_inches()
+        avail = max(self.scroll.viewport().width() - 8, 200)
+        # screen dpi between 60 and 110: narrower panels shrink the figure, not cut it
+        dpi = max(60.0, min(110.0, avail / w))
+        ratio = c.devicePixelRatioF() or 1.0
+        self.figure.set_dpi(dpi * ratio)
+        c.setFixedSize(int(w * dpi), int(h * dpi))
+
+    def resizeEvent(self, event) -> None:  # noqa: N802 - Qt API
+        super().resizeEvent(event)
+        if getattr(self, "figure_canvas", None) is not None:
+            self._fit()
+            self.figure_canvas.draw_idle()
+
+    def _request_draw(self) -> None:
+        c = getattr(self, "figure_canvas", None)
+        if c is not None:
+            c.draw_idle()
+
+    def draw_now(self) -> None:
+        if self._pending:
+            self.redraw()
+        c = getattr(self, "figure_canvas", None)
+        if c is not None:
+            c.draw()
+
+
+class ForestPanel(BuiltFigurePanel):
+    def __init__(self, parent=None) -> None:
+        super().__init__("Forest plot", parent)
+        self.model_box = QComboBox()
+        self.model_box.addItem("Fixed and random effects", "both")
+        self.model_box.addItem("Random effects", "random")
+        self.model_box.addItem("Fixed effect", "fixed")
+        self.model_box.setAccessibleName("Pooled results shown on the forest plot")
+        lab = QLabel("&Pooled rows:")
+        lab.setBuddy(self.model_box)
+        self.controls.addWidget(lab)
+        self.controls.addWidget(self.model_box)
+        self.controls.addStretch(1)
+        self.model_box.currentIndexChanged.connect(lambda _i: self.redraw())
+
+    def key(self, result) -> tuple:
+        d = result.review.details
+        return (
+            result.data,
+            result.fixed,
+            result.random,
+            d.favours,
+            d.int_label,
+            d.ctl_label,
+            self.model_box.currentData(),
+        )
+
+    def build(self, result):
+        from ..figures.adaptors import forest_input_from_result
+        from ..figures.forest import forest_figure
+
+        rows, pooled, opts = forest_input_from_result(result)
+        which = self.model_box.currentData()
+        opts = replace(
+            opts,
+            size="page",
+            show_fixed=which in ("both", "fixed"),
+            show_random=which in ("both", "random"),
+        )
+        fig = forest_figure(rows, pooled, opts)
+        self.set_figure(fig)
+        self.artists = getattr(fig, "lopside_artists", {}) or {}
+        return True
+
+
+class CompanionPanel(BuiltFigurePanel):
+    """Cumulative and radial (Galbraith) plots, one at a time."""
+
+    KINDS = (("cumulative", "Cumulative meta-analysis"), ("radial", "Radial (Galbraith) plot"))
+
+    def __init__(self, parent=None) -> None:
+        super().__init__("Cumulative and radial plots", parent)
+        self.kind_box = QComboBox()
+        for key, text in self.KINDS:
+            self.kind_box.addItem(text, key)
+        self.kind_box.setAccessibleName("Companion plot")
+        lab = QLabel("&Plot:")
+        lab.setBuddy(self.kind_box)
+        self.egger_box = QCheckBox("Egger line")
+        self.egger_box.setToolTip("On the radial plot, draw the Egger regression line")
+        self.controls.addWidget(lab)
+        self.controls.addWidget(self.kind_box)
+        self.controls.addWidget(self.egger_box)
+        self.controls.addStretch(1)
+        self.kind_box.currentIndexChanged.connect(lambda _i: self.redraw())
+        self.egger_box.toggled.connect(lambda _c: self.redraw())
+
+    def key(self, result) -> tuple:
+        egger = result.tests.get("egger") if isinstance(result.tests, dict) else None
+        return (
+            result.data,
+            result.cumulative,
+            egger,
+            result.fixed,
+            self.kind_box.currentData(),
+            self.egger_box.isChecked(),
+        )
+
+    def build(self, result):
+        from ..figures import adaptors
+        from ..figures.companions import cumulative_figure, radial_figure
+
+        kind = self.kind_box.currentData()
+        if kind == "cumulative":
+            inp = adaptors.cumulative_input_from_result(result)
+            if inp is None:
+                raise ValueError(
+                    getattr(result.cumulative, "reason", "")
+                    or "The cumulative analysis could not be computed."
+                )
+            fig = cumulative_figure(inp, size="page")
+        else:
+            fig = radial_figure(
+                adaptors.radial_input_from_result(result),
+                size="page",
+                egger_line=self.egger_box.isChecked(),
+            )
+        self.set_figure(fig)
+        return True

@@ -1,0 +1,360 @@
+"""The study-table panel: entry mode, the table, row buttons and the problems list."""
+
+from __future__ import annotations
+
+from PySide6.QtCore import QItemSelectionModel, Qt, Signal
+from PySide6.QtGui import QKeySequence
+from PySide6.QtWidgets import (
+    QAbstractItemView,
+    QComboBox,
+    QHBoxLayout,
+    QHeaderView,
+    QLabel,
+    QListWidget,
+    QListWidgetItem,
+    QSplitter,
+    QStyledItemDelegate,
+    QTableView,
+    QToolButton,
+    QVBoxLayout,
+    QWidget,
+)
+
+from .. import edits as ed
+from ..model.review import RISK_OF_BIAS_LEVELS, StudyRow
+from ..session import Session
+from .table_model import ENTRY_MODES, StudyTableModel
+
+
+class PickListDelegate(QStyledItemDelegate):
+    """An editable pick list: risk-of-bias levels, or the subgroups already in the table."""
+
+    def __init__(self, choices, parent=None) -> None:
+        super().__init__(parent)
+        self._choices = choices
+
+    def createEditor(self, parent, option, index):  # noqa: N802 - Qt API
+        box = QComboBox(parent)
+        box.setEditable(True)
+        box.addItem("")
+        for c in self._choices():
+            box.addItem(c)
+        box.setAccessibleName("Pick or type a value")
+        return box
+
+    def setEditorData(self, editor, index):  # noqa: N802 - Qt API
+        editor.setCurrentText(index.data(Qt.EditRole) or "")
+
+    def setModelData(self, editor, model, index):  # noqa: N802 - Qt API
+        model.setData(index, editor.currentText(), Qt.EditRole)
+
+
+class StudyTableView(QTableView):
+    """The table, with the keyboard habits of a spreadsheet."""
+
+    paste_requested = Signal()
+    delete_cells_requested = Signal()
+
+    def keyPressEvent(self, event) -> None:  # noqa: N802 - Qt API
+        if event.matches(QKeySequence.Paste):
+            self.paste_requested.emit()
+            return
+        if event.key() in (Qt.Key_Delete, Qt.Key_Backspace) and self.state() != self.EditingState:
+            self.delete_cells_requested.emit()
+            return
+        if event.key() in (Qt.Key_Return, Qt.Key_Enter) and self.state() != self.EditingState:
+            idx = self.currentIndex()
+            if idx.isValid() and (idx.flags() & Qt.ItemIsEditable):
+                self.edit(idx)
+                return
+        super().keyPressEvent(event)
+
+
+class StudyPanel(QWidget):
+    """Everything for entering and checking the study rows."""
+
+    selection_changed = Signal(tuple)
+    mode_changed = Signal(str)
+    measure_chosen = Signal(str)
+
+    def __init__(self, session: Session, stack, parent=None) -> None:
+        super().__init__(parent)
+        self.session = session
+        self.stack = stack
+        self.model = StudyTableModel(session, stack.push_edit, self)
+        lay = QVBoxLayout(self)
+        lay.setContentsMargins(4, 4, 4, 4)
+
+        top = QHBoxLayout()
+        self.mode_box = QComboBox()
+        for key, (text, _fields) in ENTRY_MODES.items():
+            self.mode_box.addItem(text, key)
+        self.mode_box.setAccessibleName("What you have for each study")
+        self.mode_box.setToolTip("Show the columns for the data you have in hand")
+        lab = QLabel("&Data in hand:")
+        lab.setBuddy(self.mode_box)
+        top.addWidget(lab)
+        top.addWidget(self.mode_box)
+        from .details_form import measure_combo
+
+        self.measure_box = measure_combo()
+        self.measure_box.setToolTip("The effect measure of the review (also in Review details)")
+        mlab = QLabel("&Measure:")
+        mlab.setBuddy(self.measure_box)
+        top.addWidget(mlab)
+        top.addWidget(self.measure_box, 1)
+        lay.addLayout(top)
+
+        buttons = QHBoxLayout()
+        self.buttons: dict[str, QToolButton] = {}
+        for key, text, tip in (
+            ("add", "Add row", "Add an empty row below the current one (Ctrl+Shift+N)"),
+            ("duplicate", "Duplicate", "Copy the selected rows (Ctrl+D)"),
+            ("delete", "Delete rows", "Delete the selected rows (Ctrl+Shift+Del)"),
+            ("up", "Move up", "Move the current row up (Ctrl+Shift+Up)"),
+            ("down", "Move down", "Move the current row down (Ctrl+Shift+Down)"),
+            ("exclude", "Leave out / bring back", "Leave the selected studies out (Ctrl+E)"),
+            ("paste", "Paste from paper\u2026", "Paste rows from a paper's forest table"),
+        ):
+            b = QToolButton()
+            b.setText(text)
+            b.setToolTip(tip)
+            b.setAccessibleName(text)
+            b.setToolButtonStyle(Qt.ToolButtonTextOnly)
+            buttons.addWidget(b)
+            self.buttons[key] = b
+        buttons.addStretch(1)
+        lay.addLayout(buttons)
+
+        split = QSplitter(Qt.Vertical)
+        self.table = StudyTableView()
+        self.table.setModel(self.model)
+        self.table.setAccessibleName("Study table")
+        self.table.setSelectionBehavior(QAbstractItemView.SelectItems)
+        self.table.setSelectionMode(QAbstractItemView.ExtendedSelection)
+        self.table.setEditTriggers(
+            QAbstractItemView.DoubleClicked
+            | QAbstractItemView.EditKeyPressed
+            | QAbstractItemView.AnyKeyPressed
+        )
+        self.table.setTabKeyNavigation(True)
+        self.table.setAlternatingRowColors(False)
+        self.table.verticalHeader().setDefaultSectionSize(24)
+        self.table.horizontalHeader().setSectionResizeMode(QHeaderView.Interactive)
+        self.table.horizontalHeader().setStretchLastSection(False)
+        rob = PickListDelegate(lambda: RISK_OF_BIAS_LEVELS, self.table)
+        sub = PickListDelegate(self._subgroups, self.table)
+        self._delegates = (rob, sub)
+        split.addWidget(self.table)
+
+        probs = QWidget()
+        pl = QVBoxLayout(probs)
+        pl.setContentsMargins(0, 0, 0, 0)
+        self.problems_title = QLabel("Problems in the table")
+        pl.addWidget(self.problems_title)
+        self.problems = QListWidget()
+        self.problems.setAccessibleName("Problems in the study table")
+        self.problems.setWordWrap(True)
+        pl.addWidget(self.problems)
+        split.addWidget(probs)
+        split.setSizes([420, 110])
+        split.setStretchFactor(0, 1)
+        lay.addWidget(split, 1)
+
+        self.mode_box.currentIndexChanged.connect(self._mode_picked)
+        self.measure_box.activated.connect(
+            lambda _i: self.measure_chosen.emit(self.measure_box.currentData())
+        )
+        self.problems.itemActivated.connect(self._go_to_problem)
+        self.problems.itemClicked.connect(self._go_to_problem)
+        self.table.selectionModel().selectionChanged.connect(self._selection)
+        self.model.modelReset.connect(self._after_reset)
+        self.b = self.buttons
+        self.b["add"].clicked.connect(self.add_row)
+        self.b["duplicate"].clicked.connect(self.duplicate_rows)
+        self.b["delete"].clicked.connect(self.delete_rows)
+        self.b["up"].clicked.connect(lambda: self.move_current(-1))
+        self.b["down"].clicked.connect(lambda: self.move_current(+1))
+        self.b["exclude"].clicked.connect(self.toggle_exclude)
+        self._apply_delegates()
+        self.refresh_measure()
+
+    # ---------------------------------------------------------------- modes and columns
+
+    def _mode_picked(self, _i: int) -> None:
+        self.set_mode(self.mode_box.currentData())
+
+    def set_mode(self, mode: str) -> None:
+        if mode not in ENTRY_MODES:
+            return
+        i = self.mode_box.findData(mode)
+        if i != self.mode_box.currentIndex():
+            self.mode_box.blockSignals(True)
+            self.mode_box.setCurrentIndex(i)
+            self.mode_box.blockSignals(False)
+        self.model.set_mode(mode)
+        self._apply_delegates()
+        self.mode_changed.emit(mode)
+
+    def suggest_mode(self) -> None:
+        """Pick the entry mode that matches the rows entered (after open or paste)."""
+        rows = self.session.review.studies
+        if not rows:
+            return
+        counts = sum(r.has_counts() for r in rows)
+        means = sum(r.has_means() for r in rows)
+        ci = sum(r.lower is not None and r.upper is not None for r in rows)
+        se = sum(r.se is not None for r in rows)
+        p = sum(r.p is not None for r in rows)
+        best = max((counts, "counts"), (means, "means"), (ci, "ci"), (se, "se"), (p, "p"))
+        kinds = sum(x > 0 for x in (counts, means, ci, se, p))
+        self.set_mode("all" if kinds > 1 and best[0] < len(rows) else best[1])
+
+    def _apply_delegates(self) -> None:
+        rob, sub = self._delegates
+        for c in range(self.model.columnCount()):
+            self.table.setItemDelegateForColumn(c, None)
+        for field, dlg in (("risk_of_bias", rob), ("subgroup", sub)):
+            c = self.model.column_of(field)
+            if c >= 0:
+                self.table.setItemDelegateForColumn(c, dlg)
+        self.fit_columns()
+
+    def fit_columns(self) -> None:
+        h = self.table.horizontalHeader()
+        for c, key in enumerate(self.model.columns):
+            width = {
+                "study": 150,
+                "year": 52,
+                "risk_of_bias": 104,
+                "subgroup": 90,
+                "exclude": 70,
+            }.get(key, 78)
+            h.resizeSection(c, width)
+
+    def _subgroups(self):
+        return sorted({r.subgroup for r in self.session.review.studies if r.subgroup})
+
+    def _after_reset(self) -> None:
+        self._apply_delegates()
+
+    def refresh_measure(self) -> None:
+        i = self.measure_box.findData(self.session.review.measure)
+        if i >= 0 and i != self.measure_box.currentIndex():
+            self.measure_box.blockSignals(True)
+            self.measure_box.setCurrentIndex(i)
+            self.measure_box.blockSignals(False)
+
+    # ---------------------------------------------------------------- results and problems
+
+    def show_result(self, result) -> None:
+        self.model.set_result(result)
+        self.problems.clear()
+        probs = self.model.problems()
+        studies = self.session.review.studies
+        n = 0
+        for r in sorted(probs):
+            for p in probs[r]:
+                label = studies[r].study or f"Row {r + 1}"
+                where = f"row {r + 1} ({label})" + (
+                    f", {p.field.replace('_', ' ')}" if p.field else ""
+                )
+                mark = "\u2716" if p.severity == "error" else "\u26a0"
+                item = QListWidgetItem(f"{mark} {where}: {p.message}")
+                item.setData(Qt.UserRole, (r, p.field))
+                self.problems.addItem(item)
+                n += 1
+        self.problems_title.setText(
+            f"Problems in the table ({n})" if n else "Problems in the table: none found"
+        )
+
+    def _go_to_problem(self, item: QListWidgetItem) -> None:
+        row, field = item.data(Qt.UserRole)
+        col = self.model.column_of(field) if field else 0
+        if field and col < 0:
+            self.set_mode("all")
+            col = self.model.column_of(field)
+        self.select_row(row, col=max(col, 0))
+        self.table.setFocus(Qt.OtherFocusReason)
+
+    # ---------------------------------------------------------------- selection
+
+    def selected_rows(self) -> tuple[int, ...]:
+        rows = {i.row() for i in self.table.selectionModel().selectedIndexes()}
+        cur = self.table.currentIndex()
+        if not rows and cur.isValid():
+            rows = {cur.row()}
+        return tuple(sorted(rows))
+
+    def _selection(self, *_args) -> None:
+        self.selection_changed.emit(self.selected_rows())
+
+    def select_row(self, row: int, col: int = 0) -> None:
+        if not 0 <= row < self.model.rowCount():
+            return
+        idx = self.model.index(row, col)
+        sm = self.table.selectionModel()
+        sm.setCurrentIndex(idx, QItemSelectionModel.ClearAndSelect | QItemSelectionModel.Rows)
+        self.table.scrollTo(idx)
+
+    # ---------------------------------------------------------------- row actions
+
+    def _current_row(self) -> int:
+        idx = self.table.currentIndex()
+        return idx.row() if idx.isValid() else self.model.rowCount() - 1
+
+    def add_row(self) -> None:
+        at = self._current_row() + 1
+        if self.stack.push_edit(ed.AddRows(at, (StudyRow(),))):
+            self.select_row(at, 0)
+            self.table.setFocus()
+
+    def duplicate_rows(self) -> None:
+        rows = self.selected_rows()
+        if not rows:
+            return
+        studies = self.session.review.studies
+        copies = tuple(studies[i] for i in rows)
+        self.stack.push_edit(ed.AddRows(rows[-1] + 1, copies))
+
+    def delete_rows(self) -> None:
+        rows = self.selected_rows()
+        if rows:
+            self.stack.push_edit(ed.DeleteRows(rows))
+
+    def move_current(self, step: int) -> None:
+        idx = self.table.currentIndex()
+        if not idx.isValid():
+            return
+        src, dst = idx.row(), idx.row() + step
+        if 0 <= dst < self.model.rowCount() and self.stack.push_edit(ed.MoveRow(src, dst)):
+            self.select_row(dst, idx.column())
+
+    def toggle_exclude(self) -> None:
+        rows = self.selected_rows()
+        if not rows:
+            return
+        studies = self.session.review.studies
+        new = not all(studies[i].exclude for i in rows)
+        edits = [ed.SetExclude(i, new) for i in rows if studies[i].exclude != new]
+        if len(edits) == 1:
+            self.stack.push_edit(edits[0])
+        elif edits:
+            self.stack.push_many(
+                f"{'leave out' if new else 'bring back'} {len(edits)} studies", edits
+            )
+
+    def clear_selected_cells(self) -> None:
+        """Delete key: blank the selected editable cells (one undo step)."""
+        edits = []
+        studies = self.session.review.studies
+        for idx in self.table.selectionModel().selectedIndexes():
+            key = self.model.columns[idx.column()]
+            if not (idx.flags() & Qt.ItemIsEditable):
+                continue
+            if ed.cell_text(studies[idx.row()], key):
+                edits.append(ed.SetCell(idx.row(), key, ""))
+        if len(edits) == 1:
+            self.stack.push_edit(edits[0])
+        elif edits:
+            self.stack.push_many(f"clear {len(edits)} cells", edits)

@@ -1,0 +1,410 @@
+"""A thin Qt table model over the session's study table.
+
+Design invariants
+-----------------
+* The model holds no data of its own: ``data()`` reads ``session.review.studies`` and the
+  last analysis result (for the derived y and SE and the problems). It returns ``None``
+  for roles it does not handle and never opens a dialog.
+* ``setData`` turns what the user typed into an edit value and hands it to ``push`` (the
+  window's undo stack). A domain error makes it return ``False``; the view tells the user.
+* Row inserts/removes are bracketed from the session's "about to change"/"changed" events.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+from dataclasses import dataclass
+
+from PySide6.QtCore import QAbstractTableModel, QModelIndex, QPersistentModelIndex, Qt
+from PySide6.QtGui import QBrush, QColor, QFont
+
+from .. import edits as ed
+from ..model.review import RATIO_MEASURES, StudyRow
+from ..session import Session
+from . import messages as M
+
+#: Entry modes: what the user has in hand for each study, and the columns it needs.
+ENTRY_MODES: dict[str, tuple[str, tuple[str, ...]]] = {
+    "ci": ("Estimate with its CI", ("estimate", "lower", "upper")),
+    "se": ("Estimate with its SE", ("estimate", "se")),
+    "p": ("Estimate with its P value", ("estimate", "p")),
+    "counts": ("Events and totals per arm", ("int_events", "int_total", "ctl_events", "ctl_total")),
+    "means": (
+        "Means and SDs per arm",
+        ("int_mean", "int_sd", "int_n", "ctl_mean", "ctl_sd", "ctl_n"),
+    ),
+    "all": (
+        "Every column",
+        (
+            "estimate",
+            "lower",
+            "upper",
+            "level",
+            "se",
+            "p",
+            "int_events",
+            "int_total",
+            "ctl_events",
+            "ctl_total",
+            "int_mean",
+            "int_sd",
+            "int_n",
+            "ctl_mean",
+            "ctl_sd",
+            "ctl_n",
+            "n",
+        ),
+    ),
+}
+
+HEADERS: dict[str, str] = {
+    "study": "Study",
+    "year": "Year",
+    "estimate": "Estimate",
+    "lower": "CI lower",
+    "upper": "CI upper",
+    "level": "CI %",
+    "se": "SE",
+    "p": "P",
+    "int_events": "Events (int.)",
+    "int_total": "Total (int.)",
+    "ctl_events": "Events (ctl.)",
+    "ctl_total": "Total (ctl.)",
+    "int_mean": "Mean (int.)",
+    "int_sd": "SD (int.)",
+    "int_n": "N (int.)",
+    "ctl_mean": "Mean (ctl.)",
+    "ctl_sd": "SD (ctl.)",
+    "ctl_n": "N (ctl.)",
+    "n": "Total N",
+    "risk_of_bias": "Risk of bias",
+    "subgroup": "Subgroup",
+    "exclude": "Left out",
+    "_y": "Effect used",
+    "_se": "SE used",
+}
+DERIVED = ("_y", "_se")
+_ROOT = QModelIndex()
+
+#: Tints of this window (not figure colours: those live in lopside.figures.style).
+ERROR_CELL = QColor("#F7C9C3")
+WARNING_CELL = QColor("#FBE3B5")
+ERROR_ROW = QColor("#FDF0EE")
+WARNING_ROW = QColor("#FEF8EC")
+DERIVED_CELL = QColor("#EEF1F4")
+EXCLUDED_TEXT = QColor("#7B8794")
+
+
+@dataclass(frozen=True, slots=True)
+class CellProblem:
+    """One problem shown on a cell (or on the whole row when ``field`` is empty)."""
+
+    row: int
+    field: str
+    severity: str  # "error" | "warning"
+    message: str
+
+
+def problems_by_row(result, studies: tuple[StudyRow, ...]) -> dict[int, list[CellProblem]]:
+    """Gather what the analysis says about each row, plus text kept unread.
+
+    The analysis (row checks and effect derivation) supplies the messages; this only
+    files them under their row and field for display.
+    """
+    out: dict[int, list[CellProblem]] = {}
+    seen: set[tuple[int, str, str]] = set()
+
+    def add(p: CellProblem) -> None:
+        key = (p.row, p.field, p.message)
+        if key not in seen:
+            seen.add(key)
+            out.setdefault(p.row, []).append(p)
+
+    if result is not None:
+        for p in getattr(result, "problems", ()) or ():
+            row = getattr(p, "row", None)
+            if row is None or not 0 <= row < len(studies):
+                continue
+            sev = str(getattr(p, "severity", "warning")).lower()
+            sev = "error" if sev in ("error", "serious") else "warning"
+            add(CellProblem(row, getattr(p, "field", "") or "", sev, str(p.message)))
+        for i, d in enumerate(getattr(result, "derived", ()) or ()):
+            if i < len(studies) and getattr(d, "y", None) is None:
+                for msg in getattr(d, "problems", ()) or ():
+                    add(CellProblem(i, "", "error", str(msg)))
+    for i, row in enumerate(studies):
+        for field, text in row.unread:
+            if any(p.field == field for p in out.get(i, ())):
+                continue
+            hint = M.CELL_UNREAD_HINT.get(field, "a number")
+            what = "a year" if field == "year" else "a value for this column"
+            add(
+                CellProblem(
+                    i, field, "error", M.CELL_UNREAD.format(text=text, what=what, hint=hint)
+                )
+            )
+    return out
+
+
+class StudyTableModel(QAbstractTableModel):
+    """Rows = studies; columns = the entry mode's fields, the derived values, and labels."""
+
+    def __init__(self, session: Session, push: Callable[[ed.Edit], bool], parent=None) -> None:
+        super().__init__(parent)
+        self.session = session
+        self.push = push
+        self._mode = "ci"
+        self._columns: tuple[str, ...] = ()
+        self._result = None
+        self._problems: dict[int, list[CellProblem]] = {}
+        self._rebuild_columns()
+        session.add_listener(about_to_change=self._about, changed=self._changed)
+
+    # ---------------------------------------------------------------- columns
+
+    @property
+    def mode(self) -> str:
+        return self._mode
+
+    def set_mode(self, mode: str) -> None:
+        if mode not in ENTRY_MODES or mode == self._mode:
+            return
+        self.beginResetModel()
+        self._mode = mode
+        self._rebuild_columns()
+        self.endResetModel()
+
+    def _rebuild_columns(self) -> None:
+        fields = ENTRY_MODES[self._mode][1]
+        self._columns = ("study", "year", *fields, *DERIVED, "risk_of_bias", "subgroup", "exclude")
+
+    @property
+    def columns(self) -> tuple[str, ...]:
+        return self._columns
+
+    def column_of(self, field: str) -> int:
+        return self._columns.index(field) if field in self._columns else -1
+
+    # ---------------------------------------------------------------- session events
+
+    def _about(self, change: ed.Change) -> None:
+        if change.kind == "insert":
+            rows = change.rows
+            if rows and rows == tuple(range(rows[0], rows[0] + len(rows))):
+                self.beginInsertRows(QModelIndex(), rows[0], rows[-1])
+                self._pending = "insert"
+                return
+        elif change.kind == "remove":
+            rows = change.rows
+            if rows and rows == tuple(range(rows[0], rows[0] + len(rows))):
+                self.beginRemoveRows(QModelIndex(), rows[0], rows[-1])
+                self._pending = "remove"
+                return
+        elif change.kind == "move":
+            src, dst = change.rows
+            if src != dst:
+                # Qt's destination is the row *before which* the moved row lands
+                qt_dst = dst + 1 if dst > src else dst
+                if self.beginMoveRows(QModelIndex(), src, src, QModelIndex(), qt_dst):
+                    self._pending = "move"
+                    return
+            self._pending = "row"
+            return
+        elif change.kind in ("row", "details", "notes", "settings"):
+            self._pending = change.kind
+            return
+        self.beginResetModel()
+        self._pending = "reset"
+
+    def _changed(self, change: ed.Change) -> None:
+        pending = getattr(self, "_pending", "reset")
+        self._pending = ""
+        if pending == "insert":
+            self.endInsertRows()
+        elif pending == "remove":
+            self.endRemoveRows()
+        elif pending == "move":
+            self.endMoveRows()
+        elif pending == "reset":
+            self._result = None
+            self._problems = {}
+            self.endResetModel()
+        elif pending == "row":
+            for r in change.rows:
+                self.dataChanged.emit(self.index(r, 0), self.index(r, self.columnCount() - 1))
+            if change.kind == "move":
+                lo, hi = sorted(change.rows)
+                self.dataChanged.emit(self.index(lo, 0), self.index(hi, self.columnCount() - 1))
+        elif pending == "details" and change.field == "measure":
+            self.headerDataChanged.emit(Qt.Horizontal, 0, self.columnCount() - 1)
+
+    def set_result(self, result) -> None:
+        """Show the derived values and problems of a new analysis."""
+        self._result = result
+        studies = self.session.review.studies
+        if result is not None and len(getattr(result, "derived", ())) != len(studies):
+            result = None  # an analysis of an older table: wait for the current one
+            self._result = None
+        self._problems = problems_by_row(result, studies)
+        if self.rowCount() and self.columnCount():
+            self.dataChanged.emit(
+                self.index(0, 0), self.index(self.rowCount() - 1, self.columnCount() - 1)
+            )
+
+    def problems(self) -> dict[int, list[CellProblem]]:
+        return self._problems
+
+    # ---------------------------------------------------------------- Qt model API
+
+    def rowCount(self, parent=_ROOT) -> int:  # noqa: N802 - Qt API
+        return 0 if parent.isValid() else len(self.session.review.studies)
+
+    def columnCount(self, parent=_ROOT) -> int:  # noqa: N802 - Qt API
+        return 0 if parent.isValid() else len(self._columns)
+
+    def headerData(self, section, orientation, role=Qt.DisplayRole):  # noqa: N802 - Qt API
+        if orientation == Qt.Horizontal:
+            if not 0 <= section < len(self._columns):
+                return None
+            key = self._columns[section]
+            if role == Qt.DisplayRole:
+                return self._header(key)
+            if role == Qt.ToolTipRole:
+                return self._header_tip(key)
+            return None
+        if role == Qt.DisplayRole:
+            return str(section + 1)
+        if role == Qt.ToolTipRole and 0 <= section < self.rowCount():
+            if self.session.review.studies[section].exclude:
+                return "Left out of the analysis (kept in the table)"
+        return None
+
+    def _header(self, key: str) -> str:
+        measure = self.session.review.measure
+        if key == "estimate":
+            return measure
+        if key == "_y":
+            return f"log {measure} used" if measure in RATIO_MEASURES else f"{measure} used"
+        return HEADERS.get(key, key)
+
+    def _header_tip(self, key: str) -> str:
+        measure = self.session.review.measure
+        tips = {
+            "estimate": f"The {measure} as printed in the paper (natural scale)",
+            "_y": "The effect on the analysis scale, derived by Lopside (read only)",
+            "_se": "The standard error Lopside derived for this study (read only)",
+            "exclude": "Tick to leave the study out of the analysis; it stays in the table",
+            "level": "Confidence level of this study's interval, if not the review's",
+            "p": "Two-sided P value; '<0.001' is read as a bound",
+        }
+        return tips.get(key, HEADERS.get(key, key))
+
+    def flags(self, index):
+        if not index.isValid():
+            return Qt.NoItemFlags
+        key = self._columns[index.column()]
+        base = Qt.ItemIsEnabled | Qt.ItemIsSelectable
+        if key in DERIVED:
+            return base
+        if key == "exclude":
+            return base | Qt.ItemIsUserCheckable
+        return base | Qt.ItemIsEditable
+
+    def data(self, index, role=Qt.DisplayRole):
+        if not index.isValid():
+            return None
+        r, c = index.row(), index.column()
+        studies = self.session.review.studies
+        if not (0 <= r < len(studies) and 0 <= c < len(self._columns)):
+            return None
+        row = studies[r]
+        key = self._columns[c]
+        if role in (Qt.DisplayRole, Qt.EditRole):
+            if key in DERIVED:
+                return self._derived_text(r, key) if role == Qt.DisplayRole else None
+            if key == "exclude":
+                return None
+            return ed.cell_text(row, key)
+        if role == Qt.CheckStateRole and key == "exclude":
+            return Qt.Checked if row.exclude else Qt.Unchecked
+        if role == Qt.BackgroundRole:
+            return self._background(r, key)
+        if role == Qt.ForegroundRole and row.exclude:
+            return QBrush(EXCLUDED_TEXT)
+        if role == Qt.FontRole and row.exclude:
+            f = QFont()
+            f.setItalic(True)
+            return f
+        if role == Qt.ToolTipRole:
+            return self._tooltip(r, key)
+        if role == Qt.TextAlignmentRole and key not in ("study", "risk_of_bias", "subgroup"):
+            return int(Qt.AlignRight | Qt.AlignVCenter)
+        if role == Qt.AccessibleTextRole:
+            text = self._derived_text(r, key) if key in DERIVED else ed.cell_text(row, key)
+            return f"{self._header(key)}: {text or 'blank'}"
+        return None
+
+    def _derived(self, r: int):
+        res = self._result
+        if res is None or r >= len(res.derived):
+            return None
+        return res.derived[r]
+
+    def _derived_text(self, r: int, key: str) -> str:
+        d = self._derived(r)
+        if d is None:
+            return ""
+        v = d.y if key == "_y" else d.se
+        return "" if v is None else f"{v:.4g}"
+
+    def _cell_problems(self, r: int, key: str) -> list[CellProblem]:
+        return [p for p in self._problems.get(r, ()) if p.field == key]
+
+    def _background(self, r: int, key: str):
+        probs = self._problems.get(r)
+        if probs:
+            cell = self._cell_problems(r, key)
+            if cell:
+                return QBrush(
+                    ERROR_CELL if any(p.severity == "error" for p in cell) else WARNING_CELL
+                )
+            if key in DERIVED:
+                return QBrush(DERIVED_CELL)
+            return QBrush(ERROR_ROW if any(p.severity == "error" for p in probs) else WARNING_ROW)
+        if key in DERIVED:
+            return QBrush(DERIVED_CELL)
+        return None
+
+    def _tooltip(self, r: int, key: str):
+        lines = [p.message for p in self._cell_problems(r, key)]
+        if key in DERIVED:
+            d = self._derived(r)
+            if d is not None and getattr(d, "route_text", ""):
+                lines.append(d.route_text)
+            lines += [p.message for p in self._problems.get(r, ()) if not p.field]
+        if not lines and r in self._problems and key == "study":
+            lines = [p.message for p in self._problems[r]]
+        return "\n".join(lines) if lines else None
+
+    def setData(self, index, value, role=Qt.EditRole):  # noqa: N802 - Qt API
+        if not index.isValid():
+            return False
+        key = self._columns[index.column()]
+        r = index.row()
+        if key in DERIVED:
+            return False
+        if key == "exclude":
+            if role != Qt.CheckStateRole:
+                return False
+            checked = value in (Qt.Checked, Qt.Checked.value, 2, True)
+            return self.push(ed.SetExclude(r, checked))
+        if role != Qt.EditRole:
+            return False
+        text = "" if value is None else str(value)
+        if text == ed.cell_text(self.session.review.studies[r], key):
+            return True  # nothing changed: no undo step
+        return self.push(ed.SetCell(r, key, text))
+
+
+def persistent(model: StudyTableModel, row: int, field: str) -> QPersistentModelIndex:
+    return QPersistentModelIndex(model.index(row, model.column_of(field)))
