@@ -1,0 +1,525 @@
+"""Row checks: what looks wrong in a study row, and what to do about it.
+
+Design invariants
+-----------------
+* Checks never raise on bad data and never change a row: they return
+  :class:`Problem` values (errors stop a row being analysed; warnings do not).
+* Every message comes from :data:`lopside.intake.messages.CHECKS` and names the row
+  (counted from 1 for the user), the study and the field.
+* Rounding tolerance comes from the decimals *as printed*: half a unit in the last
+  printed place of each number. The printed text is used when the caller has it
+  (the paste and table readers keep it); otherwise two decimals are assumed, the usual
+  precision of forest tables (more if the stored value itself shows more).
+* The symmetry check uses the fact that ratio intervals (OR, RR, HR) computed the usual
+  way are symmetric on the log scale, and difference intervals on the plain scale
+  (Cochrane Handbook 5.1, section 7.7.7.3 for ratios; section 7.7.3.2 for differences).
+  A row is flagged only if *no* set of true values within the rounding of the printed
+  numbers is symmetric on the expected scale.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass, replace
+
+from lopside.intake import messages as M
+from lopside.intake.numbers import count_decimals
+from lopside.model.review import (
+    BINARY_MEASURES,
+    CONTINUOUS_MEASURES,
+    MEASURE_NAMES,
+    MEASURES,
+    NUMERIC_FIELDS,
+    RATIO_MEASURES,
+    RISK_OF_BIAS_LEVELS,
+    StudyRow,
+)
+
+ERROR = "error"
+WARNING = "warning"
+
+#: Bounds of a usable CI level in percent (both excluded).
+LEVEL_MIN = 50.0
+LEVEL_MAX = 99.99
+
+
+@dataclass(frozen=True, slots=True)
+class Problem:
+    """One thing wrong with one row.
+
+    ``row`` is the 0-based index of the row in the list checked (-1 for the review's
+    own settings); the message counts rows from 1. ``code`` is the key of the message
+    in :data:`lopside.intake.messages.CHECKS`, for tests and for the window's icons.
+    """
+
+    row: int
+    study: str
+    field: str
+    severity: str
+    message: str
+    code: str = ""
+
+
+def _problem(
+    index: int, row: StudyRow, fld: str, severity: str, code: str, **fields: object
+) -> Problem:
+    text = M.where(index, row.study, fld) + M.check_message(code, **fields)
+    return Problem(index, row.study, fld, severity, text, code)
+
+
+def _fmt(value: float, printed: Mapping[str, str], fld: str) -> str:
+    """A value as the user typed it where we know that, else in short form."""
+    if fld in printed and printed[fld]:
+        return printed[fld]
+    if value == int(value) and abs(value) < 1e15:
+        return str(int(value))
+    return f"{value:.6g}"
+
+
+def _fmt_like(value: float, decimals: int) -> str:
+    return f"{value:.{max(decimals, 0)}f}"
+
+
+# -- symmetry -------------------------------------------------------------------------
+
+
+@dataclass(frozen=True, slots=True)
+class Symmetry:
+    """Whether an interval is symmetric around its estimate, allowing for rounding.
+
+    ``log_ok``/``linear_ok`` are True when some true values within half a unit of the
+    last printed decimal of each number are exactly symmetric on that scale (``None``
+    for the log scale when a number is not positive). ``implied`` is the estimate the
+    limits point to on the scale expected for the measure.
+    """
+
+    log_ok: bool | None
+    linear_ok: bool
+    implied: float
+    log_gap: float | None
+    linear_gap: float
+
+
+def _gap_range(
+    e: float, lo: float, hi: float, he: float, hl: float, hu: float, f
+) -> tuple[float, float] | None:
+    """Range of f(e) - (f(lo) + f(hi)) / 2 over the rounding box (f increasing)."""
+    try:
+        low = f(e - he) - (f(lo + hl) + f(hi + hu)) / 2.0
+    except ValueError:
+        return None
+    try:
+        high = f(e + he) - (f(lo - hl) + f(hi - hu)) / 2.0
+    except ValueError:
+        high = math.inf  # a limit that may round to 0: the box reaches any asymmetry
+    return low, high
+
+
+def _safe_log(x: float) -> float:
+    if x <= 0:
+        raise ValueError("log of a non-positive number")
+    return math.log(x)
+
+
+def symmetry(
+    estimate: float,
+    lower: float,
+    upper: float,
+    measure: str,
+    decimals: tuple[int, int, int] = (2, 2, 2),
+) -> Symmetry:
+    """Test an interval for symmetry on the log and the plain scale, allowing for rounding.
+
+    Parameters
+    ----------
+    estimate, lower, upper : float
+        As printed (natural scale).
+    measure : str
+        One of MEASURES; decides the expected scale and ``implied``.
+    decimals : tuple of int
+        Decimals printed for the estimate, the lower and the upper limit.
+
+    Notes
+    -----
+    Half a unit in the last printed place bounds the rounding error of each number.
+    Because ``f(e) - (f(lo) + f(hi)) / 2`` is monotone in each number for an increasing
+    ``f``, its range over the rounding box is reached at two corners, so the test is
+    exact, not a first-order approximation.
+    """
+    he, hl, hu = (0.5 * 10.0 ** (-d) for d in decimals)
+    lin = _gap_range(estimate, lower, upper, he, hl, hu, lambda x: x)
+    assert lin is not None
+    linear_ok = lin[0] <= 0.0 <= lin[1]
+    log_ok: bool | None = None
+    log_gap: float | None = None
+    if estimate > 0 and lower > 0 and upper > 0:
+        rng = _gap_range(estimate, lower, upper, he, hl, hu, _safe_log)
+        log_ok = rng is None or rng[0] <= 0.0 <= rng[1]
+        log_gap = math.log(estimate) - (math.log(lower) + math.log(upper)) / 2.0
+    if measure in RATIO_MEASURES and lower > 0 and upper > 0:
+        implied = math.sqrt(lower * upper)
+    else:
+        implied = (lower + upper) / 2.0
+    return Symmetry(log_ok, linear_ok, implied, log_gap, estimate - (lower + upper) / 2.0)
+
+
+# -- one row --------------------------------------------------------------------------
+
+
+def _arm(prefix: str) -> str:
+    return "intervention" if prefix == "int" else "control"
+
+
+def check_row(
+    row: StudyRow,
+    measure: str,
+    ci_level: float = 95.0,
+    *,
+    index: int = 0,
+    printed: Mapping[str, str] | None = None,
+) -> tuple[Problem, ...]:
+    """Check one study row.
+
+    Parameters
+    ----------
+    row : StudyRow
+        The row as entered (natural scale).
+    measure : str
+        The review's measure, one of MEASURES.
+    ci_level : float
+        The review's CI level in percent; checked for a row that has an interval but no
+        level of its own.
+    index : int
+        0-based position of the row, for the message ("Row index+1").
+    printed : mapping, optional
+        Field -> number as printed (from the paste or table reader), so that the
+        rounding tolerance follows the printed decimals.
+
+    Returns
+    -------
+    tuple of Problem
+        Empty for a clean row.
+
+    Raises
+    ------
+    ValueError
+        If ``measure`` is not one of MEASURES (a programming error, not bad data).
+    """
+    if measure not in MEASURES:
+        raise ValueError(f"unknown measure {measure!r}; expected one of {MEASURES}")
+    pr: Mapping[str, str] = printed or {}
+    out: list[Problem] = []
+    name = MEASURE_NAMES[measure]
+    ratio = measure in RATIO_MEASURES
+
+    def add(fld: str, severity: str, code: str, **fields: object) -> None:
+        out.append(_problem(index, row, fld, severity, code, **fields))
+
+    # values that are not finite numbers (NaN, infinity, a stray type) are reported once
+    # and then treated as missing by every other rule
+    bad: dict[str, object] = {}
+    for fld in NUMERIC_FIELDS:
+        v = getattr(row, fld)
+        if v is None:
+            continue
+        if isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v):
+            bad[fld] = v
+    if bad:
+        for fld, v in bad.items():
+            add(fld, ERROR, "not_finite", value=v)
+        row = replace(row, **{fld: None for fld in bad})
+
+    def fmt(fld: str) -> str:
+        return _fmt(getattr(row, fld), pr, fld)
+
+    unread = row.unread_dict()
+    for fld, text in row.unread:
+        add(fld, ERROR, "unread", text=text)
+    if not row.study.strip():
+        add("study", WARNING, "no_label")
+
+    # -- values that cannot be right whatever the measure
+    # the row's own CI level, else the review's (an interval needs a usable level)
+    if row.level is not None and not (LEVEL_MIN < row.level < LEVEL_MAX):
+        add("level", ERROR, "level_range", level=fmt("level"))
+    elif row.level is None and lo_hi_given(row) and not (LEVEL_MIN < ci_level < LEVEL_MAX):
+        add("level", ERROR, "level_range", level=f"{ci_level:g}")
+    if row.p is not None and not (0.0 < row.p <= 1.0):
+        add("p", ERROR, "p_range", p=fmt("p"))
+    if row.se is not None:
+        if row.se < 0:
+            add("se", ERROR, "negative", what="SE", value=fmt("se"))
+        elif row.se == 0:
+            add("se", ERROR, "se_zero")
+    for prefix in ("int", "ctl"):
+        sd_field = f"{prefix}_sd"
+        sd = getattr(row, sd_field)
+        if sd is not None:
+            if sd < 0:
+                add(sd_field, ERROR, "negative", what="SD", value=fmt(sd_field))
+            elif sd == 0:
+                add(sd_field, WARNING, "sd_zero")
+    whole_fields = {
+        "int_events": "events",
+        "int_total": "total",
+        "ctl_events": "events",
+        "ctl_total": "total",
+        "int_n": "number",
+        "ctl_n": "number",
+        "n": "number",
+    }
+    for fld, what in whole_fields.items():
+        v = getattr(row, fld)
+        if v is None:
+            continue
+        if v < 0:
+            add(
+                fld,
+                ERROR,
+                "negative",
+                what=f"{_arm(fld[:3])} {what}" if fld != "n" else "n",
+                value=fmt(fld),
+            )
+        elif v != int(v):
+            add(fld, WARNING, "not_whole", what=fld.replace("_", " "), value=fmt(fld))
+    for prefix in ("int", "ctl"):
+        ev, tot = getattr(row, f"{prefix}_events"), getattr(row, f"{prefix}_total")
+        if ev is not None and tot is not None and ev > tot >= 0:
+            add(
+                f"{prefix}_events",
+                ERROR,
+                "events_over_total",
+                arm=_arm(prefix),
+                events=fmt(f"{prefix}_events"),
+                total=fmt(f"{prefix}_total"),
+            )
+
+    # -- the estimate and its interval
+    est, lo, hi = row.estimate, row.lower, row.upper
+    if ratio:
+        for fld, what in (
+            ("estimate", "estimate"),
+            ("lower", "lower limit"),
+            ("upper", "upper limit"),
+        ):
+            v = getattr(row, fld)
+            if v is not None and v <= 0:
+                add(fld, ERROR, "ratio_not_positive", what=what, value=fmt(fld), measure_name=name)
+    limits_ok = False
+    if lo is not None and hi is not None:
+        if lo > hi:
+            add("lower", ERROR, "limits_reversed", lower=fmt("lower"), upper=fmt("upper"))
+        elif lo == hi:
+            add("lower", ERROR, "limits_equal", lower=fmt("lower"))
+        else:
+            limits_ok = True
+    elif (lo is None) != (hi is None) and not ({"lower", "upper"} & set(unread)):
+        add(
+            "upper" if hi is None else "lower",
+            WARNING,
+            "partial_ci",
+            given="lower" if lo is not None else "upper",
+        )
+    if (lo is not None or hi is not None) and est is None and "estimate" not in unread:
+        add("estimate", WARNING, "ci_without_estimate")
+    if est is not None and limits_ok:
+        assert lo is not None and hi is not None
+        if est < lo or est > hi:
+            add(
+                "estimate",
+                ERROR,
+                "estimate_outside",
+                estimate=fmt("estimate"),
+                lower=fmt("lower"),
+                upper=fmt("upper"),
+            )
+        elif not ratio or (est > 0 and lo > 0):
+            out.extend(_symmetry_problems(row, measure, index, pr))
+
+    # -- counts and means
+    count_fields = ("int_events", "int_total", "ctl_events", "ctl_total")
+    mean_fields = ("int_mean", "int_sd", "int_n", "ctl_mean", "ctl_sd", "ctl_n")
+    given_counts = [f for f in count_fields if getattr(row, f) is not None]
+    given_means = [f for f in mean_fields if getattr(row, f) is not None]
+    if given_counts and len(given_counts) < 4:
+        missing = ", ".join(f for f in count_fields if f not in given_counts and f not in unread)
+        if missing:
+            add(missing.split(", ")[0], WARNING, "partial_counts", missing=missing)
+    if given_means and len(given_means) < 6:
+        missing = ", ".join(f for f in mean_fields if f not in given_means and f not in unread)
+        if missing:
+            add(missing.split(", ")[0], WARNING, "partial_means", missing=missing)
+    has_estimate_route = est is not None and (
+        (lo is not None and hi is not None) or row.se is not None or row.p is not None
+    )
+    if row.has_counts() and measure not in BINARY_MEASURES and not has_estimate_route:
+        pass  # reported below as "nothing to analyse for this measure"
+    elif row.has_counts() and measure not in BINARY_MEASURES:
+        add("int_events", WARNING, "counts_unused", measure_name=name)
+    if row.has_means() and measure not in CONTINUOUS_MEASURES and has_estimate_route:
+        add("int_mean", WARNING, "means_unused", measure_name=name)
+    if row.has_counts() and measure in ("OR", "RR"):
+        a, n1, c, n0 = row.int_events, row.int_total, row.ctl_events, row.ctl_total
+        if a == 0 and c == 0:
+            add(
+                "int_events",
+                WARNING,
+                "double_zero",
+                int_total=fmt("int_total"),
+                ctl_total=fmt("ctl_total"),
+                measure_name=name,
+            )
+        elif a == n1 and c == n0 and (n1 or 0) > 0:
+            add(
+                "int_events",
+                WARNING,
+                "all_events",
+                int_events=fmt("int_events"),
+                int_total=fmt("int_total"),
+                ctl_events=fmt("ctl_events"),
+                ctl_total=fmt("ctl_total"),
+                measure_name=name,
+            )
+
+    # -- a P value as the only route
+    only_p = (
+        est is not None
+        and row.p is not None
+        and row.se is None
+        and not (lo is not None and hi is not None)
+    )
+    if only_p and row.p is not None and 0.0 < row.p <= 1.0:
+        assert est is not None
+        null = 1.0 if ratio else 0.0
+        if row.p_bound == ">":
+            add("p", WARNING, "p_bound_unusable", p=fmt("p"))
+        elif row.p_bound == "<":
+            add("p", WARNING, "p_bound_approx", p=fmt("p"))
+        if est == null:
+            add("estimate", ERROR, "p_at_null", estimate=fmt("estimate"))
+        elif row.p >= 0.9:
+            add("p", ERROR if row.p == 1.0 else WARNING, "p_near_one", p=fmt("p"))
+
+    # -- is there anything to analyse?
+    routes = _routes(row, measure)
+    if not routes and not unread:
+        if row.has_counts() and measure not in BINARY_MEASURES:
+            add(
+                "",
+                ERROR,
+                "no_route_for_measure",
+                measure_name=name,
+                why=f"counts cannot give the {name}",
+            )
+        elif row.has_means() and measure not in CONTINUOUS_MEASURES:
+            add(
+                "",
+                ERROR,
+                "no_route_for_measure",
+                measure_name=name,
+                why=f"means and SDs cannot give the {name}",
+            )
+        else:
+            add("", ERROR, "no_route")
+    if (
+        row.risk_of_bias is not None
+        and row.risk_of_bias.strip().casefold() not in RISK_OF_BIAS_LEVELS
+    ):
+        add("risk_of_bias", WARNING, "risk_of_bias_unknown", value=row.risk_of_bias)
+    return tuple(out)
+
+
+def lo_hi_given(row: StudyRow) -> bool:
+    """True when the row has both limits of an interval."""
+    return row.lower is not None and row.upper is not None
+
+
+def _routes(row: StudyRow, measure: str) -> tuple[str, ...]:
+    """The entry routes this row offers for the measure (before any value is checked)."""
+    routes = []
+    if row.estimate is not None:
+        if row.lower is not None and row.upper is not None:
+            routes.append("ci")
+        if row.se is not None:
+            routes.append("se")
+        if row.p is not None and row.p_bound != ">":
+            routes.append("p")
+    if row.has_counts() and measure in BINARY_MEASURES:
+        routes.append("counts")
+    if row.has_means() and measure in CONTINUOUS_MEASURES:
+        routes.append("means")
+    return tuple(routes)
+
+
+def _symmetry_problems(
+    row: StudyRow, measure: str, index: int, pr: Mapping[str, str]
+) -> list[Problem]:
+    est, lo, hi = row.estimate, row.lower, row.upper
+    assert est is not None and lo is not None and hi is not None
+    decimals = (
+        count_decimals(pr.get("estimate"), est),
+        count_decimals(pr.get("lower"), lo),
+        count_decimals(pr.get("upper"), hi),
+    )
+    sym = symmetry(est, lo, hi, measure, decimals)
+    name = MEASURE_NAMES[measure]
+    values = {
+        "estimate": _fmt(est, pr, "estimate"),
+        "lower": _fmt(lo, pr, "lower"),
+        "upper": _fmt(hi, pr, "upper"),
+        "measure_name": name,
+        "implied": _fmt_like(sym.implied, decimals[0]),
+    }
+    if measure in RATIO_MEASURES:
+        if sym.log_ok is False:
+            code = "ratio_linear_symmetric" if sym.linear_ok else "ratio_asymmetric"
+            return [_problem(index, row, "estimate", WARNING, code, **values)]
+        return []
+    if not sym.linear_ok:
+        code = "difference_log_symmetric" if sym.log_ok else "difference_asymmetric"
+        return [_problem(index, row, "estimate", WARNING, code, **values)]
+    return []
+
+
+# -- many rows ------------------------------------------------------------------------
+
+
+def check_rows(
+    rows: Sequence[StudyRow],
+    measure: str,
+    ci_level: float = 95.0,
+    *,
+    printed: Sequence[Mapping[str, str]] | None = None,
+) -> tuple[Problem, ...]:
+    """Check every row, the review's CI level, and rows entered twice.
+
+    Parameters
+    ----------
+    rows : sequence of StudyRow
+    measure : str
+        One of MEASURES.
+    ci_level : float
+        The review's CI level in percent.
+    printed : sequence of mappings, optional
+        For each row, field -> number as printed (same order as ``rows``).
+
+    Returns
+    -------
+    tuple of Problem
+        In row order. A review CI level outside (50, 99.99) is reported on each row
+        that has an interval without a level of its own.
+    """
+    out: list[Problem] = []
+    seen: dict[tuple, int] = {}
+    for i, row in enumerate(rows):
+        pr = printed[i] if printed is not None and i < len(printed) else None
+        out.extend(check_row(row, measure, ci_level, index=i, printed=pr))
+        key = tuple(sorted((k, repr(v)) for k, v in row.to_dict().items()))
+        if key in seen and (row.study or row.estimate is not None):
+            other = seen[key]
+            text = M.where(i, row.study, "") + M.check_message("duplicate", other=other + 1)
+            out.append(Problem(i, row.study, "", WARNING, text, "duplicate"))
+        else:
+            seen.setdefault(key, i)
+    return tuple(out)

@@ -1,0 +1,682 @@
+"""Reading and writing study tables (CSV and XLSX) with the DESIGN.md section 3 columns.
+
+Design invariants
+-----------------
+* Header names are matched case-insensitively in any order ("Int events" and
+  "INT_EVENTS" both mean ``int_events``); blank cells are missing values; columns we do
+  not know are reported and ignored.
+* A cell that cannot be read is never dropped: its text goes into ``StudyRow.unread``
+  and a :class:`~lopside.intake.checks.Problem` names the spreadsheet row and column.
+* :class:`~lopside.intake.errors.IntakeError` is raised only for a file that cannot be
+  read as a table at all (missing, not CSV/XLSX, no column names, broken quoting...).
+* XLSX files are opened read-only with cached values: formulas are never run. A formula
+  cell without a saved result is reported and its formula text kept.
+* Numbers follow :mod:`lopside.intake.numbers`; the decimal mark is decided once per file
+  from the cells themselves and reported.
+* :func:`write_table_csv` writes text cells that start with ``= + - @`` (or a tab or a
+  carriage return) with a leading quote, so that a spreadsheet shows them as text
+  instead of running them; numbers are written as numbers. :func:`read_table` removes
+  such a quote again.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import os
+import re
+import tempfile
+from collections.abc import Iterable, Mapping, Sequence
+from dataclasses import dataclass
+from pathlib import Path
+
+from lopside.intake import messages as M
+from lopside.intake.checks import ERROR, WARNING, Problem
+from lopside.intake.errors import IntakeError
+from lopside.intake.numbers import decide_decimal_mark, number_body, parse_number
+from lopside.model.review import NUMERIC_FIELDS, TABLE_COLUMNS, StudyRow
+
+#: Text that a spreadsheet would treat as a formula if written plainly.
+FORMULA_STARTS: tuple[str, ...] = ("=", "+", "-", "@", "\t", "\r")
+_XLSX_ERRORS = frozenset(
+    {"#DIV/0!", "#N/A", "#NAME?", "#NULL!", "#NUM!", "#REF!", "#VALUE!", "#GETTING_DATA"}
+)
+_YES = frozenset({"yes", "y", "true", "1", "x", "excluded", "exclude"})
+_NO = frozenset({"no", "n", "false", "0", "", "included", "include"})
+_YEAR_RE = re.compile(r"((?:1[89]|20)[0-9]{2})([a-z]?)")
+_MERGE_RE = re.compile(rb'<mergeCell ref="([A-Z]{1,3}[0-9]{1,7}:[A-Z]{1,3}[0-9]{1,7})"')
+_DELIMITER_NAMES = {",": "commas", ";": "semicolons", "\t": "tabs"}
+
+
+@dataclass(frozen=True, slots=True)
+class TableResult:
+    """What was read from a study table.
+
+    ``row_numbers[i]`` is the spreadsheet row of ``rows[i]`` (the header row is row 1
+    when it is the first row). ``problems`` are cells that could not be read (their
+    ``row`` is the index into ``rows``; the message names the spreadsheet row).
+    ``printed[i]`` maps fields of ``rows[i]`` to numbers as printed, for the rounding
+    tolerance of the row checks. ``notes`` says what was decided on the way (encoding,
+    delimiter, decimal mark, columns ignored, formulas, merged cells).
+    """
+
+    path: str
+    kind: str
+    rows: tuple[StudyRow, ...]
+    row_numbers: tuple[int, ...]
+    problems: tuple[Problem, ...]
+    notes: tuple[str, ...]
+    columns: tuple[str, ...]
+    unknown_columns: tuple[str, ...]
+    printed: tuple[tuple[tuple[str, str], ...], ...]
+    decimal_mark: str
+
+    def printed_dicts(self) -> list[dict[str, str]]:
+        """``printed`` as one dict per row (the form :func:`check_rows` takes)."""
+        return [dict(p) for p in self.printed]
+
+    def account(self) -> str:
+        """A readable summary: what was read, what was decided, what needs fixing."""
+        name = Path(self.path).name
+        out = [f"{name}: {len(self.rows)} stud{'y' if len(self.rows) == 1 else 'ies'} read."]
+        out += [f"- {n}" for n in self.notes]
+        out += [f"! {p.message}" for p in self.problems]
+        return "\n".join(out)
+
+
+# -- helpers --------------------------------------------------------------------------
+
+
+def _normalise_name(name: object) -> str:
+    text = "" if name is None else str(name)
+    text = text.replace("\ufeff", "").strip().strip('"').strip()
+    return re.sub(r"[\s\-]+", "_", text.casefold())
+
+
+def _unquote(text: str) -> tuple[str, bool]:
+    """Remove the quote that :func:`write_table_csv` puts before formula-like text."""
+    if len(text) >= 2 and text[0] == "'" and text[1] in "=+-@\t\r":
+        return text[1:], True
+    return text, False
+
+
+@dataclass(slots=True)
+class _Cell:
+    """One cell as found in the file, before reading."""
+
+    value: object  # str, int, float, bool, None, or other (dates...)
+    coordinate: str = ""
+    decimals: int | None = None  # from an XLSX number format such as 0.00
+    formula: str | None = None  # XLSX formula text when the cell holds one
+
+
+@dataclass(slots=True)
+class _Sheet:
+    """Rows of cells with their spreadsheet row numbers, and what the file told us."""
+
+    rows: list[tuple[int, list[_Cell]]]
+    notes: list[str]
+    problems_by_cell: dict[str, str]
+    kind: str
+
+
+# -- CSV ------------------------------------------------------------------------------
+
+
+def _decode(data: bytes, notes: list[str]) -> str:
+    if data.startswith(b"\xef\xbb\xbf"):
+        notes.append(M.table_message("note_bom"))
+        data = data[3:]
+    try:
+        return data.decode("utf-8")
+    except UnicodeDecodeError:
+        pass
+    try:
+        text = data.decode("cp1252")
+        notes.append(M.table_message("note_encoding", encoding="Windows-1252 (cp1252)"))
+        return text
+    except UnicodeDecodeError:
+        notes.append(M.table_message("note_encoding", encoding="Latin-1 (ISO-8859-1)"))
+        return data.decode("latin-1")
+
+
+def _sniff_delimiter(text: str) -> str:
+    """The delimiter of the header line: the most frequent of , ; tab outside quotes."""
+    first = ""
+    for line in text.splitlines():
+        if line.strip():
+            first = line
+            break
+    counts = {",": 0, ";": 0, "\t": 0}
+    quoted = False
+    for ch in first:
+        if ch == '"':
+            quoted = not quoted
+        elif not quoted and ch in counts:
+            counts[ch] += 1
+    best = max(counts, key=lambda d: (counts[d], d == ","))
+    return best if counts[best] else ","
+
+
+def _read_csv(path: Path) -> _Sheet:
+    notes: list[str] = []
+    try:
+        data = path.read_bytes()
+    except OSError as exc:
+        raise IntakeError(
+            M.table_message("unreadable", error=exc.strerror or exc), path=path
+        ) from exc
+    text = _decode(data, notes)
+    if not text.strip():
+        raise IntakeError(M.table_message("empty"), path=path)
+    delimiter = _sniff_delimiter(text)
+    notes.append(M.table_message("note_delimiter", name=_DELIMITER_NAMES[delimiter]))
+    reader = csv.reader(io.StringIO(text, newline=""), delimiter=delimiter)
+    rows: list[tuple[int, list[_Cell]]] = []
+    number = 0
+    while True:
+        try:
+            record = next(reader)
+        except StopIteration:
+            break
+        except csv.Error as exc:
+            raise IntakeError(
+                M.table_message("csv_error", error=exc), path=path, row=number + 1
+            ) from exc
+        number += 1
+        rows.append((number, [_Cell(v, "") for v in record]))
+    return _Sheet(rows, notes, {}, "csv")
+
+
+# -- XLSX -----------------------------------------------------------------------------
+
+
+def _format_decimals(fmt: object) -> int | None:
+    if not isinstance(fmt, str):
+        return None
+    m = re.search(r"0\.(0+)", fmt)
+    if m:
+        return len(m.group(1))
+    if re.fullmatch(r"[#,]*0", fmt):
+        return 0
+    return None
+
+
+def _merged_ranges(path: Path, sheet_path: str | None) -> list[str]:
+    """Merged-cell ranges of a sheet, from its XML (read-only sheets do not give them)."""
+    import zipfile
+
+    if not sheet_path:
+        return []
+    try:
+        with zipfile.ZipFile(path) as zf:
+            data = zf.read(sheet_path.lstrip("/"))
+    except (KeyError, OSError, zipfile.BadZipFile):
+        return []
+    return [m.decode("ascii") for m in _MERGE_RE.findall(data)]
+
+
+def _read_xlsx(path: Path) -> _Sheet:
+    try:
+        import openpyxl
+        from openpyxl.utils.cell import get_column_letter, range_boundaries
+    except ImportError as exc:  # pragma: no cover - openpyxl is a declared dependency
+        raise IntakeError(
+            M.table_message("bad_xlsx", error="openpyxl is missing"), path=path
+        ) from exc
+    notes: list[str] = []
+    try:
+        wb_values = openpyxl.load_workbook(path, read_only=True, data_only=True)
+        wb_formulas = openpyxl.load_workbook(path, read_only=True, data_only=False)
+    except Exception as exc:  # noqa: BLE001 - any failure means "not a readable workbook"
+        raise IntakeError(M.table_message("bad_xlsx", error=type(exc).__name__), path=path) from exc
+    try:
+        if not wb_values.worksheets:
+            raise IntakeError(M.table_message("empty"), path=path)
+        ws = wb_values.worksheets[0]
+        wsf = wb_formulas.worksheets[0]
+        if len(wb_values.worksheets) > 1:
+            notes.append(
+                M.table_message("note_sheet", title=ws.title, count=len(wb_values.worksheets))
+            )
+        grid: list[tuple[int, list[_Cell]]] = []
+        formula_rows = wsf.iter_rows(min_row=1, values_only=True)
+        n_formulas = 0
+        for number, cells in enumerate(ws.iter_rows(min_row=1), start=1):
+            formulas = next(formula_rows, ())
+            row: list[_Cell] = []
+            for col, cell in enumerate(cells, start=1):
+                value = getattr(cell, "value", None)
+                coordinate = f"{get_column_letter(col)}{number}"
+                fcell = formulas[col - 1] if col - 1 < len(formulas) else None
+                formula = None
+                if isinstance(fcell, str) and fcell.startswith("="):
+                    formula = fcell
+                elif fcell is not None and type(fcell).__name__ in (
+                    "ArrayFormula",
+                    "DataTableFormula",
+                ):
+                    formula = str(getattr(fcell, "text", fcell))
+                if formula is not None:
+                    n_formulas += 1
+                decimals = _format_decimals(getattr(cell, "number_format", None))
+                row.append(_Cell(value, coordinate, decimals, formula))
+            grid.append((number, row))
+        merged = _merged_ranges(path, getattr(ws, "_worksheet_path", None))
+    finally:
+        wb_values.close()
+        wb_formulas.close()
+    if n_formulas:
+        with_values = sum(
+            1 for _, r in grid for c in r if c.formula is not None and c.value is not None
+        )
+        if with_values:
+            notes.append(M.table_message("note_formulas", count=with_values))
+    # merged cells: the value sits in the top-left cell; give it to every row of the range
+    by_number = {n: r for n, r in grid}
+    for ref in merged:
+        min_col, min_row, max_col, max_row = range_boundaries(ref)
+        top = by_number.get(min_row)
+        if top is None or min_col - 1 >= len(top):
+            continue
+        value = top[min_col - 1].value
+        if max_col > min_col:
+            notes.append(M.table_message("note_merged_across", ref=ref))
+        if max_row > min_row and value is not None:
+            for r in range(min_row + 1, max_row + 1):
+                cells = by_number.get(r)
+                if cells is None:
+                    continue
+                while len(cells) < min_col:
+                    cells.append(_Cell(None))
+                cells[min_col - 1].value = value
+            notes.append(M.table_message("note_merged", ref=ref, value=value))
+    return _Sheet(grid, notes, {}, "xlsx")
+
+
+# -- rows -----------------------------------------------------------------------------
+
+
+def _is_blank(value: object) -> bool:
+    return value is None or (isinstance(value, str) and not value.strip())
+
+
+def read_table(path: str | os.PathLike[str]) -> TableResult:
+    """Read a CSV or XLSX study table.
+
+    Parameters
+    ----------
+    path : str or path-like
+        A ``.csv``/``.tsv`` file (comma, semicolon or tab separated; UTF-8 with or
+        without BOM, else Windows-1252/Latin-1) or an ``.xlsx`` workbook (first sheet).
+
+    Returns
+    -------
+    TableResult
+
+    Raises
+    ------
+    IntakeError
+        When the file cannot be read as a table at all; the message names the file and,
+        where known, the spreadsheet row and column.
+    """
+    p = Path(path)
+    if not p.exists():
+        raise IntakeError(M.table_message("missing_file"), path=p)
+    suffix = p.suffix.casefold()
+    if suffix in (".csv", ".tsv", ".txt_table"):
+        sheet = _read_csv(p)
+    elif suffix in (".xlsx", ".xlsm"):
+        sheet = _read_xlsx(p)
+    else:
+        raise IntakeError(M.table_message("unsupported", suffix=p.suffix or "(none)"), path=p)
+    return _rows_from_sheet(p, sheet)
+
+
+def _rows_from_sheet(path: Path, sheet: _Sheet) -> TableResult:
+    notes = list(sheet.notes)
+    grid = sheet.rows
+    header_at = next(
+        (i for i, (_, r) in enumerate(grid) if any(not _is_blank(c.value) for c in r)), None
+    )
+    if header_at is None:
+        raise IntakeError(M.table_message("empty"), path=path)
+    header_number, header = grid[header_at]
+    known = set(TABLE_COLUMNS)
+    columns: dict[int, str] = {}
+    unknown: list[str] = []
+    first_at: dict[str, int] = {}
+    for col, cell in enumerate(header, start=1):
+        given = "" if cell.value is None else str(cell.value)
+        name = _normalise_name(given)
+        if not name:
+            continue
+        if name in known:
+            if name in first_at:
+                raise IntakeError(
+                    M.table_message(
+                        "duplicate_column", name=name, first=first_at[name], second=col
+                    ),
+                    path=path,
+                    row=header_number,
+                    field=name,
+                )
+            first_at[name] = col
+            columns[col] = name
+            if given.strip().replace("\ufeff", "").casefold() != name:
+                notes.append(M.table_message("note_renamed_column", given=given.strip(), name=name))
+        else:
+            unknown.append(given.strip())
+    if not columns:
+        raise IntakeError(
+            M.table_message(
+                "no_known_columns",
+                names=", ".join(repr(u) for u in unknown) or "none",
+                expected=", ".join(TABLE_COLUMNS),
+            ),
+            path=path,
+            row=header_number,
+        )
+    if unknown:
+        notes.append(M.table_message("note_unknown_columns", names=", ".join(unknown)))
+    n_header = len(header)
+
+    # decide the decimal mark once for the file, from the numeric cells that are text
+    bodies: list[str] = []
+    for _, cells in grid[header_at + 1 :]:
+        for col, name in columns.items():
+            if name in NUMERIC_FIELDS and col - 1 < len(cells):
+                v = cells[col - 1].value
+                if isinstance(v, str) and v.strip():
+                    bodies.append(number_body(_unquote(v.strip())[0]))
+    decision = decide_decimal_mark(bodies)
+    mark: str | None = decision.settled
+    if decision.mark == "mixed":
+        notes.append(
+            M.table_message("note_decimal_mixed", point=decision.evidence, comma=decision.counter)
+        )
+    elif mark is not None:
+        notes.append(M.table_message("note_decimal", mark=mark, evidence=decision.evidence))
+
+    rows: list[StudyRow] = []
+    numbers: list[int] = []
+    printed_all: list[tuple[tuple[str, str], ...]] = []
+    problems: list[Problem] = []
+    blank_rows = 0
+    for number, cells in grid[header_at + 1 :]:
+        if all(_is_blank(c.value) for c in cells):
+            blank_rows += 1
+            continue
+        values: dict[str, object] = {}
+        unread: list[tuple[str, str]] = []
+        printed: list[tuple[str, str]] = []
+        row_problems: list[tuple[str, str, str]] = []  # (field, severity, message)
+        for col, name in columns.items():
+            cell = cells[col - 1] if col - 1 < len(cells) else _Cell(None)
+            _read_cell(cell, name, number, mark, values, unread, printed, row_problems, notes)
+        extra = [c for c in cells[n_header:] if not _is_blank(c.value)]
+        unknown_data = [
+            c
+            for i, c in enumerate(cells[:n_header], start=1)
+            if i not in columns and not _is_blank(c.value)
+        ]
+        if not values and not unread and not row_problems:
+            if not extra and not unknown_data:
+                blank_rows += 1
+                continue
+        if extra:
+            row_problems.append(
+                (
+                    "",
+                    WARNING,
+                    M.table_message(
+                        "extra_cells",
+                        count=len(extra),
+                        cells="', '".join(str(c.value) for c in extra),
+                    ),
+                )
+            )
+        row = StudyRow(unread=tuple(unread), **values)  # type: ignore[arg-type]
+        index = len(rows)
+        rows.append(row)
+        numbers.append(number)
+        printed_all.append(tuple(printed))
+        for fld, severity, message in row_problems:
+            where = f"{path.name} row {number}" + (f" ({row.study})" if row.study else "")
+            where += f", {fld}: " if fld else ": "
+            problems.append(Problem(index, row.study, fld, severity, where + message, "table"))
+    if blank_rows:
+        notes.append(M.table_message("note_blank_rows", count=blank_rows))
+    return TableResult(
+        str(path),
+        sheet.kind,
+        tuple(rows),
+        tuple(numbers),
+        tuple(problems),
+        tuple(notes),
+        tuple(columns[c] for c in sorted(columns)),
+        tuple(unknown),
+        tuple(printed_all),
+        mark or "",
+    )
+
+
+def _read_cell(
+    cell: _Cell,
+    name: str,
+    number: int,
+    mark: str | None,
+    values: dict[str, object],
+    unread: list[tuple[str, str]],
+    printed: list[tuple[str, str]],
+    problems: list[tuple[str, str, str]],
+    notes: list[str],
+) -> None:
+    value = cell.value
+    if cell.formula is not None and value is None:
+        unread.append((name, cell.formula))
+        problems.append(
+            (name, ERROR, M.table_message("formula_no_value", cell=cell.coordinate or name))
+        )
+        return
+    if _is_blank(value):
+        return
+    if isinstance(value, str):
+        text, unquoted = _unquote(value.strip())
+        if unquoted:
+            notes.append(M.table_message("note_quote_removed", row=number, field=name))
+        if text in _XLSX_ERRORS:
+            unread.append((name, text))
+            problems.append(
+                (
+                    name,
+                    ERROR,
+                    M.table_message("error_value", cell=cell.coordinate or name, value=text),
+                )
+            )
+            return
+    else:
+        text = ""
+
+    if name in NUMERIC_FIELDS:
+        if isinstance(value, bool):
+            unread.append((name, str(value)))
+            problems.append(
+                (name, ERROR, M.table_message("unread_cell", text=value, what="a number"))
+            )
+        elif isinstance(value, (int, float)):
+            v = float(value)
+            if v != v or v in (float("inf"), float("-inf")):
+                unread.append((name, str(value)))
+                problems.append(
+                    (name, ERROR, M.table_message("unread_cell", text=value, what="a number"))
+                )
+                return
+            values[name] = v
+            if cell.decimals is not None:
+                printed.append((name, f"{v:.{cell.decimals}f}"))
+        elif isinstance(value, str):
+            reading = parse_number(text, mark)
+            if reading.ok:
+                values[name] = reading.value
+                printed.append((name, reading.canonical))
+                for note in reading.notes:
+                    if note not in ("decimal comma",):
+                        notes.append(
+                            M.table_message("note_cell", row=number, field=name, note=note)
+                        )
+            elif not reading.blank:
+                unread.append((name, text))
+                problems.append(
+                    (name, ERROR, M.table_message("unread_cell", text=text, what="a number"))
+                )
+            elif reading.notes:
+                notes.append(
+                    M.table_message("note_cell", row=number, field=name, note=reading.notes[0])
+                )
+        else:
+            unread.append((name, str(value)))
+            problems.append(
+                (name, ERROR, M.table_message("unread_cell", text=value, what="a number"))
+            )
+        return
+    if name == "year":
+        if isinstance(value, bool):
+            year_text = str(value)
+        elif isinstance(value, (int, float)):
+            if float(value) == int(value) and 1800 <= int(value) <= 2099:
+                values["year"] = int(value)
+                return
+            year_text = str(value)
+        else:
+            year_text = text if isinstance(value, str) else str(value)
+        m = _YEAR_RE.fullmatch(year_text.strip().casefold())
+        if m:
+            values["year"] = int(m.group(1))
+            if m.group(2):
+                notes.append(
+                    M.table_message("note_year_suffix", row=number, text=year_text, year=m.group(1))
+                )
+            return
+        as_number = parse_number(year_text)
+        if (
+            as_number.ok
+            and as_number.value == int(as_number.value)
+            and 1800 <= as_number.value < 2100
+        ):
+            values["year"] = int(as_number.value)
+            return
+        unread.append(("year", year_text))
+        problems.append(
+            ("year", ERROR, M.table_message("unread_cell", text=year_text, what="a year"))
+        )
+        return
+    if name == "exclude":
+        if isinstance(value, bool):
+            values["exclude"] = value
+            return
+        token = (text if isinstance(value, str) else str(value)).strip().casefold()
+        if isinstance(value, (int, float)) and float(value) in (0.0, 1.0):
+            values["exclude"] = float(value) == 1.0
+            return
+        if token in _YES:
+            values["exclude"] = True
+        elif token in _NO:
+            values["exclude"] = False
+        else:
+            shown = text if isinstance(value, str) else str(value)
+            unread.append(("exclude", shown))
+            problems.append(
+                ("exclude", ERROR, M.table_message("unread_cell", text=shown, what="yes or no"))
+            )
+        return
+    # text columns
+    shown = text if isinstance(value, str) else _plain(value)
+    if name == "risk_of_bias":
+        shown = shown.casefold()
+    values[name] = shown
+
+
+def _plain(value: object) -> str:
+    if isinstance(value, float) and value == int(value):
+        return str(int(value))
+    return str(value)
+
+
+# -- writing --------------------------------------------------------------------------
+
+
+def _neutralise(text: str) -> str:
+    """Quote text a spreadsheet would run as a formula (=, +, -, @, tab, CR first)."""
+    return "'" + text if text.startswith(FORMULA_STARTS) else text
+
+
+def _number_text(value: float) -> str:
+    if value == int(value) and abs(value) < 1e15:
+        return str(int(value))
+    return repr(float(value))
+
+
+def write_table_csv(
+    rows: Iterable[StudyRow],
+    path: str | os.PathLike[str],
+    *,
+    printed: Sequence[Mapping[str, str]] | None = None,
+) -> None:
+    """Write study rows as a CSV study table (DESIGN.md section 3 columns).
+
+    Parameters
+    ----------
+    rows : iterable of StudyRow
+    path : str or path-like
+        Written atomically (a temporary file in the same folder, then renamed).
+    printed : sequence of mappings, optional
+        Numbers as printed per row (keeps "1.10" rather than "1.1").
+
+    Notes
+    -----
+    Text cells starting with ``= + - @`` (or tab/CR) get a leading single quote so a
+    spreadsheet does not run them; numbers (including negative ones) are written as
+    plain numbers. Unread text kept in ``StudyRow.unread`` is written in its column,
+    so nothing typed is lost. The file is UTF-8 with a byte-order mark, which common
+    spreadsheet programs need to show accented labels correctly.
+    """
+    target = Path(path)
+    buffer = io.StringIO(newline="")
+    writer = csv.writer(buffer, lineterminator="\r\n")
+    writer.writerow(TABLE_COLUMNS)
+    for i, row in enumerate(rows):
+        pr = printed[i] if printed is not None and i < len(printed) else {}
+        unread = row.unread_dict()
+        out: list[str] = []
+        for name in TABLE_COLUMNS:
+            value = getattr(row, name)
+            if name in NUMERIC_FIELDS:
+                if value is None:
+                    out.append(_neutralise(unread.get(name, "")))
+                else:
+                    text = pr.get(name, "")
+                    ok = parse_number(text).value == value if text else False
+                    out.append(text if ok else _number_text(value))
+            elif name == "year":
+                out.append(str(value) if value is not None else _neutralise(unread.get("year", "")))
+            elif name == "exclude":
+                out.append("yes" if value else _neutralise(unread.get("exclude", "")))
+            else:
+                out.append(_neutralise(value or ""))
+        writer.writerow(out)
+    data = buffer.getvalue().encode("utf-8-sig")
+    fd, tmp = tempfile.mkstemp(prefix=".lopside-", suffix=".csv", dir=target.parent or ".")
+    try:
+        with os.fdopen(fd, "wb") as fh:
+            fh.write(data)
+        os.replace(tmp, target)
+    except BaseException:
+        try:
+            os.unlink(tmp)
+        except OSError:
+            pass
+        raise
+
+
+__all__ = ["FORMULA_STARTS", "TableResult", "read_table", "write_table_csv"]
