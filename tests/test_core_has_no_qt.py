@@ -41,8 +41,8 @@ def test_core_imports_without_qt():
             importlib.import_module(m)
         import lopside.analysis as a
         from lopside.paths import sample_reviews
-        from lopside.model.project_file import load
-        review, _ = load(sample_reviews()[0])
+        from lopside.cli_common import load_review_file
+        review, _ = load_review_file(sample_reviews()[0])
         a.analyse(review)
         assert not any(k.startswith('PySide6') for k in sys.modules)
         print('ok')
