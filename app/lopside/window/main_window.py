@@ -187,7 +187,7 @@ class MainWindow(QMainWindow):
         self.setWindowTitle("Lopside")
         self.setAcceptDrops(True)
         self.stack = EditStack(self.session, self)
-        self.stack.cleanChanged.connect(lambda _c: self._update_title())
+        self.stack.cleanChanged.connect(self._clean_changed)
 
         # left: studies and review details
         self.left = QTabWidget()
@@ -537,6 +537,9 @@ class MainWindow(QMainWindow):
         except (ImportError, AttributeError, TypeError):
             text = f"k = {r.k}"
         self.status_label.setText(text)
+
+    def _clean_changed(self, _clean: bool) -> None:
+        self._update_title()
 
     def _update_title(self) -> None:
         self.setWindowTitle(f"{self.session.display_name()}[*] \u2013 Lopside")
