@@ -20,12 +20,11 @@ pytest.importorskip("pytestqt")
 
 from PySide6.QtCore import QPoint, Qt  # noqa: E402
 
+from conftest import invented_review  # noqa: E402
 from lopside import edits as ed  # noqa: E402
 from lopside.analysis import analyse  # noqa: E402
 from lopside.model import project_file  # noqa: E402
 from lopside.model.review import CauseNote, Review, ReviewDetails, StudyRow  # noqa: E402
-
-from conftest import invented_review  # noqa: E402
 
 APP = Path(__file__).resolve().parents[1] / "app"
 
@@ -46,10 +45,20 @@ FOREST_TEXT = (
 
 def ci_review() -> Review:
     """INVENTED: eight fictional trials entered as odds ratios with 95% CIs."""
-    ors = [(0.80, 0.62, 1.03), (0.75, 0.55, 1.02), (0.70, 0.47, 1.04), (0.62, 0.38, 1.01),
-           (0.55, 0.30, 1.01), (0.50, 0.24, 1.04), (0.45, 0.19, 1.07), (0.40, 0.15, 1.09)]
-    rows = tuple(StudyRow(study=f"Study {i + 1}", estimate=e, lower=lo, upper=hi)
-                 for i, (e, lo, hi) in enumerate(ors))
+    ors = [
+        (0.80, 0.62, 1.03),
+        (0.75, 0.55, 1.02),
+        (0.70, 0.47, 1.04),
+        (0.62, 0.38, 1.01),
+        (0.55, 0.30, 1.01),
+        (0.50, 0.24, 1.04),
+        (0.45, 0.19, 1.07),
+        (0.40, 0.15, 1.09),
+    ]
+    rows = tuple(
+        StudyRow(study=f"Study {i + 1}", estimate=e, lower=lo, upper=hi)
+        for i, (e, lo, hi) in enumerate(ors)
+    )
     return Review(details=ReviewDetails(title="Invented CI review", measure="OR"), studies=rows)
 
 
@@ -78,8 +87,13 @@ def test_paste_preview_insert_funnel_and_one_undo(make_window, qtbot):
     qtbot.mouseClick(dlg.ok_button, Qt.LeftButton)
     assert not dlg.isVisible()
     studies = w.session.review.studies
-    assert [s.study for s in studies] == ["Okafor 2009", "Brandt 2011", "Castell 2014",
-                                          "Dupr\u00e9 2016", "Ferreira 2018"]
+    assert [s.study for s in studies] == [
+        "Okafor 2009",
+        "Brandt 2011",
+        "Castell 2014",
+        "Dupr\u00e9 2016",
+        "Ferreira 2018",
+    ]
     assert (studies[0].int_events, studies[0].int_total) == (12, 140)
     assert w.studies.model.rowCount() == 5
     # the published result on the Total line came along in the same step
@@ -109,8 +123,9 @@ def test_editing_a_cell_updates_the_pooled_result_to_the_core_value(make_window,
     assert w.studies.model.mode == "ci"
     before = w.result.random.estimate
     assert w.studies.model.setData(_index(w, 0, "estimate"), "0.9", Qt.EditRole)
-    qtbot.waitUntil(lambda: w.result is not None and w.result.review is w.session.review,
-                    timeout=2000)
+    qtbot.waitUntil(
+        lambda: w.result is not None and w.result.review is w.session.review, timeout=2000
+    )
     fresh = _fresh(w)
     assert w.result.random.estimate == fresh.random.estimate != before
     assert w.result.fixed.estimate == fresh.fixed.estimate
@@ -141,8 +156,10 @@ def test_an_invalid_entry_shows_its_problem_and_keeps_the_text(make_window, qtbo
     # fixing it clears the problem
     m.setData(idx, "0.47", Qt.EditRole)
     w.update_views()
-    assert m.data(idx, Qt.BackgroundRole) is None or m.data(idx, Qt.BackgroundRole).color() \
-        != ERROR_CELL
+    assert (
+        m.data(idx, Qt.BackgroundRole) is None
+        or m.data(idx, Qt.BackgroundRole).color() != ERROR_CELL
+    )
 
 
 def test_typing_in_one_cell_is_one_undo_step(make_window):
@@ -219,8 +236,9 @@ def test_save_close_reopen_gives_the_same_review_and_notes(make_window, tmp_path
     c.judgement["methods"].setCurrentIndex(c.judgement["methods"].findData("likely"))
     c.notes["methods"].setPlainText("Small trials were open label.")
     c.flush()
-    assert w.session.review.notes.cause("methods") == CauseNote("likely",
-                                                                "Small trials were open label.")
+    assert w.session.review.notes.cause("methods") == CauseNote(
+        "likely", "Small trials were open label."
+    )
     assert w.save()
     assert not w.session.dirty and not w.isWindowModified()
     saved = w.session.review
@@ -268,8 +286,9 @@ def test_recovery_after_a_crash_restores_the_edits(make_window, user_state, tmp_
     project_file.save(invented_review(), src)
     env = dict(os.environ, QT_QPA_PLATFORM="offscreen")
     script = CRASH_SCRIPT.format(app=str(APP), src=str(src))
-    proc = subprocess.run([sys.executable, "-c", script], env=env, capture_output=True,
-                          text=True, timeout=120)
+    proc = subprocess.run(
+        [sys.executable, "-c", script], env=env, capture_output=True, text=True, timeout=120
+    )
     assert proc.returncode == 3, proc.stderr
     left = sorted(p.suffix for p in user_state["autosave"].iterdir())
     assert left == [".json", ".lock", ".lopside"]
@@ -285,8 +304,10 @@ def test_recovery_after_a_crash_restores_the_edits(make_window, user_state, tmp_
     assert w.session.review.notes.cause("chance") == CauseNote("possible", "few trials")
     assert w.session.dirty and w.session.path == src
     # the crashed run's files are gone; only this window's own autosave remains
-    assert not any(str(p).endswith(f"{offered[0].review_file.stem}.lopside")
-                   for p in user_state["autosave"].iterdir())
+    assert not any(
+        str(p).endswith(f"{offered[0].review_file.stem}.lopside")
+        for p in user_state["autosave"].iterdir()
+    )
 
 
 def test_no_recovery_offer_after_a_clean_exit(make_window):
@@ -308,9 +329,11 @@ def test_open_a_sample_review_and_a_csv(make_window):
     assert samples, "no sample reviews installed"
     lop = next(p for p in samples if p.suffix == ".lopside")
     assert w.open_path(lop, remember=False)
-    assert w.result is not None and w.result.k == len(
-        [s for s in w.session.review.studies if not s.exclude]
-    ) or w.result.k > 0
+    assert (
+        w.result is not None
+        and w.result.k == len([s for s in w.session.review.studies if not s.exclude])
+        or w.result.k > 0
+    )
     csv = next((p for p in samples if p.suffix == ".csv"), None)
     if csv is not None:
         assert w.open_path(csv)
@@ -327,8 +350,11 @@ def test_export_the_sheet_gives_a_valid_pdf(make_window, tmp_path, qtbot):
         pytest.skip(f"the sheet package is not in the tree: {exc}")
     pypdf = pytest.importorskip("pypdf")
     opened = []
-    w = make_window(invented_review(), ask_open_sheet=lambda path: True,
-                    open_url=lambda url: opened.append(url.toLocalFile()))
+    w = make_window(
+        invented_review(),
+        ask_open_sheet=lambda path: True,
+        open_url=lambda url: opened.append(url.toLocalFile()),
+    )
     out = tmp_path / "sheet.pdf"
     worker = w.export_sheet(str(out))
     assert worker is not None
