@@ -123,6 +123,16 @@ STUDY_LINES: list[tuple[str, str, dict]] = [
         dict(study="Acme-3 Study Group 2011", year=2011, estimate=1.25),
     ),
     ("Smith (2004) 0.82 (0.61 to 1.10)", "ci", dict(study="Smith (2004)", year=2004)),
+    (
+        "ORION-2 (Hale) 0.81 (0.67–0.99)  13.1%",
+        "ci",
+        dict(study="ORION-2 (Hale)", year=None, estimate=0.81, lower=0.67, upper=0.99),
+    ),
+    (
+        "Hale (ORION-2 trial), 2009 0.81 (0.67–0.99)",
+        "ci",
+        dict(study="Hale (ORION-2 trial), 2009", year=2009, estimate=0.81),
+    ),
     ("Trial 2 0.82 (0.61 to 1.10)", "ci", dict(study="Trial 2", year=None, estimate=0.82)),
     ("Study 12 0.82 (0.61 to 1.10)", "ci", dict(study="Study 12", estimate=0.82)),
     ("Smith 2004 278 0.82 (0.61 to 1.10)", "ci", dict(study="Smith 2004", n=278, estimate=0.82)),

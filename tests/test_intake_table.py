@@ -9,11 +9,14 @@ from __future__ import annotations
 import csv
 import io
 import re
+import tempfile
 import zipfile
 from pathlib import Path
 
 import openpyxl
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from lopside.intake import IntakeError, check_rows, read_table
 from lopside.intake import messages as M
@@ -348,3 +351,33 @@ def test_write_keeps_printed_decimals(tmp_path: Path) -> None:
     )
     text = out.read_text(encoding="utf-8-sig")
     assert "A,,0.50,0.25,1.00," in text  # a printed text that disagrees is not used
+
+
+@settings(max_examples=100, deadline=None)
+@given(
+    st.lists(
+        st.lists(
+            st.text(alphabet=st.characters(blacklist_categories=("Cs",)), max_size=12), max_size=6
+        ),
+        max_size=6,
+    ),
+    st.sampled_from([",", ";", "\t"]),
+    st.sampled_from(["utf-8", "utf-8-sig", "cp1252"]),
+)
+def test_any_csv_is_read_or_refused_with_a_message(cells, delimiter, encoding) -> None:
+    header = delimiter.join(["study", "estimate", "lower", "upper"])
+    body = "\n".join(delimiter.join(r) for r in cells)
+    data = (header + "\n" + body).encode(encoding, errors="replace")
+    with tempfile.TemporaryDirectory() as folder:
+        p = Path(folder) / "fuzz.csv"
+        p.write_bytes(data)
+        try:
+            t = read_table(p)
+        except IntakeError as exc:
+            assert str(exc).startswith("fuzz.csv")
+            return
+    # every row read is accounted for, and every unread cell has a problem naming it
+    assert len(t.rows) == len(t.row_numbers) == len(t.printed)
+    for i, row in enumerate(t.rows):
+        for fld, _text in row.unread:
+            assert any(p.row == i and p.field == fld for p in t.problems)

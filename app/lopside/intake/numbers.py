@@ -271,7 +271,7 @@ def split_list(body: str) -> list[str] | None:
     Only bodies that cannot be a single number are split, and only when every part is
     a plain point-decimal number or integer. Returns None when the body is not such a list.
     """
-    if mark_evidence(body) is not None or read_digits(body).value is not None:
+    if "," not in body or mark_evidence(body) is not None or read_digits(body).value is not None:
         return None
     parts = body.split(",")
     if len(parts) < 2 or not all(_PLAIN_POINT.fullmatch(p) for p in parts):

@@ -581,6 +581,11 @@ def _split_label(toks: list[_Tok], tab_at: int | None) -> tuple[int, bool]:
             last_word = -1
         end = last_word + 1
     absorbed = False
+    # a label with an open bracket takes its closing bracket: "TRIAL-A11 (Hale)"
+    depth = sum(1 if t.kind == "OPEN" else -1 for t in toks[:end] if t.kind in ("OPEN", "CLOSE"))
+    while depth > 0 and end < n and toks[end].kind == "CLOSE":
+        end += 1
+        depth -= 1
     if end > 0:
         k = end
         if k < n and toks[k].kind == "COMMA":
@@ -722,7 +727,6 @@ def _to_items(toks: list[_Tok], mark: str | None, notes: list[str], from_text: b
     items: list[_It] = []
     used = [from_text]
     junk_words: list[str] = []
-    symbols: list[str] = []
     n = len(toks)
     k = 0
     while k < n:
@@ -808,12 +812,11 @@ def _to_items(toks: list[_Tok], mark: str | None, notes: list[str], from_text: b
         elif kind in ("OPEN", "CLOSE"):
             items.append(_It(kind, t=t.text))
         else:
-            symbols.append(t.text)
+            # stray symbols are reported by the caller, with any dashes left over
+            items.append(_It("SYMBOL", t=t.text))
         k += 1
     if junk_words:
         notes.append(M.paste_note("unused_words", words=" ".join(junk_words)))
-    if symbols:
-        notes.append(M.paste_note("ignored_symbols", symbols=" ".join(symbols)))
     return items
 
 
@@ -855,7 +858,7 @@ def _groups(items: list[_It], notes: list[str]) -> list[_It]:
         elif len(nums) > 2:
             raise _Fail("bracket_many", count=len(nums), numbers=", ".join(x.t for x in nums))
         for x in inner:
-            if x.kind in ("P", "SE", "LEVEL", "NOTEST"):
+            if x.kind in ("P", "SE", "LEVEL", "NOTEST", "SYMBOL"):
                 out.append(x)
             elif x.kind == "PCT" and nums:
                 out.append(x)
@@ -1146,7 +1149,7 @@ def _read_study(
         notes.append(M.paste_note("weight_no_percent", value=w.t))
     for w in weights:
         notes.insert(0, M.paste_note("weight", weight=w))
-    stray = [x.t for x in items if x.kind == "RANGE"]
+    stray = [x.t for x in items if x.kind in ("RANGE", "SYMBOL")]
     if stray:
         notes.append(M.paste_note("ignored_symbols", symbols=" ".join(stray)))
     if any(x.kind == "NOTEST" for x in items):
