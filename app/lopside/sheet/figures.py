@@ -1,0 +1,150 @@
+"""The sheet's figures: the shared matplotlib builders, embedded as vector drawings.
+
+A figure is saved as SVG with its text kept as text, converted by svglib into a reportlab
+drawing whose text is set in the embedded DejaVu font, so labels stay searchable in the
+PDF. If svglib is missing or fails on a figure, a 300-dpi PNG is embedded instead.
+A figure that cannot be drawn for these data becomes a short message, never an error.
+"""
+
+from __future__ import annotations
+
+import io
+from dataclasses import replace
+
+from . import fonts
+
+PNG_DPI = 300
+#: Study rows per forest-plot page (A4 portrait at the "page" size; the figure is
+#: scaled down a little if a page still overflows).
+FOREST_ROWS_PER_PAGE = 46
+
+
+class FigureUnavailable(Exception):
+    """The figure could not be drawn; ``str(exc)`` says why, in plain words."""
+
+
+def _to_flowable(fig, max_width: float, max_height: float):
+    """A matplotlib Figure as a reportlab flowable scaled to fit (vector if possible)."""
+    from ..figures.export import figure_bytes
+
+    fonts.register_fonts()
+    w_pt = fig.get_figwidth() * 72.0
+    h_pt = fig.get_figheight() * 72.0
+    scale = min(1.0, max_width / w_pt, max_height / h_pt)
+    try:
+        from svglib.svglib import svg2rlg
+
+        drawing = svg2rlg(io.BytesIO(figure_bytes(fig, "svg")))
+        if drawing is None:
+            raise ValueError("svglib returned nothing")
+        if scale < 1.0:
+            drawing.scale(scale, scale)
+            drawing.width *= scale
+            drawing.height *= scale
+        return drawing
+    except Exception:  # noqa: BLE001 - any failure of the optional vector path falls back to PNG
+        from reportlab.platypus import Image
+
+        png = figure_bytes(fig, "png", dpi=PNG_DPI)
+        return Image(io.BytesIO(png), width=w_pt * scale, height=h_pt * scale)
+
+
+def funnel_flowable(result, max_width: float, max_height: float):
+    """The contour-enhanced funnel plot of the analysis (trim-and-fill studies hollow).
+
+    Studies are coloured by risk of bias when at least two levels were entered, so the
+    reader can see whether the lopsided part is the high-risk part.
+
+    Raises
+    ------
+    FigureUnavailable
+    """
+    try:
+        from ..figures.adaptors import funnel_input_from_result
+        from ..figures.funnel import FunnelOptions, funnel_figure
+    except ImportError as exc:  # pragma: no cover - figures are part of the product
+        raise FigureUnavailable(f"the funnel builder is not available ({exc})") from exc
+    from ..figures.common import FigureInputError
+
+    rob = {x for x in result.data.risk_of_bias if x}
+    opts = FunnelOptions(colour_by="risk_of_bias" if len(rob) >= 2 else "none")
+    try:
+        inp = funnel_input_from_result(result, opts)
+        fig = funnel_figure(inp, opts, size="column")
+    except (FigureInputError, ValueError) as exc:
+        raise FigureUnavailable(str(exc)) from exc
+    return _to_flowable(fig, max_width, max_height)
+
+
+def forest_flowables(result, max_width: float, max_height: float) -> list:
+    """The forest plot, split over as many pages as the studies need.
+
+    Every page but the last shows only studies; the last adds the pooled rows. A subgroup's
+    subtotal appears on the page where its last study is.
+
+    Raises
+    ------
+    FigureUnavailable
+    """
+    try:
+        from ..figures.adaptors import forest_input_from_result
+        from ..figures.forest import ForestPooled, forest_figure
+    except ImportError as exc:  # pragma: no cover
+        raise FigureUnavailable(f"the forest builder is not available ({exc})") from exc
+    from ..figures.common import FigureInputError
+
+    try:
+        rows, pooled, opts = forest_input_from_result(result)
+    except (FigureInputError, ValueError) as exc:
+        raise FigureUnavailable(str(exc)) from exc
+    rows = list(rows)
+    if not rows:
+        raise FigureUnavailable("no study has a usable effect and standard error")
+    # keep each subgroup's studies together in display order
+    order: list[str] = []
+    for r in rows:
+        if r.group not in order:
+            order.append(r.group)
+    rows = [r for g in order for r in rows if r.group == g]
+    n_groups = len(order) if (len(order) > 1 or order[0]) else 0
+    per_page = FOREST_ROWS_PER_PAGE - (2 * n_groups if n_groups else 0)
+    per_page = max(per_page, 20)
+    chunks = [rows[i : i + per_page] for i in range(0, len(rows), per_page)]
+    subtotals = dict(pooled.subtotals)
+    out = []
+    total = len(rows)
+    start = 0
+    for n, chunk in enumerate(chunks):
+        last = n == len(chunks) - 1
+        later = {r.group for c in chunks[n + 1 :] for r in c}
+        ends_here = [g for g in order if g in {r.group for r in chunk} and g not in later]
+        part = (
+            replace(pooled, subtotals=tuple((g, subtotals.get(g)) for g in ends_here))
+            if last
+            else ForestPooled(
+                subtotals=tuple((g, subtotals.get(g)) for g in ends_here),
+                subtotal_model=pooled.subtotal_model,
+                note="Continued on the next page.",
+            )
+        )
+        caption = opts.caption
+        if len(chunks) > 1:
+            base = _default_caption(opts, pooled, total)
+            caption = f"{base} · studies {start + 1}–{start + len(chunk)} of {total}"
+        o = replace(opts, size="page", caption=caption)
+        try:
+            fig = forest_figure(tuple(chunk), part, o)
+        except (FigureInputError, ValueError) as exc:
+            raise FigureUnavailable(str(exc)) from exc
+        out.append(_to_flowable(fig, max_width, max_height))
+        start += len(chunk)
+    return out
+
+
+def _default_caption(opts, pooled, k: int) -> str:
+    from ..figures import forest
+
+    make = getattr(forest, "_caption", None)
+    if make is None:  # pragma: no cover
+        return f"{opts.measure} · k = {k}"
+    return make(opts, pooled, k)

@@ -1,0 +1,1110 @@
+"""Renderer-neutral summary of one analysis: the rows the CLI text, the window and the sheet read.
+
+Design invariants
+-----------------
+* Every number shown to the user is formatted here, by the ``fmt_*`` functions, so the
+  terminal, the window and the PDF print the same figures the same way (STYLE.md item 7).
+  Effects arrive on the analysis scale (natural log for ratio measures) and are printed on
+  the natural scale.
+* Nothing here computes a statistic: every value is read from the
+  :class:`~lopside.analysis.AnalysisResult`. Counting rows, taking the smallest and largest
+  of a column and comparing a p-value with a threshold are the only arithmetic done.
+* A result the engine could not compute is shown with its reason, never as a number.
+* Each section is a frozen :class:`Section` of plain strings; renderers choose fonts and
+  column widths, not content.
+
+This module imports no Qt and nothing heavy at import time.
+"""
+
+from __future__ import annotations
+
+import math
+import textwrap
+from dataclasses import dataclass
+from typing import Any
+
+from .model.review import MEASURE_NAMES, RATIO_MEASURES
+from .stats.results import NotComputable, PooledEstimate
+
+MINUS = "\u2212"
+DASH = "\u2013"
+#: Shown where a value is absent (not a number the engine produced).
+MISSING = DASH
+#: How many list items (problem rows, excluded studies) a section shows before "and N more".
+LIST_LIMIT = 6
+
+#: Plain names of the pooling models (keys used by the engine).
+MODEL_NAMES: dict[str, str] = {
+    "FE-IV": "Fixed effect (inverse variance)",
+    "MH": "Fixed effect (Mantel-Haenszel)",
+    "Peto": "Fixed effect (Peto)",
+    "DL": "Random effects, DerSimonian-Laird τ²",
+    "PM": "Random effects, Paule-Mandel τ²",
+    "REML": "Random effects, REML τ²",
+}
+SHORT_MEASURE: dict[str, str] = {
+    "OR": "odds ratio",
+    "RR": "risk ratio",
+    "HR": "hazard ratio",
+    "RD": "risk difference",
+    "MD": "mean difference",
+    "SMD": "SMD",
+}
+
+# --------------------------------------------------------------------------------------
+# Number formatting: the one place
+
+
+def is_finite(x: Any) -> bool:
+    if x is None or isinstance(x, bool):
+        return False
+    try:
+        return math.isfinite(float(x))
+    except (TypeError, ValueError):
+        return False
+
+
+def _minus(s: str) -> str:
+    """True minus sign; "-0.00" becomes "0.00" (it would read as a negative effect)."""
+    if s.startswith("-"):
+        body = s[1:]
+        try:
+            if float(body.replace(",", "")) == 0.0:
+                return body
+        except ValueError:
+            pass
+        return MINUS + body
+    return s
+
+
+def fmt_num(x: Any, digits: int = 2) -> str:
+    """A number with fixed decimals and a true minus sign; "–" when absent or not finite.
+
+    Parameters
+    ----------
+    x : float or None
+    digits : int
+        Decimals.
+
+    Returns
+    -------
+    str
+    """
+    if not is_finite(x):
+        return MISSING
+    return _minus(f"{float(x):.{digits}f}")
+
+
+def fmt_int(x: Any) -> str:
+    """A whole number with thousands separators ("1,820")."""
+    if not is_finite(x):
+        return MISSING
+    return _minus(f"{int(round(float(x))):,}")
+
+
+def fmt_effect(x: Any, measure: str, digits: int | None = None) -> str:
+    """An effect given on the analysis scale, printed on the natural scale.
+
+    Ratio measures (OR, RR, HR) are exponentiated and shown with 2 decimals (3 significant
+    digits below 0.1, no decimals from 100 up, so that tiny or huge ratios are not shown as
+    0.00 or 1234.57). Risk differences get 3 decimals, other measures 2.
+
+    Parameters
+    ----------
+    x : float or None
+        Value on the analysis scale (natural log for ratio measures).
+    measure : str
+        "OR", "RR", "HR", "RD", "MD" or "SMD".
+    digits : int, optional
+        Override the number of decimals.
+
+    Returns
+    -------
+    str
+    """
+    if not is_finite(x):
+        return MISSING
+    x = float(x)
+    if measure in RATIO_MEASURES:
+        try:
+            v = math.exp(x)
+        except OverflowError:
+            return "> 10^300"
+        if digits is not None:
+            return fmt_num(v, digits)
+        if v >= 100:
+            return fmt_int(v)
+        if v < 0.1:
+            return f"{v:.2g}" if v >= 1e-4 else f"{v:.1e}"
+        return fmt_num(v, 2)
+    if digits is None:
+        digits = 3 if measure == "RD" else 2
+    return fmt_num(x, digits)
+
+
+def fmt_ci(lo: Any, hi: Any, measure: str) -> str:
+    """An interval on the natural scale: "0.62 to 0.91" ("to" never clashes with a minus)."""
+    if not (is_finite(lo) and is_finite(hi)):
+        return MISSING
+    return f"{fmt_effect(lo, measure)} to {fmt_effect(hi, measure)}"
+
+
+def fmt_effect_ci(est: Any, lo: Any, hi: Any, measure: str) -> str:
+    """ "0.62 (0.50 to 0.77)"."""
+    if not is_finite(est):
+        return MISSING
+    if not (is_finite(lo) and is_finite(hi)):
+        return fmt_effect(est, measure)
+    return f"{fmt_effect(est, measure)} ({fmt_ci(lo, hi, measure)})"
+
+
+def fmt_p(p: Any) -> str:
+    """A p-value: 3 decimals, "< 0.001" below that, "–" when absent."""
+    if not is_finite(p):
+        return MISSING
+    p = float(p)
+    if p < 0.001:
+        return "< 0.001"
+    if p > 0.999:
+        return "> 0.999"
+    return f"{p:.3f}"
+
+
+def fmt_p_eq(p: Any) -> str:
+    """ "p = 0.034" or "p < 0.001" (for running text)."""
+    s = fmt_p(p)
+    if s[0] in "<>":
+        return f"p {s}"
+    return f"p = {s}"
+
+
+def fmt_pct(x: Any, digits: int = 0) -> str:
+    """A percentage given in percent units (I² = 45.2 -> "45%")."""
+    if not is_finite(x):
+        return MISSING
+    return f"{fmt_num(x, digits)}%"
+
+
+def fmt_share(x: Any, digits: int = 0) -> str:
+    """A proportion (0-1) as a percentage (0.42 -> "42%")."""
+    if not is_finite(x):
+        return MISSING
+    return fmt_pct(100.0 * float(x), digits)
+
+
+def fmt_tau2(x: Any) -> str:
+    """A between-study variance: 3 decimals, "0" when exactly zero, "< 0.001" when tiny."""
+    if not is_finite(x):
+        return MISSING
+    x = float(x)
+    if x == 0.0:
+        return "0"
+    if abs(x) < 0.001:
+        return "< 0.001"
+    if abs(x) >= 100:
+        return fmt_num(x, 0)
+    return fmt_num(x, 3)
+
+
+def fmt_se(x: Any) -> str:
+    """A standard error (analysis scale): 3 significant digits."""
+    if not is_finite(x):
+        return MISSING
+    x = float(x)
+    if x >= 100:
+        return fmt_num(x, 0)
+    return _minus(f"{x:.3g}") if x < 1 else fmt_num(x, 2)
+
+
+def fmt_stat(x: Any, digits: int = 2) -> str:
+    """A test statistic (t, z, tau, Q)."""
+    return fmt_num(x, digits)
+
+
+def fmt_df(df: Any) -> str:
+    if not is_finite(df):
+        return MISSING
+    d = float(df)
+    return f"{int(d)}" if d == int(d) else fmt_num(d, 1)
+
+
+def plural(n: int, one: str, many: str | None = None) -> str:
+    """ "1 study", "3 studies"."""
+    return f"{n} {one if n == 1 else (many or one + 's')}"
+
+
+def measure_word(measure: str) -> str:
+    return SHORT_MEASURE.get(measure, measure)
+
+
+def is_ok(x: Any) -> bool:
+    """A usable engine result (not None, not NotComputable)."""
+    return x is not None and not isinstance(x, NotComputable)
+
+
+def why_not(x: Any, default: str = "not computed") -> str:
+    """The reason a result is missing, in words."""
+    if isinstance(x, NotComputable):
+        return x.reason
+    return default
+
+
+def pooled_text(p: PooledEstimate | Any, measure: str) -> str:
+    """ "0.62 (0.50 to 0.77)" for a pooled estimate, or the reason it is missing."""
+    if not isinstance(p, PooledEstimate):
+        return why_not(p)
+    return fmt_effect_ci(p.estimate, p.ci.low, p.ci.high, measure)
+
+
+def _lower_first(s: str) -> str:
+    return s[:1].lower() + s[1:]
+
+
+def model_name(key: str, hksj: bool = False) -> str:
+    base = MODEL_NAMES.get(key.removesuffix("+HKSJ"), key)
+    if hksj or key.endswith("+HKSJ"):
+        base += ", Hartung-Knapp interval"
+    return base
+
+
+# --------------------------------------------------------------------------------------
+# Sections
+
+
+@dataclass(frozen=True, slots=True)
+class Section:
+    """One block of the summary.
+
+    Attributes
+    ----------
+    key : str
+        Stable identifier ("data", "pooled", ...).
+    title : str
+        Heading as printed.
+    rows : tuple of tuple of str
+        Table body. A section without ``header`` is a list of (label, value) pairs.
+    header : tuple of str
+        Column headings ("" for none).
+    notes : tuple of str
+        Sentences printed under the table (definitions, cautions, where a value is missing).
+    emphasis : tuple of int
+        Row indices a renderer should emphasise (e.g. the recommended test).
+    widths : tuple of float
+        Relative column widths (a hint; renderers may ignore it).
+    """
+
+    key: str
+    title: str
+    rows: tuple[tuple[str, ...], ...]
+    header: tuple[str, ...] = ()
+    notes: tuple[str, ...] = ()
+    emphasis: tuple[int, ...] = ()
+    widths: tuple[float, ...] = ()
+
+
+def _limit(items: list[str], limit: int = LIST_LIMIT) -> list[str]:
+    if len(items) <= limit:
+        return items
+    return items[:limit] + [f"… and {len(items) - limit} more"]
+
+
+def header_section(result, *, date: str = "") -> Section:
+    """Review details: title, question, outcome, measure, appraiser, date, source note."""
+    d = result.review.details
+    m = result.measure
+    measure = f"{MEASURE_NAMES.get(m, m)} ({m})"
+    if m in RATIO_MEASURES:
+        measure += "; analysed on the log scale, shown on the natural scale"
+    rows = [
+        ("Review", d.title or "(untitled review)"),
+        ("Question", d.question or "(not stated)"),
+        ("Outcome", d.outcome or "(not stated)"),
+        ("Effect measure", measure),
+        ("Favours intervention", "lower values" if d.favours == "lower" else "higher values"),
+        ("Appraiser", d.appraiser or "(not stated)"),
+    ]
+    if date:
+        rows.append(("Date", date))
+    notes = (d.source_note,) if d.source_note else ()
+    return Section("header", "Review", tuple(rows), notes=notes)
+
+
+def _route_counts(result) -> list[tuple[str, int]]:
+    try:
+        from .stats.effects import ROUTE_NAMES
+    except ImportError:  # pragma: no cover - effects is part of the engine
+        ROUTE_NAMES = {}
+    included = set(result.data.rows)
+    counts: dict[str, int] = {}
+    for i, d in enumerate(result.derived):
+        if i not in included:
+            continue
+        route = getattr(d, "route", "") or ""
+        counts[route] = counts.get(route, 0) + 1
+    out = []
+    for route, n in counts.items():
+        out.append((ROUTE_NAMES.get(route, route or "other"), n))
+    return out
+
+
+def _problem_text(p) -> str:
+    row = getattr(p, "row", None)
+    study = getattr(p, "study", "") or ""
+    fld = getattr(p, "field", "") or ""
+    msg = getattr(p, "message", str(p))
+    sev = getattr(p, "severity", "")
+    where = []
+    if isinstance(row, int):
+        where.append(f"row {row + 1}")
+    if study:
+        where.append(study)
+    head = ", ".join(where)
+    if fld:
+        head = f"{head} [{fld}]" if head else f"[{fld}]"
+    sev = f"{sev}: " if sev else ""
+    # messages from the row checks may already start with "Row N (label), field: "
+    if msg.lower().startswith("row "):
+        return f"{sev}{msg}"
+    return f"{sev}{head}: {msg}" if head else f"{sev}{msg}"
+
+
+def data_section(result) -> Section:
+    """k, participants, spread of the SEs, how SEs were obtained, rows with problems."""
+    data = result.data
+    k = data.k
+    n_rows = len(result.review.studies)
+    rows: list[tuple[str, str]] = [
+        ("Studies analysed", f"{k} of {plural(n_rows, 'row')} in the table"),
+    ]
+    ns = [float(x) for x in data.n if is_finite(x)] if data.n.size == k else []
+    if ns:
+        known = "" if len(ns) == k else f" (known for {len(ns)} of {k} studies)"
+        rows.append(("Participants", f"{fmt_int(sum(ns))}{known}"))
+    else:
+        rows.append(("Participants", "not entered"))
+    ses = [float(x) for x in data.se if is_finite(x)]
+    if ses:
+        lo, hi = min(ses), max(ses)
+        ratio = f"; largest is {fmt_num(hi / lo, 1)} times the smallest" if lo > 0 else ""
+        scale = " (log scale)" if result.measure in RATIO_MEASURES else ""
+        rows.append(("Standard errors" + scale, f"{fmt_se(lo)} to {fmt_se(hi)}{ratio}"))
+    routes = _route_counts(result)
+    if routes:
+        rows.append(("SE obtained from", "; ".join(f"{name}: {n}" for name, n in routes)))
+    approx = sum(
+        1
+        for i, d in enumerate(result.derived)
+        if i in set(data.rows) and getattr(d, "approximate", False)
+    )
+    if approx:
+        rows.append(("Approximate SEs", f"{approx} (from a bound such as 'P < 0.05')"))
+    if result.excluded:
+        items = [f"{e.label}: {e.reason}" for e in result.excluded]
+        rows.append(("Left out", "\n".join(_limit(items))))
+    probs = list(result.problems)
+    if probs:
+        items = [_problem_text(p) for p in probs]
+        rows.append((f"Entry checks ({len(probs)})", "\n".join(_limit(items))))
+    else:
+        rows.append(("Entry checks", "no problems found in the rows"))
+    return Section("data", "Data entered", tuple(rows))
+
+
+def reconciliation_section(result) -> Section:
+    """Your rows pooled against the review's published pooled result."""
+    m = result.measure
+    rec = result.reconciliation
+    pub = result.review.details.published
+    if not is_ok(rec):
+        return Section(
+            "reconciliation",
+            "Check against the published result",
+            (("Published result", why_not(rec)),),
+            notes=(
+                "Enter the review's pooled estimate and CI to check that your rows reproduce it.",
+            ),
+        )
+    rows = [
+        (
+            "Published",
+            f"{fmt_effect_ci(rec.published_estimate, rec.published_low, rec.published_high, m)}"
+            + (f", {pub.model}" if pub.model else ""),
+        ),
+    ]
+    comps = {c.model: c for c in rec.comparisons}
+    best = comps.get(rec.closest)
+    if best is not None:
+        rows.append(
+            (
+                "Closest model",
+                f"{model_name(best.model)}: "
+                f"{fmt_effect_ci(best.estimate, best.ci_low, best.ci_high, m)}, "
+                f"largest difference {fmt_share(best.worst, 1)}",
+            )
+        )
+    verdict = {
+        "agrees": "reproduced",
+        "near": "close, not exact",
+        "no model close": "not reproduced",
+    }
+    rows.append(("Verdict", verdict.get(rec.verdict, rec.verdict)))
+    rows.append(("Reading", rec.reading))
+    for _row, label, why in rec.suspicious_rows:
+        rows.append(("Re-check", f"{label}: {why}"))
+    return Section("reconciliation", "Check against the published result", tuple(rows))
+
+
+def pooled_section(result) -> Section:
+    """Fixed and random effects (chosen τ² estimator and the others), HKSJ, prediction interval."""
+    m = result.measure
+    s = result.settings
+    header = ("Model", "Estimate", "95% CI", "p", "τ²")
+    rows: list[tuple[str, ...]] = []
+    emphasis: list[int] = []
+
+    def add(name: str, p: Any, *, tau: bool, chosen: bool = False) -> None:
+        if chosen:
+            emphasis.append(len(rows))
+            name += " (chosen)"
+        if isinstance(p, PooledEstimate):
+            rows.append(
+                (
+                    name,
+                    fmt_effect(p.estimate, m),
+                    fmt_ci(p.ci.low, p.ci.high, m),
+                    fmt_p(p.pvalue),
+                    fmt_tau2(p.tau2) if tau else "",
+                )
+            )
+        elif isinstance(p, NotComputable):
+            rows.append((name, "not computed", p.reason, "", ""))
+
+    add(model_name("FE-IV"), result.fixed, tau=False)
+    if is_ok(result.mantel_haenszel):
+        add(model_name("MH"), result.mantel_haenszel, tau=False)
+    if is_ok(result.peto):
+        add(model_name("Peto"), result.peto, tau=False)
+    chosen_key = s.tau2_method
+    for key, p in result.random_by_method.items():
+        add(model_name(key), p, tau=True, chosen=(key == chosen_key and not s.hksj))
+    hk = result.random_hksj_by_method.get(chosen_key)
+    if hk is not None:
+        add(model_name(chosen_key, hksj=True), hk, tau=True, chosen=s.hksj)
+    notes = []
+    rnd = result.random
+    if isinstance(rnd, PooledEstimate) and rnd.pi is not None:
+        rows.append(
+            (
+                "Prediction interval (chosen random-effects model)",
+                "",
+                fmt_ci(rnd.pi.low, rnd.pi.high, m),
+                "",
+                "",
+            )
+        )
+        if result.k < 10:
+            notes.append(
+                "With fewer than 10 studies the prediction interval tends to be too narrow "
+                "(Nagashima et al. 2019)."
+            )
+    elif isinstance(rnd, PooledEstimate):
+        notes.append("Prediction interval: needs at least 3 studies.")
+    notes.insert(
+        0,
+        "Estimates on the natural scale; p tests no effect. The prediction interval is "
+        "where the effect in a new, similar study would probably lie.",
+    )
+    return Section(
+        "pooled",
+        "Pooled results",
+        tuple(rows),
+        header=header,
+        notes=tuple(notes),
+        emphasis=tuple(emphasis),
+        widths=(3.2, 1.0, 1.6, 0.8, 0.7),
+    )
+
+
+def heterogeneity_section(result) -> Section:
+    """Cochran's Q, I² and τ² with their intervals."""
+    het = result.heterogeneity
+    if not is_ok(het):
+        return Section("heterogeneity", "Heterogeneity", (("Heterogeneity", why_not(het)),))
+    i2ci = het.i2_ci
+    tci = het.tau2_ci
+    i2_text = fmt_pct(het.i2)
+    if is_ok(i2ci):
+        i2_text += f" (95% CI {fmt_pct(i2ci.low)} to {fmt_pct(i2ci.high)})"
+    t_text = fmt_tau2(het.tau2) + f" ({het.tau2_method})"
+    if is_ok(tci):
+        t_text += f"; 95% CI {fmt_tau2(tci.low)} to {fmt_tau2(tci.high)}"
+    rows = (
+        ("Cochran's Q", f"{fmt_stat(het.q)} on {fmt_df(het.df)} df, {fmt_p_eq(het.pvalue)}"),
+        ("I²", i2_text),
+        ("τ²", t_text),
+    )
+    notes = (
+        "I² is the share of the variation between study results that is beyond chance; "
+        "τ² is the between-study variance on the analysis scale"
+        + (" (log scale)" if result.measure in RATIO_MEASURES else "")
+        + ".",
+    )
+    return Section("heterogeneity", "Heterogeneity", rows, notes=notes)
+
+
+def _test_result_text(t) -> str:
+    if t.key == "begg" or t.tested == "tau":
+        return f"Kendall's τ = {fmt_stat(t.statistic)}"
+    if t.df is None:
+        return f"z = {fmt_stat(t.statistic)}"
+    return f"t = {fmt_stat(t.statistic)} ({fmt_df(t.df)} df)"
+
+
+def recommended_key(result) -> str | None:
+    rec = result.recommendation
+    return rec.key if is_ok(rec) else None
+
+
+def tests_section(result) -> Section:
+    """All registered tests; the recommended one marked."""
+    try:
+        from .stats.asymmetry import REGISTRY
+    except ImportError:  # pragma: no cover
+        REGISTRY = {}
+    rec = result.recommendation
+    rkey = recommended_key(result)
+    alts = set(rec.alternatives) if is_ok(rec) else set()
+    header = ("Test", "Result", "p", "Studies", "Role")
+    rows: list[tuple[str, ...]] = []
+    emphasis = []
+    other_measure = []
+    for key, t in result.tests.items():
+        spec = REGISTRY.get(key)
+        name = getattr(t, "name", None) or (spec.name if spec else key)
+        if spec is not None and result.measure not in spec.suits and key != rkey:
+            other_measure.append(name)
+            continue
+        role = ""
+        if key == rkey:
+            role = "recommended" + (" (exploratory)" if rec.exploratory else "")
+            emphasis.append(len(rows))
+        elif key in alts:
+            role = "also suited"
+        if is_ok(t):
+            rows.append((name, _test_result_text(t), fmt_p(t.pvalue), str(t.k_used), role))
+        else:
+            rows.append((name, "not computed: " + why_not(t), "", "", role))
+    notes = []
+    if is_ok(rec):
+        notes.append(f"Why this test: {rec.reason}.")
+        if rec.options:
+            opt = dict(rec.options)
+            t = result.tests.get(rec.key)
+            if opt.get("random") and not (is_ok(t) and "random" in (t.name or "").lower()):
+                notes.append(
+                    "The random-effects version of the recommended test was asked for, but the "
+                    "table shows the version the engine ran."
+                )
+    else:
+        notes.append(f"No test recommended: {why_not(rec)}.")
+    if other_measure:
+        notes.append(
+            "Not shown, as they are meant for other measures: " + ", ".join(other_measure) + "."
+        )
+    alpha = result.settings.test_alpha
+    notes.append(
+        f"A p-value below {fmt_num(alpha, 2)} is the usual signal of asymmetry (these tests have "
+        "little power; Egger et al. 1997). A larger p-value does not rule asymmetry out."
+    )
+    return Section(
+        "tests",
+        "Tests for small-study effects",
+        tuple(rows),
+        header=header,
+        notes=tuple(notes),
+        emphasis=tuple(emphasis),
+        widths=(2.2, 1.6, 0.7, 0.7, 1.5),
+    )
+
+
+def applicability_section(result) -> Section:
+    """When a test is worth reading (Ioannidis & Trikalinos 2007; Sterne et al. 2011)."""
+    word = {True: "yes", False: "NO", None: "cannot tell"}
+    rows = tuple((r.title, word.get(r.met, str(r.met)), r.detail) for r in result.applicability)
+    failed = [i for i, r in enumerate(result.applicability) if r.met is False]
+    notes = (
+        "Conditions for a meaningful test (Ioannidis & Trikalinos 2007; Sterne et al. 2011). "
+        "Where one is not met, read the tests with extra caution.",
+    )
+    return Section(
+        "applicability",
+        "Can the tests be trusted here?",
+        rows,
+        header=("Condition", "Met", "Detail"),
+        notes=notes,
+        emphasis=tuple(failed),
+        widths=(2.2, 0.7, 4.0),
+    )
+
+
+def adjustment_rows(result) -> list[tuple[str, Any, Any, Any, str]]:
+    """(method, estimate, low, high, note) on the analysis scale; estimate None if missing.
+
+    The single list the adjustments table and the appraisal's range both read.
+    """
+    out: list[tuple[str, Any, Any, Any, str]] = []
+    rnd = result.random
+    if isinstance(rnd, PooledEstimate):
+        out.append(
+            (
+                f"No adjustment ({_lower_first(model_name(rnd.model, rnd.hksj))})",
+                rnd.estimate,
+                rnd.ci.low,
+                rnd.ci.high,
+                "",
+            )
+        )
+    tf = result.trim_fill
+    if is_ok(tf):
+        adj = tf.adjusted
+        note = f"{plural(tf.k0, 'study', 'studies')} filled on the {tf.side}"
+        if not tf.converged:
+            note += "; did not settle"
+        out.append(
+            (
+                f"Trim and fill ({tf.estimator})",
+                adj.estimate if isinstance(adj, PooledEstimate) else None,
+                adj.ci.low if isinstance(adj, PooledEstimate) else None,
+                adj.ci.high if isinstance(adj, PooledEstimate) else None,
+                note,
+            )
+        )
+    else:
+        out.append(("Trim and fill", None, None, None, why_not(tf)))
+    pp = result.pet_peese
+    if is_ok(pp):
+        for name, c in (("PET", pp.pet), ("PEESE", pp.peese)):
+            chosen = " (reported by the PET-PEESE rule)" if pp.chosen == name else ""
+            out.append((name, c.estimate, c.ci.low, c.ci.high, chosen.strip(" ()")))
+    else:
+        out.append(("PET-PEESE", None, None, None, why_not(pp)))
+    lim = result.limit
+    if is_ok(lim):
+        out.append(("Limit meta-analysis", lim.estimate, lim.ci.low, lim.ci.high, lim.note))
+    else:
+        out.append(("Limit meta-analysis", None, None, None, why_not(lim)))
+    sel = result.selection
+    if is_ok(sel):
+        note = f"test of selection {fmt_p_eq(sel.lrt_pvalue)}"
+        if not sel.converged:
+            note += "; fit did not converge"
+        cuts = ", ".join(fmt_num(c, 3) for c in sel.cutpoints)
+        out.append(
+            (f"Selection model (cut at one-sided p {cuts})", sel.mu, sel.ci.low, sel.ci.high, note)
+        )
+    else:
+        out.append(("Selection model", None, None, None, why_not(sel)))
+    return out
+
+
+def adjustments_section(result) -> Section:
+    """Trim and fill, PET, PEESE, limit meta-analysis, selection model: a range, not an answer."""
+    m = result.measure
+    rows = []
+    for name, est, lo, hi, note in adjustment_rows(result):
+        if est is None:
+            rows.append((name, "not computed", "", note))
+        else:
+            rows.append((name, fmt_effect(est, m), fmt_ci(lo, hi, m), note))
+    notes = (
+        "Trim and fill adds mirror-image studies where the funnel has a gap; PET and PEESE "
+        "regress the effects on SE or SE² and read off a study with no sampling error; limit "
+        "meta-analysis extrapolates the random-effects model the same way; the selection "
+        "model re-weights studies by how likely results like theirs were to be published. "
+        "Each answers 'what if?' under its own assumptions: read them as a range, not as a "
+        "corrected result.",
+    )
+    return Section(
+        "adjustments",
+        "Sensitivity of the estimate to small-study effects",
+        tuple(rows),
+        header=("Method", "Estimate", "95% CI", "Note"),
+        notes=notes,
+        emphasis=(0,) if rows else (),
+        widths=(2.6, 0.9, 1.5, 2.4),
+    )
+
+
+def sensitivity_section(result) -> Section:
+    """Leave-one-out range, cumulative drift by precision, fail-safe N (with its caution)."""
+    m = result.measure
+    rows: list[tuple[str, str]] = []
+    loo = result.leave_one_out
+    if is_ok(loo) and loo.rows:
+        pairs = [
+            (r.random.estimate, r.omitted) for r in loo.rows if isinstance(r.random, PooledEstimate)
+        ]
+        if pairs:
+            lo = min(pairs)
+            hi = max(pairs)
+            rows.append(
+                (
+                    "Leave one out (random effects)",
+                    f"{fmt_effect(lo[0], m)} (without {lo[1]}) to "
+                    f"{fmt_effect(hi[0], m)} (without {hi[1]})",
+                )
+            )
+    else:
+        rows.append(("Leave one out", why_not(loo)))
+    cum = result.cumulative
+    if is_ok(cum) and cum.steps:
+        steps = cum.steps
+        picks = [steps[0]]
+        if len(steps) >= 4:
+            picks.append(steps[len(steps) // 2 - 1])
+        picks.append(steps[-1])
+        parts = []
+        for st in picks:
+            r = st.random if isinstance(st.random, PooledEstimate) else st.fixed
+            if isinstance(r, PooledEstimate):
+                parts.append(f"{plural(st.k, 'study', 'studies')}: {fmt_effect(r.estimate, m)}")
+        rows.append(("Adding studies from most to least precise", "; ".join(parts)))
+    else:
+        rows.append(("Cumulative by precision", why_not(cum)))
+    fs = result.failsafe
+    if is_ok(fs):
+        rows.append(
+            (
+                f"Fail-safe N ({fs.method})",
+                f"{fmt_int(fs.n_whole)} (shown for completeness; not recommended, as it rests "
+                "on assumptions about the unpublished studies: Cochrane Handbook 5.1, "
+                "10.4.4.3)",
+            )
+        )
+    notes = (
+        "If the estimate drifts as less precise studies are added, small studies pull it "
+        "(a sign of small-study effects).",
+    )
+    return Section("sensitivity", "Leave one out and cumulative analysis", tuple(rows), notes=notes)
+
+
+def subgroups_section(result) -> Section | None:
+    """Pooled results and Egger's slope within each level, with the meta-regression answer."""
+    if not result.subgroups and not result.meta_regression:
+        return None
+    m = result.measure
+    rows: list[tuple[str, ...]] = []
+    notes: list[str] = []
+    names = {"risk_of_bias": "Risk of bias", "subgroup": "Subgroup"}
+    for by, sg in result.subgroups.items():
+        title = names.get(by, by)
+        if not is_ok(sg):
+            rows.append((title, "", "not computed", "", "", why_not(sg)))
+            continue
+        for lv in sg.levels:
+            eg = lv.egger
+            eg_text = f"{fmt_p(eg.pvalue)}" if is_ok(eg) else "–"
+            rows.append(
+                (
+                    f"{title}: {lv.level}",
+                    str(lv.k),
+                    pooled_text(lv.random, m),
+                    fmt_pct(lv.i2) if is_finite(lv.i2) else MISSING,
+                    eg_text,
+                    "",
+                )
+            )
+        rt = sg.random_test
+        if is_ok(rt):
+            rows.append(
+                (f"{title}: difference between levels", "", "", "", "", fmt_p_eq(rt.pvalue))
+            )
+        if sg.note:
+            notes.append(sg.note)
+    for by, mr in result.meta_regression.items():
+        title = names.get(by, by)
+        if is_ok(mr) and is_ok(mr.se_without) and is_ok(mr.se_with):
+            b, a = mr.se_without, mr.se_with
+            few = " Few studies per covariate: unreliable." if mr.note else ""
+            notes.append(
+                f"Meta-regression with the SE: slope on SE {fmt_num(b.estimate, 2)} "
+                f"({fmt_p_eq(b.pvalue)}) without {title.lower()}, {fmt_num(a.estimate, 2)} "
+                f"({fmt_p_eq(a.pvalue)}) with it.{few}"
+            )
+        elif is_ok(mr):
+            notes.append(f"{title} in a meta-regression with the SE: {mr.se_answer}")
+        else:
+            notes.append(f"{title} meta-regression: {why_not(mr)}")
+    return Section(
+        "subgroups",
+        "Within subgroups",
+        tuple(rows),
+        header=("Group", "Studies", "Random effects (95% CI)", "I²", "Egger p", "Difference"),
+        notes=tuple(notes),
+        widths=(2.4, 0.7, 1.9, 0.6, 0.7, 1.0),
+    )
+
+
+def power_section(result) -> Section:
+    """Monte-Carlo power of the recommended test for these SEs, if it was run."""
+    pw = result.power
+    if pw is None:
+        return Section(
+            "power",
+            "Power of the test for this review",
+            (("Power", "not simulated (run with the power option)"),),
+        )
+    if not is_ok(pw):
+        return Section("power", "Power of the test for this review", (("Power", why_not(pw)),))
+    rows = []
+    t1 = getattr(pw, "type1", None)
+    pv = getattr(pw, "power", None)
+    if is_finite(t1):
+        rows.append(("False alarms with no bias", fmt_share(t1, 1)))
+    if is_finite(pv):
+        rows.append(("Power with the simulated bias", fmt_share(pv, 0)))
+    reading = getattr(pw, "reading", "")
+    if reading:
+        rows.append(("Reading", reading))
+    return Section("power", "Power of the test for this review", tuple(rows))
+
+
+def settings_section(result, *, version: str = "") -> Section:
+    """Key settings and the data fingerprint, for reproducibility."""
+    s = result.settings
+    if not version:
+        from . import __version__ as version
+    rows = (
+        ("Software", f"Lopside {version}"),
+        (
+            "Random effects",
+            f"τ² by {s.tau2_method}" + (", Hartung-Knapp interval" if s.hksj else ""),
+        ),
+        (
+            "Study CIs assumed",
+            {"z": "normal (z)", "t": "t-based", "auto": "t when arms < 60"}.get(
+                s.ci_method, s.ci_method
+            ),
+        ),
+        ("Funnel centre", f"{s.funnel_model} effect"),
+        ("Test threshold", f"p < {fmt_num(s.test_alpha, 2)}"),
+        (
+            "Trim and fill",
+            f"estimator {s.trimfill_estimator}, side {s.trimfill_side}, trimming by "
+            f"{s.trimfill_trim_model}, filled estimate by {s.trimfill_fill_model}",
+        ),
+        ("PET-PEESE rule", f"PET test {s.petpeese_sided}-sided at {fmt_num(s.petpeese_alpha, 2)}"),
+        (
+            "Selection model cut-points",
+            ", ".join(
+                fmt_num(c, 3)
+                for c in getattr(s, "selection_cutpoints", getattr(s, "selection_cuts", ()))
+            ),
+        ),
+        ("Data fingerprint (SHA-256)", result.fingerprint or MISSING),
+    )
+    return Section("settings", "Settings and reproducibility", rows)
+
+
+def analysis_sections(result) -> tuple[Section, ...]:
+    """The numeric sections in reading order (no appraisal readings)."""
+    out = [
+        data_section(result),
+        reconciliation_section(result),
+        pooled_section(result),
+        heterogeneity_section(result),
+        tests_section(result),
+        applicability_section(result),
+        adjustments_section(result),
+        sensitivity_section(result),
+    ]
+    sg = subgroups_section(result)
+    if sg is not None:
+        out.append(sg)
+    out.append(power_section(result))
+    return tuple(out)
+
+
+# --------------------------------------------------------------------------------------
+# Appraisal sections (content from lopside.appraise)
+
+
+#: How an evidence line's direction is written (text, window and sheet alike).
+EVIDENCE_WORDS: dict[str, str] = {"for": "For", "against": "Against", "unclear": "Can't tell"}
+
+
+def small_study_section(appraisal) -> Section:
+    """What the funnel, the test, the rules, power and the adjustments say."""
+    r = appraisal.small_study
+    rows = tuple((label, text) for label, text in r.lines)
+    return Section("small_study", "What the funnel shows", rows)
+
+
+def causes_section(appraisal) -> Section:
+    """The alternative explanations side by side with publication bias."""
+    rows = []
+    for c in appraisal.causes:
+        ev = "\n".join(
+            f"{EVIDENCE_WORDS.get(e.direction, EVIDENCE_WORDS['unclear'])}: {e.text}"
+            for e in c.evidence
+        )
+        check = f"Look for: {c.what_to_check}" if c.what_to_check else ""
+        evidence = ev + ("\n" + check if check else "")
+        rows.append((c.title, evidence, c.judgement, c.notes))
+    notes = (
+        "For / Against: evidence from this review for or against the explanation; Can't tell: "
+        "the data cannot say. The judgement and notes are the appraiser's own.",
+    )
+    return Section(
+        "causes",
+        "Why might the funnel lean? Explanations side by side",
+        tuple(rows),
+        header=("Explanation", "Evidence from this review", "Appraiser's judgement", "Notes"),
+        notes=notes,
+        widths=(1.5, 5.0, 1.1, 1.6),
+    )
+
+
+def rating_section(appraisal) -> Section:
+    """The suggested publication-bias rating, its reasons, and the appraiser's override."""
+    r = appraisal.rating
+    rows = [("Suggested", r.suggested), ("Why", "\n".join(f"• {x}" for x in r.reasons))]
+    if r.override:
+        rows.append(("Appraiser's rating", r.override))
+        rows.append(("Appraiser's reason", r.override_reason or "(no reason given)"))
+    else:
+        rows.append(("Appraiser's rating", "not recorded: confirm or override the suggestion"))
+    return Section("rating", "Publication bias: suggested rating", tuple(rows), notes=(r.note,))
+
+
+def appraisal_sections(appraisal) -> tuple[Section, ...]:
+    return (small_study_section(appraisal), causes_section(appraisal), rating_section(appraisal))
+
+
+def all_sections(result, appraisal=None) -> tuple[Section, ...]:
+    """Every section in the order of the text summary."""
+    if appraisal is None:
+        from .appraise import appraise
+
+        appraisal = appraise(result)
+    a = appraisal_sections(appraisal)
+    return (header_section(result),) + analysis_sections(result) + a
+
+
+# --------------------------------------------------------------------------------------
+# Plain text (the `lopside check` output)
+
+WIDTH = 100
+
+
+def _wrap(text: str, width: int) -> list[str]:
+    out: list[str] = []
+    for para in str(text).split("\n"):
+        if not para:
+            out.append("")
+            continue
+        out.extend(
+            textwrap.wrap(para, width=max(width, 8), break_long_words=True, break_on_hyphens=False)
+            or [""]
+        )
+    return out
+
+
+def _col_widths(section: Section, width: int) -> list[int]:
+    ncol = max(len(r) for r in (section.rows + ((section.header,) if section.header else ())))
+    gap = 2
+    natural = [0] * ncol
+    for r in section.rows + ((section.header,) if section.header else ()):
+        for j, cell in enumerate(r):
+            longest = max((len(line) for line in str(cell).split("\n")), default=0)
+            natural[j] = max(natural[j], longest)
+    avail = width - gap * (ncol - 1)
+    if sum(natural) <= avail:
+        return natural
+    # shrink the widest columns first, but keep every column at least 8 wide
+    widths = natural[:]
+    while sum(widths) > avail:
+        j = max(range(ncol), key=lambda i: widths[i])
+        if widths[j] <= 8:
+            break
+        widths[j] -= 1
+    return widths
+
+
+def _render_causes(section: Section, width: int) -> list[str]:
+    """The explanations as blocks (a four-column table is unreadable at 100 columns)."""
+    lines: list[str] = []
+    for title, evidence, judgement, notes in section.rows:
+        lines.append(f"{title}  [appraiser: {judgement}]")
+        for item in evidence.split("\n"):
+            wrapped = _wrap(item, width - 4)
+            lines.append("  " + wrapped[0])
+            lines.extend("    " + w for w in wrapped[1:])
+        if notes:
+            wrapped = _wrap("Notes: " + notes, width - 4)
+            lines.extend("  " + w for w in wrapped)
+        lines.append("")
+    return lines
+
+
+def render_text(section: Section, width: int = WIDTH) -> str:
+    """One section as plain text, wrapped to ``width`` columns."""
+    lines = [section.title, "-" * len(section.title)]
+    if not section.rows:
+        lines.append("(nothing to show)")
+    elif section.key == "causes":
+        lines.extend(_render_causes(section, width))
+    elif not section.header and all(len(r) == 2 for r in section.rows):
+        label_w = min(max(len(r[0]) for r in section.rows), 30)
+        for label, value in section.rows:
+            lab_lines = _wrap(label, label_w)
+            val_lines = _wrap(value, width - label_w - 2)
+            for i in range(max(len(lab_lines), len(val_lines))):
+                a = lab_lines[i] if i < len(lab_lines) else ""
+                b = val_lines[i] if i < len(val_lines) else ""
+                lines.append(f"{a:<{label_w}}  {b}".rstrip())
+    else:
+        widths = _col_widths(section, width)
+        table = ([section.header] if section.header else []) + list(section.rows)
+        for n, row in enumerate(table):
+            cells = [_wrap(c, widths[j]) for j, c in enumerate(row)]
+            for i in range(max(len(c) for c in cells)):
+                parts = [
+                    f"{(c[i] if i < len(c) else ''):<{widths[j]}}" for j, c in enumerate(cells)
+                ]
+                lines.append("  ".join(parts).rstrip())
+            if section.header and n == 0:
+                lines.append("  ".join("-" * w for w in widths))
+    for note in section.notes:
+        if note:
+            lines.extend(_wrap(note, width))
+    return "\n".join(lines)
+
+
+def text_summary(result, width: int = WIDTH) -> str:
+    """The ``lopside check`` output: every section and the appraisal, then the caution.
+
+    Parameters
+    ----------
+    result : AnalysisResult
+    width : int
+        Terminal columns to wrap to.
+
+    Returns
+    -------
+    str
+        Text ending in a newline.
+    """
+    from . import CAUTION, __version__
+
+    title = f"Lopside {__version__}: small-study effects appraisal"
+    out = [title, "=" * len(title), ""]
+    for sec in all_sections(result):
+        out.append(render_text(sec, width))
+        out.append("")
+    out.append("Caution")
+    out.append("-------")
+    out.extend(_wrap(CAUTION, width))
+    out.append("")
+    out.append(f"Data fingerprint (SHA-256): {result.fingerprint}")
+    return "\n".join(out) + "\n"
