@@ -146,8 +146,13 @@ def draw_rows(
     span = max(c_hi - c_lo, 0.2 if measure.upper() in ("OR", "RR", "HR") else 1e-3)
     # very wide study intervals are cut at the frame (with an arrow) so that they do
     # not squash everything else
-    x_lo = max(min(lows), c_lo - 0.8 * span)
-    x_hi = min(max(highs), c_hi + 0.8 * span)
+    halves = [(r.high - r.low) / 2 for r in rows if r.kind in ("study", "point")]
+    halves = [h for h in halves if np.isfinite(h)]
+    reach = max(span, 1.6 * float(np.median(halves))) if halves else span
+    x_lo = max(min(lows), c_lo - reach)
+    x_hi = min(max(highs), c_hi + reach)
+    # ... but the null, every estimate and every pooled interval always stay in view
+    x_lo, x_hi = min(x_lo, c_lo), max(x_hi, c_hi)
     pad = 0.05 * (x_hi - x_lo)
     x_lo, x_hi = x_lo - pad, x_hi + pad
     # do the "favours" words fit beside the null? If not, each gets its own line
