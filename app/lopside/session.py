@@ -292,8 +292,14 @@ class Session:
         return (self._review.studies, self._review.details, self._settings)
 
     def _lookup(self, key: tuple):
+        # identity first (the usual case); equal values next, so that undo, which rebuilds
+        # the table, finds the analysis of the state it returns to
         for k, result in self._cache:
             if all(a is b for a, b in zip(k, key)):
+                return result
+        for i, (k, result) in enumerate(self._cache):
+            if all(a == b for a, b in zip(k, key)):
+                self._cache[i] = (key, result)
                 return result
         return None
 
@@ -311,7 +317,7 @@ class Session:
             result = analyse(self._review, self._settings)
             self._cache.insert(0, (key, result))
             del self._cache[8:]  # a few states back, so undo is instant
-        if self._power is not None and all(a is b for a, b in zip(self._power[0], key)):
+        if self._power is not None and _same_key(self._power[0], key):
             if result.power is not self._power[1]:
                 result = replace(result, power=self._power[1])
         if result.review is not self._review:
@@ -320,15 +326,13 @@ class Session:
 
     def store_power(self, key: tuple, power: Any) -> bool:
         """Keep a power result computed for ``key``; False (dropped) if the review moved on."""
-        if not all(a is b for a, b in zip(key, self.analysis_key())):
+        if not _same_key(key, self.analysis_key()):
             return False
         self._power = (key, power)
         return True
 
     def power_is_current(self) -> bool:
-        return self._power is not None and all(
-            a is b for a, b in zip(self._power[0], self.analysis_key())
-        )
+        return self._power is not None and _same_key(self._power[0], self.analysis_key())
 
     def run_power(self, progress=None):
         """Run the power simulation synchronously (scripts; the window uses a worker).
@@ -349,3 +353,7 @@ class Session:
         out = Path(path)
         write_sheet(self.analyse(), out, include_forest=include_forest)
         return out
+
+
+def _same_key(a: tuple, b: tuple) -> bool:
+    return all(x is y or x == y for x, y in zip(a, b))

@@ -18,13 +18,13 @@ from PySide6.QtWidgets import (
     QPlainTextEdit,
     QScrollArea,
     QVBoxLayout,
-    QWidget,
 )
 
 from .. import edits as ed
 from ..model.review import CAUSE_TITLES, CAUSES, DOMAIN_RATINGS, JUDGEMENTS, CauseNote
 from ..session import Session
 from . import messages as M
+from .sections import WrappingPage
 
 _MARK = {"for": ("+", "#9B2C1F"), "against": ("\u2212", "#1F4E79"), "unclear": ("?", "#616E7C")}
 NOTES_DELAY_MS = 400
@@ -47,7 +47,7 @@ class CausesPanel(QScrollArea):
         self.session = session
         self.push = push
         self.setWidgetResizable(True)
-        inner = QWidget()
+        inner = WrappingPage()
         self.setWidget(inner)
         lay = QVBoxLayout(inner)
         self.reading = QLabel(M.NO_ANALYSIS)

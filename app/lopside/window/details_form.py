@@ -13,13 +13,13 @@ from PySide6.QtWidgets import (
     QLineEdit,
     QScrollArea,
     QVBoxLayout,
-    QWidget,
 )
 
 from .. import edits as ed
 from ..model.review import MEASURE_NAMES, MEASURES
 from ..session import Session
 from . import messages as M
+from .sections import WrappingPage
 
 FAVOURS_TEXT = {
     "lower": "Lower values favour the intervention (e.g. fewer deaths)",
@@ -48,7 +48,7 @@ class DetailsForm(QScrollArea):
         self.push = push
         self.setWidgetResizable(True)
         self.setFrameShape(QScrollArea.NoFrame)
-        inner = QWidget()
+        inner = WrappingPage()
         self.setWidget(inner)
         outer = QVBoxLayout(inner)
 
@@ -103,7 +103,9 @@ class DetailsForm(QScrollArea):
         row.addWidget(QLabel("to"))
         row.addWidget(self.pub_upper)
         row.addWidget(QLabel(")"))
-        f3.addRow("&Estimate (CI):", row)
+        est_label = QLabel("&Estimate (CI):")
+        est_label.setBuddy(self.pub_estimate)
+        f3.addRow(est_label, row)
         f3.addRow("Mo&del as printed:", self.pub_model)
         self.pub_problem = QLabel()
         self.pub_problem.setWordWrap(True)

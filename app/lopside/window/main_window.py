@@ -405,7 +405,7 @@ class MainWindow(QMainWindow):
         if split is not None:
             self.split.restoreState(split)
         else:
-            self.split.setSizes([610, 756])
+            self.split.setSizes([730, 636])
         self.views.setCurrentIndex(
             max(0, min(self.prefs.get_int(P.VIEW_TAB, 0), self.views.count() - 1))
         )

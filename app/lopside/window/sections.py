@@ -25,6 +25,23 @@ p.na { color: #7B2E1F; }
 """
 
 
+class WrappingPage(QWidget):
+    """The page inside a QScrollArea that grows with its word-wrapped labels.
+
+    QScrollArea sizes its widget from the minimum size hint, which ignores the
+    height-for-width of wrapped labels, so long readings were cut off. The page sets
+    its own minimum height from its layout at the width it is given.
+    """
+
+    def resizeEvent(self, event) -> None:  # noqa: N802 - Qt API
+        super().resizeEvent(event)
+        lay = self.layout()
+        if lay is not None and lay.hasHeightForWidth():
+            h = lay.heightForWidth(self.width())
+            if h > 0 and h != self.minimumHeight():
+                self.setMinimumHeight(h)
+
+
 def _cell(text: str) -> str:
     return html.escape(text).replace("\n", "<br>")
 

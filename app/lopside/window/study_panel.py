@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from PySide6.QtCore import QItemSelectionModel, Qt, Signal
+from PySide6.QtCore import QItemSelectionModel, Qt, QTimer, Signal
 from PySide6.QtGui import QKeySequence
 from PySide6.QtWidgets import (
     QAbstractItemView,
@@ -24,6 +24,17 @@ from .. import edits as ed
 from ..model.review import RISK_OF_BIAS_LEVELS, StudyRow
 from ..session import Session
 from .table_model import ENTRY_MODES, StudyTableModel
+
+#: column widths (px) that fit the table beside the views on a 1366-pixel screen
+COLUMN_WIDTHS = {
+    "study": 124,
+    "year": 46,
+    "risk_of_bias": 108,
+    "subgroup": 84,
+    "exclude": 44,
+    "_y": 64,
+    "_se": 60,
+}
 
 
 class PickListDelegate(QStyledItemDelegate):
@@ -223,13 +234,7 @@ class StudyPanel(QWidget):
     def fit_columns(self) -> None:
         h = self.table.horizontalHeader()
         for c, key in enumerate(self.model.columns):
-            width = {
-                "study": 150,
-                "year": 52,
-                "risk_of_bias": 104,
-                "subgroup": 90,
-                "exclude": 70,
-            }.get(key, 78)
+            width = COLUMN_WIDTHS.get(key, 60)
             h.resizeSection(c, width)
 
     def _subgroups(self):
@@ -237,6 +242,8 @@ class StudyPanel(QWidget):
 
     def _after_reset(self) -> None:
         self._apply_delegates()
+        # the view lays its header out again after a reset: size the columns after that
+        QTimer.singleShot(0, self.fit_columns)
 
     def refresh_measure(self) -> None:
         i = self.measure_box.findData(self.session.review.measure)

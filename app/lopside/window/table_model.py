@@ -61,27 +61,27 @@ HEADERS: dict[str, str] = {
     "study": "Study",
     "year": "Year",
     "estimate": "Estimate",
-    "lower": "CI lower",
-    "upper": "CI upper",
+    "lower": "CI\nlower",
+    "upper": "CI\nupper",
     "level": "CI %",
     "se": "SE",
     "p": "P",
-    "int_events": "Events (int.)",
-    "int_total": "Total (int.)",
-    "ctl_events": "Events (ctl.)",
-    "ctl_total": "Total (ctl.)",
-    "int_mean": "Mean (int.)",
-    "int_sd": "SD (int.)",
-    "int_n": "N (int.)",
-    "ctl_mean": "Mean (ctl.)",
-    "ctl_sd": "SD (ctl.)",
-    "ctl_n": "N (ctl.)",
-    "n": "Total N",
-    "risk_of_bias": "Risk of bias",
+    "int_events": "Events\nint.",
+    "int_total": "Total\nint.",
+    "ctl_events": "Events\nctl.",
+    "ctl_total": "Total\nctl.",
+    "int_mean": "Mean\nint.",
+    "int_sd": "SD\nint.",
+    "int_n": "N\nint.",
+    "ctl_mean": "Mean\nctl.",
+    "ctl_sd": "SD\nctl.",
+    "ctl_n": "N\nctl.",
+    "n": "Total\nN",
+    "risk_of_bias": "Risk of\nbias",
     "subgroup": "Subgroup",
-    "exclude": "Left out",
-    "_y": "Effect used",
-    "_se": "SE used",
+    "exclude": "Left\nout",
+    "_y": "Effect\nused",
+    "_se": "SE\nused",
 }
 DERIVED = ("_y", "_se")
 _ROOT = QModelIndex()
@@ -284,7 +284,7 @@ class StudyTableModel(QAbstractTableModel):
         if key == "estimate":
             return measure
         if key == "_y":
-            return f"log {measure} used" if measure in RATIO_MEASURES else f"{measure} used"
+            return f"log {measure}\nused" if measure in RATIO_MEASURES else f"{measure}\nused"
         return HEADERS.get(key, key)
 
     def _header_tip(self, key: str) -> str:
@@ -297,7 +297,7 @@ class StudyTableModel(QAbstractTableModel):
             "level": "Confidence level of this study's interval, if not the review's",
             "p": "Two-sided P value; '<0.001' is read as a bound",
         }
-        return tips.get(key, HEADERS.get(key, key))
+        return tips.get(key, HEADERS.get(key, key).replace("\n", " "))
 
     def flags(self, index):
         if not index.isValid():
@@ -341,7 +341,7 @@ class StudyTableModel(QAbstractTableModel):
             return int(Qt.AlignRight | Qt.AlignVCenter)
         if role == Qt.AccessibleTextRole:
             text = self._derived_text(r, key) if key in DERIVED else ed.cell_text(row, key)
-            return f"{self._header(key)}: {text or 'blank'}"
+            return f"{self._header(key).replace(chr(10), ' ')}: {text or 'blank'}"
         return None
 
     def _derived(self, r: int):
