@@ -61,6 +61,11 @@ STUDY_LINES: list[tuple[str, str, dict]] = [
         "ci+counts",
         dict(int_events=120, int_total=1234, ctl_events=98, ctl_total=1201, estimate=0.80),
     ),
+    (
+        "Ksi 2011 120/1 234 98/1 201 0.80 (0.62-1.03)",
+        "ci+counts",
+        dict(int_events=120, int_total=1234, ctl_events=98, ctl_total=1201, estimate=0.80),
+    ),
     # estimate with its interval, in the usual printed forms
     (
         "Jones et al., 2004a 0.82 (0.61 to 1.10)",

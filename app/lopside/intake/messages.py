@@ -241,6 +241,10 @@ PASTE_NOTES: dict[str, str] = {
         "'{text}' read as {value} (comma taken as a thousands separator: nothing else on the "
         "line shows the decimal mark)"
     ),
+    "space_thousands": (
+        "'{text}' read as {value} (otherwise the events would be more than the total, so "
+        "the space separates thousands)"
+    ),
     "count_thousands": "'{text}' read as {value} (a count, so the comma separates thousands)",
     "ambiguous_decimal": "'{text}' read as {value} (decimal mark as elsewhere on the line)",
     "ambiguous_from_text": (

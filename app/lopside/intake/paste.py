@@ -577,8 +577,6 @@ def _split_label(toks: list[_Tok], tab_at: int | None) -> tuple[int, bool]:
             t = toks[i]
             if t.kind == "WORD" and t.text.casefold() not in _TAIL_WORDS:
                 last_word = i
-        if strong == n and last_word == -1:
-            last_word = -1
         end = last_word + 1
     absorbed = False
     # a label with an open bracket takes its closing bracket: "TRIAL-A11 (Hale)"
@@ -746,6 +744,33 @@ def _to_items(toks: list[_Tok], mark: str | None, notes: list[str], from_text: b
                 a = _read_count(t, mark, notes, used)
                 b = _read_count(nxt2, mark, notes, used)
                 if len(a) == 1 and len(b) == 1:
+                    nxt3 = toks[k + 3] if k + 3 < n else None
+                    if (
+                        a[0].v > b[0].v
+                        and len(nxt2.body) <= 3
+                        and nxt2.body.isdigit()
+                        and not nxt2.suffix
+                        and nxt3 is not None
+                        and nxt3.kind == "NUM"
+                        and len(nxt3.body) == 3
+                        and nxt3.body.isdigit()
+                        and not nxt3.sign
+                    ):
+                        # "120/1 234": more events than the total unless the space is a
+                        # thousands separator, so it is one
+                        total = nxt2.body + nxt3.body
+                        notes.append(
+                            M.paste_note(
+                                "space_thousands",
+                                text=f"{nxt2.body} {nxt3.body}",
+                                value=str(int(total)),
+                            )
+                        )
+                        items.append(
+                            _It("FRAC", a[0].v, a[0].t, float(total), str(int(total)), t, nxt3)
+                        )
+                        k += 4
+                        continue
                     items.append(_It("FRAC", a[0].v, a[0].t, b[0].v, b[0].t, t, nxt2))
                     k += 3
                     continue
@@ -953,7 +978,7 @@ def _fit(seq: list[_It], want_ci3: bool) -> dict[str, object] | None:
                 for w2 in (False, True):
                     m = k
                     if w2:
-                        if m < n and _is_weight(seq[m]) and (ci or w1 is False and block):
+                        if m < n and _is_weight(seq[m]) and (ci or (not w1 and block)):
                             m += 1
                         else:
                             continue

@@ -324,7 +324,7 @@ def read_table(path: str | os.PathLike[str]) -> TableResult:
     if not p.exists():
         raise IntakeError(M.table_message("missing_file"), path=p)
     suffix = p.suffix.casefold()
-    if suffix in (".csv", ".tsv", ".txt_table"):
+    if suffix in (".csv", ".tsv"):
         sheet = _read_csv(p)
     elif suffix in (".xlsx", ".xlsm"):
         sheet = _read_xlsx(p)
