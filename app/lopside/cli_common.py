@@ -69,7 +69,10 @@ def load_review_file(path: str | Path, measure: str | None = None) -> tuple[Revi
         pasted = read_pasted(text, measure)
         if not pasted.rows:
             raise InputError(f"{p.name}: no study rows could be read.\n{pasted.account()}")
-        return review_from_rows(pasted.rows, measure, p.name), {}
+        review = review_from_rows(pasted.rows, measure or pasted.measure_hint, p.name)
+        if pasted.published is not None:
+            review = review.with_details(published=pasted.published)
+        return review, {}
     raise InputError(
         f"{p.name}: Lopside opens {', '.join(ACCEPTED)} files; this one is '{suffix or 'none'}'."
     )
