@@ -854,7 +854,7 @@ def _place_labels(ax, pts, obstacles, radii, preset) -> list:
         px, py = trans.transform((x, v))
         w = text_width_pt(lab, fs) * ppt
         h = fs * 1.2 * ppt
-        gap_pt = 0.5 * r + 2.0
+        gap_pt = 0.6 * r + 2.5  # squares and triangles reach past the circle radius
         best = None
         for ring in (1.0, 1.8, 2.8, 4.0):
             for dx, dy in ((1, 0), (-1, 0), (1, 1), (1, -1), (-1, 1), (-1, -1), (0, 1), (0, -1)):
