@@ -627,6 +627,10 @@ def tests_section(result) -> Section:
     )
 
 
+# not a pytest test, despite the name (test modules import it)
+tests_section.__test__ = False  # type: ignore[attr-defined]
+
+
 def applicability_section(result) -> Section:
     """When a test is worth reading (Ioannidis & Trikalinos 2007; Sterne et al. 2011)."""
     word = {True: "yes", False: "NO", None: "cannot tell"}

@@ -70,11 +70,21 @@ def suggest_rating(result, ss: SmallStudyReading, causes: tuple[CauseReading, ..
         )
     elif ss.contour.verdict == "none filled":
         reasons.append("Trim and fill imputes no missing studies.")
+    elif ss.contour.verdict == "mixed":
+        reasons.append(
+            "Trim and fill's imputed studies fall partly in the non-significant region and "
+            "partly where they would have been significant."
+        )
     if A:
         reasons.append("The adjusted estimates lie nearer no effect.")
     elif ss.adjustments.moves == "little":
         reasons.append("The adjusted estimates hardly move.")
 
+    if ss.failed_rules and reliable:
+        reasons.append(
+            "Some conditions for a meaningful test are not met, so the test result weighs "
+            "less either way."
+        )
     if not reliable:
         why = f"only {k} studies (at least 10 advised)" if k < 10 else "the test could not be run"
         reasons.append(f"The tests cannot be relied on here: {why}.")

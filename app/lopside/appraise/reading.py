@@ -360,11 +360,12 @@ def adjustment_range(result, g: Glossary) -> AdjustmentRange:
     n = len(values)
     if unadj is None:
         moves = "not available"
-    elif little == n:
+    elif 2 * little > n:
+        # most methods hardly move it: one method's shift is not a pattern
         moves = "little"
-    elif towards and not away:
+    elif towards and not away and towards >= little:
         moves = "towards null"
-    elif away and not towards:
+    elif away and not towards and away >= little:
         moves = "away from null"
     else:
         moves = "mixed"

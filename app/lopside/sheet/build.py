@@ -185,6 +185,8 @@ def _header(result, st, date: str) -> list:
 
     sec = header_section(result, date=date)
     rows = dict(sec.rows)
+    if not result.review.details.appraiser:
+        rows["Appraiser"] = "_" * 28  # a line to write on: the sheet is printed
     out = [para(TITLE, st["title"]), para(rows.get("Review", ""), st["subtitle"])]
     left = [k for k in ("Question", "Outcome", "Effect measure") if k in rows]
     right = [k for k in ("Favours intervention", "Appraiser", "Date") if k in rows]
@@ -269,7 +271,9 @@ def _page2(result, appraisal, st) -> list:
     sg = subgroups_section(result)
     if sg is not None:
         out += _section(sg, st)
-    out += _section(power_section(result), st)
+    if result.power is not None:
+        # when not simulated, the funnel reading above already says so
+        out += _section(power_section(result), st)
     return out
 
 
