@@ -192,6 +192,16 @@ def _leave_one_out_estimates(data: StudyData, model_key: str, measure: str):
     return out
 
 
+def _flagged_rows(review: Review, problems) -> tuple[tuple[int, str], ...]:
+    """Rows with an entry problem, in table order, once each."""
+    seen: dict[int, str] = {}
+    for p in problems:
+        row = getattr(p, "row", None)
+        if isinstance(row, int) and 0 <= row < len(review.studies) and row not in seen:
+            seen[row] = review.studies[row].study or f"Row {row + 1}"
+    return tuple(sorted(seen.items()))
+
+
 def _safe(fn, *args, **kw):
     """Run one statistic; an unexpected numerical failure becomes NotComputable, not a crash."""
     try:
@@ -270,6 +280,7 @@ def analyse(
             ratio=measure in RATIO_MEASURES,
             published_model=review.details.published.model,
             loo=lambda key: _leave_one_out_estimates(data, key, measure),
+            flagged=_flagged_rows(review, problems),
         )
 
     tests = asymmetry.run_all(data, alpha=settings.test_alpha)

@@ -66,6 +66,27 @@ def _label(key: str) -> str:
     return MODEL_LABELS.get(key, key)
 
 
+def _named_in(model: str, text: str) -> bool:
+    """Does the paper's model text name this model? ("Mantel-Haenszel, fixed" -> MH)."""
+    t = text.lower().replace("–", "-")
+    if not t:
+        return False
+    key = model.removesuffix("+HKSJ")
+    words = {
+        "FE-IV": ("inverse variance", "inverse-variance", "iv,", "iv "),
+        "MH": ("mantel", "m-h", "mh"),
+        "Peto": ("peto",),
+        "DL": ("dersimonian", "d-l", "dl"),
+        "PM": ("paule", "mandel"),
+        "REML": ("reml", "restricted maximum"),
+    }.get(key, ())
+    hit = any(w in t for w in words)
+    hksj = any(w in t for w in ("hartung", "knapp", "hksj"))
+    if model.endswith("+HKSJ"):
+        return hit and hksj
+    return hit and not hksj
+
+
 def _rel(a: float, b: float, ratio: bool) -> float:
     if ratio:
         a, b = math.exp(a), math.exp(b)
@@ -80,6 +101,7 @@ def reconcile(
     ratio: bool,
     published_model: str = "",
     loo=None,
+    flagged: tuple[tuple[int, str], ...] = (),
 ) -> Reconciliation | NotComputable:
     """Compare pooled estimates with the published (estimate, lower, upper).
 
@@ -95,6 +117,8 @@ def reconcile(
         ``loo(model_key)`` returns a list of (row, label, leave-one-out estimate) for that
         model; used to find rows whose removal brings the estimate closest to the
         published one.
+    flagged : tuple of (row, label)
+        Rows the entry checks flagged; listed first when the result is not reproduced.
     """
     est, lo, hi = published
     if not all(math.isfinite(x) for x in published):
@@ -115,6 +139,12 @@ def reconcile(
         return NotComputable("no pooled estimate could be computed from the rows")
     comps.sort(key=lambda c: (c.worst, c.rel_diff_estimate))
     best = comps[0]
+    # Among models that all reproduce the paper, prefer the one the paper names.
+    named = [c for c in comps if c.worst <= AGREE_RELATIVE and _named_in(c.model, published_model)]
+    if best.worst <= AGREE_RELATIVE and named:
+        best = named[0]
+        comps.remove(best)
+        comps.insert(0, best)
     if best.worst <= AGREE_RELATIVE:
         verdict = "agrees"
         reading = (
@@ -136,6 +166,9 @@ def reconcile(
             "interval level, or whether the paper analysed a different set of studies."
         )
     suspicious: list[tuple[int, str, str]] = []
+    if verdict != "agrees":
+        for row, label in flagged:
+            suspicious.append((row, label, "the entry checks flagged this row"))
     if verdict != "agrees" and loo is not None:
         base = _rel(best.estimate, est, ratio)
         scored = []
@@ -144,7 +177,7 @@ def reconcile(
                 scored.append((_rel(e, est, ratio), row, label))
         scored.sort()
         for d, row, label in scored[:3]:
-            if d < base * 0.5:
+            if d < base * 0.5 and row not in {r for r, _, _ in suspicious}:
                 suspicious.append(
                     (
                         row,
