@@ -67,6 +67,8 @@ class AnalysisResult:
     failsafe: Any
     subgroups: dict[str, Any]
     meta_regression: dict[str, Any]
+    #: trim and fill under other estimator/model choices, keyed "L0, trim FE, fill RE" etc.
+    trim_fill_variants: dict[str, Any] = field(default_factory=dict)
     power: Any = None
     fingerprint: str = ""
     notes: tuple[str, ...] = field(default_factory=tuple)
@@ -300,6 +302,19 @@ def analyse(
         fill_model=settings.trimfill_fill_model,
         tau2_method=settings.tau2_method,
     )
+    # Trim and fill depends on its choices (Peters et al. 2007): show the other usual ones.
+    variants: dict[str, Any] = {}
+    for est in ("L0", "R0"):
+        for trim_m, fill_m in (("FE", "FE"), ("FE", "RE"), ("RE", "RE")):
+            variants[f"{est}, trim {trim_m}, fill {fill_m}"] = _safe(
+                adjust.trim_and_fill,
+                data,
+                estimator=est,
+                side=settings.trimfill_side,
+                trim_model=trim_m,
+                fill_model=fill_m,
+                tau2_method=settings.tau2_method,
+            )
     pet_peese = _safe(
         adjust.pet_peese, data, alpha=settings.petpeese_alpha, sided=settings.petpeese_sided
     )
@@ -353,6 +368,7 @@ def analyse(
         recommendation=recommendation,
         applicability=tuple(rules) if not isinstance(rules, NotComputable) else (),
         trim_fill=trim_fill,
+        trim_fill_variants=variants,
         pet_peese=pet_peese,
         limit=limit,
         selection=selection,

@@ -157,6 +157,20 @@ def to_json(result) -> dict[str, Any]:
             ci_low=_num(adj.ci.low) if isinstance(adj, PooledEstimate) else None,
             ci_high=_num(adj.ci.high) if isinstance(adj, PooledEstimate) else None,
         )
+    variants = {}
+    for name, v in result.trim_fill_variants.items():
+        if isinstance(v, NotComputable) or v is None:
+            variants[name] = {"not_computable": getattr(v, "reason", "not run")}
+            continue
+        adj = _get(v, "adjusted")
+        ok = isinstance(adj, PooledEstimate)
+        variants[name] = {
+            "k0": int(v.k0),
+            "side": v.side,
+            "estimate": _num(adj.estimate) if ok else None,
+            "ci_low": _num(adj.ci.low) if ok else None,
+            "ci_high": _num(adj.ci.high) if ok else None,
+        }
     rec = result.recommendation
     out: dict[str, Any] = {
         "lopside_version": __version__,
@@ -197,6 +211,7 @@ def to_json(result) -> dict[str, Any]:
         "recommended_test": None if isinstance(rec, NotComputable) or rec is None else plain(rec),
         "applicability": [plain(r) for r in result.applicability],
         "trim_fill": trim,
+        "trim_fill_variants": variants,
         "pet_peese": plain(result.pet_peese),
         "limit": plain(result.limit),
         "selection_model": plain(result.selection),
