@@ -77,7 +77,7 @@ def test_every_sample_prints_the_contract_keys(outputs):
 
 def test_numbers_agree_with_statsmodels(outputs):
     # statsmodels.stats.meta_analysis.combine_effects: FE and DL random effects
-    for name, d in outputs.items():
+    for d in outputs.values():
         y = np.array([s["y"] for s in d["studies"] if s["included"]])
         se = np.array([s["se"] for s in d["studies"] if s["included"]])
         ref = combine_effects(y, se**2, method_re="chi2")
