@@ -148,6 +148,9 @@ class FigurePanel(QWidget):
         if self._pending:
             self.redraw()
         if self.canvas is not None:
+            # the draw_idle queued by redraw() would draw the same figure a second time
+            if hasattr(self.canvas, "_draw_pending"):
+                self.canvas._draw_pending = False  # noqa: SLF001 - matplotlib's Qt canvas
             self.canvas.draw()
 
 
@@ -568,6 +571,8 @@ class BuiltFigurePanel(FigurePanel):
             self.redraw()
         c = getattr(self, "figure_canvas", None)
         if c is not None:
+            if hasattr(c, "_draw_pending"):
+                c._draw_pending = False  # noqa: SLF001 - matplotlib's Qt canvas
             c.draw()
 
 
