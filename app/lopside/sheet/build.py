@@ -98,8 +98,8 @@ def _canvas_class(footer: str, caution: str):
     class FooterCanvas(canvas.Canvas):
         def __init__(self, *args, **kwargs):
             # no stray Helvetica resource: the page's initial font is the embedded one
-            kwargs.setdefault("initialFontName", fonts.REGULAR)
-            kwargs.setdefault("lang", "en")
+            kwargs["initialFontName"] = kwargs.get("initialFontName") or fonts.REGULAR
+            kwargs["lang"] = kwargs.get("lang") or "en"
             super().__init__(*args, **kwargs)
             self._pages: list[dict] = []
 
@@ -205,6 +205,7 @@ def _header(result, st, date: str) -> list:
         TableStyle(
             [
                 ("VALIGN", (0, 0), (-1, -1), "TOP"),
+                ("FONTNAME", (0, 0), (-1, -1), fonts.REGULAR),
                 ("LEFTPADDING", (0, 0), (-1, -1), 2),
                 ("RIGHTPADDING", (0, 0), (-1, -1), 3),
                 ("TOPPADDING", (0, 0), (-1, -1), 1),
@@ -254,6 +255,7 @@ def _funnel_block(result, appraisal, st) -> list:
         TableStyle(
             [
                 ("VALIGN", (0, 0), (-1, -1), "TOP"),
+                ("FONTNAME", (0, 0), (-1, -1), fonts.REGULAR),
                 ("LEFTPADDING", (0, 0), (-1, -1), 0),
                 ("RIGHTPADDING", (0, 0), (-1, -1), 0),
                 ("TOPPADDING", (0, 0), (-1, -1), 0),
@@ -332,6 +334,7 @@ def _settings(result, st) -> list:
     t = Table(data, colWidths=[lw, vw, lw, vw], hAlign="LEFT")
     cmds = [
         ("VALIGN", (0, 0), (-1, -1), "TOP"),
+        ("FONTNAME", (0, 0), (-1, -1), fonts.REGULAR),
         ("LEFTPADDING", (0, 0), (-1, -1), 3),
         ("RIGHTPADDING", (0, 0), (-1, -1), 3),
         ("TOPPADDING", (0, 0), (-1, -1), 1.4),
@@ -431,6 +434,8 @@ def build_sheet(
         creator=f"Lopside {__version__}",
         keywords=f"data SHA-256 {result.fingerprint}",
         invariant=0 if timestamp else 1,
+        initialFontName=fonts.REGULAR,
+        lang="en",
     )
     canvas_cls = _canvas_class(_footer_text(result, date), CAUTION)
     doc.build(story, canvasmaker=canvas_cls)

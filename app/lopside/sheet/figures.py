@@ -37,6 +37,9 @@ def _to_flowable(fig, max_width: float, max_height: float):
         drawing = svg2rlg(io.BytesIO(figure_bytes(fig, "svg")))
         if drawing is None:
             raise ValueError("svglib returned nothing")
+        # the renderer starts every drawing in its default font; make that the embedded
+        # one so the PDF references no unembedded Helvetica
+        drawing.initialFontName = fonts.REGULAR
         if scale < 1.0:
             drawing.scale(scale, scale)
             drawing.width *= scale

@@ -132,6 +132,7 @@ def section_table(section, st: dict, width: float = FRAME_W, *, label_width: flo
         t = Table(data, colWidths=[label_width, width - label_width], hAlign="LEFT")
         cmds = [
             ("VALIGN", (0, 0), (-1, -1), "TOP"),
+            ("FONTNAME", (0, 0), (-1, -1), fonts.REGULAR),
             ("LEFTPADDING", (0, 0), (-1, -1), 3),
             ("RIGHTPADDING", (0, 0), (-1, -1), 3),
             ("TOPPADDING", (0, 0), (-1, -1), 1.6),
@@ -159,6 +160,7 @@ def section_table(section, st: dict, width: float = FRAME_W, *, label_width: flo
         t = Table(data, colWidths=col_w, hAlign="LEFT", repeatRows=1)
         cmds = [
             ("VALIGN", (0, 0), (-1, -1), "TOP"),
+            ("FONTNAME", (0, 0), (-1, -1), fonts.REGULAR),
             ("LEFTPADDING", (0, 0), (-1, -1), 3),
             ("RIGHTPADDING", (0, 0), (-1, -1), 3),
             ("TOPPADDING", (0, 0), (-1, -1), 1.6),
@@ -185,6 +187,7 @@ def boxed(flowables, width: float = FRAME_W, *, fill: str | None = None, edge: s
     t = Table([[flowables]], colWidths=[width], hAlign="LEFT")
     cmds = [
         ("BOX", (0, 0), (-1, -1), 0.8, colors.HexColor(edge)),
+        ("FONTNAME", (0, 0), (-1, -1), fonts.REGULAR),
         ("LEFTPADDING", (0, 0), (-1, -1), 6),
         ("RIGHTPADDING", (0, 0), (-1, -1), 6),
         ("TOPPADDING", (0, 0), (-1, -1), 4),
