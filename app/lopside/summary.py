@@ -574,7 +574,7 @@ def tests_section(result) -> Section:
     rec = result.recommendation
     rkey = recommended_key(result)
     alts = set(rec.alternatives) if is_ok(rec) else set()
-    header = ("Test", "Result", "p", "Studies", "Role")
+    header = ("Test", "Result", "p", "Studies", "Note")
     rows: list[tuple[str, ...]] = []
     emphasis = []
     other_measure = []
@@ -591,9 +591,14 @@ def tests_section(result) -> Section:
         elif key in alts:
             role = "also suited"
         if is_ok(t):
+            dropped = getattr(t, "dropped", ()) or ()
+            if dropped:
+                aside = f"{plural(len(dropped), 'study', 'studies')} set aside ({dropped[0][1]})"
+                role = f"{role}; {aside}" if role else aside
             rows.append((name, _test_result_text(t), fmt_p(t.pvalue), str(t.k_used), role))
         else:
-            rows.append((name, "not computed: " + why_not(t), "", "", role))
+            note = f"{role}: {why_not(t)}" if role else why_not(t)
+            rows.append((name, "not computed", "", "", note))
     notes = []
     if is_ok(rec):
         notes.append(f"Why this test: {rec.reason}.")
@@ -623,7 +628,7 @@ def tests_section(result) -> Section:
         header=header,
         notes=tuple(notes),
         emphasis=tuple(emphasis),
-        widths=(2.2, 1.6, 0.7, 0.7, 1.5),
+        widths=(1.9, 1.4, 0.6, 0.6, 2.6),
     )
 
 
