@@ -213,7 +213,10 @@ def fmt_se(x: Any) -> str:
     x = float(x)
     if x >= 100:
         return fmt_num(x, 0)
-    return _minus(f"{x:.3g}") if x < 1 else fmt_num(x, 2)
+    if x < 0.001:
+        return _minus(f"{x:.2g}")
+    # three decimals below 1 so that a column of SEs lines up ("0.100 to 0.180")
+    return fmt_num(x, 3) if x < 1 else fmt_num(x, 2)
 
 
 def fmt_stat(x: Any, digits: int = 2) -> str:

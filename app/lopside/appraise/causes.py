@@ -210,6 +210,13 @@ def _est_k(p, k: int, m: str) -> str:
     )
 
 
+def _rob_phrase(level: str) -> str:
+    """ "at high risk of bias", "with some concerns about bias"."""
+    if level == "some concerns":
+        return "with some concerns about bias"
+    return f"at {level} risk of bias"
+
+
 def _level_map(sg) -> dict[str, object]:
     return {lv.level: lv for lv in sg.levels}
 
@@ -317,7 +324,7 @@ def methods_evidence(result, ss: SmallStudyReading, g: Glossary) -> list[Evidenc
             out.append(
                 _ev(
                     d,
-                    f"Studies at {hi.level} risk of bias show {more} effect than those at low "
+                    f"Studies {_rob_phrase(hi.level)} show {more} effect than those at low "
                     f"risk: {_est_k(hr, hi.k, m)} against {_est_k(lr, low.k, m)}{dtxt}.",
                 )
             )
@@ -338,7 +345,7 @@ def methods_evidence(result, ss: SmallStudyReading, g: Glossary) -> list[Evidenc
                 _ev(
                     "for",
                     "The lean is confined to studies at higher risk of bias: Egger's slope "
-                    + ", ".join(f"{lev} risk {fmt_p_eq(p)}" for lev, p in p_hi if p is not None)
+                    + ", ".join(f"{lev} {fmt_p_eq(p)}" for lev, p in p_hi if p is not None)
                     + f"; low risk {fmt_p_eq(p_low)}.",
                 )
             )

@@ -16,7 +16,8 @@ Decision logic (methods.md section 7.4, made explicit here):
   non-significant region of the contour-enhanced funnel (C); the adjusted estimates lying
   nearer no effect (A).
 * Tests are unreliable when there are fewer than 10 studies or the test could not be run.
-  Then: any of T, C -> "suspected (mixed evidence)"; none -> "undetected".
+  Then: T, or C and A together -> "suspected (mixed evidence)"; otherwise "undetected"
+  (trim and fill is itself unreliable with few studies, so C alone is not enough).
 * With a reliable test and no T: C and A together -> "suspected (mixed evidence)";
   otherwise "undetected".
 * With T: "strongly suspected" when C also holds, no applicability rule fails, and no
@@ -88,7 +89,7 @@ def suggest_rating(result, ss: SmallStudyReading, causes: tuple[CauseReading, ..
     if not reliable:
         why = f"only {k} studies (at least 10 advised)" if k < 10 else "the test could not be run"
         reasons.append(f"The tests cannot be relied on here: {why}.")
-        if T or C:
+        if T or (C and A):
             suggested = SUSPECTED
             reasons.append(
                 "Some signals point to bias, but too weakly to rate it strongly suspected."
