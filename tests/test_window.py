@@ -443,3 +443,100 @@ def test_the_window_fits_1366_by_768(make_window):
     assert w.width() <= 1366 and w.height() <= 768
     assert w.minimumSizeHint().width() <= 1366
     assert w.minimumSizeHint().height() <= 740
+
+
+def test_print_the_funnel_to_a_pdf_printer(make_window, tmp_path):
+    from PySide6.QtPrintSupport import QPrinter
+
+    w = make_window(invented_review())
+    printer = QPrinter(QPrinter.HighResolution)
+    printer.setOutputFormat(QPrinter.PdfFormat)
+    out = tmp_path / "printed.pdf"
+    printer.setOutputFileName(str(out))
+    assert w.print_funnel(printer)
+    assert out.read_bytes().startswith(b"%PDF")
+
+
+def test_dropping_a_file_opens_it(make_window, qtbot, tmp_path):
+    from PySide6.QtCore import QMimeData, QPointF, QUrl
+    from PySide6.QtGui import QDropEvent
+
+    path = tmp_path / "dropped.lopside"
+    project_file.save(ci_review(), path)
+    w = make_window()
+    mime = QMimeData()
+    mime.setUrls([QUrl.fromLocalFile(str(path))])
+    event = QDropEvent(QPointF(50, 50), Qt.CopyAction, mime, Qt.LeftButton, Qt.NoModifier)
+    w.dropEvent(event)
+    qtbot.waitUntil(lambda: w.session.path == path, timeout=5000)
+    assert w.session.review == ci_review()
+    w._fill_recent()
+    assert any("dropped.lopside" in a.text() for a in w.recent_menu.actions())
+
+
+def test_every_control_has_an_accessible_name_or_a_label(make_window):
+    from PySide6.QtWidgets import (
+        QAbstractButton,
+        QAbstractSpinBox,
+        QComboBox,
+        QLabel,
+        QLineEdit,
+        QPlainTextEdit,
+        QTableView,
+    )
+
+    w = make_window(invented_review())
+    buddies = {lab.buddy() for lab in w.findChildren(QLabel) if lab.buddy() is not None}
+    unnamed = []
+    for cls in (
+        QComboBox,
+        QLineEdit,
+        QPlainTextEdit,
+        QAbstractSpinBox,
+        QTableView,
+        QAbstractButton,
+    ):
+        for c in w.findChildren(cls):
+            if isinstance(c, QLineEdit) and isinstance(c.parent(), (QComboBox, QAbstractSpinBox)):
+                continue  # the editor inside a combo/spin box is named by its owner
+            if c.objectName().startswith("qt_"):
+                continue  # Qt's own parts (table corner button, menu-bar overflow)
+            text = c.text() if isinstance(c, QAbstractButton) else ""
+            if not (c.accessibleName() or text.strip() or c in buddies):
+                unnamed.append(f"{type(c).__name__} {c.objectName()}")
+    assert unnamed == []
+
+
+def test_standard_shortcuts_are_set():
+    from PySide6.QtGui import QKeySequence
+
+    assert QKeySequence(QKeySequence.Undo).toString()  # the platform has a binding
+    import inspect
+
+    from lopside.window import main_window
+
+    src = inspect.getsource(main_window.MainWindow._build_menus)
+    for seq in (
+        "QKeySequence.New",
+        "QKeySequence.Open",
+        "QKeySequence.Save",
+        "QKeySequence.SaveAs",
+        "QKeySequence.Undo",
+        "QKeySequence.Redo",
+        "QKeySequence.Print",
+        "QKeySequence.Quit",
+        "QKeySequence.HelpContents",
+    ):
+        assert seq in src
+
+
+def test_hovering_a_point_names_the_study(make_window):
+    w = make_window(invented_review())
+    w.views.setCurrentWidget(w.funnel)
+    w.funnel.draw_now()
+    row = 2
+    px, py = w.funnel.display_point_of_row(row)
+    assert w.funnel.row_at(px, py) == row
+    assert w.funnel.row_at(px + 40, py + 40) != row or w.funnel.row_at(px + 40, py + 40) is None
+    text = w.funnel.describe_row(row)
+    assert text.startswith("Trial C 2003") and "SE" in text

@@ -324,6 +324,21 @@ class Session:
             result = replace(result, review=self._review)
         return result
 
+    def has_analysis(self) -> bool:
+        """True when :meth:`analyse` would return at once (the current state is cached)."""
+        return self._lookup(self.analysis_key()) is not None
+
+    def remember_analysis(self, key: tuple, result: Any) -> bool:
+        """Keep an analysis computed elsewhere (a worker) for ``key``.
+
+        ``result`` must be ``analyse(review, settings)`` for the review and settings
+        that ``key`` was taken from. Returns True when ``key`` is the current state.
+        """
+        if self._lookup(key) is None:
+            self._cache.insert(0, (key, result))
+            del self._cache[8:]
+        return _same_key(key, self.analysis_key())
+
     def store_power(self, key: tuple, power: Any) -> bool:
         """Keep a power result computed for ``key``; False (dropped) if the review moved on."""
         if not _same_key(key, self.analysis_key()):

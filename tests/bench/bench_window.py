@@ -107,8 +107,8 @@ sys.path.insert(0, {app!r})
 from lopside.window.app import make_application, create_window
 app = make_application()
 w = create_window(None, ask_recover=lambda items: None, ask_save_changes=lambda n: "discard")
+t_shown = time.time()  # create_window returns once the first frame has been processed
 app.processEvents()
-t_shown = time.time()
 from lopside.paths import sample_reviews
 sample = [p for p in sample_reviews() if p.suffix == ".lopside"][0]
 w.open_path(sample, remember=False, ask=False)

@@ -60,11 +60,15 @@ def make_application(argv: list[str] | None = None):
 def create_window(path: str | os.PathLike | None = None, **kwargs):
     """Build, show and start the main window; returns it (the event loop is the caller's)."""
     from PySide6.QtCore import QTimer
+    from PySide6.QtWidgets import QApplication
 
     from .main_window import MainWindow
 
     window = MainWindow(**kwargs)
     window.show()
+    # paint the first frame now; the file, the analysis (scipy) and the first figure
+    # (matplotlib) come after, from the event loop
+    QApplication.processEvents()
     QTimer.singleShot(0, lambda: window.finish_startup(str(path) if path else None))
     return window
 

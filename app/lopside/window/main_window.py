@@ -45,7 +45,7 @@ from .power_panel import PowerPanel
 from .sections import SectionsPanel
 from .study_panel import StudyPanel
 from .undo import EditStack
-from .workers import SheetWorker
+from .workers import AnalysisWorker, SheetWorker
 
 DEBOUNCE_MS = 50
 OPEN_FILTER = (
@@ -249,7 +249,9 @@ class MainWindow(QMainWindow):
         self._timer = QTimer(self)
         self._timer.setSingleShot(True)
         self._timer.setInterval(DEBOUNCE_MS)
-        self._timer.timeout.connect(self.update_views)
+        self._timer.timeout.connect(self.refresh_soon)
+        self.analysis_worker = None
+        self._rerun = False
         self.session.add_listener(changed=self._session_changed)
         self.views.currentChanged.connect(self._view_shown)
         self.studies.selection_changed.connect(self.funnel.set_selected_rows)
@@ -488,6 +490,58 @@ class MainWindow(QMainWindow):
     def _measure_chosen(self, measure: str) -> None:
         if measure != self.session.review.measure:
             self.stack.push_edit(ed.SetDetail("measure", measure))
+
+    def refresh_soon(self) -> None:
+        """After the debounce: show a cached analysis at once, else analyse in a worker.
+
+        The analysis of a large review can take longer than a keystroke; running it off
+        the GUI thread keeps typing responsive. Results for a state the user has already
+        left are kept in the session's cache but not shown.
+        """
+        if self.session.has_analysis():
+            self.update_views()
+            return
+        if self.analysis_worker is not None and self.analysis_worker.isRunning():
+            self._rerun = True
+            return
+        s = self.session
+        w = AnalysisWorker(s.review, s.settings, s.analysis_key(), self)
+        w.finished_with.connect(self._analysis_done)
+        w.failed.connect(self._analysis_failed)
+        self.analysis_worker = w
+        self._rerun = False
+        self.status_label.setText("Analysing\u2026")
+        w.start()
+
+    def _analysis_done(self, result, key) -> None:
+        current = self.session.remember_analysis(key, result)
+        if self._rerun or not current:
+            self._rerun = False
+            self.refresh_soon()
+            return
+        self.update_views()
+
+    def _analysis_failed(self, message: str, key) -> None:
+        if self._rerun:
+            self._rerun = False
+            self.refresh_soon()
+            return
+        self.update_views()  # the synchronous path reports the error in the usual way
+
+    def wait_for_analysis(self, timeout_ms: int = 30000) -> None:
+        """Block until a running analysis has finished and been shown (tests, exports)."""
+        from PySide6.QtCore import QDeadlineTimer
+
+        deadline = QDeadlineTimer(timeout_ms)
+        while self._timer.isActive() or (
+            self.analysis_worker is not None and self.analysis_worker.isRunning()
+        ):
+            if deadline.hasExpired():
+                break
+            QApplication.processEvents()
+            if self.analysis_worker is not None:
+                self.analysis_worker.wait(20)
+        QApplication.processEvents()
 
     def update_views(self) -> None:
         """Analyse (cached) and refresh the visible views; the rest are marked stale."""
@@ -856,6 +910,8 @@ class MainWindow(QMainWindow):
             event.ignore()
             return
         self.power.shutdown()
+        if self.analysis_worker is not None and self.analysis_worker.isRunning():
+            self.analysis_worker.wait(30000)
         if self.sheet_worker is not None and self.sheet_worker.isRunning():
             self.sheet_worker.wait(15000)
         self._save_prefs()

@@ -13,6 +13,32 @@ from pathlib import Path
 from PySide6.QtCore import QThread, Signal
 
 
+class AnalysisWorker(QThread):
+    """Run ``analyse(review, settings)`` off the GUI thread (typing stays responsive)."""
+
+    finished_with = Signal(object, object)
+    failed = Signal(str, object)
+
+    def __init__(self, review, settings, key, parent=None) -> None:
+        super().__init__(parent)
+        self.review = review
+        self.settings = settings
+        self.key = key
+
+    def run(self) -> None:
+        try:
+            from ..analysis import analyse
+
+            result = analyse(self.review, self.settings)
+        except ModuleNotFoundError as exc:
+            self.failed.emit(f"missing part: {exc.name}", self.key)
+            return
+        except Exception as exc:  # noqa: BLE001 - reported to the user, never a crash
+            self.failed.emit(f"{type(exc).__name__}: {exc}", self.key)
+            return
+        self.finished_with.emit(result, self.key)
+
+
 class PowerWorker(QThread):
     """Simulate the power of the recommended test for a fixed review and settings.
 
