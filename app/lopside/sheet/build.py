@@ -33,7 +33,6 @@ from ..summary import (
     header_section,
     heterogeneity_section,
     pooled_section,
-    power_section,
     rating_section,
     reconciliation_section,
     sensitivity_section,
@@ -273,9 +272,7 @@ def _page2(result, appraisal, st) -> list:
     sg = subgroups_section(result)
     if sg is not None:
         out += _section(sg, st)
-    if result.power is not None:
-        # when not simulated, the funnel reading above already says so
-        out += _section(power_section(result), st)
+    # power is read out beside the funnel (simulated or not), so no separate block here
     return out
 
 

@@ -9,6 +9,7 @@ A figure that cannot be drawn for these data becomes a short message, never an e
 from __future__ import annotations
 
 import io
+import math
 from dataclasses import replace
 
 from . import fonts
@@ -112,7 +113,10 @@ def forest_flowables(result, max_width: float, max_height: float) -> list:
     n_groups = len(order) if (len(order) > 1 or order[0]) else 0
     per_page = FOREST_ROWS_PER_PAGE - (2 * n_groups if n_groups else 0)
     per_page = max(per_page, 20)
-    chunks = [rows[i : i + per_page] for i in range(0, len(rows), per_page)]
+    # as many pages as needed, with the studies shared evenly between them
+    n_pages = math.ceil(len(rows) / per_page)
+    size = math.ceil(len(rows) / n_pages)
+    chunks = [rows[i : i + size] for i in range(0, len(rows), size)]
     subtotals = dict(pooled.subtotals)
     out = []
     total = len(rows)
