@@ -84,7 +84,7 @@ def fixed_effect(y, v, *, confidence_level: float = 0.95) -> PooledEstimate | No
         pvalue=_norm_sf2(stat),
         confidence_level=confidence_level,
         k=int(y.size),
-        weights=tuple(float(x) for x in 100.0 * w / sw),
+        weights=tuple((100.0 * w / sw).tolist()),
     )
 
 
@@ -177,6 +177,21 @@ def _restricted_loglik_grid(y: np.ndarray, v: np.ndarray, grid: np.ndarray) -> n
     return -0.5 * (np.log(vt).sum(axis=1) + np.log(sw) + rss)
 
 
+#: the safeguard grid of tau2_reml in units of its scale (0 is added in front)
+_GRID_UNIT = np.logspace(-4, 2, 49)
+
+
+def _grid_scale(y: np.ndarray, v: np.ndarray, start: float) -> float:
+    """max(var(y), median(v), start, 1e-12): the same numbers as np.var and np.median."""
+    k = y.size
+    d = y - y.sum() / k
+    var = float((d * d).sum() / k)
+    s = np.sort(v)
+    h = k // 2
+    med = float(s[h]) if k % 2 else float((s[h - 1] + s[h]) / 2.0)
+    return max(var, med, start, 1e-12)
+
+
 def tau2_reml(y, v, *, max_iter: int = _MAX_ITER) -> Tau2Estimate:
     """REML: the global maximiser of the restricted likelihood on tau^2 >= 0.
 
@@ -190,53 +205,67 @@ def tau2_reml(y, v, *, max_iter: int = _MAX_ITER) -> Tau2Estimate:
     if k < 2:
         return Tau2Estimate("REML", 0.0, note="one study: no between-study variance")
     start = tau2_dl(y, v).tau2
-    est = _reml_scoring(y, v, start, max_iter)
-    scale = max(float(np.var(y)), float(np.median(v)), start, 1e-12)
-    grid = np.concatenate(([0.0], scale * np.logspace(-4, 2, 49)))
+    est, ll_est = _reml_scoring(y, v, start, max_iter)
+    grid = np.concatenate(([0.0], _grid_scale(y, v, start) * _GRID_UNIT))
     lls = _restricted_loglik_grid(y, v, grid)
     best = int(np.argmax(lls))
-    if lls[best] > restricted_loglik(y, v, est.tau2) + 1e-10:
-        est = _reml_scoring(y, v, float(grid[best]), max_iter)
-        if restricted_loglik(y, v, est.tau2) < lls[best]:
+    if lls[best] > ll_est + 1e-10:
+        est, ll_est = _reml_scoring(y, v, float(grid[best]), max_iter)
+        if ll_est < lls[best]:
             est = Tau2Estimate("REML", float(grid[best]), est.converged, est.iterations, est.note)
     return est
 
 
-def _reml_scoring(y: np.ndarray, v: np.ndarray, tau2: float, max_iter: int) -> Tau2Estimate:
-    ll = restricted_loglik(y, v, tau2)
+def _reml_point(y: np.ndarray, v: np.ndarray, tau2: float):
+    """Restricted log-likelihood at tau2 and what the next scoring step needs from it.
+
+    The same expressions as :func:`restricted_loglik`, evaluated once per point.
+    """
+    vt = v + tau2
+    w = 1.0 / vt
+    sw = w.sum()
+    mu = (w * y).sum() / sw
+    r2 = (y - mu) ** 2
+    ll = float(-0.5 * (np.log(vt).sum() + math.log(sw) + (w * r2).sum()))
+    return ll, w, sw, r2
+
+
+def _reml_scoring(
+    y: np.ndarray, v: np.ndarray, tau2: float, max_iter: int
+) -> tuple[Tau2Estimate, float]:
+    """Fisher scoring from ``tau2``; returns the estimate and its restricted log-likelihood."""
+    ll, w, sw, r2 = _reml_point(y, v, tau2)
     for it in range(1, max_iter + 1):
-        w = 1.0 / (v + tau2)
-        sw = w.sum()
-        mu = (w * y).sum() / sw
-        r = y - mu
         # P-matrix quantities for the REML score and information (diagonal W, 1-column X)
         # score = -1/2 tr(P) + 1/2 r' W W r ; info = 1/2 tr(P P)
         w2 = w**2
-        trp = sw - w2.sum() / sw
-        score = -0.5 * trp + 0.5 * (w2 * r**2).sum()
-        trpp = (w2).sum() - 2.0 * (w**3).sum() / sw + (w2.sum() / sw) ** 2
+        s2 = w2.sum()
+        trp = sw - s2 / sw
+        score = -0.5 * trp + 0.5 * (w2 * r2).sum()
+        trpp = s2 - 2.0 * (w**3).sum() / sw + (s2 / sw) ** 2
         info = 0.5 * trpp
         if info <= 0:
             break
         step = score / info
         new = max(0.0, tau2 + step)
-        new_ll = restricted_loglik(y, v, new)
+        new_ll, w, sw, r2 = _reml_point(y, v, new)
         halvings = 0
         while new_ll < ll - 1e-12 and halvings < 60:
             step /= 2.0
             new = max(0.0, tau2 + step)
-            new_ll = restricted_loglik(y, v, new)
+            new_ll, w, sw, r2 = _reml_point(y, v, new)
             halvings += 1
         if abs(new - tau2) < _TOL * max(1.0, tau2):
-            return Tau2Estimate("REML", new, iterations=it)
+            return Tau2Estimate("REML", new, iterations=it), new_ll
         tau2, ll = new, new_ll
-    return Tau2Estimate(
+    est = Tau2Estimate(
         "REML",
         tau2,
         converged=False,
         iterations=max_iter,
         note=f"REML did not converge within {max_iter} iterations; last value shown",
     )
+    return est, ll
 
 
 def estimate_tau2(y, v, method: str) -> Tau2Estimate:
@@ -319,7 +348,7 @@ def random_effects(
         hksj=bool(hksj and k >= 2),
         k=int(k),
         pi=pi,
-        weights=tuple(float(x) for x in 100.0 * w / sw),
+        weights=tuple((100.0 * w / sw).tolist()),
         converged=t2.converged,
         note=note,
     )
