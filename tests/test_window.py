@@ -540,3 +540,63 @@ def test_hovering_a_point_names_the_study(make_window):
     assert w.funnel.row_at(px + 40, py + 40) != row or w.funnel.row_at(px + 40, py + 40) is None
     text = w.funnel.describe_row(row)
     assert text.startswith("Trial C 2003") and "SE" in text
+
+
+def test_typing_into_the_table_with_the_keyboard_only(make_window, qtbot):
+    from PySide6.QtWidgets import QLineEdit
+
+    w = make_window(ci_review())
+    table = w.studies.table
+    with qtbot.waitActive(w):  # keyboard events need the active window (ENGINEERING-NOTES)
+        w.activateWindow()
+    table.setFocus()
+    w.studies.select_row(1, col=w.studies.model.column_of("estimate"))
+
+    def type_into_current_cell(text):
+        qtbot.keyClicks(table, text[0])  # any key starts editing the current cell
+        qtbot.wait(20)  # let the editor take the focus, as it would between keystrokes
+        editor = table.viewport().findChild(QLineEdit)
+        assert editor is not None and editor.isVisible()
+        qtbot.keyClicks(editor, text[1:])  # the editor has the focus from here on
+        assert editor.text() == text
+        qtbot.keyClick(editor, Qt.Key_Return)
+        qtbot.wait(20)  # Qt commits the editor's data from a queued call
+
+    type_into_current_cell("0.66")
+    assert w.session.review.studies[1].estimate == 0.66
+    # Tab moves to the next cell; typing replaces its value
+    qtbot.keyClick(table, Qt.Key_Tab)
+    assert table.currentIndex().column() == w.studies.model.column_of("lower")
+    type_into_current_cell("0.4")
+    assert w.session.review.studies[1].lower == 0.4
+    assert w.stack.count() == 2
+
+
+def test_ctrl_v_of_one_value_fills_the_current_cell(make_window):
+    from PySide6.QtGui import QGuiApplication
+
+    w = make_window(ci_review())
+    QGuiApplication.clipboard().setText("0,52")
+    w.studies.select_row(4, col=w.studies.model.column_of("estimate"))
+    w.paste_clipboard()
+    assert w.session.review.studies[4].estimate == 0.52
+    QGuiApplication.clipboard().setText(FOREST_TEXT)
+    w.paste_clipboard()
+    assert w.paste_dialog.isVisible() and len(w.paste_dialog.rows()) == 5
+    w.paste_dialog.reject()
+
+
+def test_delete_key_blanks_the_selected_cells_in_one_step(make_window, qtbot):
+    w = make_window(ci_review())
+    table = w.studies.table
+    m = w.studies.model
+    from PySide6.QtCore import QItemSelection, QItemSelectionModel
+
+    sel = QItemSelection(m.index(0, m.column_of("lower")), m.index(2, m.column_of("upper")))
+    table.selectionModel().select(sel, QItemSelectionModel.ClearAndSelect)
+    qtbot.keyClick(table, Qt.Key_Delete)
+    assert all(r.lower is None and r.upper is None for r in w.session.review.studies[:3])
+    assert w.session.review.studies[0].estimate == 0.80  # outside the selection: kept
+    assert w.stack.count() == 1
+    w.stack.undo()
+    assert w.session.review == ci_review()

@@ -70,10 +70,16 @@ class StudyTableView(QTableView):
         if event.matches(QKeySequence.Paste):
             self.paste_requested.emit()
             return
-        if event.key() in (Qt.Key_Delete, Qt.Key_Backspace) and self.state() != self.EditingState:
+        if (
+            event.key() in (Qt.Key_Delete, Qt.Key_Backspace)
+            and self.state() != QAbstractItemView.State.EditingState
+        ):
             self.delete_cells_requested.emit()
             return
-        if event.key() in (Qt.Key_Return, Qt.Key_Enter) and self.state() != self.EditingState:
+        if (
+            event.key() in (Qt.Key_Return, Qt.Key_Enter)
+            and self.state() != QAbstractItemView.State.EditingState
+        ):
             idx = self.currentIndex()
             if idx.isValid() and (idx.flags() & Qt.ItemIsEditable):
                 self.edit(idx)
