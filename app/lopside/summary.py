@@ -317,7 +317,7 @@ def header_section(result, *, date: str = "") -> Section:
     m = result.measure
     measure = f"{MEASURE_NAMES.get(m, m)} ({m})"
     if m in RATIO_MEASURES:
-        measure += "; analysed on the log scale, shown on the natural scale"
+        measure += ", analysed on the log scale"
     rows = [
         ("Review", d.title or "(untitled review)"),
         ("Question", d.question or "(not stated)"),
@@ -451,7 +451,9 @@ def reconciliation_section(result) -> Section:
         "no model close": "not reproduced",
     }
     rows.append(("Verdict", verdict.get(rec.verdict, rec.verdict)))
-    rows.append(("Reading", rec.reading))
+    if rec.verdict != "agrees":
+        # when the rows reproduce the paper, the verdict and closest model say it all
+        rows.append(("Reading", rec.reading))
     for _row, label, why in rec.suspicious_rows:
         rows.append(("Re-check", f"{label}: {why}"))
     return Section("reconciliation", "Check against the published result", tuple(rows))
@@ -514,8 +516,10 @@ def pooled_section(result) -> Section:
         notes.append("Prediction interval: needs at least 3 studies.")
     notes.insert(
         0,
-        "Estimates on the natural scale; p tests no effect. The prediction interval is "
-        "where the effect in a new, similar study would probably lie.",
+        "Estimates on the natural scale; p tests no effect. DerSimonian-Laird, Paule-Mandel "
+        "and REML are ways of estimating τ²; the Hartung-Knapp interval allows for the "
+        "uncertainty in τ². The prediction interval is where the effect in a new, similar "
+        "study would probably lie.",
     )
     return Section(
         "pooled",
@@ -547,8 +551,9 @@ def heterogeneity_section(result) -> Section:
         ("τ²", t_text),
     )
     notes = (
-        "I² is the share of the variation between study results that is beyond chance; "
-        "τ² is the between-study variance on the analysis scale"
+        "Cochran's Q tests whether the studies differ more than chance allows; I² is the "
+        "share of the variation between study results that is beyond chance; τ² is the "
+        "between-study variance on the analysis scale"
         + (" (log scale)" if result.measure in RATIO_MEASURES else "")
         + ".",
     )
@@ -847,6 +852,9 @@ def subgroups_section(result) -> Section | None:
             notes.append(f"{title} in a meta-regression with the SE: {mr.se_answer}")
         else:
             notes.append(f"{title} meta-regression: {why_not(mr)}")
+    notes.insert(
+        0, "Egger p: Egger's test within the group; Difference: do the groups' effects differ?"
+    )
     return Section(
         "subgroups",
         "Within subgroups",

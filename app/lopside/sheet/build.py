@@ -21,7 +21,7 @@ from __future__ import annotations
 
 import datetime as _dt
 import io
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 from .. import CAUTION, __version__
 from ..summary import (
@@ -226,7 +226,14 @@ def _page1(result, appraisal, st, date: str) -> list:
     out += _section(reconciliation_section(result), st)
     out += _section(pooled_section(result), st)
     out += _section(heterogeneity_section(result), st)
-    out += _section(sensitivity_section(result), st, label_width=150)
+    sens = sensitivity_section(result)
+    # fail-safe N is not recommended (Cochrane Handbook 5.1, 10.4.4.3): the window and the
+    # text show it with its caution; the printed sheet leaves it out to keep its room
+    sens = replace(sens, rows=tuple(r for r in sens.rows if not r[0].startswith("Fail-safe")))
+    out += _section(sens, st, label_width=150)
+    sg = subgroups_section(result)
+    if sg is not None:
+        out += _section(sg, st)
     return out
 
 
@@ -269,24 +276,17 @@ def _page2(result, appraisal, st) -> list:
     out += _section(tests_section(result), st)
     out += _section(applicability_section(result), st)
     out += _section(adjustments_section(result), st)
-    sg = subgroups_section(result)
-    if sg is not None:
-        out += _section(sg, st)
     # power is read out beside the funnel (simulated or not), so no separate block here
     return out
 
 
 def _causes_for_print(sec):
     """Tick boxes where the appraiser has not judged a cause yet (the sheet is printed)."""
-    from dataclasses import replace
-
     rows = tuple((t, ev, CHECK_BOXES if j == NOT_JUDGED else j, n) for t, ev, j, n in sec.rows)
     return replace(sec, rows=rows, widths=(1.3, 5.7, 1.0, 1.4))
 
 
 def _rating_for_print(sec, appraisal):
-    from dataclasses import replace
-
     from ..model.review import DOMAIN_RATINGS
 
     if appraisal.rating.override:
