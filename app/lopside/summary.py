@@ -994,7 +994,15 @@ def rating_section(appraisal) -> Section:
         rows.append(("Appraiser's reason", r.override_reason or "(no reason given)"))
     else:
         rows.append(("Appraiser's rating", "not recorded: confirm or override the suggestion"))
-    return Section("rating", "Publication bias: suggested rating", tuple(rows), notes=(r.note,))
+    # the rating that stands is the one a renderer should make stand out
+    final = 2 if r.override else 0
+    return Section(
+        "rating",
+        "Publication bias: suggested rating",
+        tuple(rows),
+        notes=(r.note,),
+        emphasis=(final,),
+    )
 
 
 def appraisal_sections(appraisal) -> tuple[Section, ...]:
