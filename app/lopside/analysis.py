@@ -285,9 +285,14 @@ def analyse(
             flagged=_flagged_rows(review, problems),
         )
 
-    tests = asymmetry.run_all(data, alpha=settings.test_alpha)
     tau2 = random.tau2 if isinstance(random, PooledEstimate) else 0.0
     recommendation = _safe(applicability.recommend, data, tau2)
+    # the recommended test runs with the options it was recommended with (e.g. the arcsine
+    # test with random effects when tau^2 is large: Sterne et al. 2011)
+    options = {}
+    if recommendation and not isinstance(recommendation, NotComputable):
+        options[recommendation.key] = recommendation.kwargs()
+    tests = asymmetry.run_all(data, alpha=settings.test_alpha, options=options)
     if isinstance(het, NotComputable):
         rules = _safe(applicability.applicability, data, None, None)
     else:
