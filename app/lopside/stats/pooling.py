@@ -449,3 +449,604 @@ def heterogeneity(
         tau2_ci=tau2_q_profile(y, v, confidence_level=confidence_level),
         confidence_level=confidence_level,
     )
+
+
+# --------------------------------------------------------------------------------------
+# Many subsets of the same studies at once
+#
+# Leave-one-out and cumulative analyses pool k subsets of one set of studies. The batched
+# functions take the studies once and a boolean ``mask`` with one row per subset and give,
+# row by row, what the scalar functions give for y[mask[b]], v[mask[b]] (to rounding; the
+# same iterations are run). Work proceeds in blocks of rows small enough to stay in the
+# processor cache, so memory stays bounded for thousands of studies. A row whose REML
+# estimate cannot be certified cheaply (see _reml_certify) is handed to tau2_reml itself.
+
+#: elements of a (subsets x studies) block worked on at once (fits in the cache)
+_BLOCK = 1 << 14
+_EPS = float(np.finfo(float).eps)
+
+
+@dataclass(frozen=True, slots=True, eq=False)
+class Tau2Batch:
+    """tau^2 of many subsets: one entry per row of the mask.
+
+    ``iterations`` counts the scoring steps (REML) or solver steps (PM, our own safeguarded
+    Newton solver rather than Brent's, so the count differs from :func:`tau2_pm`'s).
+    """
+
+    method: str
+    tau2: np.ndarray
+    converged: np.ndarray
+    iterations: np.ndarray
+    notes: tuple[str, ...]
+
+    def estimate(self, b: int) -> Tau2Estimate:
+        """Row ``b`` as the scalar functions report it."""
+        return Tau2Estimate(
+            self.method,
+            float(self.tau2[b]),
+            bool(self.converged[b]),
+            int(self.iterations[b]),
+            self.notes[b],
+        )
+
+
+def _batch_arrays(y, v, mask) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    y, v = _as_arrays(y, v)
+    mask = np.asarray(mask, dtype=bool)
+    if mask.ndim != 2 or mask.shape[1] != y.size or v.shape != y.shape:
+        raise ValueError("mask must have one column per study and y, v one entry per study")
+    return y, v, mask
+
+
+def _blocks(mask: np.ndarray, rows: np.ndarray | None = None):
+    """(row indices, column indices, float mask block) over blocks of rows.
+
+    Only the columns used by some row of the block are kept, so that prefixes (cumulative
+    analysis) cost about half of the full square.
+    """
+    if rows is None:
+        rows = np.arange(mask.shape[0])
+    step = max(1, _BLOCK // max(1, mask.shape[1]))
+    for start in range(0, rows.size, step):
+        r = rows[start : start + step]
+        m = mask[r]
+        used = m.any(axis=0)
+        cols = np.flatnonzero(used) if not used.all() else np.arange(mask.shape[1])
+        yield r, cols, m[:, cols].astype(float)
+
+
+def _fe_parts(yb: np.ndarray, vb: np.ndarray, mb: np.ndarray):
+    """Inverse-variance sums of each row: sum w, mean, Cochran's Q, sum w^2."""
+    w = mb / vb
+    sw = w.sum(axis=1)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        mu = (w * yb).sum(axis=1) / sw
+    r = yb - mu[:, None]
+    q = (w * (r * r)).sum(axis=1)
+    return sw, mu, q, (w * w).sum(axis=1)
+
+
+def cochran_q_batch(y, v, mask) -> np.ndarray:
+    """Cochran's Q of each subset (:func:`cochran_q` row by row; nan for an empty row)."""
+    y, v, mask = _batch_arrays(y, v, mask)
+    out = np.full(mask.shape[0], np.nan)
+    for r, c, mb in _blocks(mask):
+        out[r] = _fe_parts(y[c], v[c], mb)[2]
+    return out
+
+
+def _one_study_notes(n: np.ndarray) -> list[str]:
+    return ["one study: no between-study variance" if x < 2 else "" for x in n]
+
+
+def tau2_dl_batch(y, v, mask) -> Tau2Batch:
+    """:func:`tau2_dl` of each subset."""
+    y, v, mask = _batch_arrays(y, v, mask)
+    n = mask.sum(axis=1)
+    tau2 = np.zeros(mask.shape[0])
+    for r, c, mb in _blocks(mask):
+        sw, _, q, s2 = _fe_parts(y[c], v[c], mb)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            cc = sw - s2 / sw
+            t = np.maximum(0.0, (q - (n[r] - 1)) / cc)
+        tau2[r] = np.where((n[r] >= 2) & (cc > 0), t, 0.0)
+    return Tau2Batch(
+        "DL", tau2, np.ones(n.size, bool), np.zeros(n.size, int), tuple(_one_study_notes(n))
+    )
+
+
+def _reml_eval(yb: np.ndarray, vb: np.ndarray, mb: np.ndarray, t: np.ndarray):
+    """Restricted log-likelihood, score and information of each row at its own tau^2.
+
+    ``yb`` must be centred (the likelihood does not change when y is shifted): the sums
+    of squares are then formed from matrix products without losing digits.
+    """
+    vt = vb + t[:, None]
+    w = mb / vt
+    w2 = w * w
+    z = np.stack([np.ones_like(yb), yb, yb * yb], axis=1)
+    sw, swy, swy2 = (w @ z).T
+    s2, s2y, s2y2 = (w2 @ z).T
+    mu = swy / sw
+    rss = swy2 - mu * swy
+    s2r2 = s2y2 - 2.0 * mu * s2y + mu * mu * s2
+    lg = np.log(vt, out=vt)
+    ll = -0.5 * (np.einsum("ij,ij->i", mb, lg) + np.log(sw) + rss)
+    score = -0.5 * (sw - s2 / sw) + 0.5 * s2r2
+    info = 0.5 * (s2 - 2.0 * np.einsum("ij,ij->i", w2, w) / sw + (s2 / sw) ** 2)
+    return ll, score, info
+
+
+def _reml_scoring_block(yb, vb, mb, start, max_iter):
+    """_reml_scoring for every row of a block: the same steps, rows leaving as they converge.
+
+    Returns tau^2, its log-likelihood, the iteration count and a flag per row; rows that
+    did not converge (or met a non-positive information) are flagged for the scalar code.
+    """
+    nrow = start.size
+    tau2 = start.copy()
+    ll_out = np.full(nrow, np.nan)
+    iters = np.zeros(nrow, int)
+    ok = np.zeros(nrow, bool)
+    act = np.arange(nrow)
+    t = start.copy()
+    ll, score, info = _reml_eval(yb, vb, mb, t)
+    for it in range(1, max_iter + 1):
+        good = info > 0
+        if not good.all():  # the scalar loop stops here and reports non-convergence
+            act, t, ll, score, info = act[good], t[good], ll[good], score[good], info[good]
+        if act.size == 0:
+            break
+        m = mb[act]
+        step = score / info
+        new = np.maximum(0.0, t + step)
+        new_ll, new_score, new_info = _reml_eval(yb, vb, m, new)
+        down = np.flatnonzero(new_ll < ll - 1e-12)
+        halvings = 0
+        while down.size and halvings < 60:
+            step[down] /= 2.0
+            new[down] = np.maximum(0.0, t[down] + step[down])
+            a, b, c = _reml_eval(yb, vb, m[down], new[down])
+            new_ll[down], new_score[down], new_info[down] = a, b, c
+            down = down[a < ll[down] - 1e-12]
+            halvings += 1
+        done = np.abs(new - t) < _TOL * np.maximum(1.0, t)
+        fin = act[done]
+        tau2[fin], ll_out[fin], iters[fin], ok[fin] = new[done], new_ll[done], it, True
+        keep = ~done
+        act, t, ll = act[keep], new[keep], new_ll[keep]
+        score, info = new_score[keep], new_info[keep]
+    return tau2, ll_out, iters, ok
+
+
+def _mask_kind(mask: np.ndarray) -> str:
+    """Shape of a mask: "prefix" (leading runs), "loo" (one left out per row) or "general"."""
+    if mask.shape[1] > 1 and not (mask[:, 1:] & ~mask[:, :-1]).any():
+        return "prefix"
+    if (mask.sum(axis=1) == mask.shape[1] - 1).all():
+        return "loo"
+    return "general"
+
+
+def _masked_sums(mask: np.ndarray, kind: str, f: np.ndarray) -> np.ndarray:
+    """Sum over each row's studies of f (studies x points) -> (rows x points)."""
+    if kind == "prefix":
+        c = np.cumsum(f, axis=0)
+        n = mask.sum(axis=1)
+        out = c[np.maximum(n - 1, 0)]
+        out[n == 0] = 0.0
+        return out
+    if kind == "loo":
+        left_out = np.argmin(mask, axis=1)
+        return f.sum(axis=0)[None, :] - f[left_out]
+    out = np.empty((mask.shape[0], f.shape[1]))
+    for r, c, mb in _blocks(mask):
+        out[r] = mb @ f[c]
+    return out
+
+
+def _reml_certify(y, v, mask, rows, tau2, scale):
+    """Rows whose scoring result the tau2_reml grid would not overturn.
+
+    tau2_reml compares the scoring result with the restricted likelihood on the grid
+    {0} U scale * _GRID_UNIT and restarts when a grid value is higher by more than 1e-10.
+    Evaluating that grid for every row costs 50 passes over the data; instead, on an
+    interval [a, b] of a grid shared by all rows,
+
+        l(t) <= -1/2 [ sum log(v_i + a) + log sum 1/(v_i + b) + RSS(b) ],
+
+    because the three terms are monotone in t (RSS(t) = min_mu sum (y_i - mu)^2/(v_i + t)
+    decreases), so most grid values are dismissed at once from shared sums. The few left
+    (near the maximum) are evaluated exactly. Rounding is covered by margins of a few
+    units in the last place of the magnitudes summed, in the direction of not certifying.
+    Returns a boolean array over ``rows``: False means "let tau2_reml decide".
+    """
+    m = mask[rows]
+    n = m.sum(axis=1)
+    grid = scale[:, None] * _GRID_UNIT[None, :]
+    # shared grid: 0, then geometric with ratio 1.1 around all the rows' grids
+    lo, hi = float(grid.min()) / 1.2, float(grid.max()) * 1.2
+    npts = int(math.ceil(math.log(hi / lo) / math.log(1.1))) + 1
+    shared = np.concatenate(([0.0], np.geomspace(lo, hi, npts)))
+    c = float(np.median(y))
+    yc = y - c  # centred: the one-pass RSS below then loses no digits
+    vt = v[:, None] + shared[None, :]
+    lg = np.log(vt)
+    w = 1.0 / vt
+    wy = w * yc[:, None]
+    kind = _mask_kind(m)
+    s_log = _masked_sums(m, kind, lg)
+    s_abs = _masked_sums(m, kind, np.abs(lg))
+    s_w = _masked_sums(m, kind, w)
+    s_wy = _masked_sums(m, kind, wy)
+    s_wy2 = _masked_sums(m, kind, wy * yc[:, None])
+    with np.errstate(invalid="ignore", divide="ignore"):
+        between = s_wy * s_wy / s_w
+    rss = np.maximum(s_wy2 - between, 0.0)
+    rows_i = np.arange(rows.size)[:, None]
+    full = np.concatenate([np.zeros((rows.size, 1)), grid], axis=1)
+    i_lo = np.searchsorted(shared, full * (1 - 1e-12), side="right") - 1
+    i_hi = np.minimum(np.searchsorted(shared, full * (1 + 1e-12), side="left"), shared.size - 1)
+    lsw = np.log(s_w[rows_i, i_hi])
+    bound = -0.5 * (s_log[rows_i, i_lo] + lsw + rss[rows_i, i_hi])
+    mag_bound = s_abs[rows_i, i_lo] + np.abs(lsw) + s_wy2[rows_i, i_hi] + between[rows_i, i_hi]
+    # sequential sums (cumsum, matrix products) err by up to n ulps of the magnitudes
+    bound += 4.0 * (n[:, None] + 16) * _EPS * (mag_bound + 1.0)
+    # pairwise sums (those of tau2_reml, and _reml_eval) err by about log2(n) ulps
+    pair = 4.0 * (np.log2(np.maximum(n, 2)) + 4.0) * _EPS
+    ll, ll_mag = _reml_exact(y, v, m, tau2)
+    limit = ll + 1e-10 - pair * ll_mag
+    doubt = ~(bound <= limit[:, None])
+    certified = np.ones(rows.size, bool)
+    bi, gj = np.nonzero(doubt)
+    if bi.size:
+        t = full[bi, gj]
+        exact, mag = _reml_exact(y, v, m[bi], t)
+        bad = ~(exact + pair[bi] * mag <= limit[bi])
+        certified[np.unique(bi[bad])] = False
+    return certified
+
+
+def _reml_exact(y, v, m, t):
+    """Restricted log-likelihood (pairwise sums, as tau2_reml) and its magnitude per row."""
+    ll = np.empty(t.size)
+    mag = np.empty(t.size)
+    step = max(1, _BLOCK // max(1, y.size))
+    for s in range(0, t.size, step):
+        mb = m[s : s + step].astype(float)
+        vt = v + t[s : s + step, None]
+        lg = np.log(vt)
+        w = mb / vt
+        sw = w.sum(axis=1)
+        mu = (w * y).sum(axis=1) / sw
+        rss = (w * (y - mu[:, None]) ** 2).sum(axis=1)
+        ll[s : s + step] = -0.5 * ((mb * lg).sum(axis=1) + np.log(sw) + rss)
+        mag[s : s + step] = (mb * np.abs(lg)).sum(axis=1) + np.abs(np.log(sw)) + rss
+    return ll, mag
+
+
+def _grid_scale_batch(y, v, mask, rows, start):
+    """_grid_scale of each row (the same max of variance, median and start)."""
+    out = np.empty(rows.size)
+    order = np.argsort(v, kind="mergesort")
+    vs = v[order]
+    for pos in range(0, rows.size, max(1, _BLOCK // max(1, y.size))):
+        r = rows[pos : pos + max(1, _BLOCK // max(1, y.size))]
+        mb = mask[r].astype(float)
+        n = mb.sum(axis=1)
+        mean = (mb * y).sum(axis=1) / n
+        d = y - mean[:, None]
+        var = (mb * d * d).sum(axis=1) / n
+        cs = np.cumsum(mb[:, order], axis=1)
+        h = (n // 2).astype(int)
+        upper = (cs < (h + 1)[:, None]).sum(axis=1)
+        lower = (cs < h[:, None]).sum(axis=1)
+        odd = n.astype(int) % 2 == 1
+        med = np.where(odd, vs[upper], (vs[lower] + vs[upper]) / 2.0)
+        sel = slice(pos, pos + r.size)
+        out[sel] = np.maximum(np.maximum(np.maximum(var, med), start[sel]), 1e-12)
+    return out
+
+
+def tau2_reml_batch(y, v, mask, *, max_iter: int = _MAX_ITER) -> Tau2Batch:
+    """:func:`tau2_reml` of each subset (the global maximiser, with the same safeguard).
+
+    Parameters
+    ----------
+    y, v : array_like
+        Effects and within-study variances of all studies (k).
+    mask : array_like of bool, shape (B, k)
+        Row b selects the studies of subset b.
+    max_iter : int
+        Cap on the scoring iterations, as in :func:`tau2_reml`.
+
+    Returns
+    -------
+    Tau2Batch
+    """
+    y, v, mask = _batch_arrays(y, v, mask)
+    nsub = mask.shape[0]
+    n = mask.sum(axis=1)
+    dl = tau2_dl_batch(y, v, mask).tau2
+    tau2 = np.zeros(nsub)
+    iters = np.zeros(nsub, int)
+    ok = np.zeros(nsub, bool)
+    rows = np.flatnonzero(n >= 2)
+    yc = y - float(np.median(y)) if y.size else y
+    for r, c, mb in _blocks(mask, rows):
+        tau2[r], _, iters[r], ok[r] = _reml_scoring_block(yc[c], v[c], mb, dl[r], max_iter)
+    good = rows[ok[rows]]
+    if good.size:
+        scale = _grid_scale_batch(y, v, mask, good, dl[good])
+        ok[good] = _reml_certify(y, v, mask, good, tau2[good], scale)
+    converged = np.ones(nsub, bool)
+    notes = _one_study_notes(n)
+    for b in rows[~ok[rows]]:
+        est = tau2_reml(y[mask[b]], v[mask[b]], max_iter=max_iter)
+        tau2[b], converged[b], iters[b], notes[b] = (
+            est.tau2,
+            est.converged,
+            est.iterations,
+            est.note,
+        )
+    return Tau2Batch("REML", tau2, converged, iters, tuple(notes))
+
+
+def _pm_eval(yb, vb, mb, t, target):
+    """Generalised Q minus its target, and its derivative in tau^2, per row."""
+    w = mb / (vb + t[:, None])
+    sw = w.sum(axis=1)
+    mu = (w * yb).sum(axis=1) / sw
+    r2 = (yb - mu[:, None]) ** 2
+    wr2 = w * r2
+    return wr2.sum(axis=1) - target, -(w * wr2).sum(axis=1)
+
+
+def _pm_block(yb, vb, mb, n):
+    """Paule-Mandel root of each row: bracket as _solve_decreasing does, then Newton steps
+    kept inside the bracket (bisection when a step would leave it)."""
+    nrow = n.size
+    target = n - 1.0
+    root = np.zeros(nrow)
+    iters = np.zeros(nrow, int)
+    ok = np.ones(nrow, bool)
+    f0, _ = _pm_eval(yb, vb, mb, np.zeros(nrow), target)
+    act = np.flatnonzero(f0 > 0)  # the others have their root at the boundary 0
+    hi = np.ones(act.size)
+    doublings = 0
+    while act.size:
+        fh, _ = _pm_eval(yb, vb, mb[act], hi, target[act])
+        up = fh > 0
+        if not up.any() or doublings > 200:
+            break
+        hi[up] *= 2.0
+        doublings += 1
+    if doublings > 200:  # the scalar search gives up here too; let tau2_pm report it
+        ok[act] = False
+        return root, iters, ok
+    lo = np.zeros(act.size)
+    x = np.zeros(act.size)
+    for it in range(1, 201):
+        f, d = _pm_eval(yb, vb, mb[act], x, target[act])
+        pos = f > 0
+        lo = np.where(pos, x, lo)
+        hi = np.where(pos, hi, x)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            new = x - f / d
+        inside = (new > lo) & (new < hi)
+        new = np.where(inside, new, 0.5 * (lo + hi))
+        done = (np.abs(new - x) <= 1e-14 * np.maximum(1.0, x)) | (f == 0)
+        root[act[done]] = np.where(f[done] == 0, x[done], new[done])
+        iters[act[done]] = it
+        keep = ~done
+        act, x, lo, hi = act[keep], new[keep], lo[keep], hi[keep]
+        if not act.size:
+            break
+    ok[act] = False
+    return root, iters, ok
+
+
+def tau2_pm_batch(y, v, mask) -> Tau2Batch:
+    """:func:`tau2_pm` of each subset (the same root, found by a vectorised solver)."""
+    y, v, mask = _batch_arrays(y, v, mask)
+    n = mask.sum(axis=1)
+    tau2 = np.zeros(n.size)
+    iters = np.zeros(n.size, int)
+    ok = np.ones(n.size, bool)
+    rows = np.flatnonzero(n >= 2)
+    for r, c, mb in _blocks(mask, rows):
+        tau2[r], iters[r], ok[r] = _pm_block(y[c], v[c], mb, n[r])
+    converged = np.ones(n.size, bool)
+    notes = _one_study_notes(n)
+    for b in rows[~ok[rows]]:
+        est = tau2_pm(y[mask[b]], v[mask[b]])
+        tau2[b], converged[b], iters[b], notes[b] = (
+            est.tau2,
+            est.converged,
+            est.iterations,
+            est.note,
+        )
+    return Tau2Batch("PM", tau2, converged, iters, tuple(notes))
+
+
+def tau2_batch(y, v, mask, method: str) -> Tau2Batch:
+    """:func:`estimate_tau2` of each subset."""
+    if method == "DL":
+        return tau2_dl_batch(y, v, mask)
+    if method == "PM":
+        return tau2_pm_batch(y, v, mask)
+    if method == "REML":
+        return tau2_reml_batch(y, v, mask)
+    raise ValueError(f"unknown tau^2 method {method!r}; use one of {TAU2_METHODS}")
+
+
+def _pool_rows(y, v, mask, tau2: np.ndarray):
+    """Estimate, sum of weights, HKSJ q numerator and percent weights of each row."""
+    nsub = mask.shape[0]
+    est = np.full(nsub, np.nan)
+    sw = np.zeros(nsub)
+    rq = np.zeros(nsub)
+    weights: list[tuple[float, ...]] = [()] * nsub
+    for r, c, mb in _blocks(mask):
+        w = mb / (v[c] + tau2[r, None])
+        s = w.sum(axis=1)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            e = (w * y[c]).sum(axis=1) / s
+            pct = 100.0 * w / s[:, None]
+        res = y[c] - e[:, None]
+        rq[r] = (w * res * res).sum(axis=1)
+        est[r], sw[r] = e, s
+        used = mb > 0
+        flat = pct[used].tolist()  # one conversion per block; rows are slices of it
+        ends = np.cumsum(used.sum(axis=1)).tolist()
+        start = 0
+        for b, end in zip(r.tolist(), ends):
+            weights[b] = tuple(flat[start:end])
+            start = end
+    return est, sw, rq, weights
+
+
+def fixed_effect_batch(
+    y, v, mask, *, confidence_level: float = 0.95
+) -> tuple[PooledEstimate | NotComputable, ...]:
+    """:func:`fixed_effect` of each subset (row of ``mask``), in row order.
+
+    Parameters
+    ----------
+    y, v : array_like
+        Effects and within-study variances of all k studies.
+    mask : array_like of bool, shape (B, k)
+        Row b selects the studies of subset b.
+    confidence_level : float
+
+    Returns
+    -------
+    tuple of PooledEstimate or NotComputable
+    """
+    from scipy.special import ndtr
+
+    y, v, mask = _batch_arrays(y, v, mask)
+    n = mask.sum(axis=1)
+    est, sw, _, weights = _pool_rows(y, v, mask, np.zeros(mask.shape[0]))
+    with np.errstate(invalid="ignore", divide="ignore"):
+        se = 1.0 / np.sqrt(sw)
+        stat = est / se
+    p = 2.0 * ndtr(-np.abs(stat))
+    z = _norm_ppf(0.5 + confidence_level / 2.0)
+    out: list[PooledEstimate | NotComputable] = []
+    for b in range(n.size):
+        if n[b] == 0:
+            out.append(NotComputable("no study has a usable effect and standard error"))
+            continue
+        e, s = float(est[b]), float(se[b])
+        out.append(
+            PooledEstimate(
+                model="FE-IV",
+                estimate=e,
+                se=s,
+                ci=ConfidenceInterval(e - z * s, e + z * s),
+                statistic=float(stat[b]),
+                pvalue=float(p[b]),
+                confidence_level=confidence_level,
+                k=int(n[b]),
+                weights=weights[b],
+            )
+        )
+    return tuple(out)
+
+
+def random_effects_batch(
+    y,
+    v,
+    mask,
+    *,
+    method: str = "REML",
+    hksj: bool = False,
+    confidence_level: float = 0.95,
+    tau2=None,
+) -> tuple[PooledEstimate | NotComputable, ...]:
+    """:func:`random_effects` of each subset (row of ``mask``), in row order.
+
+    Parameters
+    ----------
+    y, v : array_like
+        Effects and within-study variances of all k studies.
+    mask : array_like of bool, shape (B, k)
+        Row b selects the studies of subset b.
+    method : {"DL", "PM", "REML"}
+    hksj : bool
+        Modified Hartung-Knapp-Sidik-Jonkman interval, as in :func:`random_effects`.
+    confidence_level : float
+    tau2 : float or array_like, optional
+        Pool at these between-study variances (one, or one per row) instead of estimating.
+
+    Returns
+    -------
+    tuple of PooledEstimate or NotComputable
+    """
+    from scipy.special import ndtr, stdtr, stdtrit
+
+    y, v, mask = _batch_arrays(y, v, mask)
+    nsub = mask.shape[0]
+    n = mask.sum(axis=1)
+    if tau2 is None:
+        t2 = tau2_batch(y, v, mask, method)
+        tau2_arr, converged, notes = t2.tau2, t2.converged, t2.notes
+    else:
+        tau2_arr = np.broadcast_to(np.asarray(tau2, dtype=float), (nsub,)).copy()
+        converged, notes = np.ones(nsub, bool), ("",) * nsub
+    est, sw, rq, weights = _pool_rows(y, v, mask, tau2_arr)
+    alpha_half = 0.5 + confidence_level / 2.0
+    use_t = hksj & (n >= 2)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        se = 1.0 / np.sqrt(sw)
+        df = (n - 1).astype(float)
+        q = rq / df
+        se_h = np.sqrt(np.maximum(1.0, q) / sw)
+        crit_t = stdtrit(df, alpha_half)
+        stat_t = est / se_h
+        p_t = 2.0 * stdtr(df, -np.abs(stat_t))
+        stat_z = est / se
+        p_z = 2.0 * ndtr(-np.abs(stat_z))
+        tq = stdtrit(n - 2.0, alpha_half)
+        half = tq * np.sqrt(tau2_arr + se**2)
+    z = _norm_ppf(alpha_half)
+    out: list[PooledEstimate | NotComputable] = []
+    for b in range(nsub):
+        k = int(n[b])
+        if k == 0:
+            out.append(NotComputable("no study has a usable effect and standard error"))
+            continue
+        e = float(est[b])
+        note = notes[b]
+        if use_t[b]:
+            s_out, crit, stat, p = float(se_h[b]), float(crit_t[b]), float(stat_t[b]), p_t[b]
+            dfb: float | None = float(df[b])
+        else:
+            if hksj:
+                note = (note + "; " if note else "") + "HKSJ needs two or more studies: z interval"
+            s_out, crit, stat, p, dfb = float(se[b]), z, float(stat_z[b]), p_z[b], None
+        pi = None
+        if k >= 3:
+            pi = ConfidenceInterval(e - float(half[b]), e + float(half[b]))
+        out.append(
+            PooledEstimate(
+                model=method,
+                estimate=e,
+                se=s_out,
+                ci=ConfidenceInterval(e - crit * s_out, e + crit * s_out),
+                statistic=stat,
+                pvalue=float(p),
+                confidence_level=confidence_level,
+                tau2=float(tau2_arr[b]),
+                df=dfb,
+                hksj=bool(use_t[b]),
+                k=k,
+                pi=pi,
+                weights=weights[b],
+                converged=bool(converged[b]),
+                note=note,
+            )
+        )
+    return tuple(out)

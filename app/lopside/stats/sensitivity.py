@@ -16,7 +16,14 @@ from dataclasses import dataclass
 import numpy as np
 
 from .data import StudyData
-from .pooling import TAU2_METHODS, cochran_q, fixed_effect, random_effects
+from .pooling import (
+    TAU2_METHODS,
+    cochran_q_batch,
+    fixed_effect,
+    fixed_effect_batch,
+    random_effects,
+    random_effects_batch,
+)
 from .results import NotComputable, PooledEstimate
 
 FAIL_SAFE_CAUTION = (
@@ -28,11 +35,9 @@ FAIL_SAFE_CAUTION = (
 )
 
 
-def _i2(y: np.ndarray, v: np.ndarray) -> float | NotComputable:
-    k = y.size
+def _i2_from_q(q: float, k: int) -> float | NotComputable:
     if k < 2:
         return NotComputable("I² needs at least two studies")
-    q = cochran_q(y, v)
     return max(0.0, (q - (k - 1)) / q) * 100.0 if q > 0 else 0.0
 
 
@@ -101,23 +106,25 @@ def leave_one_out(
     if k < 3:
         return NotComputable("leave-one-out needs at least three studies")
     labels = _labels(data)
-    rows = []
-    for i in range(k):
-        keep = np.arange(k) != i
-        fe = fixed_effect(y[keep], v[keep], confidence_level=confidence_level)
-        re = random_effects(
-            y[keep], v[keep], method=tau2_method, hksj=hksj, confidence_level=confidence_level
+    # all k subsets pooled at once (row i leaves study i out); same numbers as pooling
+    # each subset on its own, see tests/test_pooling_batch.py
+    keep = ~np.eye(k, dtype=bool)
+    fixed = fixed_effect_batch(y, v, keep, confidence_level=confidence_level)
+    random = random_effects_batch(
+        y, v, keep, method=tau2_method, hksj=hksj, confidence_level=confidence_level
+    )
+    q = cochran_q_batch(y, v, keep)
+    rows = [
+        LeaveOneOutRow(
+            omitted=labels[i],
+            index=i,
+            fixed=fixed[i],
+            random=random[i],
+            tau2=random[i].tau2,
+            i2=_i2_from_q(float(q[i]), k - 1),
         )
-        rows.append(
-            LeaveOneOutRow(
-                omitted=labels[i],
-                index=i,
-                fixed=fe,
-                random=re,
-                tau2=re.tau2,
-                i2=_i2(y[keep], v[keep]),
-            )
-        )
+        for i in range(k)
+    ]
     return LeaveOneOutResult(
         rows=tuple(rows),
         full_fixed=fixed_effect(y, v, confidence_level=confidence_level),
@@ -182,9 +189,15 @@ def cumulative(
         return NotComputable("a cumulative meta-analysis needs at least two studies")
     labels = _labels(data)
     order = np.argsort(se, kind="mergesort")
+    # row m - 1 holds the m most precise studies (a prefix in precision order)
+    ys, vs = y[order], v[order]
+    prefix = np.tri(k, dtype=bool)
+    fixed = fixed_effect_batch(ys, vs, prefix, confidence_level=confidence_level)
+    random = random_effects_batch(
+        ys, vs, prefix, method=tau2_method, hksj=hksj, confidence_level=confidence_level
+    )
     steps = []
     for m in range(1, k + 1):
-        idx = order[:m]
         j = int(order[m - 1])
         steps.append(
             CumulativeStep(
@@ -192,10 +205,8 @@ def cumulative(
                 index=j,
                 k=m,
                 se_added=float(se[j]),
-                fixed=fixed_effect(y[idx], v[idx], confidence_level=confidence_level),
-                random=random_effects(
-                    y[idx], v[idx], method=tau2_method, hksj=hksj, confidence_level=confidence_level
-                ),
+                fixed=fixed[m - 1],
+                random=random[m - 1],
             )
         )
     return CumulativeResult(
