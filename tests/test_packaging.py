@@ -174,11 +174,11 @@ def test_sdist_has_sample_reviews_and_resources(tmp_path):
 @pytest.mark.parametrize(
     "platform, env, expected",
     [
-        ("win32", {"LOCALAPPDATA": r"C:\Users\ann\AppData\Local"}, "Local/Lopside"),
-        ("win32", {"APPDATA": r"C:\Users\ann\AppData\Roaming"}, "Roaming/Lopside"),
-        ("linux", {"HOME": "/home/ann", "XDG_CACHE_HOME": "/tmp/c"}, "/tmp/c/Lopside"),
-        ("linux", {"HOME": "/home/ann"}, "/home/ann/.cache/Lopside"),
-        ("darwin", {"HOME": "/Users/ann"}, "/Users/ann/Library/Caches/Lopside"),
+        ("win32", {"LOCALAPPDATA": r"C:\Users\ann\AppData\Local"}, "Local/Lopside/Lopside/cache"),
+        ("win32", {"APPDATA": r"C:\Users\ann\AppData\Roaming"}, "Roaming/Lopside/Lopside/cache"),
+        ("linux", {"HOME": "/home/ann", "XDG_CACHE_HOME": "/tmp/c"}, "/tmp/c/Lopside/Lopside"),
+        ("linux", {"HOME": "/home/ann"}, "/home/ann/.cache/Lopside/Lopside"),
+        ("darwin", {"HOME": "/Users/ann"}, "/Users/ann/Library/Caches/Lopside/Lopside"),
     ],
 )
 def test_user_cache_dir_per_platform(platform, env, expected):
@@ -186,6 +186,42 @@ def test_user_cache_dir_per_platform(platform, env, expected):
 
     got = user_cache_dir(env, platform).as_posix().replace("\\", "/")
     assert got.endswith(expected), got
+
+
+def test_user_cache_dir_is_qt_cache_location(tmp_path):
+    """The folder worked out without Qt is the one Qt itself reports (checked on this
+    platform; the Windows and macOS rows above follow Qt's documented layout)."""
+    code = textwrap.dedent(
+        """
+        from PySide6.QtCore import QCoreApplication, QStandardPaths
+        from lopside.frozen import APP_NAME, ORG_NAME, user_cache_dir
+        app = QCoreApplication([])
+        QCoreApplication.setOrganizationName(ORG_NAME)
+        QCoreApplication.setApplicationName(APP_NAME)
+        qt = QStandardPaths.writableLocation(QStandardPaths.CacheLocation)
+        print(qt == str(user_cache_dir()), qt, user_cache_dir())
+        """
+    )
+    env = {
+        **os.environ,
+        "PYTHONPATH": str(APP),
+        "HOME": str(tmp_path),
+        "QT_QPA_PLATFORM": "offscreen",
+    }
+    env.pop("XDG_CACHE_HOME", None)
+    env.pop("LOCALAPPDATA", None)
+    proc = subprocess.run(
+        [sys.executable, "-c", code], capture_output=True, text=True, env=env, timeout=60
+    )
+    assert proc.returncode == 0, proc.stderr
+    assert proc.stdout.startswith("True "), proc.stdout
+
+
+def test_window_names_match_the_cache_folder_names():
+    from lopside.frozen import APP_NAME, ORG_NAME
+    from lopside.window import messages
+
+    assert (messages.ORG_NAME, messages.APP_NAME) == (ORG_NAME, APP_NAME)
 
 
 def test_prepare_is_a_no_op_outside_a_bundle():
@@ -223,16 +259,17 @@ def test_prepare_sets_matplotlib_cache_and_logs_when_stdout_is_none(tmp_path):
         """
     )
     env = {k: v for k, v in os.environ.items() if k != "MPLCONFIGDIR"}
-    env.update(PYTHONPATH=str(APP), XDG_CACHE_HOME=str(tmp_path), LOCALAPPDATA=str(tmp_path))
+    env.update(PYTHONPATH=str(APP), XDG_CACHE_HOME=str(tmp_path))
     proc = subprocess.run(
         [sys.executable, "-c", code], capture_output=True, text=True, env=env, timeout=120
     )
     assert proc.returncode == 0
     assert proc.stdout == "" and proc.stderr == ""  # nothing reached the (absent) console
-    log = (tmp_path / "Lopside" / "logs" / "lopside.log").read_text(encoding="utf-8")
+    cache = tmp_path / "Lopside" / "Lopside"  # Qt's CacheLocation for this app on Linux
+    log = (cache / "logs" / "lopside.log").read_text(encoding="utf-8")
     assert "printed after prepare" in log
     assert "logged after prepare" in log
     assert "warned after prepare" in log
-    mpl_dir = tmp_path / "Lopside" / "matplotlib"
+    mpl_dir = cache / "matplotlib"
     assert f"configdir {mpl_dir}" in log
     assert mpl_dir.is_dir()

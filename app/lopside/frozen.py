@@ -19,8 +19,10 @@ import os
 import sys
 from pathlib import Path
 
-#: Name of the per-user folders (cache and log) of the bundle.
-APP_FOLDER = "Lopside"
+#: Organisation and application names, as the window gives them to Qt (window/messages.py),
+#: so this cache folder is the one Qt calls CacheLocation: one folder tree for IT to know.
+ORG_NAME = "Lopside"
+APP_NAME = "Lopside"
 #: The log file is started afresh (previous one kept as ``.1``) once it passes this size.
 LOG_MAX_BYTES = 1_000_000
 
@@ -31,11 +33,13 @@ def is_frozen() -> bool:
 
 
 def user_cache_dir(environ: dict[str, str] | None = None, platform: str | None = None) -> Path:
-    """Per-user folder for caches that can be deleted at any time.
+    """Per-user folder for caches and the log; safe to delete at any time.
 
-    Windows: ``%LOCALAPPDATA%\\Lopside`` (local, not roaming: a font cache should not follow
-    the user between PCs). macOS: ``~/Library/Caches/Lopside``. Elsewhere:
-    ``$XDG_CACHE_HOME/Lopside`` or ``~/.cache/Lopside``.
+    The same folder as Qt's ``QStandardPaths.CacheLocation`` for this app, worked out
+    without importing Qt. Windows: ``%LOCALAPPDATA%\\Lopside\\Lopside\\cache`` (local, not
+    roaming: a font cache should not follow the user between PCs). macOS:
+    ``~/Library/Caches/Lopside/Lopside``. Elsewhere: ``$XDG_CACHE_HOME/Lopside/Lopside`` or
+    ``~/.cache/Lopside/Lopside``.
     """
     env = os.environ if environ is None else environ
     plat = sys.platform if platform is None else platform
@@ -43,12 +47,11 @@ def user_cache_dir(environ: dict[str, str] | None = None, platform: str | None =
     if plat.startswith("win"):
         base = env.get("LOCALAPPDATA") or env.get("APPDATA")
         root = Path(base) if base else home / "AppData" / "Local"
-    elif plat == "darwin":
-        root = home / "Library" / "Caches"
-    else:
-        xdg = env.get("XDG_CACHE_HOME")
-        root = Path(xdg) if xdg else home / ".cache"
-    return root / APP_FOLDER
+        return root / ORG_NAME / APP_NAME / "cache"
+    if plat == "darwin":
+        return home / "Library" / "Caches" / ORG_NAME / APP_NAME
+    xdg = env.get("XDG_CACHE_HOME")
+    return (Path(xdg) if xdg else home / ".cache") / ORG_NAME / APP_NAME
 
 
 def _set_mplconfigdir(cache: Path) -> Path | None:
