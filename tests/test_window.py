@@ -600,3 +600,16 @@ def test_delete_key_blanks_the_selected_cells_in_one_step(make_window, qtbot):
     assert w.stack.count() == 1
     w.stack.undo()
     assert w.session.review == ci_review()
+
+
+def test_autosave_follows_a_change_and_goes_when_nothing_is_unsaved(make_window, qtbot):
+    w = make_window(ci_review())
+    saver = w.autosaver
+    assert saver.timer.interval() == 3000  # "a few seconds after a change"
+    saver.timer.setInterval(100)  # the same path, sooner
+    w.stack.push_edit(ed.SetCell(0, "study", "Typed, not saved"))
+    qtbot.waitUntil(saver.file.exists, timeout=5000)
+    kept, _ = project_file.load(saver.file)
+    assert kept.studies[0].study == "Typed, not saved"
+    w.stack.undo()  # back to the state that was opened: nothing unsaved
+    qtbot.waitUntil(lambda: not saver.file.exists(), timeout=5000)

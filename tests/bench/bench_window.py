@@ -60,7 +60,12 @@ def _pct(values, q):
     return values[min(len(values) - 1, int(round(q * (len(values) - 1))))]
 
 
-def edit_latency(k: int, n_edits: int, view: str) -> list[float]:
+def edit_latency(k: int, n_edits: int, view: str, typo: bool = False) -> list[float]:
+    """Times of ``n_edits`` edits of row 1's estimate (ms).
+
+    A typical edit keeps the estimate inside its printed CI; ``typo=True`` types values
+    outside it (the row check then flags the row), a path the engine handles more slowly.
+    """
     from lopside import edits as ed
     from lopside.session import Session
     from lopside.window.app import make_application
@@ -82,12 +87,16 @@ def edit_latency(k: int, n_edits: int, view: str) -> list[float]:
     if view == "funnel":
         w.funnel.draw_now()
     times = []
-    base = w.session.review.studies[0].estimate
+    row = w.session.review.studies[0]
     for i in range(n_edits + 3):
-        value = f"{base + 0.01 * ((i % 7) + 1):.2f}"  # a new value every time
+        if typo:
+            value = f"{row.lower * (0.5 + 0.01 * (i % 7)):.3f}"
+        else:  # a new value every time, inside the interval
+            value = f"{row.estimate * (0.97 + 0.01 * (i % 7)):.3f}"
         t0 = time.perf_counter()
         w.stack.push_edit(ed.SetCell(0, "estimate", value))
         w.session.break_merge()
+        w._timer.stop()  # noqa: SLF001 - the debounce fires now instead of in 50 ms
         w.update_views()
         if view == "funnel":
             w.funnel.draw_now()
@@ -170,6 +179,21 @@ def main(argv=None) -> int:
         for view in ("funnel", "tests"):
             t = edit_latency(k, args.edits, view)
             print(f"{k:>8} {view:>7} {statistics.median(t):8.1f} {_pct(t, 0.9):8.1f} {max(t):8.1f}")
+    t = edit_latency(30, max(5, args.edits // 4), "tests", typo=True)
+    print(
+        f"{30:>8} {'tests':>7} {statistics.median(t):8.1f} {_pct(t, 0.9):8.1f} "
+        f"{max(t):8.1f}   <- typo: estimate outside its CI"
+    )
+    from lopside.analysis import analyse
+
+    for k in (30, 200):
+        review = invented_review(k)
+        analyse(review)
+        t0 = time.perf_counter()
+        for _ in range(3):
+            analyse(review)
+        ms = (time.perf_counter() - t0) / 3 * 1000
+        print(f"  (the core's analyse() alone, {k} studies: {ms:.1f} ms)")
 
     print("\nCold start to window shown (ms, median of", args.repeats, "runs)")
     env = dict(os.environ)

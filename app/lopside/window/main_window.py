@@ -555,6 +555,11 @@ class MainWindow(QMainWindow):
         except Exception as exc:  # noqa: BLE001 - shown to the user; the window stays up
             result = None
             self.analysis_error = M.ANALYSIS_FAILED.format(error=f"{type(exc).__name__}: {exc}")
+        if result is not None and result is self.result:
+            # nothing changed since the last update (e.g. the debounce after a cached
+            # state): only a view shown since then may need catching up
+            self._refresh_panel(self.views.currentWidget())
+            return
         self.result = result
         self.studies.show_result(result)
         self._stale = set(self.view_panels)
