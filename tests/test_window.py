@@ -152,7 +152,7 @@ def test_an_invalid_entry_shows_its_problem_and_keeps_the_text(make_window, qtbo
     assert m.data(idx, Qt.BackgroundRole).color() == ERROR_CELL
     assert "0,47 to" in m.data(idx, Qt.ToolTipRole)
     items = [w.studies.problems.item(i).text() for i in range(w.studies.problems.count())]
-    assert any("row 3" in t and "lower" in t for t in items), items
+    assert any("Row 3" in t and "lower" in t for t in items), items
     # fixing it clears the problem
     m.setData(idx, "0.47", Qt.EditRole)
     w.update_views()

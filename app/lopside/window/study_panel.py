@@ -269,11 +269,13 @@ class StudyPanel(QWidget):
         for r in sorted(probs):
             for p in probs[r]:
                 label = studies[r].study or f"Row {r + 1}"
-                where = f"row {r + 1} ({label})" + (
+                where = f"Row {r + 1} ({label})" + (
                     f", {p.field.replace('_', ' ')}" if p.field else ""
                 )
                 mark = "\u2716" if p.severity == "error" else "\u26a0"
-                item = QListWidgetItem(f"{mark} {where}: {p.message}")
+                # the row checks already name the row and field; other messages get both
+                text = p.message if p.message.startswith("Row ") else f"{where}: {p.message}"
+                item = QListWidgetItem(f"{mark} {text}")
                 item.setData(Qt.UserRole, (r, p.field))
                 self.problems.addItem(item)
                 n += 1
