@@ -47,6 +47,50 @@ REQUIREMENTS = HERE / "requirements-bundle.txt"
 SPEC = HERE / "lopside.spec"
 WINDOWS = sys.platform.startswith("win")
 
+#: Modules the bundle must not contain (lopside.spec excludes them): network clients,
+#: development and test tools, unused GUI toolkits and matplotlib backends.
+FORBIDDEN_MODULES = (
+    "http.server",
+    "ftplib",
+    "xmlrpc",
+    "webbrowser",
+    "smtplib",
+    "ssl",
+    "PySide6.QtNetwork",
+    "PySide6.QtWebEngineCore",
+    "tkinter",
+    "IPython",
+    "statsmodels",
+    "pytest",
+    "hypothesis",
+    "matplotlib.backends.backend_tkagg",
+    "matplotlib.backends.backend_wxagg",
+    "matplotlib.backends.backend_gtk3agg",
+    "matplotlib.backends.backend_webagg",
+)
+#: Modules it must contain: the app's lazily imported parts and the backends it draws with.
+REQUIRED_MODULES = (
+    "lopside.cli",
+    "lopside.frozen",
+    "lopside.window.selftest",
+    "lopside.sheet",
+    "matplotlib.backends.backend_agg",
+    "matplotlib.backends.backend_qtagg",
+    "matplotlib.backends.backend_pdf",
+    "matplotlib.backends.backend_svg",
+)
+#: Files (name patterns) that must not be in the folder: Qt's network and web parts.
+FORBIDDEN_FILES = (
+    "*Qt6Network*",
+    "*QtNetwork*",
+    "*Qt6WebEngine*",
+    "*Qt6Qml*",
+    "*qtls*",
+    "*_tkinter*",
+    "*libssl*",
+    "_ssl*",
+)
+
 #: Keys the JSON of ``check --json`` must have (DESIGN.md section 3).
 JSON_KEYS = ("measure", "k", "studies", "pooled", "heterogeneity", "tests", "trim_fill")
 
@@ -150,7 +194,43 @@ def build(py: Path) -> Path:
     return BUNDLE
 
 
-# --- 3. smoke test ----------------------------------------------------------------------
+# --- 3. contents and smoke test ------------------------------------------------------
+
+
+def check_contents(bundle: Path = BUNDLE, work: Path = WORK) -> list[str]:
+    """What went in and what stayed out, from PyInstaller's module list and the folder."""
+    import ast
+
+    toc_file = work / "lopside" / "PYZ-00.toc"
+    if not toc_file.exists():
+        raise StepFailed(f"no module list {toc_file}: build first")
+    modules = {entry[0] for entry in ast.literal_eval(toc_file.read_text(encoding="utf-8"))[1]}
+
+    def has(name: str) -> bool:
+        return any(m == name or m.startswith(name + ".") for m in modules)
+
+    bad = [m for m in FORBIDDEN_MODULES if has(m)]
+    if bad:
+        raise StepFailed(f"the bundle contains modules it must not: {bad}")
+    missing = [m for m in REQUIRED_MODULES if not has(m)]
+    if missing:
+        raise StepFailed(f"the bundle lacks modules: {missing}")
+    files = [p for pat in FORBIDDEN_FILES for p in bundle.rglob(pat)]
+    if files:
+        raise StepFailed(f"the bundle contains files it must not: {files[:5]}")
+    internal = bundle / "_internal"
+    fonts = list(internal.glob("matplotlib/mpl-data/fonts/ttf/DejaVuSans.ttf"))
+    platforms = {
+        p.name for p in internal.rglob("*") if p.parent.name == "platforms" and p.is_file()
+    }
+    want = {"qwindows.dll", "qoffscreen.dll"} if WINDOWS else {"libqoffscreen.so", "libqxcb.so"}
+    if not fonts or not want <= platforms:
+        raise StepFailed(f"fonts {fonts} or Qt platform plugins {sorted(platforms)} missing")
+    return [
+        f"{len(modules)} modules; none of {len(FORBIDDEN_MODULES)} forbidden ones "
+        "(network clients, dev tools, other toolkits)",
+        f"Qt platform plugins: {', '.join(sorted(platforms))}; DejaVu Sans bundled",
+    ]
 
 
 def user_folders(root: Path) -> dict[str, str]:
@@ -216,9 +296,29 @@ def smoke_test(bundle: Path = BUNDLE) -> list[str]:
         p = run(prefix + [cli_exe, "--version"], "bundle --version", **opts)
         passed.append(f"--version: {p.stdout.strip()}")
 
-        t0 = time.perf_counter()
-        run(prefix + [window_exe, "--self-test"], "bundle --self-test", **opts)
-        passed.append(f"--self-test offscreen passed in {time.perf_counter() - t0:.1f} s{note}")
+        # on Windows both: the windowed exe (no stdout: its output goes to the log) and
+        # the console one (which shows what failed)
+        for exe in dict.fromkeys([cli_exe, window_exe]):
+            t0 = time.perf_counter()
+            run(prefix + [exe, "--self-test"], f"{exe.name} --self-test", **opts)
+            dt = time.perf_counter() - t0
+            passed.append(f"{exe.name} --self-test offscreen passed in {dt:.1f} s{note}")
+
+        xvfb = shutil.which("xvfb-run") if not WINDOWS else None
+        if xvfb:
+            # a real X11 window (the xcb plugin and the system libraries it needs), on a
+            # virtual screen of a hospital laptop's size
+            t0 = time.perf_counter()
+            xopts = dict(opts, env=dict(env, QT_QPA_PLATFORM="xcb"))
+            run(
+                prefix + [xvfb, "-a", "-s", "-screen 0 1366x768x24", window_exe, "--self-test"],
+                "bundle --self-test on X11 (xvfb-run)",
+                **xopts,
+            )
+            dt = time.perf_counter() - t0
+            passed.append(f"--self-test on X11 (xcb, Xvfb 1366x768) passed in {dt:.1f} s{note}")
+        else:
+            passed.append("--self-test on X11 not run (no xvfb-run; the offscreen one ran)")
 
         p = run(prefix + [cli_exe, "check", sample, "--json"], "bundle check --json", **opts)
         try:
@@ -458,6 +558,9 @@ def main(argv: list[str] | None = None) -> int:
             py = make_venv(args.python)
             build(py)
             print(f"== built {BUNDLE} in {time.perf_counter() - t0:.0f} s")
+        print("== contents")
+        for line in check_contents():
+            print(f"  ok  {line}")
         print("== smoke test")
         for line in smoke_test():
             print(f"  ok  {line}")

@@ -273,3 +273,24 @@ def test_prepare_sets_matplotlib_cache_and_logs_when_stdout_is_none(tmp_path):
     mpl_dir = cache / "matplotlib"
     assert f"configdir {mpl_dir}" in log
     assert mpl_dir.is_dir()
+
+
+def test_bundle_entry_script_runs_the_cli_after_the_hooks(tmp_path):
+    """packaging/lopside_entry.py (the bundle's entry script) runs the same ``lopside``
+    command; run unfrozen here, its hooks stay out of the way."""
+    entry = REPO / "packaging" / "lopside_entry.py"
+    src = entry.read_text(encoding="utf-8")
+    # the hooks must run before anything can import matplotlib (through lopside.cli)
+    assert src.index("prepare()") < src.index("from lopside.cli import main")
+    proc = subprocess.run(
+        [sys.executable, str(entry), "--version"],
+        capture_output=True,
+        text=True,
+        cwd=tmp_path,
+        env={**os.environ, "PYTHONPATH": str(APP)},
+        timeout=60,
+    )
+    from lopside import __version__
+
+    assert proc.returncode == 0, proc.stderr
+    assert proc.stdout.strip() == f"Lopside {__version__}"
