@@ -410,7 +410,13 @@ def test_power_result_is_kept_and_shown(make_window, qtbot):
     qtbot.waitUntil(lambda: w.session.power_is_current(), timeout=5000)
     w.update_views()
     assert w.result.power is not None and not hasattr(w.result.power, "reason")
-    assert "not simulated" not in w.power.sections.plain_text()
+    from lopside.summary import power_section
+    from lopside.window import messages as WM
+
+    text = w.power.sections.plain_text()
+    assert WM.POWER_NOT_RUN not in text
+    for label, value in power_section(w.result).rows:  # what the summary says is shown
+        assert label in text and value.split("\n")[0][:40] in text
 
 
 # ------------------------------------------------------------------ preferences and help

@@ -213,6 +213,7 @@ class DetailsForm(QScrollArea):
             value = self._current(field) or ""
             if w.text() != value and not w.hasFocus():
                 w.setText(value)
+                w.setCursorPosition(0)  # long questions show their start, not their end
         for field, w in self._numbers.items():
             value = self._current(field)
             # a box holding unreadable text keeps it unless the value itself changed

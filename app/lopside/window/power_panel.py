@@ -110,7 +110,10 @@ class PowerPanel(QWidget):
         self.cancel_button.setEnabled(False)
 
     def show_result(self, result) -> None:
-        self.sections.show_result(result)
+        if result is not None and result.power is None:
+            self.sections.show_message(M.POWER_NOT_RUN)
+        else:
+            self.sections.show_result(result)
         if result is not None and not self.session.power_is_current() and result.power is None:
             if self.worker is None or not self.worker.isRunning():
                 self.state.setText("")

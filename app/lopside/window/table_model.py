@@ -384,6 +384,9 @@ class StudyTableModel(QAbstractTableModel):
             lines += [p.message for p in self._problems.get(r, ()) if not p.field]
         if not lines and r in self._problems and key == "study":
             lines = [p.message for p in self._problems[r]]
+        if not lines and key == "study":
+            row = self.session.review.studies[r]
+            return row.study or None  # the full label, where the column elides it
         return "\n".join(lines) if lines else None
 
     def setData(self, index, value, role=Qt.EditRole):  # noqa: N802 - Qt API
