@@ -619,3 +619,38 @@ def test_autosave_follows_a_change_and_goes_when_nothing_is_unsaved(make_window,
     assert kept.studies[0].study == "Typed, not saved"
     w.stack.undo()  # back to the state that was opened: nothing unsaved
     qtbot.waitUntil(lambda: not saver.file.exists(), timeout=5000)
+
+
+def test_a_table_of_estimates_asks_which_measure(make_window, tmp_path):
+    csv = tmp_path / "estimates.csv"
+    csv.write_text(
+        "study,estimate,lower,upper\nA 2001,0.8,0.6,1.1\nB 2003,0.7,0.5,0.98\n", encoding="utf-8"
+    )
+    asked = []
+    w = make_window(ask_measure=lambda name: asked.append(name) or "HR")
+    assert w.open_path(csv)
+    assert asked == ["estimates.csv"]
+    assert w.session.review.measure == "HR" and len(w.session.review.studies) == 2
+    assert w.studies.model.mode == "ci"
+
+
+def test_a_damaged_project_is_reported_not_raised(make_window, tmp_path):
+    bad = tmp_path / "damaged.lopside"
+    bad.write_text('{"lopside_project": 1, "studies": [', encoding="utf-8")
+    w = make_window(ci_review())
+    before = w.session.review
+    assert not w.open_path(bad, ask=False)
+    assert "damaged.lopside" in w.last_message and "damaged or incomplete" in w.last_message
+    assert w.session.review is before  # the review on screen is untouched
+
+
+def test_new_review_after_asking(make_window):
+    answers = []
+    w = make_window(ci_review(), ask_save_changes=lambda name: answers.append(name) or "discard")
+    w.stack.push_edit(ed.SetCell(0, "study", "changed"))
+    w.new_review()
+    assert answers and w.session.review == Review()
+    assert w.stack.count() == 0 and w.studies.model.rowCount() == 0
+    w.update_views()
+    assert w.result.k == 0
+    assert w.funnel.message.text() and not w.funnel.showing_figure()  # says why, no plot
