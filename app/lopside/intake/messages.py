@@ -297,6 +297,31 @@ TABLE: dict[str, str] = {
         "the column '{name}' appears twice (columns {first} and {second}). Keep one of them."
     ),
     "bad_xlsx": "the file is not a readable Excel workbook ({error}). Save it again as .xlsx.",
+    "not_a_file": "this is not a file (a folder or a device). Choose a CSV or Excel file.",
+    "too_big": (
+        "the file is {size} MB, more than a study table can be ({limit} MB). Check that it is "
+        "the right file, or keep only the study rows."
+    ),
+    "xlsx_too_big": (
+        "the workbook unpacks to {size} MB, more than a study table can be ({limit} MB). Save "
+        "only the sheet with the studies as a new workbook or as CSV."
+    ),
+    "too_many_rows": (
+        "the table has more than {limit:,} rows, blank ones included. Delete the rows below "
+        "the table, or save the studies on their own."
+    ),
+    "too_many_studies": (
+        "the table has more than {limit:,} study rows, more than Lopside handles. Keep only "
+        "the studies of one review."
+    ),
+    "too_many_cells": (
+        "the row has {count:,} cells, more than a study table can have ({limit:,}). Check that "
+        "this is the right file and the right delimiter."
+    ),
+    "too_many_cells_total": (
+        "the table has more than {limit:,} cells in all. Save only the study columns and rows "
+        "as a new file."
+    ),
     "csv_error": "the row could not be read as CSV ({error}). Check the quotes on this row.",
     "unread_cell": "could not read '{text}' as {what}; the text is kept. Retype it.",
     "extra_cells": (

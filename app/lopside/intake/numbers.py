@@ -20,6 +20,7 @@ Design invariants
 
 from __future__ import annotations
 
+import math
 import re
 import unicodedata
 from collections.abc import Iterable
@@ -232,7 +233,7 @@ def read_digits(body: str, mark: str | None = None) -> Digits:
     has_point = "." in body
     has_comma = "," in body
     if not has_point and not has_comma:
-        return Digits(float(body), body.lstrip("0") or "0", 0, "int")
+        return _finite(Digits(float(body), body.lstrip("0") or "0", 0, "int"))
     if has_point and has_comma:
         if _COMMA_THEN_POINT.fullmatch(body):
             whole, frac = body.replace(",", "").split(".")
@@ -251,18 +252,32 @@ def read_digits(body: str, mark: str | None = None) -> Digits:
         as_decimal = (mark == COMMA) if has_comma else (mark != COMMA)
         if as_decimal:
             return _decimal(whole, frac, "decimal", ambiguous=True)
-        return Digits(float(whole + frac), whole + frac, 0, "thousands", ambiguous=True)
+        return _finite(Digits(float(whole + frac), whole + frac, 0, "thousands", ambiguous=True))
     pattern = _THOUSANDS_COMMA if has_comma else _THOUSANDS_POINT
     if pattern.fullmatch(body):
         digits = body.replace(sep, "")
-        return Digits(float(digits), digits.lstrip("0") or "0", 0, "thousands")
+        return _finite(Digits(float(digits), digits.lstrip("0") or "0", 0, "thousands"))
     return Digits(None, reason=f"has more than one '{sep}' but is not a thousands-grouped number")
 
 
 def _decimal(whole: str, frac: str, kind: str, *, ambiguous: bool = False) -> Digits:
     whole = whole.lstrip("0") or "0"
     canonical = f"{whole}.{frac}"
-    return Digits(float(canonical), canonical, len(frac), kind, ambiguous)
+    return _finite(Digits(float(canonical), canonical, len(frac), kind, ambiguous))
+
+
+#: Why a number is refused when it is beyond the range of floating point (about 1.8e308).
+TOO_LARGE = "too large to be used as a number"
+
+
+def _finite(d: Digits) -> Digits:
+    """Refuse a reading that overflowed to infinity (a 400-digit number, say).
+
+    Infinity would pass into a saved project, which could then not be opened again.
+    """
+    if d.value is not None and not math.isfinite(d.value):
+        return Digits(None, reason=TOO_LARGE)
+    return d
 
 
 def split_list(body: str) -> list[str] | None:
@@ -348,6 +363,8 @@ def parse_number(text: str | None, decimal: str | None = None) -> NumberReading:
     if s.endswith("%"):
         percent = True
         s = s[:-1].rstrip()
+        if not s:
+            return NumberReading(original, reason="a percent sign without a number")
     sign = ""
     if s[0] in DASHES:
         if s[0] != "-":
@@ -381,6 +398,8 @@ def parse_number(text: str | None, decimal: str | None = None) -> NumberReading:
         return NumberReading(original, reason=digits.reason, notes=tuple(notes))
     canonical = sign + digits.canonical
     value = float(canonical + (f"e{exponent}" if exponent else ""))
+    if not math.isfinite(value):
+        return NumberReading(original, reason=TOO_LARGE, notes=tuple(notes))
     if exponent:
         canonical = f"{canonical}e{exponent}"
     if value == 0.0:

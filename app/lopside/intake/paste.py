@@ -21,6 +21,7 @@ Design invariants
 
 from __future__ import annotations
 
+import math
 import re
 import unicodedata
 from dataclasses import dataclass
@@ -31,6 +32,7 @@ from lopside.intake.numbers import (
     DASHES,
     MID_DOTS,
     POINT,
+    TOO_LARGE,
     clean_text,
     decide_decimal_mark,
     read_digits,
@@ -689,6 +691,9 @@ def _read_num(
         canonical = sign + d.canonical
         exp = tok.exp if idx == len(bodies) - 1 else ""
         value = float(canonical + (f"e{exp}" if exp else ""))
+        if not math.isfinite(value):
+            # an exponent such as 1e999 overflows: infinity must not reach a saved project
+            raise _Fail("bad_number", text=tok.text, why=TOO_LARGE)
         if exp:
             canonical += f"e{exp}"
         if value == 0.0:

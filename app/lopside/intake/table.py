@@ -25,6 +25,7 @@ import csv
 import io
 import os
 import re
+import stat
 import tempfile
 from collections.abc import Iterable, Mapping, Sequence
 from dataclasses import dataclass
@@ -36,6 +37,19 @@ from lopside.intake.errors import IntakeError
 from lopside.intake.numbers import decide_decimal_mark, number_body, parse_number
 from lopside.model.review import NUMERIC_FIELDS, TABLE_COLUMNS, StudyRow
 
+#: Limits that keep a hostile or mistaken file from exhausting memory or time.
+MAX_TABLE_BYTES = 50 * 1024 * 1024
+#: total unpacked size of an XLSX (a zip bomb unpacks to gigabytes)
+MAX_XLSX_UNPACKED = 400 * 1024 * 1024
+#: the most studies a review holds (as in the project file)
+MAX_TABLE_STUDIES = 20_000
+#: rows read in all, blank ones included
+MAX_TABLE_ROWS = 50_000
+#: cells in one row (a study table has some twenty columns; a spreadsheet at most 16,384)
+MAX_ROW_CELLS = 16_384
+#: cells in all
+MAX_TABLE_CELLS = 4_000_000
+
 #: Text that a spreadsheet would treat as a formula if written plainly.
 FORMULA_STARTS: tuple[str, ...] = ("=", "+", "-", "@", "\t", "\r")
 _XLSX_ERRORS = frozenset(
@@ -46,6 +60,7 @@ _NO = frozenset({"no", "n", "false", "0", "", "included", "include"})
 _YEAR_RE = re.compile(r"((?:1[89]|20)[0-9]{2})([a-z]?)")
 _MERGE_RE = re.compile(rb'<mergeCell ref="([A-Z]{1,3}[0-9]{1,7}:[A-Z]{1,3}[0-9]{1,7})"')
 _DELIMITER_NAMES = {",": "commas", ";": "semicolons", "\t": "tabs"}
+_PLAIN_NUMBER = re.compile(r"-?[0-9]+(?:\.[0-9]+)?")
 
 
 @dataclass(frozen=True, slots=True)
@@ -93,9 +108,15 @@ def _normalise_name(name: object) -> str:
     return re.sub(r"[\s\-]+", "_", text.casefold())
 
 
+def _quoted_formula(text: str) -> bool:
+    """True for quotes followed by a formula start ("'=x", "''+y"): one quote is ours."""
+    rest = text.lstrip("'")
+    return len(rest) < len(text) and rest[:1] != "" and rest[0] in "=+-@\t\r"
+
+
 def _unquote(text: str) -> tuple[str, bool]:
     """Remove the quote that :func:`write_table_csv` puts before formula-like text."""
-    if len(text) >= 2 and text[0] == "'" and text[1] in "=+-@\t\r":
+    if _quoted_formula(text):
         return text[1:], True
     return text, False
 
@@ -158,8 +179,56 @@ def _sniff_delimiter(text: str) -> str:
     return best if counts[best] else ","
 
 
+def _check_file(path: Path) -> int:
+    """Refuse what is not a regular file, or is too large; return the size in bytes."""
+    try:
+        info = path.stat()
+    except OSError as exc:
+        raise IntakeError(
+            M.table_message("unreadable", error=exc.strerror or exc), path=path
+        ) from exc
+    if not stat.S_ISREG(info.st_mode):
+        # a folder, a pipe or a device: reading /dev/zero or a FIFO would never end
+        raise IntakeError(M.table_message("not_a_file"), path=path)
+    if info.st_size > MAX_TABLE_BYTES:
+        raise IntakeError(
+            M.table_message(
+                "too_big",
+                size=f"{info.st_size / 1e6:.0f}",
+                limit=f"{MAX_TABLE_BYTES / 1e6:.0f}",
+            ),
+            path=path,
+        )
+    return info.st_size
+
+
+def _check_rows(path: Path, number: int, cells: int, studies: int, total: int) -> None:
+    """Stop reading a table with more (or wider) rows than a study table can have.
+
+    ``number`` is the spreadsheet row, ``cells`` its width, ``studies`` the rows with
+    content so far (header included) and ``total`` the cells so far.
+    """
+    if cells > MAX_ROW_CELLS:
+        raise IntakeError(
+            M.table_message("too_many_cells", count=cells, limit=MAX_ROW_CELLS),
+            path=path,
+            row=number,
+        )
+    if number > MAX_TABLE_ROWS:
+        raise IntakeError(M.table_message("too_many_rows", limit=MAX_TABLE_ROWS), path=path)
+    if studies > MAX_TABLE_STUDIES + 1:
+        raise IntakeError(
+            M.table_message("too_many_studies", limit=MAX_TABLE_STUDIES), path=path, row=number
+        )
+    if total > MAX_TABLE_CELLS:
+        raise IntakeError(
+            M.table_message("too_many_cells_total", limit=MAX_TABLE_CELLS), path=path, row=number
+        )
+
+
 def _read_csv(path: Path) -> _Sheet:
     notes: list[str] = []
+    _check_file(path)
     try:
         data = path.read_bytes()
     except OSError as exc:
@@ -174,6 +243,8 @@ def _read_csv(path: Path) -> _Sheet:
     reader = csv.reader(io.StringIO(text, newline=""), delimiter=delimiter)
     rows: list[tuple[int, list[_Cell]]] = []
     number = 0
+    filled = 0  # rows with content (the header counts: hence MAX_TABLE_STUDIES + 1)
+    total = 0
     while True:
         try:
             record = next(reader)
@@ -184,6 +255,10 @@ def _read_csv(path: Path) -> _Sheet:
                 M.table_message("csv_error", error=exc), path=path, row=number + 1
             ) from exc
         number += 1
+        if any(v.strip() for v in record):
+            filled += 1
+        total += len(record)
+        _check_rows(path, number, len(record), filled, total)
         rows.append((number, [_Cell(v, "") for v in record]))
     return _Sheet(rows, notes, {}, "csv")
 
@@ -216,6 +291,24 @@ def _merged_ranges(path: Path, sheet_path: str | None) -> list[str]:
     return [m.decode("ascii") for m in _MERGE_RE.findall(data)]
 
 
+def _check_unpacked(path: Path) -> None:
+    """Refuse a workbook whose parts unpack to more than :data:`MAX_XLSX_UNPACKED`."""
+    import zipfile
+
+    try:
+        with zipfile.ZipFile(path) as zf:
+            total = sum(max(0, i.file_size) for i in zf.infolist())
+    except (OSError, zipfile.BadZipFile, ValueError) as exc:
+        raise IntakeError(M.table_message("bad_xlsx", error=type(exc).__name__), path=path) from exc
+    if total > MAX_XLSX_UNPACKED:
+        raise IntakeError(
+            M.table_message(
+                "xlsx_too_big", size=f"{total / 1e6:.0f}", limit=f"{MAX_XLSX_UNPACKED / 1e6:.0f}"
+            ),
+            path=path,
+        )
+
+
 def _read_xlsx(path: Path) -> _Sheet:
     try:
         import openpyxl
@@ -225,6 +318,8 @@ def _read_xlsx(path: Path) -> _Sheet:
             M.table_message("bad_xlsx", error="openpyxl is missing"), path=path
         ) from exc
     notes: list[str] = []
+    _check_file(path)
+    _check_unpacked(path)
     try:
         wb_values = openpyxl.load_workbook(path, read_only=True, data_only=True)
         wb_formulas = openpyxl.load_workbook(path, read_only=True, data_only=False)
@@ -242,8 +337,26 @@ def _read_xlsx(path: Path) -> _Sheet:
         grid: list[tuple[int, list[_Cell]]] = []
         formula_rows = wsf.iter_rows(min_row=1, values_only=True)
         n_formulas = 0
-        for number, cells in enumerate(ws.iter_rows(min_row=1), start=1):
-            formulas = next(formula_rows, ())
+        filled = total = 0
+        rows_iter = ws.iter_rows(min_row=1)
+        number = 0
+        while True:
+            # the sheet XML is parsed while iterating: a damaged or hostile sheet (bad
+            # XML, entity declarations...) fails here, after the workbook opened
+            try:
+                cells = next(rows_iter, None)
+                if cells is None:
+                    break
+                formulas = next(formula_rows, ())
+            except Exception as exc:  # noqa: BLE001 - any failure means "not readable"
+                raise IntakeError(
+                    M.table_message("bad_xlsx", error=type(exc).__name__), path=path
+                ) from exc
+            number += 1
+            if any(not _is_blank(getattr(c, "value", None)) for c in cells):
+                filled += 1
+            total += len(cells)
+            _check_rows(path, number, len(cells), filled, total)
             row: list[_Cell] = []
             for col, cell in enumerate(cells, start=1):
                 value = getattr(cell, "value", None)
@@ -482,7 +595,10 @@ def _read_cell(
     if _is_blank(value):
         return
     if isinstance(value, str):
-        text, unquoted = _unquote(value.strip())
+        # the quote first: the text after it may be only a tab or a CR, which strip()
+        # would remove and leave the quote behind
+        text, unquoted = _unquote(value)
+        text = text.strip()
         if unquoted:
             notes.append(M.table_message("note_quote_removed", row=number, field=name))
         if text in _XLSX_ERRORS:
@@ -607,8 +723,14 @@ def _plain(value: object) -> str:
 
 
 def _neutralise(text: str) -> str:
-    """Quote text a spreadsheet would run as a formula (=, +, -, @, tab, CR first)."""
-    return "'" + text if text.startswith(FORMULA_STARTS) else text
+    """Quote text a spreadsheet would run as a formula (=, +, -, @, tab, CR first).
+
+    Text that already looks quoted ("'=x", typed so) gets a second quote, so that
+    :func:`read_table`, which removes one, gives back exactly what was typed.
+    """
+    if text.startswith(FORMULA_STARTS) or _quoted_formula(text):
+        return "'" + text
+    return text
 
 
 def _number_text(value: float) -> str:
@@ -655,8 +777,11 @@ def write_table_csv(
                 if value is None:
                     out.append(_neutralise(unread.get(name, "")))
                 else:
+                    # printed text is used only when it is a plain number that reads back
+                    # as the value, so that every numeric cell is a bare number literal
+                    # (never a footnoted or signed text a spreadsheet might parse)
                     text = pr.get(name, "")
-                    ok = parse_number(text).value == value if text else False
+                    ok = bool(_PLAIN_NUMBER.fullmatch(text)) and parse_number(text).value == value
                     out.append(text if ok else _number_text(value))
             elif name == "year":
                 out.append(str(value) if value is not None else _neutralise(unread.get("year", "")))

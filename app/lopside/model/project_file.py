@@ -13,10 +13,14 @@ Layout (version 1)::
       "settings": {...}            # analysis settings, optional
     }
 
-Loading validates everything (unknown version, wrong types, absurd sizes are refused with
-a :class:`ProjectFileError` naming the place). Saving is atomic: the document is written to
-a temporary file in the same folder, flushed and fsynced, then moved over the old file, so
-the previous file is never left half-written.
+Loading validates everything (unknown version, wrong types, absurd sizes, settings that
+are not among the choices are refused with a :class:`ProjectFileError` naming the place).
+Saving is atomic: the document is written to a temporary file in the same folder, flushed
+and fsynced, then moved over the old file, so the previous file is never left half-written.
+
+Saving never writes what loading would refuse: a number that is not finite is written as
+unread text in its field (so nothing typed is lost and the row check reports it), and a
+review beyond the limits is refused *before* the old file is touched.
 """
 
 from __future__ import annotations
@@ -24,6 +28,7 @@ from __future__ import annotations
 import json
 import math
 import os
+import stat
 import tempfile
 from pathlib import Path
 from typing import Any
@@ -33,6 +38,7 @@ from .review import (
     JUDGEMENTS,
     MEASURES,
     NUMERIC_FIELDS,
+    TABLE_COLUMNS,
     AppraisalNotes,
     CauseNote,
     PublishedResult,
@@ -47,8 +53,32 @@ SUFFIX = ".lopside"
 #: limits that keep a hostile file from exhausting memory
 MAX_BYTES = 50 * 1024 * 1024
 MAX_STUDIES = 20_000
+#: one-line texts (labels, title, subgroup ...)
 MAX_TEXT = 20_000
+#: free-text notes, which can legitimately be long
+MAX_NOTES = 1_000_000
 MAX_DEPTH = 12
+#: years a study can carry (the same range the table editor accepts)
+YEAR_RANGE = (1000, 2999)
+#: settings checked on load: name -> allowed values. Kept here as literals so that this
+#: module imports nothing heavy; a test checks them against the statistics modules.
+SETTING_CHOICES: dict[str, tuple[Any, ...]] = {
+    "measure": (None, *MEASURES),
+    "tau2_method": ("REML", "PM", "DL"),
+    "ci_method": ("z", "t", "auto"),
+    "smd_correction": ("exact", "approx"),
+    "funnel_model": ("fixed", "random"),
+    "trimfill_estimator": ("L0", "R0"),
+    "trimfill_side": ("auto", "left", "right"),
+    "trimfill_trim_model": ("FE", "RE"),
+    "trimfill_fill_model": ("FE", "RE"),
+    "petpeese_sided": ("two", "one"),
+}
+#: settings that are probabilities (open interval 0 to 1)
+SETTING_PROBABILITIES = ("test_alpha", "petpeese_alpha", "power_selection")
+#: most replicates a saved power simulation may ask for (the default is 10,000)
+MAX_POWER_REPS = 1_000_000
+MAX_CUTPOINTS = 10
 
 
 class ProjectFileError(ValueError):
@@ -99,13 +129,76 @@ def review_to_dict(review: Review, settings: dict[str, Any] | None = None) -> di
     return doc
 
 
+def _keep_non_finite_as_text(doc: dict[str, Any]) -> None:
+    """Move numbers that are not finite into ``unread`` (in place).
+
+    JSON has no infinity, and the loader refuses one, so a row holding ``inf`` (from any
+    route) would make the whole project impossible to open again. As unread text it is
+    kept, shown in its cell and reported by the row check.
+    """
+    for study in doc["studies"]:
+        bad = [
+            f
+            for f in NUMERIC_FIELDS
+            if isinstance(study.get(f), float) and not math.isfinite(study[f])
+        ]
+        if not bad:
+            continue
+        unread = dict(study.get("unread", {}))
+        for f in bad:
+            unread.setdefault(f, repr(study.pop(f)))
+        study["unread"] = unread
+
+
+def _render(doc: dict[str, Any]) -> str:
+    """JSON text: indented, with one study per line.
+
+    One compact line per study keeps the file readable and diffable while letting the
+    fast C encoder do the bulk of the work (an indented dump of 20,000 studies goes
+    through the pure-Python encoder and took seconds).
+    """
+    parts = []
+    for key, value in doc.items():
+        name = json.dumps(key, ensure_ascii=False)
+        if key == "studies" and value:
+            rows = ",\n".join(
+                "    " + json.dumps(s, ensure_ascii=False, allow_nan=False) for s in value
+            )
+            parts.append(f"  {name}: [\n{rows}\n  ]")
+        else:
+            body = json.dumps(value, indent=2, ensure_ascii=False, allow_nan=False)
+            parts.append(f"  {name}: " + body.replace("\n", "\n  "))
+    return "{\n" + ",\n".join(parts) + "\n}\n"
+
+
 def dumps(review: Review, settings: dict[str, Any] | None = None) -> str:
-    return json.dumps(review_to_dict(review, settings), indent=2, ensure_ascii=False) + "\n"
+    """The project as JSON text (numbers that are not finite kept as unread text)."""
+    doc = review_to_dict(review, settings)
+    _keep_non_finite_as_text(doc)
+    return _render(doc)
 
 
 def save(review: Review, path: str | os.PathLike, settings: dict[str, Any] | None = None) -> None:
-    """Write the project atomically (temp file in the same folder, fsync, replace)."""
-    write_atomic(Path(path), dumps(review, settings).encode("utf-8"))
+    """Write the project atomically (temp file in the same folder, fsync, replace).
+
+    Raises
+    ------
+    ProjectFileError
+        Before anything is written, when the review could not be opened again (more
+        studies than :data:`MAX_STUDIES`, a text longer than the limits...); the file on
+        disk is left as it was.
+    OSError
+        When the folder cannot be written; the file on disk is left as it was.
+    """
+    doc = review_to_dict(review, settings)
+    _keep_non_finite_as_text(doc)
+    try:
+        review_from_dict(doc)
+    except ProjectFileError as exc:
+        raise ProjectFileError(
+            f"Not saved, because the file could not be opened again: {exc}"
+        ) from None
+    write_atomic(Path(path), _render(doc).encode("utf-8"))
 
 
 def write_atomic(path: Path, data: bytes) -> None:
@@ -138,28 +231,38 @@ def write_atomic(path: Path, data: bytes) -> None:
 
 
 def _depth(obj: Any, limit: int) -> int:
-    stack = [(obj, 1)]
-    deepest = 0
-    while stack:
-        o, d = stack.pop()
-        deepest = max(deepest, d)
-        if d > limit:
-            return d
-        if isinstance(o, dict):
-            stack.extend((v, d + 1) for v in o.values())
-        elif isinstance(o, list):
-            stack.extend((v, d + 1) for v in o)
-    return deepest
+    """Nesting depth of ``obj`` (1 for a scalar), counted no further than ``limit + 1``.
+
+    Level by level and containers only, so that 20,000 studies are walked quickly.
+    """
+    level = [obj]
+    depth = 1
+    while depth <= limit:
+        below: list[Any] = []
+        for o in level:
+            if isinstance(o, dict):
+                below.extend(v for v in o.values() if isinstance(v, (dict, list)))
+            elif isinstance(o, list):
+                below.extend(v for v in o if isinstance(v, (dict, list)))
+        if not below:
+            return depth
+        depth += 1
+        level = below
+    return depth
 
 
-def _text(v: Any, where: str, *, allow_none: bool = True) -> str:
+def _text(v: Any, where: str, *, allow_none: bool = True, limit: int = MAX_TEXT) -> str:
     if v is None and allow_none:
         return ""
     if not isinstance(v, str):
         raise ProjectFileError(f"{where}: expected text, found {type(v).__name__}.")
-    if len(v) > MAX_TEXT:
-        raise ProjectFileError(f"{where}: text longer than {MAX_TEXT} characters.")
+    if len(v) > limit:
+        raise ProjectFileError(f"{where}: text longer than {limit:,} characters.")
     return v
+
+
+def _notes(v: Any, where: str) -> str:
+    return _text(v, where, limit=MAX_NOTES)
 
 
 def _number(v: Any, where: str) -> float | None:
@@ -167,19 +270,64 @@ def _number(v: Any, where: str) -> float | None:
         return None
     if isinstance(v, bool) or not isinstance(v, (int, float)):
         raise ProjectFileError(f"{where}: expected a number, found {type(v).__name__} {v!r:.40}.")
-    f = float(v)
+    try:
+        f = float(v)
+    except OverflowError:  # a whole number with hundreds of digits
+        raise ProjectFileError(f"{where}: the number is too large.") from None
     if not math.isfinite(f):
         raise ProjectFileError(f"{where}: the number is not finite.")
     return f
+
+
+def _settings(doc: Any) -> dict[str, Any]:
+    """Check the saved analysis settings that could stop an analysis; return them."""
+    if not isinstance(doc, dict):
+        raise ProjectFileError("settings: expected an object.")
+    for name, allowed in SETTING_CHOICES.items():
+        if name in doc and doc[name] not in allowed:
+            shown = ", ".join("none" if a is None else str(a) for a in allowed)
+            raise ProjectFileError(
+                f"settings, {name}: {doc[name]!r:.40} is not one of {shown}; correct it or "
+                "delete the line."
+            )
+    if "hksj" in doc and not isinstance(doc["hksj"], bool):
+        raise ProjectFileError("settings, hksj: expected true or false.")
+    for name in SETTING_PROBABILITIES:
+        if name in doc:
+            p = _number(doc[name], f"settings, {name}")
+            if p is None or not 0.0 < p < 1.0:
+                raise ProjectFileError(f"settings, {name}: expected a number between 0 and 1.")
+    if doc.get("orwin_trivial") is not None:
+        _number(doc["orwin_trivial"], "settings, orwin_trivial")
+    if "selection_cutpoints" in doc:
+        cuts = doc["selection_cutpoints"]
+        where = "settings, selection_cutpoints"
+        if not isinstance(cuts, list) or not 1 <= len(cuts) <= MAX_CUTPOINTS:
+            raise ProjectFileError(f"{where}: expected a list of 1 to {MAX_CUTPOINTS} numbers.")
+        values = [_number(c, where) for c in cuts]
+        if any(c is None or not 0.0 < c < 1.0 for c in values) or values != sorted(set(values)):
+            raise ProjectFileError(f"{where}: expected increasing numbers between 0 and 1.")
+    for name, low, high in (("power_reps", 1, MAX_POWER_REPS), ("power_seed", 0, 2**63 - 1)):
+        if name in doc:
+            v = doc[name]
+            if isinstance(v, bool) or not isinstance(v, int) or not low <= v <= high:
+                raise ProjectFileError(
+                    f"settings, {name}: expected a whole number from {low:,} to {high:,}."
+                )
+    return doc
+
+
+_STUDY_KEYS = frozenset(
+    {"study", "year", "p_bound", "risk_of_bias", "subgroup", "exclude", "unread", *NUMERIC_FIELDS}
+)
+_TABLE_KEYS = frozenset(TABLE_COLUMNS)
 
 
 def _study(obj: Any, i: int) -> StudyRow:
     where = f"study {i + 1}"
     if not isinstance(obj, dict):
         raise ProjectFileError(f"{where}: expected an object with the study's fields.")
-    known = {"study", "year", "p_bound", "risk_of_bias", "subgroup", "exclude", "unread"}
-    known.update(NUMERIC_FIELDS)
-    unknown = set(obj) - known
+    unknown = obj.keys() - _STUDY_KEYS
     if unknown:
         raise ProjectFileError(f"{where}: unknown field(s) {', '.join(sorted(unknown))}.")
     kw: dict[str, Any] = {}
@@ -188,6 +336,10 @@ def _study(obj: Any, i: int) -> StudyRow:
     if year is not None:
         if isinstance(year, bool) or not isinstance(year, int):
             raise ProjectFileError(f"{where}, year: expected a whole number.")
+        if not YEAR_RANGE[0] <= year <= YEAR_RANGE[1]:
+            raise ProjectFileError(
+                f"{where}, year: {year:.0f} is not a year from {YEAR_RANGE[0]} to {YEAR_RANGE[1]}."
+            )
         kw["year"] = year
     for f in NUMERIC_FIELDS:
         if f in obj:
@@ -207,6 +359,11 @@ def _study(obj: Any, i: int) -> StudyRow:
     unread = obj.get("unread", {})
     if not isinstance(unread, dict):
         raise ProjectFileError(f"{where}, unread: expected an object of field: text.")
+    unknown = unread.keys() - _TABLE_KEYS
+    if unknown:
+        raise ProjectFileError(
+            f"{where}, unread: unknown field(s) {', '.join(sorted(unknown))[:200]}."
+        )
     kw["unread"] = tuple(
         (str(k), _text(v, f"{where}, unread {k}", allow_none=False)) for k, v in unread.items()
     )
@@ -222,7 +379,8 @@ def review_from_dict(doc: Any) -> tuple[Review, dict[str, Any]]:
             "This JSON file is not a Lopside project (no 'lopside_project' version key)."
         )
     version = doc[FORMAT_KEY]
-    if version != FORMAT_VERSION:
+    # bool is an int in Python (True == 1): only a plain whole number is a version
+    if isinstance(version, bool) or not isinstance(version, int) or version != FORMAT_VERSION:
         raise ProjectFileError(
             f"This project was written in format version {version!r}; this Lopside reads "
             f"version {FORMAT_VERSION}. Open it with the Lopside version that wrote it."
@@ -256,7 +414,7 @@ def review_from_dict(doc: Any) -> tuple[Review, dict[str, Any]]:
     )
     details = ReviewDetails(
         title=_text(det.get("title"), "details, title"),
-        question=_text(det.get("question"), "details, question"),
+        question=_notes(det.get("question"), "details, question"),
         outcome=_text(det.get("outcome"), "details, outcome"),
         measure=measure,
         ci_level=level,
@@ -265,7 +423,7 @@ def review_from_dict(doc: Any) -> tuple[Review, dict[str, Any]]:
         ctl_label=_text(det.get("ctl_label"), "details, ctl_label") or "control",
         published=published,
         appraiser=_text(det.get("appraiser"), "details, appraiser"),
-        source_note=_text(det.get("source_note"), "details, source_note"),
+        source_note=_notes(det.get("source_note"), "details, source_note"),
     )
     studies = doc.get("studies", [])
     if not isinstance(studies, list):
@@ -291,16 +449,14 @@ def review_from_dict(doc: Any) -> tuple[Review, dict[str, Any]]:
             raise ProjectFileError(
                 f"notes, {key}, judgement: '{j}' is not one of {', '.join(JUDGEMENTS)}."
             )
-        causes.append((key, CauseNote(j, _text(c.get("notes"), f"notes, {key}, notes"))))
+        causes.append((key, CauseNote(j, _notes(c.get("notes"), f"notes, {key}, notes"))))
     notes = AppraisalNotes(
         causes=tuple(causes),
         rating_override=_text(notes_doc.get("rating_override"), "notes, rating_override"),
-        rating_reason=_text(notes_doc.get("rating_reason"), "notes, rating_reason"),
-        general=_text(notes_doc.get("general"), "notes, general"),
+        rating_reason=_notes(notes_doc.get("rating_reason"), "notes, rating_reason"),
+        general=_notes(notes_doc.get("general"), "notes, general"),
     )
-    settings = doc.get("settings", {}) or {}
-    if not isinstance(settings, dict):
-        raise ProjectFileError("settings: expected an object.")
+    settings = _settings(doc.get("settings", {}) or {})
     return Review(details=details, studies=rows, notes=notes), settings
 
 
@@ -316,6 +472,11 @@ def loads(text: str) -> tuple[Review, dict[str, Any]]:
         raise ProjectFileError(
             "The project file is nested more deeply than a project can be."
         ) from None
+    except ValueError as exc:  # a whole number with more digits than Python converts
+        raise ProjectFileError(
+            f"The project file is damaged or incomplete ({exc.args[0][:60] if exc.args else exc})."
+            " Open the last good copy or the autosave."
+        ) from None
     return review_from_dict(doc)
 
 
@@ -323,7 +484,11 @@ def load(path: str | os.PathLike) -> tuple[Review, dict[str, Any]]:
     """Read and validate a project file; errors name the file and the place."""
     p = Path(path)
     try:
-        size = p.stat().st_size
+        info = p.stat()
+        size = info.st_size
+        if not stat.S_ISREG(info.st_mode):
+            # a folder, a pipe or a device (reading /dev/zero would never end)
+            raise ProjectFileError(f"{p.name}: not a file; choose a Lopside project file.")
         if size > MAX_BYTES:
             raise ProjectFileError(
                 f"{p.name}: {size / 1e6:.0f} MB is larger than a project file can be."
