@@ -307,12 +307,26 @@ def limit_meta_analysis(
             "limit meta-analysis needs studies of differing precision: " + fit.reason
         )
     a_c, b_c = fit.coefficients
-    cov = np.array(fit.cov)
-    est = b_c.estimate + tau * a_c.estimate
-    var = cov[1, 1] + tau2 * cov[0, 0] + 2.0 * tau * cov[0, 1]
-    se_lim = math.sqrt(max(var, 0.0))
+    # β + τα and Var(β) + τ²Var(α) + 2τCov(α, β) in centred form. With x = 1/s and
+    # z = y/s (unit weights, scale 1) they equal τ z̄ + β(1 - τ x̄) and
+    # τ²/k + (1 - τ x̄)²/Sxx. The uncentred sum cancels to zero (or below) when τ²
+    # dwarfs the within-study variances, because 1/s is then nearly constant and the
+    # covariance entries are huge with opposite signs; the centred terms cannot.
+    x = 1.0 / s
+    z = y / s
+    xbar = float(x.mean())
+    sxx = float(((x - xbar) ** 2).sum())
+    lever = 1.0 - tau * xbar
+    est = tau * float(z.mean()) + b_c.estimate * lever
+    var = tau2 / k + lever * lever / sxx
+    if not (math.isfinite(est) and math.isfinite(var) and var > 0):
+        return NotComputable(
+            "limit meta-analysis cannot be computed accurately for these data (the standard "
+            "errors are too extreme; check the entries for typing or unit errors)"
+        )
+    se_lim = math.sqrt(var)
     crit = float(ndtri(0.5 + confidence_level / 2.0))
-    stat = est / se_lim if se_lim > 0 else math.copysign(math.inf, est)
+    stat = est / se_lim
     shrink = np.sqrt(tau2 / (v + tau2)) if tau2 > 0 else np.zeros(k)
     shrunken = est + shrink * (y - est)
     note = ""

@@ -134,14 +134,19 @@ def wls(
     norms = np.linalg.norm(Xw, axis=0)
     if np.any(norms == 0):
         return NotComputable("a covariate is zero for every study")
-    sv = np.linalg.svd(Xw / norms, compute_uv=False)
+    _, sv, vt = np.linalg.svd(Xw / norms, full_matrices=False)
     if sv[-1] < 1e-10 * sv[0]:
         return NotComputable(
             "the covariates do not vary independently across studies (for example all "
             "standard errors are equal), so the regression cannot be fitted"
         )
     beta, *_ = np.linalg.lstsq(Xw, yw, rcond=None)
-    xtwx_inv = np.linalg.inv(Xw.T @ Xw)
+    # (X'WX)^-1 from the SVD of the column-scaled matrix Z = Xw / norms:
+    # (Xw'Xw)^-1 = D^-1 V S^-2 V' D^-1. Inverting Xw'Xw itself squares the condition
+    # number, and with SEs spread over many orders of magnitude that gave negative
+    # variances (NaN standard errors) for designs the rank check had accepted.
+    zinv = (vt.T / sv**2) @ vt
+    xtwx_inv = zinv / np.outer(norms, norms)
     resid = yw - Xw @ beta
     df_resid = k - p
     rss = float(resid @ resid)
@@ -166,6 +171,11 @@ def wls(
         df = float(df_resid)
     cov = scale * xtwx_inv
     ses = np.sqrt(np.diag(cov))
+    if not (np.all(np.isfinite(ses)) and np.all(ses > 0) and np.all(np.isfinite(beta))):
+        return NotComputable(
+            "the regression cannot be computed accurately: the standard errors span too "
+            "many orders of magnitude (check the entries for typing or unit errors)"
+        )
     half = 0.5 + confidence_level / 2.0
     crit = float(ndtri(half)) if df is None else float(stdtrit(df, half))
     coefs = []

@@ -43,6 +43,8 @@ ALL_MEASURES = frozenset({"OR", "RR", "HR", "RD", "MD", "SMD"})
 
 # Status codes shared by the batched cores (one per replicate).
 OK, TOO_FEW, SINGULAR, EXACT_FIT = 0, 1, 2, 3
+# Begg's test: a weight or standardised effect overflowed (numbers too extreme).
+NUMERIC = 4
 
 # A design is singular when the weighted spread of the regressor is this small relative
 # to its weighted square (relative spread about 1e-6): the SEs are equal for all purposes.
@@ -69,6 +71,10 @@ MSG_EXACT_FIT = (
 )
 MSG_BEGG_FLAT = (
     "{name} cannot be computed: all standardised effects are equal, so they cannot be ranked"
+)
+MSG_NUMERIC = (
+    "{name} cannot be computed: the effects or standard errors are too extreme for "
+    "accurate arithmetic (check the entries for typing or unit errors)"
 )
 MSG_EGGER_DISAGREE = (
     "{name} cannot be computed reliably: two equivalent forms of the regression gave "
@@ -500,6 +506,18 @@ def _tie_sums(tied_pairs, k: int):
     return s0, s1, s2
 
 
+def _sum_of_others(x: np.ndarray) -> np.ndarray:
+    """For each position of the last axis, the sum of the other entries.
+
+    Taken as (sum before) + (sum after) rather than total - own, so that one entry much
+    larger than the rest does not wipe out the others by cancellation.
+    """
+    zero = np.zeros(x.shape[:-1] + (1,))
+    before = np.concatenate([zero, np.cumsum(x, axis=-1)[..., :-1]], axis=-1)
+    after = np.concatenate([np.cumsum(x[..., ::-1], axis=-1)[..., ::-1][..., 1:], zero], axis=-1)
+    return before + after
+
+
 def begg_core(y, v, use=None, *, exact_max: int = BEGG_EXACT_MAX) -> TestArrays:
     """Begg & Mazumdar 1994 rank correlation test, batched.
 
@@ -512,11 +530,24 @@ def begg_core(y, v, use=None, *, exact_max: int = BEGG_EXACT_MAX) -> TestArrays:
     k = y.shape[-1]
     ok = _finite_use(y, v, use=use) & (v > 0)
     k_used = ok.sum(axis=-1)
-    with np.errstate(divide="ignore", invalid="ignore"):
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
         w = np.where(ok, 1.0 / v, 0.0)
+        wy = w * np.where(ok, y, 0.0)
         sw = w.sum(axis=-1)
-        theta = (w * np.where(ok, y, 0.0)).sum(axis=-1) / sw
+        theta = wy.sum(axis=-1) / sw
         tstar = np.where(ok, (y - theta[..., None]) / np.sqrt(v - 1.0 / sw[..., None]), 0.0)
+        # v_i - 1/Σw cancels catastrophically when one study carries nearly all the weight
+        # (SEs of 1e-8 beside 1e4 make it zero or negative). For such a study t* is taken
+        # in the algebraically equal form (y_i - θ_(-i)) / √(v_i + 1/W_(-i)), with θ_(-i)
+        # and W_(-i) the fixed-effect mean and total weight of the other studies, summed
+        # from both ends so that the big weight never enters. Elsewhere the textbook form
+        # is kept, so that identical studies still give bit-identical (tied) t*.
+        heavy = ok & (w > (1.0 - 1e-6) * sw[..., None])
+        if np.any(heavy):
+            w_other = _sum_of_others(w)
+            theta_other = _sum_of_others(wy) / w_other
+            stable = (y - theta_other) / np.sqrt(v + 1.0 / w_other)
+            tstar = np.where(heavy, stable, tstar)
     vv = np.where(ok, v, 0.0)
     i0, i1 = _pairs(k)[:2]
     pair_use = ok[..., i0] & ok[..., i1]
@@ -539,6 +570,8 @@ def begg_core(y, v, use=None, *, exact_max: int = BEGG_EXACT_MAX) -> TestArrays:
     status = np.full(k_used.shape, OK)
     status = np.where(xt0 / 2.0 >= n0, EXACT_FIT, status)  # all t* equal
     status = np.where(yt0 / 2.0 >= n0, SINGULAR, status)  # all variances equal
+    # numbers too extreme for the arithmetic (an overflowing weight or t*)
+    status = np.where(np.all(np.isfinite(tstar), axis=-1), status, NUMERIC)
     status = np.where(k_used < 3, TOO_FEW, status)
     good = status == OK
     ties = (xt0 > 0) | (yt0 > 0)
@@ -688,6 +721,8 @@ def _not_computable(
         )
     if status == SINGULAR:
         return NotComputable(MSG_SINGULAR.format(name=name, what=what))
+    if status == NUMERIC:
+        return NotComputable(MSG_NUMERIC.format(name=name))
     if key == "begg":
         return NotComputable(MSG_BEGG_FLAT.format(name=name))
     return NotComputable(MSG_EXACT_FIT.format(name=name))

@@ -44,6 +44,10 @@ Choices made here (documented so the appraisal sheet can repeat them)
 * Standard errors from P (Handbook 5.1 section 7.7.7.2): z = Phi^-1(1 - P/2) (or the
   t quantile), SE = |y| / z. "P < x" uses the boundary x and marks the SE approximate.
 
+* Effects larger than 1e12 in size on the analysis scale, and SEs outside 1e-12 to 1e12,
+  are reported and not used: their squares and weights overflow the pooled sums, and
+  such numbers are typing or unit errors, not data. So are 2x2 group totals above 1e9.
+
 :func:`derive` never raises for any row: non-finite or impossible numbers give
 ``y = se = None`` (or a fallback route) and a plain-language entry in ``problems``.
 It ignores ``row.exclude``; leaving studies out is the caller's decision.
@@ -84,6 +88,16 @@ P_TOO_LARGE = 0.999
 P_ROUNDED = 0.001
 #: Asymmetry of the estimate within its interval (in SEs) worth a note.
 ASYMMETRY_NOTE = 0.2
+#: Largest |effect| on the analysis scale that is used. Squares and inverse-variance
+#: weights of larger numbers overflow or lose all precision in the pooled sums, so such a
+#: row (almost always a typing or unit error, e.g. "1e300") is reported, not analysed.
+MAX_ABS_EFFECT = 1e12
+#: Smallest and largest SE that is used, for the same reason (a weight 1/SE^2 of 1e24 is
+#: still an ordinary float; SEs of 1e-300 make the weights infinite).
+MIN_SE = 1e-12
+MAX_SE = 1e12
+#: Largest group total in a 2x2 table that is used (a billion participants per group).
+MAX_ARM_TOTAL = 1e9
 
 _NORMAL = NormalDist()
 
@@ -310,6 +324,12 @@ def _read_counts(row: StudyRow, work: _Work) -> tuple[float, float, float, float
     for name, events, total in (("intervention", e1, t1), ("control", e0, t0)):
         if total <= 0:
             work.problems.append(f"{name} arm: the total must be more than 0 (check the row)")
+            return None
+        if total > MAX_ARM_TOTAL:
+            work.problems.append(
+                f"{name} arm: the total ({_fmt(total)}) is larger than any study "
+                f"(more than {MAX_ARM_TOTAL:.0e}); check the row"
+            )
             return None
         if events < 0:
             work.problems.append(f"{name} arm: events cannot be negative (check the row)")
@@ -686,6 +706,7 @@ def _derive(
                 y, var, text = _from_p(row, measure, ci_method, sizes, local)
             if not (math.isfinite(y) and math.isfinite(var) and var > 0):
                 raise _RouteFailed("the numbers give no finite effect and SE (check the row)")
+            _check_magnitude(y, math.sqrt(var), measure)
         except (_RouteFailed, ArithmeticError, ValueError) as failed:
             y = var = None
             if isinstance(failed, _RouteFailed) and failed.final:
@@ -743,6 +764,26 @@ def _derive(
         asd=asd,
         asd_var=asd_var,
     )
+
+
+def _check_magnitude(y: float, se: float, measure: str) -> None:
+    """Refuse effects and SEs too extreme to compute with (see :data:`MAX_ABS_EFFECT`)."""
+    words = _MEASURE_WORDS[measure]
+    if abs(y) > MAX_ABS_EFFECT:
+        raise _RouteFailed(
+            f"the {words} ({y:.3g}) is too large to analyse (more than {MAX_ABS_EFFECT:.0e} "
+            "in size); check the value and its units"
+        )
+    if se < MIN_SE:
+        raise _RouteFailed(
+            f"the SE ({se:.3g}) is too small to analyse (below {MIN_SE:.0e}); check the value "
+            "and its units"
+        )
+    if se > MAX_SE:
+        raise _RouteFailed(
+            f"the SE ({se:.3g}) is too large to analyse (above {MAX_SE:.0e}); check the value "
+            "and its units"
+        )
 
 
 def _what_to_enter(measure: str, present: list[str]) -> str:

@@ -418,6 +418,10 @@ def simulate_reviews(
     return NotComputable(_MAX_TRIES_MSG) if out is None else out
 
 
+#: Largest group size whose events are simulated (a binomial table has n + 1 entries).
+MAX_SIMULATED_ARM = 1_000_000
+
+
 def _setup(data, tau2, true_effect, selection, selection_side):
     if data.k < 3:
         return NotComputable(
@@ -437,6 +441,15 @@ def _setup(data, tau2, true_effect, selection, selection_side):
     if not (math.isfinite(tau2) and tau2 >= 0 and math.isfinite(mu)):
         return NotComputable("the between-study variance and true effect must be finite")
     direction = float(np.sign(mu)) if selection_side == "pooled" else 0.0
+    if data.measure in ("OR", "RR", "RD") and asy.needs_met("counts", data):
+        arms = np.concatenate([data.a + data.b, data.c + data.d])
+        if not (np.all(np.isfinite(arms)) and np.all(arms <= MAX_SIMULATED_ARM)):
+            # counts are drawn from a table of the binomial distribution per arm, which
+            # for a billion participants would not fit in memory
+            return NotComputable(
+                "a power simulation draws every group's events, and groups larger than "
+                f"{MAX_SIMULATED_ARM:,} participants are too large for that"
+            )
     return _model_for(data, mu, math.sqrt(tau2)), mu, tau2, direction
 
 
