@@ -399,10 +399,11 @@ def test_certification_never_passes_a_row_the_grid_would_overturn(seed):
     # full grid of tau2_reml finds nothing better; rows in doubt go to tau2_reml.
     y, v, masks = _two_maxima_batch(np.random.default_rng(100 + seed), 300)
     dl = pl.tau2_dl_batch(y, v, masks).tau2
-    t, _, _, ok = pl._reml_scoring_block(y - np.median(y), v, masks.astype(float), dl, 1000)
+    yc = y - np.median(y)
+    t, ll, mag, _, ok = pl._reml_scoring_block(yc, v, masks.astype(float), dl, 1000)
     rows = np.flatnonzero(ok)
     scale = pl._grid_scale_batch(y, v, masks, rows, dl[rows])
-    certified = pl._reml_certify(y, v, masks, rows, t[rows], scale)
+    certified = pl._reml_certify(y, v, masks, rows, t[rows], ll[rows], mag[rows], scale)
     overturned = np.array([_grid_overturns(y[masks[b]], v[masks[b]]) for b in rows])
     assert overturned.sum() >= 5  # the check below is not vacuous
     assert not (certified & overturned).any()
@@ -530,3 +531,15 @@ def test_unadjusted_fit_with_equal_variances_is_the_closed_form_ml():
 def test_trim_and_fill_reproduces_the_record(i, reference):
     name, y, v = datasets()[i]
     assert_same(trimfill_outputs(y, v), reference[name]["trimfill"], rel=1e-10, abs_=1e-12)
+
+
+def test_average_ranks_match_scipy_rankdata_for_exact_ties():
+    # scipy.stats.rankdata(method="average") is the reference for tol = 0
+    from scipy.stats import rankdata
+
+    from lopside.stats.adjust_trimfill import _average_ranks
+
+    rng = np.random.default_rng(8)
+    for _ in range(300):
+        a = np.round(rng.normal(size=int(rng.integers(1, 40))), int(rng.integers(0, 3)))
+        assert _average_ranks(a, 0.0) == pytest.approx(rankdata(a, method="average"))

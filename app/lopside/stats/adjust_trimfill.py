@@ -110,14 +110,13 @@ def _average_ranks(a: np.ndarray, tol: float) -> np.ndarray:
     n = a.size
     order = np.argsort(a, kind="mergesort")
     s = a[order]
+    # runs of sorted values whose neighbours are within tol share the average rank
+    # (a chain: each value is compared with the one before it)
+    starts = np.concatenate(([0], np.flatnonzero(~(np.diff(s) <= tol)) + 1))
+    ends = np.concatenate((starts[1:], [n])) - 1
+    run = np.cumsum(np.isin(np.arange(n), starts)) - 1
     ranks = np.empty(n)
-    i = 0
-    while i < n:
-        j = i
-        while j + 1 < n and s[j + 1] - s[j] <= tol:
-            j += 1
-        ranks[order[i : j + 1]] = 0.5 * (i + j) + 1.0
-        i = j + 1
+    ranks[order] = 0.5 * (starts + ends)[run] + 1.0
     return ranks
 
 

@@ -462,7 +462,7 @@ def heterogeneity(
 # estimate cannot be certified cheaply (see _reml_certify) is handed to tau2_reml itself.
 
 #: elements of a (subsets x studies) block worked on at once (fits in the cache)
-_BLOCK = 1 << 14
+_BLOCK = 1 << 17
 _EPS = float(np.finfo(float).eps)
 
 
@@ -489,6 +489,19 @@ class Tau2Batch:
             int(self.iterations[b]),
             self.notes[b],
         )
+
+
+def _quietly(fn):
+    """Run a batched function with division warnings off: empty rows divide by zero and
+    are reported as NotComputable (or nan) afterwards."""
+    import functools
+
+    @functools.wraps(fn)
+    def wrapper(*args, **kw):
+        with np.errstate(invalid="ignore", divide="ignore"):
+            return fn(*args, **kw)
+
+    return wrapper
 
 
 def _batch_arrays(y, v, mask) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
@@ -520,13 +533,13 @@ def _fe_parts(yb: np.ndarray, vb: np.ndarray, mb: np.ndarray):
     """Inverse-variance sums of each row: sum w, mean, Cochran's Q, sum w^2."""
     w = mb / vb
     sw = w.sum(axis=1)
-    with np.errstate(invalid="ignore", divide="ignore"):
-        mu = (w * yb).sum(axis=1) / sw
+    mu = (w * yb).sum(axis=1) / sw
     r = yb - mu[:, None]
     q = (w * (r * r)).sum(axis=1)
     return sw, mu, q, (w * w).sum(axis=1)
 
 
+@_quietly
 def cochran_q_batch(y, v, mask) -> np.ndarray:
     """Cochran's Q of each subset (:func:`cochran_q` row by row; nan for an empty row)."""
     y, v, mask = _batch_arrays(y, v, mask)
@@ -540,6 +553,7 @@ def _one_study_notes(n: np.ndarray) -> list[str]:
     return ["one study: no between-study variance" if x < 2 else "" for x in n]
 
 
+@_quietly
 def tau2_dl_batch(y, v, mask) -> Tau2Batch:
     """:func:`tau2_dl` of each subset."""
     y, v, mask = _batch_arrays(y, v, mask)
@@ -547,25 +561,24 @@ def tau2_dl_batch(y, v, mask) -> Tau2Batch:
     tau2 = np.zeros(mask.shape[0])
     for r, c, mb in _blocks(mask):
         sw, _, q, s2 = _fe_parts(y[c], v[c], mb)
-        with np.errstate(invalid="ignore", divide="ignore"):
-            cc = sw - s2 / sw
-            t = np.maximum(0.0, (q - (n[r] - 1)) / cc)
+        cc = sw - s2 / sw
+        t = np.maximum(0.0, (q - (n[r] - 1)) / cc)
         tau2[r] = np.where((n[r] >= 2) & (cc > 0), t, 0.0)
     return Tau2Batch(
         "DL", tau2, np.ones(n.size, bool), np.zeros(n.size, int), tuple(_one_study_notes(n))
     )
 
 
-def _reml_eval(yb: np.ndarray, vb: np.ndarray, mb: np.ndarray, t: np.ndarray):
+def _reml_eval(vb: np.ndarray, z: np.ndarray, mb: np.ndarray, t: np.ndarray):
     """Restricted log-likelihood, score and information of each row at its own tau^2.
 
-    ``yb`` must be centred (the likelihood does not change when y is shifted): the sums
-    of squares are then formed from matrix products without losing digits.
+    ``z`` holds the columns 1, y, y^2 with y centred (the likelihood does not change when
+    y is shifted): the sums of squares are then formed from matrix products without
+    losing digits.
     """
     vt = vb + t[:, None]
     w = mb / vt
     w2 = w * w
-    z = np.stack([np.ones_like(yb), yb, yb * yb], axis=1)
     sw, swy, swy2 = (w @ z).T
     s2, s2y, s2y2 = (w2 @ z).T
     mu = swy / sw
@@ -575,23 +588,28 @@ def _reml_eval(yb: np.ndarray, vb: np.ndarray, mb: np.ndarray, t: np.ndarray):
     ll = -0.5 * (np.einsum("ij,ij->i", mb, lg) + np.log(sw) + rss)
     score = -0.5 * (sw - s2 / sw) + 0.5 * s2r2
     info = 0.5 * (s2 - 2.0 * np.einsum("ij,ij->i", w2, w) / sw + (s2 / sw) ** 2)
-    return ll, score, info
+    # size of the sums behind ll (less the log terms), for rounding margins
+    mag = np.abs(np.log(sw)) + swy2
+    return ll, score, info, mag
 
 
 def _reml_scoring_block(yb, vb, mb, start, max_iter):
     """_reml_scoring for every row of a block: the same steps, rows leaving as they converge.
 
-    Returns tau^2, its log-likelihood, the iteration count and a flag per row; rows that
-    did not converge (or met a non-positive information) are flagged for the scalar code.
+    ``yb`` must be centred. Returns tau^2, its restricted log-likelihood, the size of the
+    non-log sums behind it, the iteration count and a flag per row; rows that did not
+    converge (or met a non-positive information) are flagged for the scalar code.
     """
     nrow = start.size
     tau2 = start.copy()
     ll_out = np.full(nrow, np.nan)
+    mag_out = np.full(nrow, np.nan)
     iters = np.zeros(nrow, int)
     ok = np.zeros(nrow, bool)
     act = np.arange(nrow)
     t = start.copy()
-    ll, score, info = _reml_eval(yb, vb, mb, t)
+    z = np.stack([np.ones_like(yb), yb, yb * yb], axis=1)
+    ll, score, info, _ = _reml_eval(vb, z, mb, t)
     for it in range(1, max_iter + 1):
         good = info > 0
         if not good.all():  # the scalar loop stops here and reports non-convergence
@@ -601,23 +619,24 @@ def _reml_scoring_block(yb, vb, mb, start, max_iter):
         m = mb[act]
         step = score / info
         new = np.maximum(0.0, t + step)
-        new_ll, new_score, new_info = _reml_eval(yb, vb, m, new)
+        new_ll, new_score, new_info, new_mag = _reml_eval(vb, z, m, new)
         down = np.flatnonzero(new_ll < ll - 1e-12)
         halvings = 0
         while down.size and halvings < 60:
             step[down] /= 2.0
             new[down] = np.maximum(0.0, t[down] + step[down])
-            a, b, c = _reml_eval(yb, vb, m[down], new[down])
-            new_ll[down], new_score[down], new_info[down] = a, b, c
+            a, b, c, d = _reml_eval(vb, z, m[down], new[down])
+            new_ll[down], new_score[down], new_info[down], new_mag[down] = a, b, c, d
             down = down[a < ll[down] - 1e-12]
             halvings += 1
         done = np.abs(new - t) < _TOL * np.maximum(1.0, t)
         fin = act[done]
-        tau2[fin], ll_out[fin], iters[fin], ok[fin] = new[done], new_ll[done], it, True
+        tau2[fin], ll_out[fin], mag_out[fin] = new[done], new_ll[done], new_mag[done]
+        iters[fin], ok[fin] = it, True
         keep = ~done
         act, t, ll = act[keep], new[keep], new_ll[keep]
         score, info = new_score[keep], new_info[keep]
-    return tau2, ll_out, iters, ok
+    return tau2, ll_out, mag_out, iters, ok
 
 
 def _mask_kind(mask: np.ndarray) -> str:
@@ -629,24 +648,72 @@ def _mask_kind(mask: np.ndarray) -> str:
     return "general"
 
 
-def _masked_sums(mask: np.ndarray, kind: str, f: np.ndarray) -> np.ndarray:
-    """Sum over each row's studies of f (studies x points) -> (rows x points)."""
-    if kind == "prefix":
-        c = np.cumsum(f, axis=0)
-        n = mask.sum(axis=1)
-        out = c[np.maximum(n - 1, 0)]
-        out[n == 0] = 0.0
-        return out
-    if kind == "loo":
-        left_out = np.argmin(mask, axis=1)
-        return f.sum(axis=0)[None, :] - f[left_out]
-    out = np.empty((mask.shape[0], f.shape[1]))
-    for r, c, mb in _blocks(mask):
-        out[r] = mb @ f[c]
+def _pair_sums(yc, v, m, kind, shared, rows, i_lo, i_hi):
+    """Sums over the studies of row ``rows[p]`` at shared grid points, for each pair p:
+    sum log(v + a), sum |log(v + a)| at a = shared[i_lo[p]], and sum w, sum w y, sum w y^2
+    (w = 1/(v + b), y centred) at b = shared[i_hi[p]].
+
+    Leave-one-out rows are the total less one study and prefixes are running sums, so
+    those cost one pass over (studies x grid points); other masks use matrix products.
+    The grid is taken in slices to bound memory.
+    """
+    out = np.empty((5, rows.size))
+    k = v.size
+    width = max(8, (1 << 19) // max(1, k))
+    n = m.sum(axis=1)
+    left_out = np.argmin(m, axis=1) if kind == "loo" else None
+    for a in range(0, shared.size, width):
+        b = min(shared.size, a + width)
+        sel_lo = np.flatnonzero((i_lo >= a) & (i_lo < b))
+        sel_hi = np.flatnonzero((i_hi >= a) & (i_hi < b))
+        if not (sel_lo.size or sel_hi.size):
+            continue
+        vt = v[:, None] + shared[None, a:b]
+        lg = np.log(vt)
+        w = 1.0 / vt
+        wy = w * yc[:, None]
+        parts = ((lg, sel_lo, i_lo), (np.abs(lg), sel_lo, i_lo), (w, sel_hi, i_hi))
+        parts += ((wy, sel_hi, i_hi), (wy * yc[:, None], sel_hi, i_hi))
+        for q, (f, sel, idx) in enumerate(parts):
+            if not sel.size:
+                continue
+            col = idx[sel] - a
+            rr = rows[sel]
+            if kind == "loo":
+                out[q, sel] = f.sum(axis=0)[col] - f[left_out[rr], col]
+            elif kind == "prefix":
+                out[q, sel] = np.cumsum(f, axis=0)[n[rr] - 1, col]
+            else:
+                need, inv = np.unique(rr, return_inverse=True)
+                out[q, sel] = (m[need].astype(float) @ f)[inv, col]
     return out
 
 
-def _reml_certify(y, v, mask, rows, tau2, scale):
+def _grid_bounds(yc, v, m, kind, n, shared, rows, g):
+    """Upper bounds (with rounding margins) of the restricted log-likelihood of row
+    ``rows[p]`` at tau^2 = g[p], from the shared grid points around g[p]."""
+    i_lo = np.searchsorted(shared, g * (1 - 1e-12), side="right") - 1
+    i_hi = np.minimum(np.searchsorted(shared, g * (1 + 1e-12), side="left"), shared.size - 1)
+    s_log, s_abs, s_w, s_wy, s_wy2 = _pair_sums(yc, v, m, kind, shared, rows, i_lo, i_hi)
+    between = s_wy * s_wy / s_w
+    lsw = np.log(s_w)
+    bound = -0.5 * (s_log + lsw + np.maximum(s_wy2 - between, 0.0))
+    # running sums and matrix products err by up to n ulps of the magnitudes summed
+    return bound + 4.0 * (n[rows] + 16) * _EPS * (s_abs + np.abs(lsw) + s_wy2 + between + 1.0)
+
+
+def _shared_grid(g: np.ndarray, ratio: float, max_points: int) -> np.ndarray:
+    """0 (if needed) and a geometric grid with at most the given ratio around values g."""
+    pos = g[g > 0]
+    pts = [np.zeros(1)] if (g == 0).any() else []
+    if pos.size:
+        lo, hi = float(pos.min()) / 1.01, float(pos.max()) * 1.01
+        npts = int(math.ceil(math.log(hi / lo) / math.log(ratio))) + 1
+        pts.append(np.geomspace(lo, hi, min(max(npts, 2), max_points)))
+    return np.concatenate(pts)
+
+
+def _reml_certify(y, v, mask, rows, tau2, ll, mag, scale):
     """Rows whose scoring result the tau2_reml grid would not overturn.
 
     tau2_reml compares the scoring result with the restricted likelihood on the grid
@@ -657,54 +724,44 @@ def _reml_certify(y, v, mask, rows, tau2, scale):
         l(t) <= -1/2 [ sum log(v_i + a) + log sum 1/(v_i + b) + RSS(b) ],
 
     because the three terms are monotone in t (RSS(t) = min_mu sum (y_i - mu)^2/(v_i + t)
-    decreases), so most grid values are dismissed at once from shared sums. The few left
-    (near the maximum) are evaluated exactly. Rounding is covered by margins of a few
-    units in the last place of the magnitudes summed, in the direction of not certifying.
-    Returns a boolean array over ``rows``: False means "let tau2_reml decide".
+    decreases), so grid values are dismissed from shared sums: first on a coarse shared
+    grid, then on a fine one around the values left (near each maximum). The few still in
+    doubt are evaluated exactly. Rounding is covered by margins of a few units in the last
+    place of the magnitudes summed, always in the direction of not certifying.
+
+    ``ll`` and ``mag`` come from the scoring (_reml_eval) at ``tau2``. Returns a boolean
+    array over ``rows``: False means "let tau2_reml decide".
     """
     m = mask[rows]
     n = m.sum(axis=1)
-    grid = scale[:, None] * _GRID_UNIT[None, :]
-    # shared grid: 0, then geometric with ratio 1.1 around all the rows' grids
-    lo, hi = float(grid.min()) / 1.2, float(grid.max()) * 1.2
-    npts = int(math.ceil(math.log(hi / lo) / math.log(1.1))) + 1
-    shared = np.concatenate(([0.0], np.geomspace(lo, hi, npts)))
-    c = float(np.median(y))
-    yc = y - c  # centred: the one-pass RSS below then loses no digits
-    vt = v[:, None] + shared[None, :]
-    lg = np.log(vt)
-    w = 1.0 / vt
-    wy = w * yc[:, None]
     kind = _mask_kind(m)
-    s_log = _masked_sums(m, kind, lg)
-    s_abs = _masked_sums(m, kind, np.abs(lg))
-    s_w = _masked_sums(m, kind, w)
-    s_wy = _masked_sums(m, kind, wy)
-    s_wy2 = _masked_sums(m, kind, wy * yc[:, None])
-    with np.errstate(invalid="ignore", divide="ignore"):
-        between = s_wy * s_wy / s_w
-    rss = np.maximum(s_wy2 - between, 0.0)
-    rows_i = np.arange(rows.size)[:, None]
-    full = np.concatenate([np.zeros((rows.size, 1)), grid], axis=1)
-    i_lo = np.searchsorted(shared, full * (1 - 1e-12), side="right") - 1
-    i_hi = np.minimum(np.searchsorted(shared, full * (1 + 1e-12), side="left"), shared.size - 1)
-    lsw = np.log(s_w[rows_i, i_hi])
-    bound = -0.5 * (s_log[rows_i, i_lo] + lsw + rss[rows_i, i_hi])
-    mag_bound = s_abs[rows_i, i_lo] + np.abs(lsw) + s_wy2[rows_i, i_hi] + between[rows_i, i_hi]
-    # sequential sums (cumsum, matrix products) err by up to n ulps of the magnitudes
-    bound += 4.0 * (n[:, None] + 16) * _EPS * (mag_bound + 1.0)
-    # pairwise sums (those of tau2_reml, and _reml_eval) err by about log2(n) ulps
+    yc = y - float(np.median(y))  # centred: the one-pass sums of squares lose no digits
+    lmax = np.maximum(np.abs(np.log(v.min() + tau2)), np.abs(np.log(v.max() + tau2)))
+    size = n * lmax + mag + 1.0  # bounds what l(tau2) sums, log terms included
+    # l(tau2) from scoring used running sums and products: up to n ulps of those sizes
+    limit = ll + 1e-10 - 4.0 * (n + 16) * _EPS * size
+    # tau2_reml's own (pairwise) sums err by about log2(n) ulps
     pair = 4.0 * (np.log2(np.maximum(n, 2)) + 4.0) * _EPS
-    ll, ll_mag = _reml_exact(y, v, m, tau2)
-    limit = ll + 1e-10 - pair * ll_mag
-    doubt = ~(bound <= limit[:, None])
+    grid = np.concatenate([np.zeros((rows.size, 1)), scale[:, None] * _GRID_UNIT], axis=1)
+    pr = np.repeat(np.arange(rows.size), grid.shape[1])
+    pg = grid.ravel()
     certified = np.ones(rows.size, bool)
-    bi, gj = np.nonzero(doubt)
-    if bi.size:
-        t = full[bi, gj]
-        exact, mag = _reml_exact(y, v, m[bi], t)
-        bad = ~(exact + pair[bi] * mag <= limit[bi])
-        certified[np.unique(bi[bad])] = False
+    # a grid value equal to the estimate (0 and 0 on the boundary) is the same point:
+    # tau2_reml's two evaluations of it differ by its own rounding only
+    same = pg == tau2[pr]
+    unsure = same & ~(2.0 * pair[pr] * size[pr] < 1e-10)
+    certified[np.unique(pr[unsure])] = False
+    pr, pg = pr[~same], pg[~same]
+    for ratio, cap in ((1.1, 100_000), (1.0005, max(256, min(4096, rows.size)))):
+        if not pr.size:
+            break
+        shared = _shared_grid(pg, ratio, cap)
+        doubt = ~(_grid_bounds(yc, v, m, kind, n, shared, pr, pg) <= limit[pr])
+        pr, pg = pr[doubt], pg[doubt]
+    if pr.size:
+        exact, emag = _reml_exact(y, v, m[pr], pg)
+        bad = ~(exact + pair[pr] * emag <= limit[pr])
+        certified[np.unique(pr[bad])] = False
     return certified
 
 
@@ -749,6 +806,7 @@ def _grid_scale_batch(y, v, mask, rows, start):
     return out
 
 
+@_quietly
 def tau2_reml_batch(y, v, mask, *, max_iter: int = _MAX_ITER) -> Tau2Batch:
     """:func:`tau2_reml` of each subset (the global maximiser, with the same safeguard).
 
@@ -774,12 +832,16 @@ def tau2_reml_batch(y, v, mask, *, max_iter: int = _MAX_ITER) -> Tau2Batch:
     ok = np.zeros(nsub, bool)
     rows = np.flatnonzero(n >= 2)
     yc = y - float(np.median(y)) if y.size else y
+    ll = np.full(nsub, np.nan)
+    mag = np.full(nsub, np.nan)
     for r, c, mb in _blocks(mask, rows):
-        tau2[r], _, iters[r], ok[r] = _reml_scoring_block(yc[c], v[c], mb, dl[r], max_iter)
+        tau2[r], ll[r], mag[r], iters[r], ok[r] = _reml_scoring_block(
+            yc[c], v[c], mb, dl[r], max_iter
+        )
     good = rows[ok[rows]]
     if good.size:
         scale = _grid_scale_batch(y, v, mask, good, dl[good])
-        ok[good] = _reml_certify(y, v, mask, good, tau2[good], scale)
+        ok[good] = _reml_certify(y, v, mask, good, tau2[good], ll[good], mag[good], scale)
     converged = np.ones(nsub, bool)
     notes = _one_study_notes(n)
     for b in rows[~ok[rows]]:
@@ -832,8 +894,7 @@ def _pm_block(yb, vb, mb, n):
         pos = f > 0
         lo = np.where(pos, x, lo)
         hi = np.where(pos, hi, x)
-        with np.errstate(divide="ignore", invalid="ignore"):
-            new = x - f / d
+        new = x - f / d
         inside = (new > lo) & (new < hi)
         new = np.where(inside, new, 0.5 * (lo + hi))
         done = (np.abs(new - x) <= 1e-14 * np.maximum(1.0, x)) | (f == 0)
@@ -847,6 +908,7 @@ def _pm_block(yb, vb, mb, n):
     return root, iters, ok
 
 
+@_quietly
 def tau2_pm_batch(y, v, mask) -> Tau2Batch:
     """:func:`tau2_pm` of each subset (the same root, found by a vectorised solver)."""
     y, v, mask = _batch_arrays(y, v, mask)
@@ -891,9 +953,8 @@ def _pool_rows(y, v, mask, tau2: np.ndarray):
     for r, c, mb in _blocks(mask):
         w = mb / (v[c] + tau2[r, None])
         s = w.sum(axis=1)
-        with np.errstate(invalid="ignore", divide="ignore"):
-            e = (w * y[c]).sum(axis=1) / s
-            pct = 100.0 * w / s[:, None]
+        e = (w * y[c]).sum(axis=1) / s
+        pct = 100.0 * w / s[:, None]
         res = y[c] - e[:, None]
         rq[r] = (w * res * res).sum(axis=1)
         est[r], sw[r] = e, s
@@ -907,6 +968,7 @@ def _pool_rows(y, v, mask, tau2: np.ndarray):
     return est, sw, rq, weights
 
 
+@_quietly
 def fixed_effect_batch(
     y, v, mask, *, confidence_level: float = 0.95
 ) -> tuple[PooledEstimate | NotComputable, ...]:
@@ -929,9 +991,8 @@ def fixed_effect_batch(
     y, v, mask = _batch_arrays(y, v, mask)
     n = mask.sum(axis=1)
     est, sw, _, weights = _pool_rows(y, v, mask, np.zeros(mask.shape[0]))
-    with np.errstate(invalid="ignore", divide="ignore"):
-        se = 1.0 / np.sqrt(sw)
-        stat = est / se
+    se = 1.0 / np.sqrt(sw)
+    stat = est / se
     p = 2.0 * ndtr(-np.abs(stat))
     z = _norm_ppf(0.5 + confidence_level / 2.0)
     out: list[PooledEstimate | NotComputable] = []
@@ -956,6 +1017,7 @@ def fixed_effect_batch(
     return tuple(out)
 
 
+@_quietly
 def random_effects_batch(
     y,
     v,
@@ -999,18 +1061,17 @@ def random_effects_batch(
     est, sw, rq, weights = _pool_rows(y, v, mask, tau2_arr)
     alpha_half = 0.5 + confidence_level / 2.0
     use_t = hksj & (n >= 2)
-    with np.errstate(invalid="ignore", divide="ignore"):
-        se = 1.0 / np.sqrt(sw)
-        df = (n - 1).astype(float)
-        q = rq / df
-        se_h = np.sqrt(np.maximum(1.0, q) / sw)
-        crit_t = stdtrit(df, alpha_half)
-        stat_t = est / se_h
-        p_t = 2.0 * stdtr(df, -np.abs(stat_t))
-        stat_z = est / se
-        p_z = 2.0 * ndtr(-np.abs(stat_z))
-        tq = stdtrit(n - 2.0, alpha_half)
-        half = tq * np.sqrt(tau2_arr + se**2)
+    se = 1.0 / np.sqrt(sw)
+    df = (n - 1).astype(float)
+    q = rq / df
+    se_h = np.sqrt(np.maximum(1.0, q) / sw)
+    crit_t = stdtrit(df, alpha_half)
+    stat_t = est / se_h
+    p_t = 2.0 * stdtr(df, -np.abs(stat_t))
+    stat_z = est / se
+    p_z = 2.0 * ndtr(-np.abs(stat_z))
+    tq = stdtrit(n - 2.0, alpha_half)
+    half = tq * np.sqrt(tau2_arr + se**2)
     z = _norm_ppf(alpha_half)
     out: list[PooledEstimate | NotComputable] = []
     for b in range(nsub):
