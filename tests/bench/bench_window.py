@@ -90,9 +90,9 @@ def edit_latency(k: int, n_edits: int, view: str, typo: bool = False) -> list[fl
     row = w.session.review.studies[0]
     for i in range(n_edits + 3):
         if typo:
-            value = f"{row.lower * (0.5 + 0.01 * (i % 7)):.3f}"
-        else:  # a new value every time, inside the interval
-            value = f"{row.estimate * (0.97 + 0.01 * (i % 7)):.3f}"
+            value = f"{row.lower * (0.5 + 0.002 * i):.4f}"
+        else:  # a new value every time (no cache hits), inside the interval
+            value = f"{row.estimate * (0.97 + 0.001 * i):.4f}"
         t0 = time.perf_counter()
         w.stack.push_edit(ed.SetCell(0, "estimate", value))
         w.session.break_merge()

@@ -13,7 +13,6 @@ Design invariants
 
 from __future__ import annotations
 
-import time
 from collections.abc import Callable
 from pathlib import Path
 
@@ -927,7 +926,3 @@ class MainWindow(QMainWindow):
 
 def _headless() -> bool:
     return QApplication.platformName() in ("offscreen", "minimal")
-
-
-def now() -> float:
-    return time.perf_counter()
