@@ -654,3 +654,33 @@ def test_new_review_after_asking(make_window):
     w.update_views()
     assert w.result.k == 0
     assert w.funnel.message.text() and not w.funnel.showing_figure()  # says why, no plot
+
+
+def test_preferences_read_back_from_disk_keep_their_types(user_state, tmp_path):
+    """QSettings read from disk returns a one-item list as text and True as 'true' unless
+    type= is given (ENGINEERING-NOTES); the wrapper must hand back the right types."""
+    script = textwrap.dedent(
+        f"""
+        import sys
+        sys.path.insert(0, {str(APP)!r})
+        from PySide6.QtCore import QCoreApplication
+        app = QCoreApplication([])
+        from lopside.window.prefs import Prefs
+        p = Prefs()
+        p.add_recent({str(tmp_path / "only.lopside")!r})
+        p.set("funnel/egger_line", True)
+        p.set("window/view_tab", 3)
+        p.sync()
+        """
+    )
+    env = dict(os.environ, QT_QPA_PLATFORM="offscreen")
+    proc = subprocess.run(
+        [sys.executable, "-c", script], env=env, capture_output=True, text=True, timeout=60
+    )
+    assert proc.returncode == 0, proc.stderr
+    from lopside.window.prefs import Prefs
+
+    p = Prefs()
+    assert p.recent_files() == [str((tmp_path / "only.lopside").resolve())]
+    assert p.get_bool("funnel/egger_line") is True
+    assert p.get_int("window/view_tab") == 3
