@@ -42,49 +42,6 @@ def user_state(tmp_path, monkeypatch):
         assert after == before, f"a test touched the user's own settings file {real}"
 
 
-def invented_review():
-    """INVENTED data for the window tests: a fictional drug ("zelparin"), twelve
-    fictional trials with 2x2 counts, smaller trials showing larger benefit."""
-    from lopside.model.review import Review, ReviewDetails, StudyRow
-
-    counts = [
-        (40, 600, 52, 598),
-        (31, 410, 40, 405),
-        (22, 300, 30, 302),
-        (18, 220, 25, 221),
-        (12, 160, 20, 158),
-        (9, 120, 16, 121),
-        (6, 90, 13, 88),
-        (5, 70, 11, 72),
-        (3, 50, 9, 51),
-        (2, 40, 8, 40),
-        (2, 30, 7, 31),
-        (1, 24, 6, 25),
-    ]
-    rows = []
-    for i, (a, n1, c, n0) in enumerate(counts):
-        rows.append(
-            StudyRow(
-                study=f"Trial {chr(65 + i)} {2001 + i}",
-                year=2001 + i,
-                int_events=a,
-                int_total=n1,
-                ctl_events=c,
-                ctl_total=n0,
-                risk_of_bias="low" if n1 >= 150 else "high",
-                subgroup="ward" if i % 2 else "clinic",
-            )
-        )
-    return Review(
-        details=ReviewDetails(
-            title="Zelparin for falls in hospital (INVENTED test data)",
-            measure="OR",
-            source_note="Invented for tests: fictional drug and trials.",
-        ),
-        studies=tuple(rows),
-    )
-
-
 @pytest.fixture
 def make_window(qtbot, user_state):
     """Factory for a shown MainWindow with the modal questions answered by the test."""
