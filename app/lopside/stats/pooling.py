@@ -659,7 +659,7 @@ def _pair_sums(yc, v, m, kind, shared, rows, i_lo, i_hi):
     """
     out = np.empty((5, rows.size))
     k = v.size
-    width = max(8, (1 << 19) // max(1, k))
+    width = max(8, (1 << 18) // max(1, k))
     n = m.sum(axis=1)
     left_out = np.argmin(m, axis=1) if kind == "loo" else None
     for a in range(0, shared.size, width):
@@ -668,24 +668,25 @@ def _pair_sums(yc, v, m, kind, shared, rows, i_lo, i_hi):
         sel_hi = np.flatnonzero((i_hi >= a) & (i_hi < b))
         if not (sel_lo.size or sel_hi.size):
             continue
-        vt = v[:, None] + shared[None, a:b]
+        # grid points x studies, so that sums and running sums run along memory
+        vt = shared[a:b, None] + v[None, :]
         lg = np.log(vt)
         w = 1.0 / vt
-        wy = w * yc[:, None]
+        wy = w * yc[None, :]
         parts = ((lg, sel_lo, i_lo), (np.abs(lg), sel_lo, i_lo), (w, sel_hi, i_hi))
-        parts += ((wy, sel_hi, i_hi), (wy * yc[:, None], sel_hi, i_hi))
+        parts += ((wy, sel_hi, i_hi), (wy * yc[None, :], sel_hi, i_hi))
         for q, (f, sel, idx) in enumerate(parts):
             if not sel.size:
                 continue
             col = idx[sel] - a
             rr = rows[sel]
             if kind == "loo":
-                out[q, sel] = f.sum(axis=0)[col] - f[left_out[rr], col]
+                out[q, sel] = f.sum(axis=1)[col] - f[col, left_out[rr]]
             elif kind == "prefix":
-                out[q, sel] = np.cumsum(f, axis=0)[n[rr] - 1, col]
+                out[q, sel] = np.cumsum(f, axis=1)[col, n[rr] - 1]
             else:
                 need, inv = np.unique(rr, return_inverse=True)
-                out[q, sel] = (m[need].astype(float) @ f)[inv, col]
+                out[q, sel] = (m[need].astype(float) @ f.T)[inv, col]
     return out
 
 
@@ -752,7 +753,7 @@ def _reml_certify(y, v, mask, rows, tau2, ll, mag, scale):
     unsure = same & ~(2.0 * pair[pr] * size[pr] < 1e-10)
     certified[np.unique(pr[unsure])] = False
     pr, pg = pr[~same], pg[~same]
-    for ratio, cap in ((1.1, 100_000), (1.0005, max(256, min(4096, rows.size)))):
+    for ratio, cap in ((1.1, 100_000), (1.0005, 512)):
         if not pr.size:
             break
         shared = _shared_grid(pg, ratio, cap)
@@ -943,8 +944,8 @@ def tau2_batch(y, v, mask, method: str) -> Tau2Batch:
     raise ValueError(f"unknown tau^2 method {method!r}; use one of {TAU2_METHODS}")
 
 
-def _pool_rows(y, v, mask, tau2: np.ndarray):
-    """Estimate, sum of weights, HKSJ q numerator and percent weights of each row."""
+def _pool_rows(y, v, mask, tau2: np.ndarray, *, hksj: bool):
+    """Estimate, sum of weights, HKSJ q numerator (if asked) and percent weights per row."""
     nsub = mask.shape[0]
     est = np.full(nsub, np.nan)
     sw = np.zeros(nsub)
@@ -954,15 +955,17 @@ def _pool_rows(y, v, mask, tau2: np.ndarray):
         w = mb / (v[c] + tau2[r, None])
         s = w.sum(axis=1)
         e = (w * y[c]).sum(axis=1) / s
-        pct = 100.0 * w / s[:, None]
-        res = y[c] - e[:, None]
-        rq[r] = (w * res * res).sum(axis=1)
+        if hksj:
+            res = y[c] - e[:, None]
+            rq[r] = (w * res * res).sum(axis=1)
         est[r], sw[r] = e, s
         used = mb > 0
-        flat = pct[used].tolist()  # one conversion per block; rows are slices of it
-        ends = np.cumsum(used.sum(axis=1)).tolist()
+        counts = used.sum(axis=1)
+        # percent weights of the studies used only, as (100 w) / sum w like the scalar code;
+        # one conversion to floats per block, each row a slice of it
+        flat = (100.0 * w[used] / np.repeat(s, counts)).tolist()
         start = 0
-        for b, end in zip(r.tolist(), ends):
+        for b, end in zip(r.tolist(), np.cumsum(counts).tolist()):
             weights[b] = tuple(flat[start:end])
             start = end
     return est, sw, rq, weights
@@ -990,7 +993,7 @@ def fixed_effect_batch(
 
     y, v, mask = _batch_arrays(y, v, mask)
     n = mask.sum(axis=1)
-    est, sw, _, weights = _pool_rows(y, v, mask, np.zeros(mask.shape[0]))
+    est, sw, _, weights = _pool_rows(y, v, mask, np.zeros(mask.shape[0]), hksj=False)
     se = 1.0 / np.sqrt(sw)
     stat = est / se
     p = 2.0 * ndtr(-np.abs(stat))
@@ -1058,7 +1061,7 @@ def random_effects_batch(
     else:
         tau2_arr = np.broadcast_to(np.asarray(tau2, dtype=float), (nsub,)).copy()
         converged, notes = np.ones(nsub, bool), ("",) * nsub
-    est, sw, rq, weights = _pool_rows(y, v, mask, tau2_arr)
+    est, sw, rq, weights = _pool_rows(y, v, mask, tau2_arr, hksj=hksj)
     alpha_half = 0.5 + confidence_level / 2.0
     use_t = hksj & (n >= 2)
     se = 1.0 / np.sqrt(sw)
