@@ -393,11 +393,7 @@ def _two_maxima_batch(rng, n: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     return y, v, mask
 
 
-@pytest.mark.parametrize("seed", range(3))
-def test_certification_never_passes_a_row_the_grid_would_overturn(seed):
-    # Soundness of the shortcut: a row certified by _reml_certify must be one where the
-    # full grid of tau2_reml finds nothing better; rows in doubt go to tau2_reml.
-    y, v, masks = _two_maxima_batch(np.random.default_rng(100 + seed), 300)
+def _certify(y, v, masks):
     dl = pl.tau2_dl_batch(y, v, masks).tau2
     yc = y - np.median(y)
     t, ll, mag, _, ok = pl._reml_scoring_block(yc, v, masks.astype(float), dl, 1000)
@@ -405,13 +401,39 @@ def test_certification_never_passes_a_row_the_grid_would_overturn(seed):
     scale = pl._grid_scale_batch(y, v, masks, rows, dl[rows])
     certified = pl._reml_certify(y, v, masks, rows, t[rows], ll[rows], mag[rows], scale)
     overturned = np.array([_grid_overturns(y[masks[b]], v[masks[b]]) for b in rows])
+    return certified, overturned
+
+
+@pytest.mark.parametrize("seed", range(3))
+def test_certification_never_passes_a_row_the_grid_would_overturn(seed):
+    # Soundness of the shortcut: a row certified by _reml_certify must be one where the
+    # full grid of tau2_reml finds nothing better; rows in doubt go to tau2_reml.
+    # 300 datasets in one batch: the bounds on shared grids are used.
+    y, v, masks = _two_maxima_batch(np.random.default_rng(100 + seed), 300)
+    certified, overturned = _certify(y, v, masks)
     assert overturned.sum() >= 5  # the check below is not vacuous
     assert not (certified & overturned).any()
-    assert certified.sum() > 0.5 * rows.size  # and the shortcut does spare most rows
+    assert certified.sum() > 0.5 * certified.size  # and the shortcut does spare most rows
     # and the batch as a whole gives tau2_reml's answer on every row
     t2 = pl.tau2_reml_batch(y, v, masks)
     ref = np.array([pl.tau2_reml(y[m], v[m]).tau2 for m in masks])
     assert t2.tau2 == pytest.approx(ref, rel=1e-10, abs=1e-12)
+
+
+def test_certification_of_small_batches_is_sound_too():
+    # small batches evaluate every grid value exactly instead of bounding them
+    rng = np.random.default_rng(7)
+    certified, overturned = [], []
+    for _ in range(40):
+        y, v, masks = _two_maxima_batch(rng, 8)
+        assert 8 * 50 * y.size <= 1 << 18  # the exact path of _reml_certify
+        c, o = _certify(y, v, masks)
+        certified.append(c)
+        overturned.append(o)
+    certified, overturned = np.concatenate(certified), np.concatenate(overturned)
+    assert overturned.sum() >= 5
+    assert not (certified & overturned).any()
+    assert certified.sum() > 0.5 * certified.size
 
 
 def test_larger_review_leave_one_out_equals_scalar():
@@ -543,3 +565,31 @@ def test_average_ranks_match_scipy_rankdata_for_exact_ties():
     for _ in range(300):
         a = np.round(rng.normal(size=int(rng.integers(1, 40))), int(rng.integers(0, 3)))
         assert _average_ranks(a, 0.0) == pytest.approx(rankdata(a, method="average"))
+
+
+# --------------------------------------------------------------------------------------
+# Reusing tau^2 within one analysis
+
+
+def test_reuse_tau2_returns_the_same_estimates_computed_once(monkeypatch):
+    name, y, v = datasets()[2]
+    plain = {m: pl.random_effects(y, v, method=m, hksj=h) for m in pl.TAU2_METHODS for h in (0, 1)}
+    calls = []
+    real = pl._estimate_tau2
+
+    def counting(yy, vv, method):
+        calls.append(method)
+        return real(yy, vv, method)
+
+    monkeypatch.setattr(pl, "_estimate_tau2", counting)
+    with pl.reuse_tau2():
+        reused = {
+            m: pl.random_effects(y, v, method=m, hksj=h) for m in pl.TAU2_METHODS for h in (0, 1)
+        }
+        pl.heterogeneity(y, v)  # REML again: from the memo
+        pl.random_effects(y[:-1], v[:-1])  # other studies: estimated
+    assert sorted(calls) == ["DL", "PM", "REML", "REML"]
+    assert reused == plain
+    calls.clear()
+    pl.random_effects(y, v)  # outside the block nothing is kept
+    assert calls == ["REML"]

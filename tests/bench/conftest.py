@@ -29,7 +29,7 @@ def keep(benchmark):
 
 def _ratio_rows() -> list[tuple[str, str, float | None]]:
     """(what, how, ratio of medians) for every pair of timings present."""
-    from test_benchmarks import ANALYSE_SIZES, POWER_LOOP_SCALE, SHEET_SIZES
+    from test_benchmarks import ANALYSE_SIZES, POWER_LOOP_SCALE, REUSE_SIZES, SHEET_SIZES
 
     def ratio(a: str, b: str, scale: float = 1.0) -> float | None:
         if a in RESULTS and b in RESULTS:
@@ -51,6 +51,14 @@ def _ratio_rows() -> list[tuple[str, str, float | None]]:
                 f"analyse() growth, k {small:,} -> {big:,}",
                 f"(x{big // small} studies)",
                 ratio(f"analyse-{big}", f"analyse-{small}"),
+            )
+        )
+    for k in REUSE_SIZES:
+        rows.append(
+            (
+                f"analyse(), k = {k:,}",
+                "as it is / inside pooling.reuse_tau2()",
+                ratio(f"analyse-{k}", f"analyse-reuse-{k}"),
             )
         )
     rows.append(

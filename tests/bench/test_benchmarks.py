@@ -9,6 +9,8 @@ the end a table of ratios measured in the same run is printed (tests/bench/conft
 
 * analyse() at k = 30, 300 and 3,000 invented studies, each against the bare
   random-effects (REML) pooling of the same studies, and its growth with k;
+* analyse() inside ``pooling.reuse_tau2()`` at k = 30 and 300 (each tau^2 estimated
+  once per analysis), against analyse() as it is;
 * leave-one-out at k = 300 batched against pooling each subset with the scalar function;
 * the vectorised power simulation (10,000 replicates of two scenarios) against the
   per-replicate statsmodels loop of tests/bench/bench_power.py (run for its
@@ -36,6 +38,8 @@ pytestmark = pytest.mark.bench
 ANALYSE_SIZES = (30, 300, 3000)
 _ROUNDS = {30: 30, 300: 5, 3000: 2}
 SHEET_SIZES = (14, 120)
+#: sizes at which analyse() is also timed inside pooling.reuse_tau2()
+REUSE_SIZES = (30, 300)
 #: the statsmodels loop runs LOOP_REPS replicates; its time is scaled to REPS
 POWER_LOOP_SCALE = REPS / LOOP_REPS
 
@@ -63,6 +67,21 @@ def test_analyse(benchmark, keep, reviews, k):
     out = benchmark.pedantic(analyse, args=(review,), rounds=_ROUNDS[k], iterations=1)
     keep(f"analyse-{k}")
     assert out.k == result.k == k  # the benchmark ran the full analysis of all k studies
+
+
+@pytest.mark.parametrize("k", REUSE_SIZES)
+def test_analyse_reusing_tau2(benchmark, keep, reviews, k):
+    # what analyse() would cost if it ran inside pooling.reuse_tau2() (a proposal)
+    review, result = reviews[k]
+
+    def run():
+        with pooling.reuse_tau2():
+            return analyse(review)
+
+    benchmark.group = f"analyse k={k}"
+    out = benchmark.pedantic(run, rounds=_ROUNDS[k], iterations=1)
+    keep(f"analyse-reuse-{k}")
+    assert out.random.estimate == result.random.estimate
 
 
 @pytest.mark.parametrize("k", ANALYSE_SIZES)

@@ -7,6 +7,8 @@ return frozen results or :class:`NotComputable`. Formulas: methods.md section 2.
 
 from __future__ import annotations
 
+import contextlib
+import contextvars
 import math
 from dataclasses import dataclass
 
@@ -268,7 +270,41 @@ def _reml_scoring(
     return est, ll
 
 
+#: the memo of reuse_tau2() in the current context (None: no reuse)
+_REUSE: contextvars.ContextVar[dict | None] = contextvars.ContextVar("tau2_reuse", default=None)
+
+
+@contextlib.contextmanager
+def reuse_tau2():
+    """Within this block, :func:`estimate_tau2` estimates each (method, studies) once.
+
+    One analysis asks for the tau^2 of the same studies many times (each random-effects
+    model with and without HKSJ, heterogeneity, trim and fill, sensitivity analyses);
+    the estimators are deterministic, so a repeat returns the first (frozen) result.
+    Studies count as the same when the bytes of y and v are identical. The memo belongs
+    to the current thread/context and is dropped when the block ends.
+    """
+    token = _REUSE.set({})
+    try:
+        yield
+    finally:
+        _REUSE.reset(token)
+
+
 def estimate_tau2(y, v, method: str) -> Tau2Estimate:
+    """tau^2 by ``method`` ("DL", "PM" or "REML"); see :func:`reuse_tau2`."""
+    memo = _REUSE.get()
+    if memo is None:
+        return _estimate_tau2(y, v, method)
+    y, v = _as_arrays(y, v)
+    key = (method, y.tobytes(), v.tobytes())
+    est = memo.get(key)
+    if est is None:
+        est = memo[key] = _estimate_tau2(y, v, method)
+    return est
+
+
+def _estimate_tau2(y, v, method: str) -> Tau2Estimate:
     if method == "DL":
         return tau2_dl(y, v)
     if method == "PM":
@@ -753,7 +789,9 @@ def _reml_certify(y, v, mask, rows, tau2, ll, mag, scale):
     unsure = same & ~(2.0 * pair[pr] * size[pr] < 1e-10)
     certified[np.unique(pr[unsure])] = False
     pr, pg = pr[~same], pg[~same]
-    for ratio, cap in ((1.1, 100_000), (1.0005, 512)):
+    # small problems: every grid value evaluated exactly costs less than the bounds
+    stages = ((1.1, 100_000), (1.0005, 512)) if pr.size * v.size > (1 << 18) else ()
+    for ratio, cap in stages:
         if not pr.size:
             break
         shared = _shared_grid(pg, ratio, cap)
