@@ -535,31 +535,28 @@ def _cli_cases(tmp_path: Path) -> list[Path]:
 
 
 def test_lopside_check_refuses_each_hostile_file_with_one_line(tmp_path):
+    from concurrent.futures import ThreadPoolExecutor
+
     (tmp_path / "raw").mkdir()
     paths = _cli_cases(tmp_path)
     env = dict(os.environ, PYTHONPATH=str(APP))
-    procs = []
-    # several at a time: each start-up costs about half a second
-    for batch_start in range(0, len(paths), 6):
-        batch = [
-            (
-                p,
-                subprocess.Popen(
-                    [sys.executable, "-m", "lopside", "check", str(p)],
-                    stdout=subprocess.PIPE,
-                    stderr=subprocess.PIPE,
-                    stdin=subprocess.DEVNULL,
-                    env=env,
-                    text=True,
-                ),
-            )
-            for p in paths[batch_start : batch_start + 6]
-        ]
-        for p, proc in batch:
-            out, err = proc.communicate(timeout=120)
-            procs.append((p, proc.returncode, out, err))
-    assert len(procs) == len(paths) > 50
-    for p, rc, out, err in procs:
+
+    def check(p: Path):
+        proc = subprocess.run(
+            [sys.executable, "-m", "lopside", "check", str(p)],
+            capture_output=True,
+            text=True,
+            stdin=subprocess.DEVNULL,
+            env=env,
+            timeout=120,
+        )
+        return p, proc.returncode, proc.stdout, proc.stderr
+
+    # a few at a time: each start-up costs about half a second
+    with ThreadPoolExecutor(max_workers=4) as pool:
+        runs = list(pool.map(check, paths))
+    assert len(runs) == len(paths) > 50
+    for p, rc, out, err in runs:
         assert rc == 2, (p.name, rc, err[-2000:])
         assert "Traceback" not in err, (p.name, err[-2000:])
         lines = err.strip().splitlines()

@@ -23,6 +23,7 @@ from __future__ import annotations
 
 import csv
 import io
+import math
 import os
 import re
 import stat
@@ -660,7 +661,8 @@ def _read_cell(
         if isinstance(value, bool):
             year_text = str(value)
         elif isinstance(value, (int, float)):
-            if float(value) == int(value) and 1800 <= int(value) <= 2099:
+            # a cached value can be infinite (an overflowing formula): int() would raise
+            if math.isfinite(value) and float(value) == int(value) and 1800 <= int(value) <= 2099:
                 values["year"] = int(value)
                 return
             year_text = str(value)
@@ -714,7 +716,7 @@ def _read_cell(
 
 
 def _plain(value: object) -> str:
-    if isinstance(value, float) and value == int(value):
+    if isinstance(value, float) and math.isfinite(value) and value == int(value):
         return str(int(value))
     return str(value)
 

@@ -1224,7 +1224,16 @@ def run_test(key: str, data: StudyData, **kw) -> AsymmetryResult | NotComputable
     """
     if key not in REGISTRY:
         raise ValueError(f"unknown asymmetry test {key!r}; known: {sorted(REGISTRY)}")
-    return REGISTRY[key].function(data, **kw)
+    try:
+        return REGISTRY[key].function(data, **kw)
+    except (ArithmeticError, IndexError, ValueError, np.linalg.LinAlgError) as exc:
+        # A numerical failure in one test must not take the whole analysis down with it
+        # (run_all is called outside the analysis' own safety net); the tests of
+        # tests/test_edge_numerics.py check that this is not the normal path.
+        return NotComputable(
+            f"{_name(key)} could not be computed for these data (the numbers are too "
+            f"extreme for accurate arithmetic: {type(exc).__name__})"
+        )
 
 
 def run_all(

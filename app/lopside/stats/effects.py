@@ -508,6 +508,7 @@ def _from_se(row: StudyRow, measure: str, work: _Work) -> tuple[float, float, st
     if not se > 0:
         raise _RouteFailed(f"the SE must be more than 0 (entered {_fmt(se)})")
     y = _log_estimate(est, measure)
+    _check_magnitude(y, se, measure)  # before squaring: 1e-300 squared is 0
     scale = " (taken to be on the log scale)" if measure in RATIO_MEASURES else ""
     return y, se * se, f"SE as entered{scale}"
 
