@@ -131,7 +131,7 @@ PROJECT_CASES = {
     ),
     "5000 digits": (
         '{"lopside_project": 1, "studies": [{"estimate": 1' + "0" * 5000 + "}]}",
-        "damaged or incomplete",
+        "damaged or incomplete (a number in it has thousands of digits)",
     ),
     # enormous and deeply nested content
     "long title": (_with(_set(("details", "title"), "x" * (pf.MAX_TEXT + 1))), "longer than"),
@@ -211,7 +211,7 @@ def _raw_cases(tmp_path: Path) -> dict[str, tuple[Path, str]]:
     big = tmp_path / "huge.lopside"
     with open(big, "wb") as fh:
         fh.truncate(pf.MAX_BYTES + 1)
-    out["huge"] = (big, "larger than a project file can be")
+    out["huge"] = (big, "larger than a project file can be (more than 50 MB)")
     folder = tmp_path / "folder.lopside"
     folder.mkdir()
     out["folder"] = (folder, "")
@@ -388,7 +388,7 @@ def _table_cases(tmp_path: Path) -> dict[str, tuple[Path, str]]:
     huge = tmp_path / "huge.csv"
     with open(huge, "wb") as fh:
         fh.truncate(MAX_TABLE_BYTES + 1)
-    out["too big"] = (huge, "more than a study table can be")
+    out["too big"] = (huge, "larger than a study table can be (more than 50 MB)")
     folder = tmp_path / "folder.csv"
     folder.mkdir()
     out["folder"] = (folder, M.table_message("not_a_file"))

@@ -299,8 +299,8 @@ TABLE: dict[str, str] = {
     "bad_xlsx": "the file is not a readable Excel workbook ({error}). Save it again as .xlsx.",
     "not_a_file": "this is not a file (a folder or a device). Choose a CSV or Excel file.",
     "too_big": (
-        "the file is {size} MB, more than a study table can be ({limit} MB). Check that it is "
-        "the right file, or keep only the study rows."
+        "the file is larger than a study table can be (more than {limit} MB). Check that it "
+        "is the right file, or keep only the study rows."
     ),
     "xlsx_too_big": (
         "the workbook unpacks to {size} MB, more than a study table can be ({limit} MB). Save "

@@ -193,11 +193,7 @@ def _check_file(path: Path) -> int:
         raise IntakeError(M.table_message("not_a_file"), path=path)
     if info.st_size > MAX_TABLE_BYTES:
         raise IntakeError(
-            M.table_message(
-                "too_big",
-                size=f"{info.st_size / 1e6:.0f}",
-                limit=f"{MAX_TABLE_BYTES / 1e6:.0f}",
-            ),
+            M.table_message("too_big", limit=f"{MAX_TABLE_BYTES / 2**20:.0f}"),
             path=path,
         )
     return info.st_size

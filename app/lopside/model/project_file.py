@@ -472,10 +472,10 @@ def loads(text: str) -> tuple[Review, dict[str, Any]]:
         raise ProjectFileError(
             "The project file is nested more deeply than a project can be."
         ) from None
-    except ValueError as exc:  # a whole number with more digits than Python converts
+    except ValueError:  # a whole number with more digits than Python converts (4,300)
         raise ProjectFileError(
-            f"The project file is damaged or incomplete ({exc.args[0][:60] if exc.args else exc})."
-            " Open the last good copy or the autosave."
+            "The project file is damaged or incomplete (a number in it has thousands of "
+            "digits). Open the last good copy or the autosave."
         ) from None
     return review_from_dict(doc)
 
@@ -491,7 +491,8 @@ def load(path: str | os.PathLike) -> tuple[Review, dict[str, Any]]:
             raise ProjectFileError(f"{p.name}: not a file; choose a Lopside project file.")
         if size > MAX_BYTES:
             raise ProjectFileError(
-                f"{p.name}: {size / 1e6:.0f} MB is larger than a project file can be."
+                f"{p.name}: the file is larger than a project file can be (more than "
+                f"{MAX_BYTES / 2**20:.0f} MB)."
             )
         raw = p.read_bytes()
     except OSError as exc:
