@@ -95,11 +95,18 @@ def test_bare_pooling(benchmark, keep, reviews, k):
 
 
 def _loo_by_subsets(y, v):
-    """Leave-one-out the plain way: each subset pooled on its own (what the batch replaces)."""
+    """Leave-one-out the plain way (what the batch replaced): per subset the fixed-effect
+    and REML random-effects pooling and Cochran's Q."""
     out = []
     for i in range(y.size):
         keep = np.arange(y.size) != i
-        out.append(pooling.random_effects(y[keep], v[keep], method="REML"))
+        out.append(
+            (
+                pooling.fixed_effect(y[keep], v[keep]),
+                pooling.random_effects(y[keep], v[keep], method="REML"),
+                pooling.cochran_q(y[keep], v[keep]),
+            )
+        )
     return out
 
 
@@ -119,7 +126,7 @@ def test_leave_one_out_by_subsets(benchmark, keep, reviews):
     )
     keep("loo-loop-300")
     batched = leave_one_out(result.data)
-    assert [r.estimate for r in out] == pytest.approx(
+    assert [r.estimate for _, r, _ in out] == pytest.approx(
         [r.random.estimate for r in batched.rows], rel=1e-9
     )
 
