@@ -53,7 +53,6 @@ FORBIDDEN_MODULES = (
     "http.server",
     "ftplib",
     "xmlrpc",
-    "webbrowser",
     "smtplib",
     "ssl",
     "PySide6.QtNetwork",
@@ -219,17 +218,30 @@ def check_contents(bundle: Path = BUNDLE, work: Path = WORK) -> list[str]:
     if files:
         raise StepFailed(f"the bundle contains files it must not: {files[:5]}")
     internal = bundle / "_internal"
+    if not (internal / "svglib" / "svglib.py").is_file():
+        raise StepFailed("svglib is not in _internal/svglib as replaceable .py files")
     fonts = list(internal.glob("matplotlib/mpl-data/fonts/ttf/DejaVuSans.ttf"))
     platforms = {
         p.name for p in internal.rglob("*") if p.parent.name == "platforms" and p.is_file()
     }
     want = {"qwindows.dll", "qoffscreen.dll"} if WINDOWS else {"libqoffscreen.so", "libqxcb.so"}
     if not fonts or not want <= platforms:
-        raise StepFailed(f"fonts {fonts} or Qt platform plugins {sorted(platforms)} missing")
+        hint = ""
+        if not WINDOWS and "libqxcb.so" not in platforms:
+            # PyInstaller leaves out a Qt plugin whose system libraries it cannot find
+            hint = (
+                "; the xcb plugin is left out when its X11 libraries are missing on the build "
+                "machine: apt-get install libxcb-cursor0 libxcb-icccm4 libxcb-keysyms1 "
+                "libxcb-image0 libxcb-render-util0 libxcb-shape0 libxcb-randr0 libxcb-xfixes0 "
+                "libxcb-sync1 libxcb-shm0 libxcb-render0 libxcb-util1 libxcb-xkb1 "
+                "libxkbcommon-x11-0 libx11-xcb1"
+            )
+        raise StepFailed(f"fonts {fonts} or Qt platform plugins {sorted(platforms)} missing{hint}")
     return [
         f"{len(modules)} modules; none of {len(FORBIDDEN_MODULES)} forbidden ones "
         "(network clients, dev tools, other toolkits)",
-        f"Qt platform plugins: {', '.join(sorted(platforms))}; DejaVu Sans bundled",
+        f"Qt platform plugins: {', '.join(sorted(platforms))}; DejaVu Sans bundled; "
+        "svglib as replaceable .py files",
     ]
 
 

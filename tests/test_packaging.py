@@ -294,3 +294,34 @@ def test_bundle_entry_script_runs_the_cli_after_the_hooks(tmp_path):
 
     assert proc.returncode == 0, proc.stderr
     assert proc.stdout.strip() == f"Lopside {__version__}"
+
+
+def _norm(name: str) -> str:
+    # PEP 503 name normalisation: PySide6_Essentials == pyside6-essentials
+    import re
+
+    return re.sub(r"[-_.]+", "-", name).lower()
+
+
+def test_bundle_pins_every_runtime_dependency():
+    """packaging/requirements-bundle.txt pins (==) each dependency the wheel declares, so a
+    new dependency reaches the bundle with a known version (pip check in the build script
+    fails otherwise, but only when someone builds)."""
+    tomllib = pytest.importorskip("tomllib", reason="Python 3.11+ reads pyproject.toml")
+    import re
+
+    declared = tomllib.loads((REPO / "pyproject.toml").read_text(encoding="utf-8"))["project"][
+        "dependencies"
+    ]
+    names = {_norm(re.split(r"[\s<>=!~;\[]", d, maxsplit=1)[0]) for d in declared}
+    pins = {}
+    for line in (REPO / "packaging" / "requirements-bundle.txt").read_text().splitlines():
+        line = line.split("#", 1)[0].strip()
+        if line:
+            name, _, version = line.partition("==")
+            assert version, f"not an exact pin: {line!r}"
+            pins[_norm(name)] = version
+    missing = sorted(names - pins.keys())
+    assert missing == [], f"add exact pins to packaging/requirements-bundle.txt: {missing}"
+    for tool in ("pyinstaller", "pyinstaller-hooks-contrib", "scipy"):
+        assert tool in pins, tool
