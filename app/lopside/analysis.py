@@ -208,8 +208,11 @@ def _safe(fn, *args, **kw):
     """Run one statistic; an unexpected numerical failure becomes NotComputable, not a crash."""
     try:
         return fn(*args, **kw)
-    except (ValueError, ArithmeticError, np.linalg.LinAlgError) as exc:
-        return NotComputable(f"could not be computed for these data ({exc})")
+    except (ValueError, ArithmeticError, IndexError, np.linalg.LinAlgError):
+        return NotComputable(
+            "could not be computed for these data (the numbers are too extreme or too few "
+            "for reliable arithmetic)"
+        )
 
 
 def analyse(

@@ -14,6 +14,7 @@ from __future__ import annotations
 
 import argparse
 import json
+import os
 import sys
 from dataclasses import replace
 
@@ -194,6 +195,15 @@ def main(argv: list[str] | None = None) -> int:
             return int(args.func(args) or 0)
         except KeyboardInterrupt:
             return 130
+        except Exception as exc:  # noqa: BLE001 - last guard: one line, never a traceback
+            if os.environ.get("LOPSIDE_DEBUG"):
+                raise
+            print(
+                f"lopside: internal error ({type(exc).__name__}: {exc}); nothing was written. "
+                "Please report it with the file that caused it.",
+                file=sys.stderr,
+            )
+            return 3
     return window_main(argv)
 
 

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import stat
 from pathlib import Path
 from typing import Any
 
@@ -10,6 +11,7 @@ from .model.project_file import SUFFIX, ProjectFileError, load
 from .model.review import MEASURES, Review, ReviewDetails, StudyRow
 
 ACCEPTED = (SUFFIX, ".json", ".csv", ".xlsx", ".txt")
+MAX_TEXT_BYTES = 50 * 2**20
 
 
 class InputError(ValueError):
@@ -48,7 +50,12 @@ def load_review_file(path: str | Path, measure: str | None = None) -> tuple[Revi
         raise InputError(f"{p}: no such file.")
     if p.is_dir():
         raise InputError(f"{p}: is a folder; give a project file, CSV, XLSX or .txt file.")
+    info = p.stat()
+    if not stat.S_ISREG(info.st_mode):
+        raise InputError(f"{p}: not a file; give a project file, CSV, XLSX or .txt file.")
     suffix = p.suffix.lower()
+    if suffix == ".txt" and info.st_size > MAX_TEXT_BYTES:
+        raise InputError(f"{p.name}: the file is larger than pasted text can be (more than 50 MB).")
     if suffix in (SUFFIX, ".json"):
         review, settings = load(p)
         if measure:

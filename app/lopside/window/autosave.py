@@ -119,16 +119,15 @@ class Autosaver(QObject):
         if self._written_state == (s.state_id, s.settings):
             return True
         try:
-            project_file.write_atomic(
-                self.file, project_file.dumps(s.review, s.settings.to_dict()).encode("utf-8")
-            )
+            # the same checked, atomic save as File > Save, so an autosave always reopens
+            project_file.save(s.review, self.file, s.settings.to_dict())
             meta = {
                 "original": str(s.path or ""),
                 "name": s.display_name(),
                 "saved_at": time.time(),
             }
             project_file.write_atomic(self.meta, json.dumps(meta).encode("utf-8"))
-        except OSError as exc:
+        except (OSError, ValueError) as exc:
             self.last_error = str(exc)
             return False
         self._written_state = (s.state_id, s.settings)
