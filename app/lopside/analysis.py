@@ -177,21 +177,23 @@ def _leave_one_out_estimates(data: StudyData, model_key: str, measure: str):
     from .stats import pooling as pl
 
     key = model_key.removesuffix("+HKSJ")
-    out = []
-    for i in range(data.k):
-        mask = np.ones(data.k, dtype=bool)
-        mask[i] = False
-        sub = data.subset(mask)
-        if key == "FE-IV":
-            r = pl.fixed_effect(sub.y, sub.v)
-        elif key == "MH":
-            r = binary.mantel_haenszel(sub.a, sub.b, sub.c, sub.d, measure)
-        elif key == "Peto":
-            r = binary.peto(sub.a, sub.b, sub.c, sub.d)
-        else:
-            r = pl.random_effects(sub.y, sub.v, method=key)
-        out.append((data.rows[i], data.labels[i], r.estimate if r else float("nan")))
-    return out
+    keep = ~np.eye(data.k, dtype=bool)
+    if key == "FE-IV":
+        results = pl.fixed_effect_batch(data.y, data.v, keep, with_weights=False)
+    elif key in pl.TAU2_METHODS:
+        results = pl.random_effects_batch(data.y, data.v, keep, method=key, with_weights=False)
+    else:
+        results = []
+        for i in range(data.k):
+            sub = data.subset(keep[i])
+            if key == "MH":
+                results.append(binary.mantel_haenszel(sub.a, sub.b, sub.c, sub.d, measure))
+            else:
+                results.append(binary.peto(sub.a, sub.b, sub.c, sub.d))
+    return [
+        (data.rows[i], data.labels[i], r.estimate if r else float("nan"))
+        for i, r in enumerate(results)
+    ]
 
 
 def _flagged_rows(review: Review, problems) -> tuple[tuple[int, str], ...]:
@@ -223,6 +225,14 @@ def analyse(
     power_progress=None,
 ) -> AnalysisResult:
     """Analyse a review: derive effects, pool, test, adjust; return one frozen result."""
+    from .stats import pooling
+
+    # one analysis asks for the tau^2 of the same studies many times: estimate each once
+    with pooling.reuse_tau2():
+        return _analyse(review, settings, with_power=with_power, power_progress=power_progress)
+
+
+def _analyse(review, settings, *, with_power, power_progress) -> AnalysisResult:
     from .intake.checks import check_rows
     from .stats import adjust, applicability, asymmetry, binary, moderators, sensitivity
     from .stats import pooling as pl
@@ -314,6 +324,13 @@ def analyse(
     variants: dict[str, Any] = {}
     for est in ("L0", "R0"):
         for trim_m, fill_m in (("FE", "FE"), ("FE", "RE"), ("RE", "RE")):
+            if (est, trim_m, fill_m) == (
+                settings.trimfill_estimator,
+                settings.trimfill_trim_model,
+                settings.trimfill_fill_model,
+            ):
+                variants[f"{est}, trim {trim_m}, fill {fill_m}"] = trim_fill  # already run
+                continue
             variants[f"{est}, trim {trim_m}, fill {fill_m}"] = _safe(
                 adjust.trim_and_fill,
                 data,

@@ -982,7 +982,7 @@ def tau2_batch(y, v, mask, method: str) -> Tau2Batch:
     raise ValueError(f"unknown tau^2 method {method!r}; use one of {TAU2_METHODS}")
 
 
-def _pool_rows(y, v, mask, tau2: np.ndarray, *, hksj: bool):
+def _pool_rows(y, v, mask, tau2: np.ndarray, *, hksj: bool, with_weights: bool = True):
     """Estimate, sum of weights, HKSJ q numerator (if asked) and percent weights per row."""
     nsub = mask.shape[0]
     est = np.full(nsub, np.nan)
@@ -997,6 +997,8 @@ def _pool_rows(y, v, mask, tau2: np.ndarray, *, hksj: bool):
             res = y[c] - e[:, None]
             rq[r] = (w * res * res).sum(axis=1)
         est[r], sw[r] = e, s
+        if not with_weights:
+            continue
         used = mb > 0
         counts = used.sum(axis=1)
         # percent weights of the studies used only, as (100 w) / sum w like the scalar code;
@@ -1011,7 +1013,7 @@ def _pool_rows(y, v, mask, tau2: np.ndarray, *, hksj: bool):
 
 @_quietly
 def fixed_effect_batch(
-    y, v, mask, *, confidence_level: float = 0.95
+    y, v, mask, *, confidence_level: float = 0.95, with_weights: bool = True
 ) -> tuple[PooledEstimate | NotComputable, ...]:
     """:func:`fixed_effect` of each subset (row of ``mask``), in row order.
 
@@ -1022,6 +1024,9 @@ def fixed_effect_batch(
     mask : array_like of bool, shape (B, k)
         Row b selects the studies of subset b.
     confidence_level : float
+    with_weights : bool
+        Fill each result's percent weights (False leaves them empty: leave-one-out and
+        cumulative rows do not show them, and at k = 3,000 they are millions of numbers).
 
     Returns
     -------
@@ -1031,7 +1036,9 @@ def fixed_effect_batch(
 
     y, v, mask = _batch_arrays(y, v, mask)
     n = mask.sum(axis=1)
-    est, sw, _, weights = _pool_rows(y, v, mask, np.zeros(mask.shape[0]), hksj=False)
+    est, sw, _, weights = _pool_rows(
+        y, v, mask, np.zeros(mask.shape[0]), hksj=False, with_weights=with_weights
+    )
     se = 1.0 / np.sqrt(sw)
     stat = est / se
     p = 2.0 * ndtr(-np.abs(stat))
@@ -1068,6 +1075,7 @@ def random_effects_batch(
     hksj: bool = False,
     confidence_level: float = 0.95,
     tau2=None,
+    with_weights: bool = True,
 ) -> tuple[PooledEstimate | NotComputable, ...]:
     """:func:`random_effects` of each subset (row of ``mask``), in row order.
 
@@ -1083,6 +1091,8 @@ def random_effects_batch(
     confidence_level : float
     tau2 : float or array_like, optional
         Pool at these between-study variances (one, or one per row) instead of estimating.
+    with_weights : bool
+        As in :func:`fixed_effect_batch`.
 
     Returns
     -------
@@ -1099,7 +1109,7 @@ def random_effects_batch(
     else:
         tau2_arr = np.broadcast_to(np.asarray(tau2, dtype=float), (nsub,)).copy()
         converged, notes = np.ones(nsub, bool), ("",) * nsub
-    est, sw, rq, weights = _pool_rows(y, v, mask, tau2_arr, hksj=hksj)
+    est, sw, rq, weights = _pool_rows(y, v, mask, tau2_arr, hksj=hksj, with_weights=with_weights)
     alpha_half = 0.5 + confidence_level / 2.0
     use_t = hksj & (n >= 2)
     se = 1.0 / np.sqrt(sw)

@@ -109,9 +109,17 @@ def leave_one_out(
     # all k subsets pooled at once (row i leaves study i out); same numbers as pooling
     # each subset on its own, see tests/test_pooling_batch.py
     keep = ~np.eye(k, dtype=bool)
-    fixed = fixed_effect_batch(y, v, keep, confidence_level=confidence_level)
+    # rows carry no percent weights: nothing shows them, and at k = 3,000 they would be
+    # millions of numbers
+    fixed = fixed_effect_batch(y, v, keep, confidence_level=confidence_level, with_weights=False)
     random = random_effects_batch(
-        y, v, keep, method=tau2_method, hksj=hksj, confidence_level=confidence_level
+        y,
+        v,
+        keep,
+        method=tau2_method,
+        hksj=hksj,
+        confidence_level=confidence_level,
+        with_weights=False,
     )
     q = cochran_q_batch(y, v, keep)
     rows = [
@@ -192,9 +200,17 @@ def cumulative(
     # row m - 1 holds the m most precise studies (a prefix in precision order)
     ys, vs = y[order], v[order]
     prefix = np.tri(k, dtype=bool)
-    fixed = fixed_effect_batch(ys, vs, prefix, confidence_level=confidence_level)
+    fixed = fixed_effect_batch(
+        ys, vs, prefix, confidence_level=confidence_level, with_weights=False
+    )
     random = random_effects_batch(
-        ys, vs, prefix, method=tau2_method, hksj=hksj, confidence_level=confidence_level
+        ys,
+        vs,
+        prefix,
+        method=tau2_method,
+        hksj=hksj,
+        confidence_level=confidence_level,
+        with_weights=False,
     )
     steps = []
     for m in range(1, k + 1):
