@@ -480,13 +480,6 @@ def test_the_nan_walker_finds_what_it_looks_for():
     assert _non_finite(np.array([1.0, math.inf])) == ["result[1]"]
 
 
-@pytest.mark.xfail(
-    strict=True,
-    reason="pooling.py (being reworked by another engineer) raises ZeroDivisionError / "
-    "ValueError('math domain error') for effects whose squares overflow, instead of "
-    "returning NotComputable. analyse() never passes such data (effects.py refuses "
-    "|y| > 1e12 and SEs outside 1e-12..1e12), so this is defence in depth only.",
-)
 def test_pooling_returns_not_computable_for_overflowing_effects():
     y = np.array([1e300, -1e300, 1e300, 0.5])
     v = np.array([1.0, 2.0, 1.0, 1.0])

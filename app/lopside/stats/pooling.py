@@ -58,6 +58,24 @@ def _chi2_sf(x: float, df: float) -> float:
     return float(chdtrc(df, x))
 
 
+TOO_EXTREME = (
+    "the effects or standard errors are too extreme for reliable arithmetic; check the "
+    "entered values"
+)
+
+
+def _too_extreme(y: np.ndarray, v: np.ndarray) -> bool:
+    """True when the weighted sums that every estimator needs overflow or are not finite."""
+    with np.errstate(all="ignore"):
+        return not (
+            np.all(np.isfinite(y))
+            and np.all(np.isfinite(v))
+            and np.all(v > 0)
+            and np.isfinite((y * y / v).sum())
+            and np.isfinite((1.0 / v).sum())
+        )
+
+
 def _as_arrays(y, v) -> tuple[np.ndarray, np.ndarray]:
     return np.asarray(y, dtype=float), np.asarray(v, dtype=float)
 
@@ -71,6 +89,8 @@ def fixed_effect(y, v, *, confidence_level: float = 0.95) -> PooledEstimate | No
     y, v = _as_arrays(y, v)
     if y.size == 0:
         return NotComputable("no study has a usable effect and standard error")
+    if _too_extreme(y, v):
+        return NotComputable(TOO_EXTREME)
     w = 1.0 / v
     sw = w.sum()
     est = float((w * y).sum() / sw)
@@ -338,6 +358,8 @@ def random_effects(
     k = y.size
     if k == 0:
         return NotComputable("no study has a usable effect and standard error")
+    if _too_extreme(y, v):
+        return NotComputable(TOO_EXTREME)
     if tau2 is None:
         t2 = estimate_tau2(y, v, method)
     else:
@@ -458,6 +480,8 @@ def heterogeneity(
     k = y.size
     if k < 2:
         return NotComputable("heterogeneity needs at least two studies")
+    if _too_extreme(y, v):
+        return NotComputable(TOO_EXTREME)
     q = cochran_q(y, v)
     df = k - 1
     i2 = max(0.0, (q - df) / q) * 100.0 if q > 0 else 0.0
