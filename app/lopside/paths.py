@@ -9,15 +9,11 @@ _REPO_TOP = Path(__file__).resolve().parents[2]
 
 
 def _package_dir(name: str) -> Path | None:
-    try:
-        from importlib.resources import files
-
-        p = Path(str(files(f"lopside.{name}")))
-        if p.is_dir():
-            return p
-    except (ModuleNotFoundError, TypeError):
-        pass
-    return None
+    # An installed package has the folder beside this module (the wheel puts it there).
+    # importlib.resources is no help: these folders have no __init__.py, so files()
+    # returns a MultiplexedPath whose str() is not a path.
+    p = Path(__file__).resolve().parent / name
+    return p if p.is_dir() else None
 
 
 def _find(name: str) -> Path:
