@@ -600,23 +600,24 @@ def test_typing_into_the_table_with_the_keyboard_only(make_window, qtbot):
     table.setFocus()
     w.studies.select_row(1, col=w.studies.model.column_of("estimate"))
 
-    def type_into_current_cell(text):
-        qtbot.keyClicks(table, text[0])  # any key starts editing the current cell
-        qtbot.wait(20)  # let the editor take the focus, as it would between keystrokes
-        editor = table.viewport().findChild(QLineEdit)
-        assert editor is not None and editor.isVisible()
-        qtbot.keyClicks(editor, text[1:])  # the editor has the focus from here on
-        assert editor.text() == text
-        qtbot.keyClick(editor, Qt.Key_Return)
-        qtbot.wait(20)  # Qt commits the editor's data from a queued call
+    def editor():
+        e = table.viewport().findChild(QLineEdit)
+        return e if e is not None and e.isVisible() else None
 
-    type_into_current_cell("0.66")
-    assert w.session.review.studies[1].estimate == 0.66
+    def type_into_current_cell(text, check):
+        qtbot.keyClicks(table, text[0])  # any key starts editing the current cell
+        # wait for the editor to open and take the focus (no fixed sleep: CI may be loaded)
+        qtbot.waitUntil(lambda: editor() is not None, timeout=5000)
+        qtbot.keyClicks(editor(), text[1:])  # the editor has the focus from here on
+        assert editor().text() == text
+        qtbot.keyClick(editor(), Qt.Key_Return)
+        qtbot.waitUntil(check, timeout=5000)  # Qt commits the editor's data from a queued call
+
+    type_into_current_cell("0.66", lambda: w.session.review.studies[1].estimate == 0.66)
     # Tab moves to the next cell; typing replaces its value
     qtbot.keyClick(table, Qt.Key_Tab)
     assert table.currentIndex().column() == w.studies.model.column_of("lower")
-    type_into_current_cell("0.4")
-    assert w.session.review.studies[1].lower == 0.4
+    type_into_current_cell("0.4", lambda: w.session.review.studies[1].lower == 0.4)
     assert w.stack.count() == 2
 
 

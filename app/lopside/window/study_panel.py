@@ -10,6 +10,7 @@ from PySide6.QtWidgets import (
     QHBoxLayout,
     QHeaderView,
     QLabel,
+    QLineEdit,
     QListWidget,
     QListWidgetItem,
     QSplitter,
@@ -37,6 +38,28 @@ COLUMN_WIDTHS = {
 }
 
 
+def _typed_in(editor) -> bool:
+    """Has the user typed into this open editor? (then a refresh must not overwrite it)"""
+    line = editor if isinstance(editor, QLineEdit) else getattr(editor, "lineEdit", None)
+    if callable(line):
+        line = line()
+    return isinstance(line, QLineEdit) and line.isModified()
+
+
+class KeepTypingDelegate(QStyledItemDelegate):
+    """The plain cell editor, but a table refresh never resets text being typed.
+
+    When the analysis finishes in the background the model announces that its rows
+    changed, and Qt would then reload every open editor from the model, throwing away the
+    keystrokes typed so far.
+    """
+
+    def setEditorData(self, editor, index):  # noqa: N802 - Qt API
+        if _typed_in(editor):
+            return
+        super().setEditorData(editor, index)
+
+
 class PickListDelegate(QStyledItemDelegate):
     """An editable pick list: risk-of-bias levels, or the subgroups already in the table."""
 
@@ -54,6 +77,8 @@ class PickListDelegate(QStyledItemDelegate):
         return box
 
     def setEditorData(self, editor, index):  # noqa: N802 - Qt API
+        if _typed_in(editor):  # a refresh must not overwrite what is being typed
+            return
         editor.setCurrentText(index.data(Qt.EditRole) or "")
 
     def setModelData(self, editor, model, index):  # noqa: N802 - Qt API
@@ -145,6 +170,7 @@ class StudyPanel(QWidget):
 
         split = QSplitter(Qt.Vertical)
         self.table = StudyTableView()
+        self.table.setItemDelegate(KeepTypingDelegate(self.table))
         self.table.setModel(self.model)
         self.table.setAccessibleName("Study table")
         self.table.setSelectionBehavior(QAbstractItemView.SelectItems)
