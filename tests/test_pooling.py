@@ -152,3 +152,25 @@ def test_edge_cases_are_defined_or_not_computable():
     assert isinstance(two.i2_ci, NotComputable)  # H&T interval needs k >= 3
     same = pl.heterogeneity([0.2] * 5, [0.01, 0.02, 0.03, 0.04, 0.05])
     assert same.q == 0 and same.i2 == 0 and same.tau2 == 0
+
+
+def test_reml_converges_where_fisher_scoring_oscillates():
+    # Data (invented, log odds ratios) where the observed curvature of the restricted
+    # likelihood at its maximum is about 2.6 times the expected information, so plain
+    # Fisher scoring overshoots and oscillates; the estimate must still be the maximiser
+    # found by scipy.optimize.minimize_scalar (general-purpose reference).
+    k = 30
+    i = np.arange(k)
+    se = 0.08 + 0.9 * i / (k - 1)
+    y = -0.1 - 0.5 * i / (k - 1) + 0.15 * np.sin(i * 1.7)
+    y, v = y[1:], se[1:] ** 2
+    est = pl.tau2_reml(y, v)
+    assert est.converged
+    opt = optimize.minimize_scalar(
+        lambda t: -pl.restricted_loglik(y, v, t),
+        bounds=(0, 1),
+        method="bounded",
+        options={"xatol": 1e-14},
+    )
+    assert est.tau2 == pytest.approx(opt.x, abs=1e-9)
+    assert est.iterations > 100  # scoring alone did not settle: the bracketing search did

@@ -252,12 +252,68 @@ def _reml_point(y: np.ndarray, v: np.ndarray, tau2: float):
     return ll, w, sw, r2
 
 
+#: Fisher scoring iterations before the score equation is solved by bracketing instead
+_SCORING_ITER = 100
+
+
+def _reml_score(y: np.ndarray, v: np.ndarray, tau2: float) -> float:
+    """Derivative of the restricted log-likelihood with respect to tau^2."""
+    _, w, sw, r2 = _reml_point(y, v, tau2)
+    w2 = w**2
+    return float(-0.5 * (sw - w2.sum() / sw) + 0.5 * (w2 * r2).sum())
+
+
+def _reml_by_root(y: np.ndarray, v: np.ndarray, tau2: float) -> tuple[Tau2Estimate, float] | None:
+    """Solve score(tau^2) = 0 by Brent's method on a bracket around ``tau2``.
+
+    Fisher scoring uses the expected information; where the observed curvature is much
+    larger (seen on real-looking data: 2.6 times), its steps overshoot and oscillate
+    around the maximum instead of converging. The score is monotone near the maximum,
+    so a bracketing root search converges there.
+    """
+    from scipy.optimize import brentq
+
+    s0 = _reml_score(y, v, tau2)
+    if s0 == 0.0:
+        return Tau2Estimate("REML", tau2), _reml_point(y, v, tau2)[0]
+    if s0 > 0:
+        lo, hi = tau2, max(2.0 * tau2, 1e-8)
+        for _ in range(200):
+            if _reml_score(y, v, hi) < 0:
+                break
+            lo, hi = hi, hi * 2.0
+        else:
+            return None
+    else:
+        hi, lo = tau2, tau2 / 2.0
+        for _ in range(200):
+            if lo < 1e-300 or _reml_score(y, v, lo) > 0:
+                break
+            hi, lo = lo, lo / 2.0
+        if _reml_score(y, v, lo) <= 0:  # the score is negative down to 0: maximum at 0
+            return Tau2Estimate("REML", 0.0), _reml_point(y, v, 0.0)[0]
+    root, res = brentq(
+        lambda t: _reml_score(y, v, t), lo, hi, xtol=1e-14, rtol=1e-12, full_output=True
+    )
+    if not res.converged:
+        return None
+    root = float(root)
+    return Tau2Estimate("REML", root, iterations=int(res.iterations)), _reml_point(y, v, root)[0]
+
+
 def _reml_scoring(
     y: np.ndarray, v: np.ndarray, tau2: float, max_iter: int
 ) -> tuple[Tau2Estimate, float]:
-    """Fisher scoring from ``tau2``; returns the estimate and its restricted log-likelihood."""
+    """Fisher scoring from ``tau2`` (then a bracketing root search if scoring oscillates);
+    returns the estimate and its restricted log-likelihood."""
     ll, w, sw, r2 = _reml_point(y, v, tau2)
     for it in range(1, max_iter + 1):
+        if it > _SCORING_ITER:
+            found = _reml_by_root(y, v, tau2)
+            if found is not None:
+                est, root_ll = found
+                return Tau2Estimate("REML", est.tau2, iterations=it + est.iterations), root_ll
+            break
         # P-matrix quantities for the REML score and information (diagonal W, 1-column X)
         # score = -1/2 tr(P) + 1/2 r' W W r ; info = 1/2 tr(P P)
         w2 = w**2
@@ -899,7 +955,7 @@ def tau2_reml_batch(y, v, mask, *, max_iter: int = _MAX_ITER) -> Tau2Batch:
     mag = np.full(nsub, np.nan)
     for r, c, mb in _blocks(mask, rows):
         tau2[r], ll[r], mag[r], iters[r], ok[r] = _reml_scoring_block(
-            yc[c], v[c], mb, dl[r], max_iter
+            yc[c], v[c], mb, dl[r], min(max_iter, _SCORING_ITER)
         )
     good = rows[ok[rows]]
     if good.size:
