@@ -19,7 +19,7 @@ from PySide6.QtCore import QAbstractTableModel, QModelIndex, QPersistentModelInd
 from PySide6.QtGui import QBrush, QColor, QFont
 
 from .. import edits as ed
-from ..model.review import RATIO_MEASURES, StudyRow
+from ..model.review import NUMERIC_FIELDS, RATIO_MEASURES, StudyRow
 from ..session import Session
 from . import messages as M
 
@@ -33,28 +33,7 @@ ENTRY_MODES: dict[str, tuple[str, tuple[str, ...]]] = {
         "Means and SDs per arm",
         ("int_mean", "int_sd", "int_n", "ctl_mean", "ctl_sd", "ctl_n"),
     ),
-    "all": (
-        "Every column",
-        (
-            "estimate",
-            "lower",
-            "upper",
-            "level",
-            "se",
-            "p",
-            "int_events",
-            "int_total",
-            "ctl_events",
-            "ctl_total",
-            "int_mean",
-            "int_sd",
-            "int_n",
-            "ctl_mean",
-            "ctl_sd",
-            "ctl_n",
-            "n",
-        ),
-    ),
+    "all": ("Every column", NUMERIC_FIELDS),
 }
 
 HEADERS: dict[str, str] = {
