@@ -29,6 +29,11 @@ from pathlib import Path
 
 APP = Path(__file__).resolve().parents[2] / "app"
 
+# Measure the window as the `lopside` command runs it: one BLAS thread, set before numpy
+# loads (lopside.cli.single_thread_blas does the same at start-up).
+for _var in ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS"):
+    os.environ.setdefault(_var, "1")
+
 
 def invented_review(k: int):
     """INVENTED studies (odds ratios with 95% CIs), small ones with larger effects."""
