@@ -112,8 +112,6 @@ def run_plot(args: argparse.Namespace) -> int:
     from dataclasses import replace
 
     from ..cli_common import load_review_file
-    from ..intake.errors import IntakeError
-    from ..model.project_file import ProjectFileError
     from ..settings import AnalysisSettings
     from .common import FigureInputError
     from .export import format_for
@@ -128,28 +126,17 @@ def run_plot(args: argparse.Namespace) -> int:
             f"-o {out}: the folder {out.parent} does not exist; create it or pick another."
         )
 
-    input_errors: tuple[type[BaseException], ...] = (IntakeError, ProjectFileError)
-    try:
-        from ..cli_common import INPUT_ERRORS
+    from ..cli import settings_from_args
+    from ..cli_common import INPUT_ERRORS
 
-        input_errors = tuple(INPUT_ERRORS)
-    except ImportError:  # an older cli_common: the two documented error types only
-        pass
     try:
         review, saved = load_review_file(args.file, getattr(args, "measure", None))
-    except input_errors as exc:
+    except INPUT_ERRORS as exc:
         return _fail(str(exc))
-    settings = saved if isinstance(saved, AnalysisSettings) else AnalysisSettings.from_dict(saved)
-    changes = {}
-    if getattr(args, "measure", None):
-        changes["measure"] = args.measure
-    if getattr(args, "tau2_method", None):
-        changes["tau2_method"] = args.tau2_method
-    if getattr(args, "hksj", False):
-        changes["hksj"] = True
+    # the same analysis options as check and sheet, plus the funnel's centre line
+    settings = settings_from_args(args, AnalysisSettings.from_dict(saved))
     if getattr(args, "model", None):
-        changes["funnel_model"] = args.model
-    settings = replace(settings, **changes)
+        settings = replace(settings, funnel_model=args.model)
 
     from ..analysis import analyse
 
