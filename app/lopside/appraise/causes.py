@@ -16,7 +16,7 @@ import math
 
 from ..model.review import CAUSE_TITLES, CAUSES
 from ..stats.results import PooledEstimate
-from ..summary import (
+from ..words.numbers import (
     fmt_ci,
     fmt_effect,
     fmt_num,

@@ -12,8 +12,7 @@ from typing import Any
 
 from ..model.review import RATIO_MEASURES
 from ..stats.results import PooledEstimate
-from ..summary import (
-    adjustment_rows,
+from ..words.numbers import (
     fmt_ci,
     fmt_effect,
     fmt_num,
@@ -24,6 +23,7 @@ from ..summary import (
     plural,
     why_not,
 )
+from ..words.rows import adjustment_rows
 from .glossary import Glossary
 from .model import AdjustmentRange, ContourReading, TestReading
 
