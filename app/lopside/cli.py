@@ -88,7 +88,7 @@ def _load(args):
 
 
 def cmd_check(args) -> int:
-    from .analysis import analyse
+    from .assessment import assess
     from .cli_common import INPUT_ERRORS
 
     try:
@@ -102,16 +102,17 @@ def cmd_check(args) -> int:
             print(f"\rpower simulation {done}/{total}", end="", file=sys.stderr)
             return True
 
-    result = analyse(review, settings, with_power=args.power, power_progress=progress)
+    # one assessment (numbers and reading) feeds the text and the JSON alike
+    assessment = assess(review, settings, with_power=args.power, power_progress=progress)
     if args.json:
         from .report import to_json
 
-        json.dump(to_json(result), sys.stdout, indent=2, ensure_ascii=False, allow_nan=False)
+        json.dump(to_json(assessment), sys.stdout, indent=2, ensure_ascii=False, allow_nan=False)
         sys.stdout.write("\n")
     else:
         from .summary import text_summary
 
-        sys.stdout.write(text_summary(result))
+        sys.stdout.write(text_summary(assessment))
     return 0
 
 
@@ -124,12 +125,12 @@ def cmd_sheet(args) -> int:
         return _fail(str(exc))
     if args.appraiser:
         review = review.with_details(appraiser=args.appraiser)
-    from .analysis import analyse
+    from .assessment import assess
     from .sheet import write_sheet
 
-    result = analyse(review, settings, with_power=args.power)
+    assessment = assess(review, settings, with_power=args.power)
     try:
-        write_sheet(result, args.output, include_forest=args.include_forest)
+        write_sheet(assessment, args.output, include_forest=args.include_forest)
     except OSError as exc:
         return _fail(f"{args.output}: cannot write the sheet ({exc.strerror or exc}).")
     print(f"wrote {args.output}")

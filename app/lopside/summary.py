@@ -57,6 +57,7 @@ from .words.numbers import (  # noqa: F401 - re-exported
     why_not,
 )
 from .words.rows import _test_result_text, adjustment_rows, recommended_key  # noqa: F401
+from .words.sentences import spread_text, trim_fill_range
 
 #: How many list items (problem rows, excluded studies) a section shows before "and N more".
 LIST_LIMIT = 6
@@ -179,7 +180,8 @@ def data_section(result) -> Section:
     ses = [float(x) for x in data.se if is_finite(x)]
     if ses:
         lo, hi = min(ses), max(ses)
-        ratio = f"; largest is {fmt_num(hi / lo, 1)} times the smallest" if lo > 0 else ""
+        spread = spread_text(lo, hi)
+        ratio = f"; {spread}" if spread else ""
         scale = " (log scale)" if result.measure in RATIO_MEASURES else ""
         rows.append(("Standard errors" + scale, f"{fmt_se(lo)} to {fmt_se(hi)}{ratio}"))
     routes = _route_counts(result)
@@ -233,7 +235,7 @@ def reconciliation_section(result) -> Section:
                 "Closest model",
                 f"{model_name(best.model)}: "
                 f"{fmt_effect_ci(best.estimate, best.ci_low, best.ci_high, m)}, "
-                f"largest difference {fmt_share(best.worst, 1)}",
+                f"largest difference (estimate or a CI limit) {fmt_share(best.worst, 1)}",
             )
         )
     verdict = {
@@ -654,8 +656,11 @@ def analysis_sections(result) -> tuple[Section, ...]:
         tests_section(result),
         applicability_section(result),
         adjustments_section(result),
-        sensitivity_section(result),
     ]
+    tf = trim_fill_section(result)
+    if tf is not None:
+        out.append(tf)
+    out.append(sensitivity_section(result))
     sg = subgroups_section(result)
     if sg is not None:
         out.append(sg)
@@ -727,14 +732,130 @@ def appraisal_sections(appraisal) -> tuple[Section, ...]:
     return (small_study_section(appraisal), causes_section(appraisal), rating_section(appraisal))
 
 
-def all_sections(result, appraisal=None) -> tuple[Section, ...]:
-    """Every section in the order of the text summary."""
-    if appraisal is None:
-        from .appraise import appraise
+# --------------------------------------------------------------------------------------
+# Page one: the key messages (sheet page 1, the text's first block, JSON appraisal.page_one)
+#
+# Each line is one function (assessment) -> (label, text) or None (line left out). To add a
+# page-1 line, write such a function and append it to PAGE_ONE_LINES: the sheet, the text
+# and the JSON all pick it up, in that order.
 
-        appraisal = appraise(result)
+
+def _rating_line(assessment):
+    r = assessment.appraisal.rating
+    text = r.suggested
+    if not r.assessable:
+        text += " (" + r.reasons[0].removeprefix("The data cannot support a rating: ").rstrip(".")
+        text += "; signals point towards bias)" if r.leaning else ")"
+    if r.override:
+        text += f"; appraiser's rating: {r.override}"
+    else:
+        text += "; for the appraiser to confirm or override"
+    return ("Publication bias, suggested rating", text)
+
+
+def _funnel_line(assessment):
+    c = assessment.appraisal.small_study.contour
+    return ("Funnel", c.conclusion or c.text)
+
+
+def _test_line(assessment):
+    return ("Test", assessment.appraisal.small_study.test.text)
+
+
+def _power_line(assessment):
+    return ("Power of the test", assessment.appraisal.small_study.power_text)
+
+
+def _alternative_line(assessment):
+    best = assessment.appraisal.strongest_alternative
+    if best is None:
+        return (
+            "Strongest other explanation",
+            "None of the other explanations has support in this review's data; what the data "
+            "cannot show is listed with the explanations.",
+        )
+    cause, ev = best
+    return ("Strongest other explanation", f"{cause.title}: {ev.text}")
+
+
+def _adjusted_line(assessment):
+    return ("Adjusted estimates", assessment.appraisal.small_study.adjustments.text)
+
+
+def _trim_fill_line(assessment):
+    rng = trim_fill_range(assessment.analysis)
+    if rng is None or rng.n < 2 or rng.agree:
+        return None
+    return ("Trim and fill settings", rng.text)
+
+
+PAGE_ONE_LINES = [
+    _rating_line,
+    _funnel_line,
+    _test_line,
+    _power_line,
+    _alternative_line,
+    _adjusted_line,
+    _trim_fill_line,
+]
+
+
+def glance_section(assessment) -> Section:
+    """The key messages: rating, funnel, test, power, strongest other explanation, range."""
+    from .assessment import assessment_of
+
+    assessment = assessment_of(assessment)
+    rows = []
+    for fn in PAGE_ONE_LINES:
+        line = fn(assessment)
+        if line is not None:
+            rows.append(line)
+    return Section("glance", "At a glance", tuple(rows))
+
+
+def trim_fill_section(result) -> Section | None:
+    """Trim and fill under each of its usual settings, the default marked (Peters et al. 2007)."""
+    rng = trim_fill_range(result)
+    if rng is None:
+        return None
+    m = result.measure
+    rows = tuple(
+        (
+            name + (" (default)" if default else ""),
+            str(k0),
+            fmt_effect(est, m),
+            fmt_ci(lo, hi, m),
+        )
+        for name, k0, est, lo, hi, default in rng.rows
+    )
+    emphasis = tuple(i for i, r in enumerate(rng.rows) if r[5])
+    return Section(
+        "trim_fill_settings",
+        "Trim and fill under each setting",
+        rows,
+        header=("Setting", "Filled", "Estimate", "95% CI"),
+        notes=(rng.text,),
+        emphasis=emphasis,
+        widths=(2.6, 0.7, 0.9, 1.5),
+    )
+
+
+def all_sections(result, appraisal=None) -> tuple[Section, ...]:
+    """Every section in the order of the text summary.
+
+    ``result`` may be an :class:`~lopside.assessment.Assessment` (preferred) or an
+    analysis, read through :func:`~lopside.assessment.assessment_of`; ``appraisal`` is
+    accepted for older callers and must be that analysis' appraisal.
+    """
+    from .assessment import assessment_of
+
+    assessment = assessment_of(result)
+    analysis = assessment.analysis
+    appraisal = appraisal or assessment.appraisal
     a = appraisal_sections(appraisal)
-    return (header_section(result),) + analysis_sections(result) + a
+    out = [header_section(analysis), glance_section(assessment)]
+    out += list(analysis_sections(analysis))
+    return tuple(out) + a
 
 
 # --------------------------------------------------------------------------------------
@@ -832,7 +953,7 @@ def text_summary(result, width: int = WIDTH) -> str:
 
     Parameters
     ----------
-    result : AnalysisResult
+    result : Assessment or AnalysisResult
     width : int
         Terminal columns to wrap to.
 
@@ -842,10 +963,13 @@ def text_summary(result, width: int = WIDTH) -> str:
         Text ending in a newline.
     """
     from . import CAUTION, __version__
+    from .assessment import assessment_of
 
+    assessment = assessment_of(result)
+    result = assessment.analysis
     title = f"Lopside {__version__}: small-study effects appraisal"
     out = [title, "=" * len(title), ""]
-    for sec in all_sections(result):
+    for sec in all_sections(assessment):
         out.append(render_text(sec, width))
         out.append("")
     out.append("Caution")

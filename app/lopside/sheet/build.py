@@ -3,7 +3,8 @@
 Design invariants
 -----------------
 * Every word and number comes from :mod:`lopside.summary` (the same rows as the CLI text
-  and the window) and :mod:`lopside.appraise`; this module only lays them out.
+  and the window), reading one :class:`lopside.assessment.Assessment` (the analysis and
+  its appraisal, computed once); this module only lays them out and never appraises.
 * The main sheet is always exactly three pages: page 1 the review, the data and the pooled
   results; page 2 the funnel plot, tests and adjustments; page 3 the explanations side by
   side, the suggested rating and the settings. Each page is a frame that shrinks its
@@ -30,6 +31,7 @@ from ..summary import (
     causes_section,
     data_section,
     fmt_num,
+    glance_section,
     header_section,
     heterogeneity_section,
     pooled_section,
@@ -40,6 +42,7 @@ from ..summary import (
     small_study_section,
     subgroups_section,
     tests_section,
+    trim_fill_section,
 )
 from . import fonts, layout
 from .layout import FRAME_H, FRAME_W, boxed, para, section_table
@@ -150,29 +153,16 @@ def _section(sec, st, title: str | None = None, **kw) -> list:
     return out
 
 
-def _glance(result, appraisal, st) -> list:
-    """The key messages box on page 1."""
-    r = appraisal.rating
-    ss = appraisal.small_study
-    rating = f"<b>Publication bias, suggested rating:</b> {layout.markup(r.suggested)}"
-    if r.override:
-        rating += f"; <b>appraiser's rating:</b> {layout.markup(r.override)}"
-    else:
-        rating += " (for the appraiser to confirm or override, page 3)"
+def _glance(assessment, st) -> list:
+    """The key messages box on page 1: the rows of :func:`lopside.summary.glance_section`."""
     from reportlab.platypus import Paragraph
 
+    sec = glance_section(assessment)
     items = [
-        Paragraph(rating, st["box"]),
-        Paragraph(
-            f"<b>Funnel:</b> {layout.markup(ss.contour.conclusion or ss.contour.text)}", st["box"]
-        ),
-        Paragraph(f"<b>Test:</b> {layout.markup(ss.test.text)}", st["box"]),
-        Paragraph(
-            f"<b>Adjusted estimates:</b> {layout.markup(ss.adjustments.text.split(' Methods: ')[0])}",
-            st["box"],
-        ),
-        Paragraph(f"<b>Caution.</b> {layout.markup(CAUTION)}", st["small"]),
+        Paragraph(f"<b>{layout.markup(label)}:</b> {layout.markup(text)}", st["box"])
+        for label, text in sec.rows
     ]
+    items.append(Paragraph(f"<b>Caution.</b> {layout.markup(CAUTION)}", st["small"]))
     return [boxed(items, fill=layout.HEAD_FILL)]
 
 
@@ -219,9 +209,10 @@ def _header(result, st, date: str) -> list:
     return out
 
 
-def _page1(result, appraisal, st, date: str) -> list:
+def _page1(assessment, st, date: str) -> list:
+    result = assessment.analysis
     out = _header(result, st, date)
-    out += [_spacer(5)] + _glance(result, appraisal, st)
+    out += [_spacer(5)] + _glance(assessment, st)
     out += _section(data_section(result), st)
     out += _section(reconciliation_section(result), st)
     out += _section(pooled_section(result), st)
@@ -276,6 +267,9 @@ def _page2(result, appraisal, st) -> list:
     out += _section(tests_section(result), st)
     out += _section(applicability_section(result), st)
     out += _section(adjustments_section(result), st)
+    tf = trim_fill_section(result)
+    if tf is not None:
+        out += _section(tf, st)
     # power is read out beside the funnel (simulated or not), so no separate block here
     return out
 
@@ -362,7 +356,9 @@ def build_sheet(
 
     Parameters
     ----------
-    result : AnalysisResult
+    result : Assessment or AnalysisResult
+        The assessment to print (an analysis alone is read through
+        :func:`lopside.assessment.assessment_of`: the sheet never appraises by itself).
     include_forest : bool
         Add the forest plot on its own page(s) after the three main pages.
     date : str or datetime.date, optional
@@ -371,7 +367,7 @@ def build_sheet(
         Write the creation date and a random document id into the PDF (off by default,
         so that the same analysis on the same date gives the same bytes).
     appraisal : Appraisal, optional
-        Readings to print; computed from ``result`` when not given.
+        Accepted for older callers; must be the appraisal of ``result``.
 
     Returns
     -------
@@ -380,18 +376,21 @@ def build_sheet(
     from reportlab.lib.pagesizes import A4
     from reportlab.platypus import PageBreak, SimpleDocTemplate
 
-    from ..appraise import appraise
+    from ..assessment import Assessment, assessment_of
 
+    assessment = assessment_of(result)
+    if appraisal is not None and appraisal is not assessment.appraisal:
+        assessment = Assessment(assessment.analysis, appraisal)
+    result = assessment.analysis
+    appraisal = assessment.appraisal
     fonts.register_fonts()
     st = layout.styles()
-    if appraisal is None:
-        appraisal = appraise(result)
     if date is None:
         date = _dt.date.today()
     date = date.isoformat() if isinstance(date, _dt.date) else str(date)
 
     pages = [
-        _frame_page(_page1(result, appraisal, st, date)),
+        _frame_page(_page1(assessment, st, date)),
         _frame_page(_page2(result, appraisal, st)),
         _frame_page(_page3(result, appraisal, st)),
     ]

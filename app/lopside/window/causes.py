@@ -1,6 +1,7 @@
 """The causes view: each alternative explanation with the evidence, a judgement and notes.
 
-The evidence and the suggested rating are the readings of :mod:`lopside.appraise`; the
+The evidence and the suggested rating are read from the one assessment of the result
+(:func:`lopside.assessment.assessment_of`, the object the sheet and the JSON read); the
 judgements, notes and override are the appraiser's, stored in the review as edits.
 """
 
@@ -194,7 +195,7 @@ class CausesPanel(QScrollArea):
         ):
             return
         try:
-            from ..appraise import appraise
+            from ..assessment import assessment_of
         except ImportError as exc:
             msg = M.NOT_AVAILABLE.format(part=getattr(exc, "name", "lopside.appraise"))
             self.reading.setText(html.escape(msg))
@@ -202,7 +203,8 @@ class CausesPanel(QScrollArea):
                 ev.setText("\u2013")
             self.suggested.setText(html.escape(msg))
             return
-        a = appraise(result)
+        # the one assessment of this result (the same object the sheet and the JSON read)
+        a = assessment_of(result).appraisal
         self.appraisal = a
         self._appraisal_for = key
         lines = "".join(

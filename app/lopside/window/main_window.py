@@ -77,9 +77,10 @@ def _tests_sections(result):
 
     out = [S.tests_section(result), S.applicability_section(result)]
     try:
-        from ..appraise import appraise
+        from ..assessment import assessment_of
 
-        out.insert(0, S.small_study_section(appraise(result)))
+        # the one reading of this result (shared with the Causes view, sheet and JSON)
+        out.insert(0, S.small_study_section(assessment_of(result).appraisal))
     except ImportError:
         pass
     return out
@@ -88,7 +89,12 @@ def _tests_sections(result):
 def _adjust_sections(result):
     from .. import summary as S
 
-    return [S.adjustments_section(result), S.sensitivity_section(result)]
+    out = [S.adjustments_section(result)]
+    tf = S.trim_fill_section(result)  # every trim-and-fill setting beside the default
+    if tf is not None:
+        out.append(tf)
+    out.append(S.sensitivity_section(result))
+    return out
 
 
 # ------------------------------------------------------------------ default questions

@@ -84,7 +84,8 @@ class TrimFillRange:
     crosses : int
         Settings whose CI includes no effect.
     agree : bool
-        Every setting fills the same number and agrees on whether the CI includes no effect.
+        Every setting agrees on whether there is a gap at all and on whether the CI
+        includes no effect.
     text : str
         The one sentence that quotes the range (sheet, Adjust view, evidence line).
     """
@@ -128,7 +129,9 @@ def trim_fill_range(result) -> TrimFillRange | None:
     ests = [r[2] for r in rows]
     crosses = sum(1 for r in rows if r[3] <= 0.0 <= r[4])
     n = len(rows)
-    agree = min(k0s) == max(k0s) and crosses in (0, n)
+    # the settings disagree when some find no gap and others do, or when some intervals
+    # include no effect and others do not (Peters et al. 2007)
+    agree = (min(k0s) == 0) == (max(k0s) == 0) and crosses in (0, n)
     lo_row = min(rows, key=lambda r: r[2])
     hi_row = max(rows, key=lambda r: r[2])
     null = "1" if m in RATIO_MEASURES else "0"
@@ -139,7 +142,9 @@ def trim_fill_range(result) -> TrimFillRange | None:
         )
     else:
         fills = (
-            f"fill {k0s[0]}" if min(k0s) == max(k0s) else f"fill {min(k0s)} to {max(k0s)} studies"
+            f"fill {plural(k0s[0], 'study', 'studies')}"
+            if min(k0s) == max(k0s)
+            else f"fill {min(k0s)} to {max(k0s)} studies"
         )
         text = (
             f"Across the {n} trim-and-fill settings the methods {fills}; the estimate runs from "
