@@ -335,6 +335,7 @@ def to_json(result) -> dict[str, Any]:
         "settings": result.settings.to_dict(),
     }
     out["trim_fill_range"] = _trim_fill_range_json(result)
+    out["published_heterogeneity"] = _published_het_json(result)
     out["appraisal"] = appraisal_json(assessment)
     out["not_computable"] = nc
     return out
@@ -355,4 +356,20 @@ def _trim_fill_range_json(result) -> dict[str, Any] | None:
         "intervals_including_null": rng.crosses,
         "agree": rng.agree,
         "sentence": rng.text,
+    }
+
+
+def _published_het_json(result) -> dict[str, Any] | None:
+    """The paper's I² (pasted heterogeneity line) against the rows' I², or None."""
+    from .words.sentences import HET_AGREE_POINTS, heterogeneity_reconciled
+
+    pub = result.review.details.published.i2
+    het = result.heterogeneity
+    if pub is None or isinstance(het, NotComputable) or _num(het.i2) is None:
+        return None
+    return {
+        "published_i2": _num(pub),
+        "computed_i2": _num(het.i2),
+        "agree": abs(pub - het.i2) <= HET_AGREE_POINTS,
+        "sentence": heterogeneity_reconciled(pub, het.i2),
     }

@@ -57,7 +57,7 @@ from .words.numbers import (  # noqa: F401 - re-exported
     why_not,
 )
 from .words.rows import _test_result_text, adjustment_rows, recommended_key  # noqa: F401
-from .words.sentences import spread_text, trim_fill_range
+from .words.sentences import heterogeneity_reconciled, spread_text, trim_fill_range
 
 #: How many list items (problem rows, excluded studies) a section shows before "and N more".
 LIST_LIMIT = 6
@@ -211,11 +211,12 @@ def reconciliation_section(result) -> Section:
     m = result.measure
     rec = result.reconciliation
     pub = result.review.details.published
+    het_row = _published_heterogeneity_row(result)
     if not is_ok(rec):
         return Section(
             "reconciliation",
             "Check against the published result",
-            (("Published result", why_not(rec)),),
+            (("Published result", why_not(rec)),) + het_row,
             notes=(
                 "Enter the review's pooled estimate and CI to check that your rows reproduce it.",
             ),
@@ -249,7 +250,17 @@ def reconciliation_section(result) -> Section:
         rows.append(("Reading", rec.reading))
     for _row, label, why in rec.suspicious_rows:
         rows.append(("Re-check", f"{label}: {why}"))
+    rows.extend(het_row)
     return Section("reconciliation", "Check against the published result", tuple(rows))
+
+
+def _published_heterogeneity_row(result) -> tuple[tuple[str, str], ...]:
+    """The paper's I² (from a pasted heterogeneity line) against the rows' I²."""
+    pub_i2 = result.review.details.published.i2
+    het = result.heterogeneity
+    if pub_i2 is None or not is_ok(het):
+        return ()
+    return (("Heterogeneity", heterogeneity_reconciled(pub_i2, het.i2)),)
 
 
 def pooled_section(result) -> Section:

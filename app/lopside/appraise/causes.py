@@ -31,7 +31,12 @@ from ..words.numbers import (
     pooled_text,
     why_not,
 )
-from ..words.sentences import test_caution, trim_fill_range
+from ..words.sentences import (
+    HET_AGREE_POINTS,
+    heterogeneity_reconciled,
+    test_caution,
+    trim_fill_range,
+)
 from .glossary import Glossary
 from .model import CauseReading, Evidence, SmallStudyReading
 from .reading import CONTOUR_DIRECTION
@@ -506,6 +511,19 @@ def heterogeneity_evidence(result, ss: SmallStudyReading, g: Glossary) -> list[E
         out.append(
             _ev(
                 "unclear", f"Heterogeneity could not be estimated: {why_not(het)}.", "heterogeneity"
+            )
+        )
+    pub_i2 = result.review.details.published.i2
+    if pub_i2 is not None and is_ok(het) and is_finite(het.i2):
+        agree = abs(pub_i2 - het.i2) <= HET_AGREE_POINTS
+        out.append(
+            _ev(
+                "unclear",
+                heterogeneity_reconciled(pub_i2, het.i2),
+                "published",
+                published_i2=pub_i2,
+                i2=het.i2,
+                agree=1 if agree else 0,
             )
         )
     labels = [x for x in result.data.subgroup if x]

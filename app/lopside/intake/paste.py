@@ -24,7 +24,7 @@ from __future__ import annotations
 import math
 import re
 import unicodedata
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 from lopside.intake import messages as M
 from lopside.intake.numbers import (
@@ -1387,6 +1387,8 @@ def read_pasted(text: str, measure: str | None = None) -> PasteResult:
     measure_hint: str | None = None
     published: PublishedResult | None = None
     model_text = ""
+    published_i2: float | None = None
+    after_total = False  # the heterogeneity line that follows the overall total is the paper's
     for idx, raw, item in staged:
         if isinstance(item, LineReading):
             lines.append(item)
@@ -1413,6 +1415,14 @@ def read_pasted(text: str, measure: str | None = None) -> PasteResult:
                 reason += f"; rows below get subgroup '{ctx.subgroup}'"
             if key == "subtotal":
                 ctx.subgroup = None
+            if key == "heterogeneity" and after_total:
+                i2 = published_i2_of(raw)
+                if i2 is not None:
+                    published_i2 = i2
+                    reason += f"; I² {_fmt(i2)}% kept to check against your rows"
+            after_total = key == "total" or (
+                after_total and key in ("heterogeneity", "total_events")
+            )
             lines.append(LineReading(idx, raw, "skipped", reason=reason))
             continue
         prep = item
@@ -1431,8 +1441,10 @@ def read_pasted(text: str, measure: str | None = None) -> PasteResult:
             except Exception:  # noqa: BLE001 - a total we cannot read is still skipped
                 pass
             ctx.subgroup = None
+            after_total = True
             lines.append(LineReading(idx, raw, "skipped", reason=reason))
             continue
+        after_total = False
         try:
             row, reading = _read_with_retry(prep, ctx)
         except _Fail as fail:
@@ -1443,7 +1455,25 @@ def read_pasted(text: str, measure: str | None = None) -> PasteResult:
             continue
         rows.append(row)
         lines.append(_with_index(reading, len(rows) - 1))
+    if published_i2 is not None:
+        if published is None:
+            published = PublishedResult(model=model_text, i2=published_i2)
+        else:
+            published = replace(published, i2=published_i2)
     return PasteResult(tuple(rows), tuple(lines), measure_hint, published)
+
+
+_I2_RE = re.compile(r"\bi\s*(?:\u00b2|\^?2|-?squared)\s*[=:]\s*(\d{1,3}(?:[.,]\d+)?)\s*%")
+
+
+def published_i2_of(raw: str) -> float | None:
+    """I² as printed on a heterogeneity line ("...; I² = 37%"), in percent, or None."""
+    low = unicodedata.normalize("NFKC", raw).casefold()
+    m = _I2_RE.search(low)
+    if not m:
+        return None
+    v = float(m.group(1).replace(",", "."))
+    return v if 0.0 <= v <= 100.0 else None
 
 
 def _with_index(reading: LineReading, index: int) -> LineReading:

@@ -112,6 +112,7 @@ def review_to_dict(review: Review, settings: dict[str, Any] | None = None) -> di
                 "lower": d.published.lower,
                 "upper": d.published.upper,
                 "model": d.published.model,
+                "i2": d.published.i2,
             },
         },
         "studies": [s.to_dict() for s in review.studies],
@@ -411,7 +412,10 @@ def review_from_dict(doc: Any) -> tuple[Review, dict[str, Any]]:
         lower=_number(pub.get("lower"), "details, published lower"),
         upper=_number(pub.get("upper"), "details, published upper"),
         model=_text(pub.get("model"), "details, published model"),
+        i2=_number(pub.get("i2"), "details, published I²"),
     )
+    if published.i2 is not None and not 0.0 <= published.i2 <= 100.0:
+        raise ProjectFileError("details, published I²: expected a percentage from 0 to 100.")
     details = ReviewDetails(
         title=_text(det.get("title"), "details, title"),
         question=_notes(det.get("question"), "details, question"),

@@ -165,6 +165,8 @@ class PublishedResult:
     upper: float | None = None
     #: the model as printed, free text ("random effects", "Mantel-Haenszel fixed", ...)
     model: str = ""
+    #: I² as printed on the paper's heterogeneity line (percent), reconciled with the rows
+    i2: float | None = None
 
     def is_complete(self) -> bool:
         return None not in (self.estimate, self.lower, self.upper)
