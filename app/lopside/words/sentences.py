@@ -156,3 +156,7 @@ def trim_fill_range(result) -> TrimFillRange | None:
     return TrimFillRange(
         tuple(rows), n, min(k0s), max(k0s), min(ests), max(ests), crosses, agree, text
     )
+
+
+# not a pytest test, despite the name (test modules import it)
+test_caution.__test__ = False  # type: ignore[attr-defined]
