@@ -404,3 +404,19 @@ def test_case7_check_json_from_the_command_line(tmp_path, capsys):
         "artefact",
         "chance",
     }
+
+
+def test_case7_the_causes_view_shows_exactly_the_json_evidence(make_window, qtbot):
+    import html
+
+    w = make_window(md_review(SIX_SELECTED))
+    w.update_views()
+    qtbot.waitUntil(lambda: w.result is not None, timeout=30000)
+    w.views.setCurrentWidget(w.causes)
+    w.refresh_all_views()
+    js = to_json(w.session.assess())
+    assert w.causes.appraisal is w.session.assess().appraisal  # one reading, not a second
+    for e in js["appraisal"]["evidence"]:
+        label = w.causes.evidence[e["cause"]].text()
+        assert html.escape(e["sentence"]) in label
+    assert js["appraisal"]["rating"] in w.causes.suggested.text()

@@ -722,14 +722,20 @@ def causes_section(appraisal) -> Section:
 def rating_section(appraisal) -> Section:
     """The suggested publication-bias rating, its reasons, and the appraiser's override."""
     r = appraisal.rating
-    rows = [("Suggested", r.suggested), ("Why", "\n".join(f"• {x}" for x in r.reasons))]
+    # reasons indented by two spaces are the lines under "Signals for publication bias:"
+    why = "\n".join(f"   – {x.strip()}" if x.startswith("  ") else f"• {x}" for x in r.reasons)
+    rows = [
+        ("Suggested", r.suggested),
+        ("Can the data support a rating?", "yes" if r.assessable else "no"),
+    ]
+    rows.append(("Why", why))
     if r.override:
         rows.append(("Appraiser's rating", r.override))
         rows.append(("Appraiser's reason", r.override_reason or "(no reason given)"))
     else:
         rows.append(("Appraiser's rating", "not recorded: confirm or override the suggestion"))
     # the rating that stands is the one a renderer should make stand out
-    final = 2 if r.override else 0
+    final = 3 if r.override else 0
     return Section(
         "rating",
         "Publication bias: suggested rating",
