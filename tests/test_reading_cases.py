@@ -385,6 +385,13 @@ def test_case7_check_json_carries_the_reading(six_selected):
     a = six_selected.appraisal
     assert [e["sentence"] for e in ap["evidence"]] == [e.text for e in a.evidence]
     assert ap["rating"] == a.rating.suggested
+    # the sheet's explanations table prints the same lines, cause by cause
+    from lopside.summary import causes_section
+
+    printed = {row[0]: row[1] for row in causes_section(a).rows}
+    for e in ap["evidence"]:
+        title = next(c["title"] for c in ap["causes"] if c["cause"] == e["cause"])
+        assert e["sentence"] in printed[title]
 
 
 def test_case7_check_json_from_the_command_line(tmp_path, capsys):

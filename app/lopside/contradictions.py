@@ -194,6 +194,15 @@ def page_one_equals_the_json(a, js) -> list[str]:
     first = rows[0]["text"] if rows else ""
     if not first.startswith(js["appraisal"]["rating"]):
         out.append(f"page-1 rating line {first!r} does not start with the JSON rating")
+    lines = {r["label"]: r["text"] for r in rows}
+    key = js["appraisal"]["funnel"]["test"]
+    test = js["tests"].get(key) if key else None
+    if test and test.get("p") is not None and fmt_p_eq(test["p"]) not in lines.get("Test", ""):
+        out.append(f"page-1 test line does not quote the JSON's {fmt_p_eq(test['p'])}")
+    n_adj = len(js["appraisal"]["funnel"]["adjustments"]["methods"])
+    m = re.search(r"The (\d+) adjusted estimates", lines.get("Adjusted estimates", ""))
+    if m and int(m.group(1)) != n_adj:
+        out.append(f"page 1 counts {m.group(1)} adjusted estimates, the JSON lists {n_adj}")
     k0 = js["trim_fill"]["k0"] if js.get("trim_fill") else None
     rng = js.get("trim_fill_range")
     if rng and k0 is not None and not rng["k0_low"] <= k0 <= rng["k0_high"]:
