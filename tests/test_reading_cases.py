@@ -241,9 +241,13 @@ def test_case4_spread_of_study_sizes_is_one_figure_in_both_tables():
     a = assess(md_review(rows))
     data = dict(data_section(a.analysis).rows)
     se_row = next(v for k, v in data.items() if k.startswith("Standard errors"))
-    rule = next(r for r in a.analysis.applicability if r.rule == "variance_ratio")
+    from lopside.summary import applicability_section
+
+    rule_row = next(
+        r for r in applicability_section(a.analysis).rows if r[0] == "Studies differ enough in size"
+    )
     ratio_data = re.search(r"variance is ([\d.]+) times", se_row).group(1)
-    ratio_rule = re.search(r"variance is ([\d.]+) times", rule.detail).group(1)
+    ratio_rule = re.search(r"variance is ([\d.]+) times", rule_row[2]).group(1)
     assert ratio_data == ratio_rule == "81.0"  # (0.9 / 0.1)² = 81
 
 

@@ -57,7 +57,12 @@ from .words.numbers import (  # noqa: F401 - re-exported
     why_not,
 )
 from .words.rows import _test_result_text, adjustment_rows, recommended_key  # noqa: F401
-from .words.sentences import heterogeneity_reconciled, spread_text, trim_fill_range
+from .words.sentences import (
+    heterogeneity_reconciled,
+    rule_detail,
+    spread_text,
+    trim_fill_range,
+)
 
 #: How many list items (problem rows, excluded studies) a section shows before "and N more".
 LIST_LIMIT = 6
@@ -438,7 +443,9 @@ tests_section.__test__ = False  # type: ignore[attr-defined]
 def applicability_section(result) -> Section:
     """When a test is worth reading (Ioannidis & Trikalinos 2007; Sterne et al. 2011)."""
     word = {True: "yes", False: "NO", None: "cannot tell"}
-    rows = tuple((r.title, word.get(r.met, str(r.met)), r.detail) for r in result.applicability)
+    rows = tuple(
+        (r.title, word.get(r.met, str(r.met)), rule_detail(r, result)) for r in result.applicability
+    )
     failed = [i for i, r in enumerate(result.applicability) if r.met is False]
     notes = (
         "Conditions for a meaningful test (Ioannidis & Trikalinos 2007; Sterne et al. 2011). "

@@ -24,7 +24,7 @@ from ..words.numbers import (
     why_not,
 )
 from ..words.rows import adjustment_rows
-from ..words.sentences import test_caution
+from ..words.sentences import rule_detail, test_caution
 from .glossary import Glossary
 from .model import AdjustmentRange, ContourReading, TestReading
 
@@ -331,11 +331,15 @@ def rules_reading(result) -> tuple[tuple[str, ...], str]:
     parts = []
     if failed:
         parts.append(
-            "Not met: " + "; ".join(f"{r.title.lower()} ({r.detail})" for r in failed) + "."
+            "Not met: "
+            + "; ".join(f"{r.title.lower()} ({rule_detail(r, result)})" for r in failed)
+            + "."
         )
     if unknown:
         parts.append(
-            "Cannot tell: " + "; ".join(f"{r.title.lower()} ({r.detail})" for r in unknown) + "."
+            "Cannot tell: "
+            + "; ".join(f"{r.title.lower()} ({rule_detail(r, result)})" for r in unknown)
+            + "."
         )
     parts.append("Read the tests and trim and fill with extra caution.")
     return tuple(r.rule for r in failed), " ".join(parts)

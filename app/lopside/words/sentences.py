@@ -47,6 +47,21 @@ def spread_text(se_low: float, se_high: float) -> str:
     )
 
 
+def rule_detail(rule, result) -> str:
+    """The detail of one applicability rule as printed (tables and readings alike).
+
+    The spread of study sizes is worded by :func:`spread_text`, the same sentence as the
+    data table; other rules print the engine's own detail.
+    """
+    if rule.rule == "variance_ratio" and rule.met is not None:
+        from ..stats.applicability import MIN_VARIANCE_RATIO
+
+        se = [float(x) for x in result.data.se if is_finite(x) and x > 0]
+        if len(se) >= 2:
+            return f"{spread_text(min(se), max(se))} (more than {MIN_VARIANCE_RATIO:g} advised)"
+    return rule.detail
+
+
 def heterogeneity_reconciled(published_i2: float, ours_i2: float) -> str:
     """ "The paper says I² 37%, your rows give 63%: check the rows." (or agreement)."""
     if not (is_finite(published_i2) and is_finite(ours_i2)):
