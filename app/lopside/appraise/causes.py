@@ -92,7 +92,10 @@ WHAT_TO_CHECK: dict[str, str] = {
 
 def _ev(direction: str, text: str, source: str = "", **numbers) -> Evidence:
     """One evidence line; ``numbers`` are the unformatted values the sentence quotes."""
-    nums = tuple((k, (float(v) if is_finite(v) else None)) for k, v in numbers.items())
+    nums = tuple(
+        (k, (v if isinstance(v, int) else float(v)) if is_finite(v) else None)
+        for k, v in numbers.items()
+    )
     return Evidence(direction, text, source, "", nums)
 
 
