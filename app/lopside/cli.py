@@ -6,6 +6,7 @@
     lopside check FILE [--measure M] [--json] [--power]
     lopside sheet FILE -o OUT.pdf [--measure M] [--include-forest] [--appraiser NAME]
     lopside plot FILE --kind funnel|forest|cumulative|radial -o OUT.png|.svg|.pdf
+    lopside batch INPUT... -o OUT.csv|.xlsx|.parquet [--workers N] [--scheduler ADDRESS]
 
 Exit status 0 on success, 2 on bad input (message on stderr naming the problem).
 """
@@ -22,7 +23,7 @@ from . import __version__
 from .model.review import MEASURES
 from .settings import AnalysisSettings
 
-SUBCOMMANDS = ("check", "sheet", "plot")
+SUBCOMMANDS = ("check", "sheet", "plot", "batch")
 
 
 def add_analysis_arguments(p: argparse.ArgumentParser) -> None:
@@ -136,6 +137,114 @@ def cmd_sheet(args) -> int:
     return 0
 
 
+def cmd_batch(args) -> int:
+    from pathlib import Path
+
+    from .batch import BatchError, BatchOptions, console_progress, find_inputs, run_batch
+
+    files, problems = find_inputs(args.inputs, args.output)
+    if problems:
+        return _fail(problems[0])
+    if not files:
+        return _fail("no input files found (looked for .lopside, .csv, .xlsx and .txt files).")
+    if args.workers is not None and args.workers < 1:
+        return _fail("--workers: give a whole number of 1 or more.")
+    options = BatchOptions(
+        measure=args.measure,
+        favours=args.favours,
+        tau2_method=args.tau2_method,
+        ci_method=args.ci_method,
+        hksj=args.hksj,
+        sheets_dir=args.sheets,
+    )
+    if args.sheets:
+        Path(args.sheets).mkdir(parents=True, exist_ok=True)
+    try:
+        summary = run_batch(
+            files,
+            Path(args.output),
+            options=options,
+            workers=args.workers,
+            scheduler=args.scheduler,
+            dashboard=args.dashboard,
+            resume=args.resume,
+            progress=None if args.quiet else console_progress(),
+        )
+    except BatchError as exc:
+        return _fail(str(exc))
+    except OSError as exc:
+        return _fail(f"{args.output}: cannot write the results ({exc.strerror or exc}).")
+    ok, na, err = (summary.count(s) for s in ("ok", "not analysable", "error"))
+    line = f"wrote {args.output}: {ok} analysed, {na} not analysable, {err} with errors" + (
+        f", {summary.skipped} already done" if summary.skipped else ""
+    )
+    if summary.interrupted:
+        print(f"stopped: {line}; run again with --resume to continue.", file=sys.stderr)
+        return 130
+    print(line)
+    return 0
+
+
+def add_batch_arguments(b: argparse.ArgumentParser) -> None:
+    b.add_argument(
+        "inputs",
+        nargs="+",
+        metavar="INPUT",
+        help="files or folders (searched recursively for .lopside, .csv, .xlsx, .txt)",
+    )
+    b.add_argument(
+        "-o",
+        "--output",
+        required=True,
+        metavar="OUT",
+        help="results file: .csv, .xlsx or .parquet (one row per outcome)",
+    )
+    b.add_argument("--measure", choices=MEASURES, help="effect measure for study tables")
+    b.add_argument(
+        "--favours",
+        choices=("lower", "higher"),
+        help="which values favour the intervention, for study tables",
+    )
+    b.add_argument(
+        "--tau2",
+        dest="tau2_method",
+        choices=("REML", "PM", "DL"),
+        default=None,
+        help="between-study variance estimator (default REML)",
+    )
+    b.add_argument(
+        "--ci-method",
+        choices=("z", "t", "auto"),
+        default=None,
+        help="how the papers' study CIs were computed (default z)",
+    )
+    b.add_argument("--hksj", action="store_true", help="Hartung-Knapp interval (modified)")
+    b.add_argument(
+        "--workers",
+        type=int,
+        default=None,
+        metavar="N",
+        help="local worker processes (default: one per core; 1 = no Dask, in this process)",
+    )
+    b.add_argument(
+        "--scheduler",
+        metavar="ADDRESS",
+        help="use an existing Dask cluster, e.g. tcp://10.0.0.5:8786, instead of local workers",
+    )
+    b.add_argument(
+        "--resume",
+        action="store_true",
+        help="skip inputs already in OUT (unchanged files); failed ones are tried again",
+    )
+    b.add_argument("--sheets", metavar="DIR", help="also write each appraisal sheet into DIR")
+    b.add_argument(
+        "--dashboard",
+        action="store_true",
+        help="open Dask's dashboard on 127.0.0.1:8787 (off by default: no port is opened)",
+    )
+    b.add_argument("--quiet", action="store_true", help="no progress line on stderr")
+
+
 def build_parser() -> argparse.ArgumentParser:
     parser = argparse.ArgumentParser(
         prog="lopside",
@@ -164,6 +273,9 @@ def build_parser() -> argparse.ArgumentParser:
 
     add_plot_arguments(p)
     p.set_defaults(func=run_plot)
+    b = sub.add_parser("batch", help="appraise many files at once (Dask), one row per outcome")
+    add_batch_arguments(b)
+    b.set_defaults(func=cmd_batch)
     return parser
 
 
