@@ -377,3 +377,31 @@ def test_loopback_only_guard_still_refuses_other_addresses():
     finally:
         undo()
     assert len(attempts) == 2
+
+
+def _dies_on_poison(file: str, options) -> list:
+    """Stands in for appraise_file in a worker: a file named 'poison' kills its process."""
+    if "poison" in file:
+        os._exit(1)
+    return appraise_file(file, options)
+
+
+@pytest.mark.loopback_only
+def test_a_worker_that_dies_is_retried_once_then_reported(corpus, tmp_path, monkeypatch):
+    from lopside.batch import _Dask
+
+    # the workers import lopside and this test module
+    monkeypatch.setenv("PYTHONPATH", os.pathsep.join([str(APP), str(Path(__file__).parent)]))
+    good = str(corpus / "group0" / "review_000.csv")
+    poison = tmp_path / "poison.csv"
+    poison.write_text("study,estimate,se\nA,1,0.5\n", encoding="utf-8")
+    rows: list[dict] = []
+    dask = _Dask(2, None, False)
+    try:
+        dask.run([good, str(poison)], BatchOptions(), rows.extend, fn=_dies_on_poison)
+    finally:
+        dask.close()
+    by_file = {r["file"]: r for r in rows}
+    assert by_file[good]["status"] == "ok"
+    assert by_file[str(poison)]["status"] == "error"
+    assert "stopped twice" in by_file[str(poison)]["message"]

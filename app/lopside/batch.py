@@ -619,6 +619,12 @@ class _Dask:
                     "check the address, or leave out --scheduler to run on this computer."
                 ) from exc
         else:
+            import dask
+
+            # a task whose worker dies is not re-run by the scheduler on its own (it could
+            # kill every worker in turn); Dask's retry runs it once more, then it is an
+            # error row
+            dask.config.set({"distributed.scheduler.allowed-failures": 0})
             self.cluster = LocalCluster(
                 n_workers=workers or os.cpu_count() or 1,
                 threads_per_worker=1,
@@ -629,12 +635,12 @@ class _Dask:
             )
             self.client = Client(self.cluster)
 
-    def run(self, todo: Sequence[str], options: BatchOptions, arrived) -> None:
+    def run(self, todo: Sequence[str], options: BatchOptions, arrived, fn=None) -> None:
+        """Submit ``fn(file, options)`` (default :func:`appraise_file`) per file."""
         from dask.distributed import as_completed
 
-        futures = {
-            self.client.submit(appraise_file, f, options, retries=1, pure=False): f for f in todo
-        }
+        fn = fn or appraise_file
+        futures = {self.client.submit(fn, f, options, retries=1, pure=False): f for f in todo}
         try:
             for fut in as_completed(futures):
                 f = futures[fut]
