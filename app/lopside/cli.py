@@ -31,6 +31,12 @@ def add_analysis_arguments(p: argparse.ArgumentParser) -> None:
     p.add_argument("file", metavar="FILE", help="project file, CSV/XLSX study table or .txt")
     p.add_argument("--measure", choices=MEASURES, help="effect measure (overrides the file's)")
     p.add_argument(
+        "--page",
+        metavar="N",
+        help="PDF only: the page(s) holding the table, e.g. 7 or 7-8 (default: the page with "
+        "the most study rows)",
+    )
+    p.add_argument(
         "--tau2",
         dest="tau2_method",
         choices=("REML", "PM", "DL"),
@@ -81,8 +87,19 @@ def _fail(message: str) -> int:
 
 
 def _load(args):
-    from .cli_common import load_review_file
+    from pathlib import Path
 
+    from .cli_common import InputError, load_pdf_review, load_review_file
+
+    page = getattr(args, "page", None)
+    if Path(args.file).suffix.lower() == ".pdf" and Path(args.file).is_file():
+        review, notes = load_pdf_review(Path(args.file), args.measure, page)
+        # which page was read, other pages with rows, marks left out, lines not read
+        for line in notes:
+            print(f"lopside: {line}", file=sys.stderr)
+        return review, settings_from_args(args, AnalysisSettings())
+    if page:
+        raise InputError(f"--page {page}: pages are for PDF files only; {args.file} is not one.")
     review, saved = load_review_file(args.file, args.measure)
     settings = settings_from_args(args, AnalysisSettings.from_dict(saved))
     return review, settings
