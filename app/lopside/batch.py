@@ -45,8 +45,8 @@ BATCH_TEXT_COLUMNS = TEXT_COLUMNS | {"file", "status", "message", "input_sha256"
 STATUSES = ("ok", "not analysable", "error")
 #: Output formats by suffix.
 OUTPUT_SUFFIXES = (".csv", ".xlsx", ".parquet")
-#: Input files a folder is searched for (PDFs join once reading them exists).
-INPUT_SUFFIXES = (".lopside", ".csv", ".xlsx", ".txt")
+#: Input files a folder is searched for (a PDF is read from its page with most study rows).
+INPUT_SUFFIXES = (".lopside", ".csv", ".xlsx", ".txt", ".pdf")
 #: Rows per part file: a crash loses at most this many finished rows.
 CHUNK_ROWS = 25
 

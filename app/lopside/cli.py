@@ -163,7 +163,9 @@ def cmd_batch(args) -> int:
     if problems:
         return _fail(problems[0])
     if not files:
-        return _fail("no input files found (looked for .lopside, .csv, .xlsx and .txt files).")
+        return _fail(
+            "no input files found (looked for .lopside, .csv, .xlsx, .txt and .pdf files)."
+        )
     if args.workers is not None and args.workers < 1:
         return _fail("--workers: give a whole number of 1 or more.")
     options = BatchOptions(
@@ -207,7 +209,7 @@ def add_batch_arguments(b: argparse.ArgumentParser) -> None:
         "inputs",
         nargs="+",
         metavar="INPUT",
-        help="files or folders (searched recursively for .lopside, .csv, .xlsx, .txt)",
+        help="files or folders (searched recursively for .lopside, .csv, .xlsx, .txt, .pdf)",
     )
     b.add_argument(
         "-o",
