@@ -82,6 +82,17 @@ class PdfPage:
     #: "upright", or "sideways" for a table printed a quarter turn
     orientation: str = "upright"
     columns: int = 1
+    #: for a sideways page, which way it was turned to read it: "ccw" or "cw"
+    turn: str = ""
+
+    def box_on_page(self, line: PdfLine) -> tuple[float, float, float, float]:
+        """(x0, top, x1, bottom) of ``line`` on the page as printed (points, top-left),
+        undoing the quarter turn used to read a sideways table."""
+        if self.turn == "ccw":
+            return line.top, self.height - line.x1, line.bottom, self.height - line.x0
+        if self.turn == "cw":
+            return self.width - line.bottom, line.x0, self.width - line.top, line.x1
+        return line.x0, line.top, line.x1, line.bottom
 
 
 @dataclass(frozen=True, slots=True)
@@ -359,8 +370,10 @@ def _read_page(page, number: int) -> PdfPage:
         lines = _lines_of(_words(page, rot), number, rot, height)
         score = _score(lines)
         if best is None or score > best[0]:
-            best = (score, lines)
-    return PdfPage(number, width, height, tuple(best[1]), best[0], orientation="sideways")
+            best = (score, lines, rot)
+    return PdfPage(
+        number, width, height, tuple(best[1]), best[0], orientation="sideways", turn=best[2]
+    )
 
 
 def read_pdf(
