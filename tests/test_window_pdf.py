@@ -71,6 +71,11 @@ def test_pages_of_a_table_that_runs_on(qtbot, tmp_path):
         dlg.pages.item(i).setSelected(True)
     assert dlg.selected_pages() == [1, 2]
     assert len(dlg.reading().paste.rows) == 8
+    assert (
+        dlg.reading()
+        .source_note("cont.pdf")
+        .startswith("Rows 1-5 read from page 1 and rows 6-8 from page 2 of cont.pdf")
+    )
 
 
 def test_open_pdf_in_window_reaches_the_table(make_window, qtbot, tmp_path):
@@ -89,6 +94,7 @@ def test_open_pdf_in_window_reaches_the_table(make_window, qtbot, tmp_path):
     paste.accept()
     assert w.session.review.studies == truth
     assert "8 rows from page(s) 1 of review.pdf" in w.last_message
+    assert w.session.review.details.source_note.startswith("Rows read from page 1 of review.pdf")
 
 
 def test_bad_pdf_in_window_is_a_message(make_window, qtbot, tmp_path):

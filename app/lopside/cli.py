@@ -93,7 +93,14 @@ def _load(args):
 
     page = getattr(args, "page", None)
     if Path(args.file).suffix.lower() == ".pdf" and Path(args.file).is_file():
-        review, notes = load_pdf_review(Path(args.file), args.measure, page)
+
+        def pages_read(done: int, total: int) -> bool:
+            if total >= 20 and not getattr(args, "quiet", False):
+                end = "\n" if done == total else ""
+                print(f"\rreading PDF page {done}/{total}", end=end, file=sys.stderr)
+            return True
+
+        review, notes = load_pdf_review(Path(args.file), args.measure, page, pages_read)
         # which page was read, other pages with rows, marks left out, lines not read
         for line in notes:
             print(f"lopside: {line}", file=sys.stderr)

@@ -38,7 +38,7 @@ def review_from_rows(rows, measure: str | None, name: str) -> Review:
 
 
 def load_pdf_review(
-    path: Path, measure: str | None = None, page: str | None = None
+    path: Path, measure: str | None = None, page: str | None = None, progress=None
 ) -> tuple[Review, list[str]]:
     """Rows from a review's PDF: the page(s) ``page`` ('7', '7-8'), else the page with the
     most study rows. Returns the review and what to tell the user (which page was read,
@@ -51,7 +51,7 @@ def load_pdf_review(
         wanted = parse_pages(page) if page else None
     except ValueError as exc:
         raise InputError(f"--page {page}: {exc}.") from exc
-    doc = read_pdf(path, pages=wanted)
+    doc = read_pdf(path, pages=wanted, progress=progress)
     pages, notes = choose_pages(doc, page)
     got = rows_from_pages(doc, pages, measure)
     notes = notes + list(got.notes)
@@ -71,7 +71,9 @@ def load_pdf_review(
     if prose:
         notes.append(f"{path.name}: {prose} line(s) of text without numbers passed over.")
     review = review_from_rows(paste.rows, measure or paste.measure_hint, path.name)
-    review = review.with_details(title=f"{path.stem} ({where})")
+    review = review.with_details(
+        title=f"{path.stem} ({where})", source_note=got.source_note(path.name)
+    )
     if paste.published is not None:
         review = review.with_details(published=paste.published)
     return review, notes

@@ -118,6 +118,27 @@ class PdfRows:
     line_pages: tuple[int, ...]
     notes: tuple[str, ...] = field(default_factory=tuple)
 
+    def source_note(self, name: str) -> str:
+        """Where the rows came from, for the review's source note and the sheet:
+        "Rows 1-5 from page 7 and rows 6-8 from page 8 of review.pdf (...)"."""
+        runs: list[tuple[int, int, int]] = []  # (first row, last row, page), 1-based rows
+        for i in range(len(self.paste.rows)):
+            page = self.page_of_row(i)
+            if runs and runs[-1][2] == page and runs[-1][1] == i:
+                runs[-1] = (runs[-1][0], i + 1, page)
+            else:
+                runs.append((i + 1, i + 1, page))
+        if len(runs) == 1:
+            where = f"Rows read from page {runs[0][2]} of {name}"
+        else:
+            parts = [
+                f"row{'s' if a != b else ''} {a}{f'-{b}' if a != b else ''} from page {p}"
+                for a, b, p in runs
+            ]
+            first = parts[0][0].upper() + parts[0][1:].replace(" from", " read from", 1)
+            where = ", ".join([first, *parts[1:-1]]) + f" and {parts[-1]} of {name}"
+        return where + " by Lopside's PDF reader; check them against the paper."
+
     def page_of_row(self, row_index: int) -> int | None:
         for r in self.paste.lines:
             if r.row_index == row_index:

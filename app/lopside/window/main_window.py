@@ -755,13 +755,16 @@ class MainWindow(QMainWindow):
         self.session.new()
         self.stack.reset()
         pages = ", ".join(str(n) for n in dlg.chosen_pages)
+        note = dlg.reading().source_note(p.name)
         self.update_views()
         paste = self.open_paste_dialog(dlg.chosen_text())
-        paste.accepted.connect(
-            lambda: self.say(
-                M.PDF_FROM.format(rows=len(paste.rows()), pages=pages, name=p.name), 15000
-            )
-        )
+
+        def added() -> None:
+            # where the rows came from stays with the review (shown on screen and sheet)
+            self.stack.push_many("note the PDF page", [ed.SetDetail("source_note", note)])
+            self.say(M.PDF_FROM.format(rows=len(paste.rows()), pages=pages, name=p.name), 15000)
+
+        paste.accepted.connect(added)
 
     def _open_failed(self, p: Path, exc: Exception) -> None:
         msg = M.OPEN_FAILED.format(name=p.name, error=exc)
