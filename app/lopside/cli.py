@@ -7,6 +7,8 @@
     lopside sheet FILE -o OUT.pdf [--measure M] [--include-forest] [--appraiser NAME]
     lopside plot FILE --kind funnel|forest|cumulative|radial -o OUT.png|.svg|.pdf
     lopside batch INPUT... -o OUT.csv|.xlsx|.parquet [--workers N] [--scheduler ADDRESS]
+    lopside panel FILE... -o OUT.pdf|.docx|.xlsx|.csv [--skip-bad]
+    lopside slide FILE -o slide.pptx|.png [--outcome NAME]
 
 Exit status 0 on success, 2 on bad input (message on stderr naming the problem).
 """
@@ -23,7 +25,7 @@ from . import __version__
 from .model.review import MEASURES
 from .settings import AnalysisSettings
 
-SUBCOMMANDS = ("check", "sheet", "plot", "batch")
+SUBCOMMANDS = ("check", "sheet", "plot", "batch", "panel", "slide")
 
 
 def add_analysis_arguments(p: argparse.ArgumentParser) -> None:
@@ -211,6 +213,97 @@ def cmd_batch(args) -> int:
     return 0
 
 
+def _outcome_inputs(args):
+    """One outcome per table file (named by its stem), every outcome of a project."""
+    from pathlib import Path
+
+    from .cli_common import INPUT_ERRORS
+    from .panel import OutcomeInput
+
+    inputs = []
+    for f in args.files:
+        ns = argparse.Namespace(**{**vars(args), "file": f})
+        try:
+            review, settings = _load(ns)
+        except INPUT_ERRORS as exc:
+            if not getattr(args, "skip_bad", False):
+                raise
+            inputs.append(OutcomeInput(Path(f).stem, skipped=str(exc).splitlines()[0]))
+            continue
+        if getattr(args, "favours", None):
+            review = review.with_details(favours=args.favours)
+        suffix = Path(f).suffix.lower()
+        name = (review.details.title or Path(f).stem) if suffix == ".lopside" else Path(f).stem
+        inputs.append(OutcomeInput(name, review, settings))
+    return inputs
+
+
+def cmd_panel(args) -> int:
+    from pathlib import Path
+
+    from .cli_common import INPUT_ERRORS
+    from .panel import build_panel
+    from .panel.export import FORMATS, write_panel
+
+    out = Path(args.output)
+    if out.suffix.lower() not in FORMATS:
+        return _fail(f"-o {out}: write the panel summary as .pdf, .docx, .xlsx or .csv.")
+    for f in args.files:
+        if Path(f).exists() and out.exists() and out.samefile(f):
+            return _fail(f"-o {out}: is also an input; write the summary to another file.")
+    try:
+        inputs = _outcome_inputs(args)
+        summary = build_panel(args.title or "Panel summary", inputs, with_power=args.power)
+    except INPUT_ERRORS as exc:
+        return _fail(str(exc).splitlines()[0])
+    except ValueError as exc:
+        return _fail(str(exc))
+    try:
+        write_panel(summary, out)
+    except OSError as exc:
+        return _fail(f"{out}: cannot write the summary ({exc.strerror or exc}).")
+    n = len(summary.outcomes)
+    bad = sum(1 for o in summary.outcomes if not o.analysable)
+    print(
+        f"wrote {out}: {n} outcome{'s' if n != 1 else ''}"
+        + (f", {bad} not analysed" if bad else "")
+    )
+    return 0
+
+
+def cmd_slide(args) -> int:
+    from pathlib import Path
+
+    from .analysis import analyse
+    from .appraise import appraise
+    from .cli_common import INPUT_ERRORS
+    from .panel.slide import write_slide
+
+    out = Path(args.output)
+    if out.suffix.lower() not in (".pptx", ".png"):
+        return _fail(f"-o {out}: write the slide as .pptx or .png.")
+    if out.exists() and Path(args.file).exists() and out.samefile(args.file):
+        return _fail(f"-o {out}: is also the input; write the slide to another file.")
+    try:
+        review, settings = _load(args)
+    except INPUT_ERRORS as exc:
+        return _fail(str(exc))
+    if args.favours:
+        review = review.with_details(favours=args.favours)
+    name = review.details.title or Path(args.file).stem
+    if args.outcome and args.outcome.strip().casefold() != name.strip().casefold():
+        return _fail(f"{args.file}: has no outcome called '{args.outcome}' (it has '{name}').")
+    result = analyse(review, settings)
+    try:
+        write_slide(result, appraise(result), out, title=name)
+    except ValueError as exc:
+        return _fail(f"{args.file}: {exc}.")
+    except OSError as exc:
+        return _fail(f"{out}: cannot write the slide ({exc.strerror or exc}).")
+    print(f"wrote {out}")
+    return 0
+
+
 def add_batch_arguments(b: argparse.ArgumentParser) -> None:
     b.add_argument(
         "inputs",
@@ -299,6 +392,38 @@ def build_parser() -> argparse.ArgumentParser:
 
     add_plot_arguments(p)
     p.set_defaults(func=run_plot)
+    pn = sub.add_parser(
+        "panel", help="summary of several outcomes side by side (PDF, DOCX, XLSX or CSV)"
+    )
+    pn.add_argument(
+        "files",
+        nargs="+",
+        metavar="FILE",
+        help="a project, or one study table per outcome (named by its file name)",
+    )
+    pn.add_argument(
+        "-o", "--output", required=True, metavar="OUT", help=".pdf, .docx, .xlsx or .csv"
+    )
+    pn.add_argument("--measure", choices=MEASURES, help="effect measure for study tables")
+    pn.add_argument(
+        "--favours", choices=("lower", "higher"), help="which values favour the intervention"
+    )
+    pn.add_argument("--title", default="", help="title of the summary (default: Panel summary)")
+    pn.add_argument("--power", action="store_true", help="simulate each test's power (slower)")
+    pn.add_argument(
+        "--skip-bad",
+        action="store_true",
+        help="list a file that cannot be read as skipped, instead of stopping",
+    )
+    pn.set_defaults(func=cmd_panel, page=None)
+    sl = sub.add_parser("slide", help="one journal-club slide: funnel and reading (PPTX or PNG)")
+    add_analysis_arguments(sl)
+    sl.add_argument("-o", "--output", required=True, metavar="OUT", help=".pptx or .png")
+    sl.add_argument("--outcome", metavar="NAME", help="the outcome to show (by name)")
+    sl.add_argument(
+        "--favours", choices=("lower", "higher"), help="which values favour the intervention"
+    )
+    sl.set_defaults(func=cmd_slide)
     b = sub.add_parser("batch", help="appraise many files at once (Dask), one row per outcome")
     add_batch_arguments(b)
     b.set_defaults(func=cmd_batch)

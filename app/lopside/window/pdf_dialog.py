@@ -28,7 +28,7 @@ from PySide6.QtWidgets import (
 from . import messages as M
 
 #: the palette's teal for rows read as studies, grey for other lines (resources/palette.md)
-STUDY_PEN = QColor("#1B7F79")
+STUDY_PEN = QColor("#2E7F75")
 OTHER_PEN = QColor("#8A96A3")
 REGION_PEN = QColor("#C2410C")
 RENDER_SCALE = 1.4
