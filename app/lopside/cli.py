@@ -276,7 +276,7 @@ def cmd_slide(args) -> int:
     from pathlib import Path
 
     from .analysis import analyse
-    from .appraise import appraise
+    from .assessment import assessment_of
     from .cli_common import INPUT_ERRORS
     from .panel.slide import write_slide
 
@@ -296,7 +296,7 @@ def cmd_slide(args) -> int:
         return _fail(f"{args.file}: has no outcome called '{args.outcome}' (it has '{name}').")
     result = analyse(review, settings)
     try:
-        write_slide(result, appraise(result), out, title=name)
+        write_slide(result, assessment_of(result).appraisal, out, title=name)
     except ValueError as exc:
         return _fail(f"{args.file}: {exc}.")
     except OSError as exc:
