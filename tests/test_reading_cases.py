@@ -229,7 +229,7 @@ def test_case4_counts_of_adjustment_methods_add_up(six_selected):
     assert adj.towards_null + adj.away + adj.little == n
     of = re.search(r"Of the (\d+): (.*?)\.", adj.text)
     assert of and int(of.group(1)) == n
-    counted = sum(int(x) for x in re.findall(r"(?:^|, )(\d+) (?:move|moves|hardly)", of.group(2)))
+    counted = sum(int(x) for x in re.findall(r"(?:^|; )(\d+) (?:move|moves|hardly)", of.group(2)))
     assert counted == n
 
 

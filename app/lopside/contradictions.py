@@ -127,7 +127,7 @@ def adjustment_counts_add_up(a, js) -> list[str]:
     of = re.search(r"Of the (\d+): (.*?)\. A range", adj.text)
     if of:
         counted = sum(
-            int(x) for x in re.findall(r"(?:^|, )(\d+) (?:move|moves|hardly)", of.group(2))
+            int(x) for x in re.findall(r"(?:^|; )(\d+) (?:move|moves|hardly)", of.group(2))
         )
         if counted != int(of.group(1)):
             out.append(f"'Of the {of.group(1)}' but the parts add to {counted}")

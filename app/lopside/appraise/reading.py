@@ -450,14 +450,14 @@ def adjustment_range(result, g: Glossary) -> AdjustmentRange:
         if towards:
             part = f"{towards} {'moves' if towards == 1 else 'move'} it towards no effect ({null_word})"
             if crosses:
-                part += f" ({crosses} of {'it' if towards == 1 else 'them'} beyond it)"
+                part += " and beyond it" if towards == 1 else f", {crosses} of them beyond it"
             parts.append(part)
         if away:
             parts.append(f"{away} {'moves' if away == 1 else 'move'} it away from no effect")
         if little:
             parts.append(f"{little} {'hardly moves' if little == 1 else 'hardly move'} it")
         if n > 1:
-            text += f" Of the {n}: " + ", ".join(parts) + "."
+            text += f" Of the {n}: " + "; ".join(parts) + "."
         else:
             text += " It " + parts[0].split(" ", 1)[1] + "."
     text += " A range of 'what if' answers, not a corrected estimate."
