@@ -62,7 +62,8 @@ def _continuous_row(rng, i, md, n_arm, measure):
 def generate_review(rng) -> Review:
     """One invented review (see the module docstring for what varies)."""
     measure = str(rng.choice(["OR", "RR", "MD", "SMD"]))
-    k_target = int(rng.integers(3, 61))
+    # most reviews are small, as in practice; the largest still reach 60 studies
+    k_target = 3 + int(57 * rng.random() ** 2)
     select = rng.random() < 0.4  # inject selection on significance
     outlier = rng.random() < 0.2
     subgroups = rng.random() < 0.3
