@@ -30,7 +30,6 @@ from ..summary import (
     applicability_section,
     causes_section,
     data_section,
-    fmt_num,
     glance_section,
     header_section,
     heterogeneity_section,
@@ -44,6 +43,7 @@ from ..summary import (
     tests_section,
     trim_fill_section,
 )
+from ..words.numbers import fmt_num
 from . import fonts, layout
 from .layout import FRAME_H, FRAME_W, boxed, para, section_table
 

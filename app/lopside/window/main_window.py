@@ -596,7 +596,7 @@ class MainWindow(QMainWindow):
             self.status_label.setText(self.analysis_error or M.NO_ANALYSIS)
             return
         try:
-            from ..summary import pooled_text
+            from ..words.numbers import pooled_text
 
             text = f"k = {r.k} \u00b7 random effects {pooled_text(r.random, r.measure)}"
         except (ImportError, AttributeError, TypeError):

@@ -457,7 +457,7 @@ class FunnelPanel(FigurePanel):
         study = res.review.studies[row]
         d = res.derived[row]
         try:
-            from ..summary import fmt_effect, fmt_se
+            from ..words.numbers import fmt_effect, fmt_se
 
             eff = fmt_effect(d.y, res.measure)
             se = fmt_se(d.se)
