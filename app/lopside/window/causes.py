@@ -229,7 +229,19 @@ class CausesPanel(QScrollArea):
                 body += f"<br><i>Look for: {html.escape(c.what_to_check)}</i>"
             self.evidence[key].setText(body)
         r = a.rating
-        reasons = "".join(f"<li>{html.escape(x)}</li>" for x in r.reasons)
+        # reasons indented by two spaces are the signals listed under the line before them
+        items = []
+        for x in r.reasons:
+            if x.startswith("  ") and items:
+                items[-1][1].append(x.strip())
+            else:
+                items.append((x, []))
+        reasons = "".join(
+            f"<li>{html.escape(x)}"
+            + ("<ul>" + "".join(f"<li>{html.escape(s)}</li>" for s in sub) + "</ul>" if sub else "")
+            + "</li>"
+            for x, sub in items
+        )
         self.suggested.setText(
             f"<b>Suggested: {html.escape(r.suggested)}</b><ul style='margin:0'>{reasons}</ul>"
             f"<span style='color:#616E7C'>{html.escape(r.note)}</span>"
