@@ -111,7 +111,9 @@ def _run_steps(tmp: Path, holder: dict) -> int:
         step = "find a sample review"
         from ..paths import sample_reviews
 
-        samples = [p for p in sample_reviews() if p.suffix == ".lopside"] or sample_reviews()
+        samples = [
+            p for p in sample_reviews() if p.suffix.lower() == ".lopside"
+        ] or sample_reviews()
         if not samples:
             raise RuntimeError("no sample reviews are installed")
         sample = samples[0]
