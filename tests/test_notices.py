@@ -152,6 +152,17 @@ def test_system_libraries_get_their_debian_copyright_file(tmp_path):
     assert "libnot-a-real-library.so.3" in unknown.note
 
 
-def test_build_script_collects_notices_and_fails_on_a_missing_text():
-    src = (REPO / "packaging" / "build_bundle.py").read_text(encoding="utf-8")
-    assert "notices.py" in src and "THIRD-PARTY-NOTICES" in src
+def test_the_build_step_reads_pyinstallers_module_list(tmp_path):
+    """notices.py as build_bundle.py runs it: a bundle folder and PyInstaller's PYZ toc."""
+    bundle = tmp_path / "Lopside"
+    (bundle / "_internal").mkdir(parents=True)
+    toc = tmp_path / "PYZ-00.toc"
+    toc.write_text(
+        repr(("PYZ-00.pyz", [("numpy", "/x", "PYMODULE"), ("svglib.svglib", "/y", "PYMODULE")])),
+        encoding="utf-8",
+    )
+    assert notices.main(["--bundle", str(bundle), "--modules", str(toc)]) == 0
+    index = (bundle / "THIRD-PARTY-NOTICES" / "INDEX.txt").read_text(encoding="utf-8")
+    assert f"numpy {md.version('numpy')}  --  " in index
+    assert f"svglib {md.version('svglib')}  --  LGPL-3.0" in index
+    assert "scipy" not in index  # not in this module list, so not in this bundle
