@@ -290,7 +290,7 @@ def check_contents(bundle: Path = BUNDLE, work: Path = WORK) -> list[str]:
     missing = [m for m in REQUIRED_MODULES if not has(m)]
     if missing:
         raise StepFailed(f"the bundle lacks modules: {missing}")
-    files = [p for pat in FORBIDDEN_FILES for p in bundle.rglob(pat)]
+    files = [p for pat in FORBIDDEN_FILES for p in (bundle / "_internal").rglob(pat)]
     if files:
         raise StepFailed(f"the bundle contains files it must not: {files[:5]}")
     index = bundle / "THIRD-PARTY-NOTICES" / "INDEX.txt"

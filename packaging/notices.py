@@ -198,29 +198,39 @@ def python_licence() -> Path | None:
 
 
 def system_library_files(bundle: Path) -> list[Path]:
-    """Shared libraries at the top of ``_internal`` (where PyInstaller puts those it copied
-    from the build machine; the wheels' own libraries sit inside their package folders)."""
+    """Shared libraries at the top of ``_internal`` that PyInstaller copied from the build
+    machine. Links into a wheel's own folders (``PySide6/Qt/lib``, ``scipy.libs``...) are
+    left out: those libraries come with the wheel, and its licence texts cover them."""
     internal = bundle / "_internal"
     pat = re.compile(r"\.so(\.\d+)*$|\.dll$", re.I)
     return sorted(
         p
         for p in internal.iterdir()
-        if pat.search(p.name) and not p.name.lower().startswith(("libpython", "python3"))
+        if pat.search(p.name)
+        and not p.is_symlink()
+        and not p.name.lower().startswith(("libpython", "python3"))
     )
 
 
 SEARCH_DIRS = ("/lib", "/usr/lib", "/lib64", "/usr/lib64", "/usr/local/lib")
 
 
-def _origin(name: str) -> Path | None:
+def _origins(name: str) -> list[Path]:
+    """Paths under which dpkg may know the library ``name`` of this machine (as found,
+    resolved, and with or without the /usr prefix of a merged-/usr system)."""
+    out: list[Path] = []
     for d in SEARCH_DIRS:
         root = Path(d)
         if not root.is_dir():
             continue
         for cand in [root / name, *root.glob(f"*-linux-gnu/{name}")]:
-            if cand.exists():
-                return cand.resolve()
-    return None
+            if not cand.exists():
+                continue
+            for path in (cand, cand.resolve()):
+                text = path.as_posix()
+                variants = [text, text[4:] if text.startswith("/usr/") else "/usr" + text]
+                out += [Path(v) for v in variants if Path(v) not in out]
+    return out
 
 
 def debian_packages(libs: Iterable[Path]) -> tuple[dict[str, list[str]], list[str]]:
@@ -230,14 +240,12 @@ def debian_packages(libs: Iterable[Path]) -> tuple[dict[str, list[str]], list[st
     unknown: list[str] = []
     dpkg = shutil.which("dpkg")
     for lib in libs:
-        origin = _origin(lib.name) if dpkg else None
         pkg = None
-        if origin is not None:
-            for path in (origin, Path("/usr") / origin.relative_to("/")):
-                proc = subprocess.run([dpkg, "-S", str(path)], capture_output=True, text=True)
-                if proc.returncode == 0 and ":" in proc.stdout:
-                    pkg = proc.stdout.split(":", 1)[0].strip()
-                    break
+        for path in _origins(lib.name) if dpkg else []:
+            proc = subprocess.run([dpkg, "-S", str(path)], capture_output=True, text=True)
+            if proc.returncode == 0 and ":" in proc.stdout:
+                pkg = proc.stdout.split(":", 1)[0].strip()
+                break
         if pkg:
             packages.setdefault(pkg, []).append(lib.name)
         else:
@@ -395,7 +403,13 @@ def write_index(dest: Path, entries: list[Entry]) -> Path:
         group = [e for e in entries if e.kind == kind]
         if not group:
             continue
-        lines.append(f"{kind}s:" if kind != "Python" else "Python interpreter:")
+        lines.append(
+            {
+                "Python": "Python interpreter:",
+                "Python distribution": "Python distributions:",
+                "system library": "System libraries (Debian packages of the build machine):",
+            }[kind]
+        )
         for e in group:
             lines.append(f"  {e.name} {e.version}  --  {e.licence}")
             for f in e.files:
@@ -415,7 +429,11 @@ def main(argv: list[str] | None = None) -> int:
         "--modules", required=True, type=Path, help="PyInstaller's PYZ-00.toc of that build"
     )
     args = ap.parse_args(argv)
-    dists = bundled_distributions(modules_from_toc(args.modules))
+    # modules in PyInstaller's archive, plus the folders beside it: packages collected as
+    # plain files (svglib, so it can be replaced) are not in the archive's list
+    internal = args.bundle / "_internal"
+    folders = {p.name for p in internal.iterdir() if p.is_dir()} if internal.is_dir() else set()
+    dists = bundled_distributions(modules_from_toc(args.modules) | folders)
     libs = system_library_files(args.bundle)
     try:
         entries = collect(args.bundle / FOLDER, dists, system_libs=libs)

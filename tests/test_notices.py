@@ -156,9 +156,11 @@ def test_the_build_step_reads_pyinstallers_module_list(tmp_path):
     """notices.py as build_bundle.py runs it: a bundle folder and PyInstaller's PYZ toc."""
     bundle = tmp_path / "Lopside"
     (bundle / "_internal").mkdir(parents=True)
+    # a package collected as plain .py files is a folder, not in the archive's list
+    (bundle / "_internal" / "svglib").mkdir()
     toc = tmp_path / "PYZ-00.toc"
     toc.write_text(
-        repr(("PYZ-00.pyz", [("numpy", "/x", "PYMODULE"), ("svglib.svglib", "/y", "PYMODULE")])),
+        repr(("PYZ-00.pyz", [("numpy", "/x", "PYMODULE"), ("numpy.linalg", "/y", "PYMODULE")])),
         encoding="utf-8",
     )
     assert notices.main(["--bundle", str(bundle), "--modules", str(toc)]) == 0
