@@ -24,6 +24,8 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from lopside.analysis import analyse, build_study_data
 from lopside.cli_common import load_review_file
@@ -432,3 +434,80 @@ def test_sample_reviews_raise_no_duplicate_or_arm_flags(name):
     kinds = {x.kind for f in r.row_flags.flagged for x in f.reasons}
     assert "duplicate" not in kinds
     assert not kinds & {"arm_risk", "arm_size"}
+
+
+# --------------------------------------------------------------------------------------
+# Never silent, never a crash
+
+
+def test_rows_are_table_rows_when_earlier_rows_are_left_out(tmp_path):
+    # an excluded row and a row without data before the typo: the flag still names the
+    # table row (10), not the position among the analysed studies
+    lines = TYPO_CSV.splitlines()
+    header = lines[0] + ",exclude"
+    body = [ln + "," for ln in lines[1:]]
+    body.insert(1, "Ardmore 2004,2004,5,90,7,88,yes")
+    body.insert(2, "Ballater 2005,2005,,,,,")
+    p = tmp_path / "with_left_out.csv"
+    p.write_text("\n".join([header, *body]) + "\n", encoding="utf-8")
+    review, _ = load_review_file(p, "OR")
+    r = analyse(review)
+    assert [(f.row, f.study) for f in r.row_flags.flagged] == [(TYPO_ROW + 2, "Hollister 2011")]
+    assert dg.row_label(r.row_flags.flagged[0]) == "Hollister 2011 (row 10)"
+
+
+_count_rows = st.lists(
+    st.tuples(st.integers(0, 60), st.integers(1, 400), st.integers(0, 60), st.integers(1, 400)).map(
+        lambda t: (min(t[0], t[1]), t[1], min(t[2], t[3]), t[3])
+    ),
+    min_size=0,
+    max_size=14,
+)
+
+
+@settings(max_examples=60, deadline=None)
+@given(_count_rows, st.sampled_from(["OR", "RR", "RD"]))
+def test_flags_never_raise_and_always_say_why(counts, measure):
+    rows = [
+        StudyRow(study=f"T{i}", int_events=a, int_total=n1, ctl_events=c, ctl_total=n0)
+        for i, (a, n1, c, n0) in enumerate(counts)
+    ]
+    data = _data(rows, measure)
+    loo = leave_one_out(data) if data.k else dg.NotComputable("no study")
+    flags = dg.flag_rows(data, loo)
+    assert {f.row for f in flags.flagged} <= set(data.rows)
+    for f in flags.flagged:
+        assert f.reasons
+        for r in f.reasons:
+            assert r.kind in dg.KIND_TITLES and r.detail and r.check
+            assert "nan" not in r.detail.lower() and "inf" not in r.detail.lower()
+    if not isinstance(flags.influence, dg.Influence):
+        assert flags.notes  # the reason is shown, not dropped
+
+
+@settings(max_examples=60, deadline=None)
+@given(
+    st.lists(
+        st.tuples(
+            st.floats(-50, 50, allow_nan=False),
+            st.floats(1e-6, 1e3, allow_nan=False),
+            st.one_of(st.none(), st.integers(2, 5000)),
+        ),
+        min_size=0,
+        max_size=12,
+    ),
+    st.sampled_from(["MD", "SMD", "HR", "OR"]),
+)
+def test_flags_from_estimates_never_raise(rows, measure):
+    y = [r[0] for r in rows]
+    se = [r[1] for r in rows]
+    n = [np.nan if r[2] is None else r[2] for r in rows]
+    data = StudyData.from_arrays(measure, y, se, n=n)
+    loo = leave_one_out(data) if data.k >= 3 else dg.NotComputable("too few")
+    flags = dg.flag_rows(data, loo)
+    for f in flags.flagged:
+        for r in f.reasons:
+            assert r.kind in dg.KIND_TITLES and "nan" not in r.detail.lower()
+    from lopside.report import plain
+
+    json.dumps(plain(flags.influence), allow_nan=False)
