@@ -67,13 +67,16 @@ def mark_flagged(ax, points, *, size: str = "page") -> list[Any]:
         clip_on=False,
     )
     out: list[Any] = [ring]
+    lo, hi = sorted(ax.get_xlim())
     for x, v, row in points:
+        right_half = x > (lo + hi) / 2.0  # write towards the middle, not off the plot
         out.append(
             ax.annotate(
                 LABEL.format(row=row + 1),
                 (x, v),
-                xytext=(9, -9),
+                xytext=(-9 if right_half else 9, -9),
                 textcoords="offset points",
+                ha="right" if right_half else "left",
                 fontsize=preset.font * 0.85,
                 color=style.INK,
                 zorder=7,
