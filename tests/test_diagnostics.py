@@ -511,3 +511,29 @@ def test_flags_from_estimates_never_raise(rows, measure):
     from lopside.report import plain
 
     json.dumps(plain(flags.influence), allow_nan=False)
+
+
+def test_arm_sizes_of_a_continuous_outcome_are_checked_too():
+    # means and SDs per arm; one control n typed 12 for 120 (invented trials)
+    rows = [
+        StudyRow(
+            study=f"M{i}",
+            int_mean=10.0 + i % 3,
+            int_sd=4.0,
+            int_n=100 + 10 * i,
+            ctl_mean=12.0,
+            ctl_sd=4.2,
+            ctl_n=98 + 10 * i,
+        )
+        for i in range(7)
+    ]
+    rows.append(
+        StudyRow(
+            study="Typed", int_mean=10.5, int_sd=4.1, int_n=118, ctl_mean=12.1, ctl_sd=4.0, ctl_n=12
+        )
+    )
+    reasons = dg.arm_reasons(_data(rows, "MD"))
+    assert list(reasons) == [7]
+    (r,) = reasons[7]
+    assert r.kind == "arm_size" and r.field == "ctl_n"
+    assert "arms of 118 (intervention) and 12 (control), 9.8:1" in r.detail

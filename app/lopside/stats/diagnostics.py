@@ -428,7 +428,7 @@ def _logit_risk(events: np.ndarray, total: np.ndarray) -> tuple[np.ndarray, np.n
 
 
 def arm_reasons(data: StudyData) -> dict[int, list[Reason]]:
-    """Arms whose event risk or size is far out of line with the other arms (2x2 data).
+    """Arms whose event risk (2x2 data) or size is far out of line with the other arms.
 
     Event risk: each arm is compared with the arms of the same kind (control with control,
     intervention with intervention) on the logit scale, by a robust z that allows for the
@@ -437,8 +437,9 @@ def arm_reasons(data: StudyData) -> dict[int, list[Reason]]:
     with it, a small arm needs a larger departure before it is flagged. Flagged when
     |z| > :data:`ARM_Z_LIMIT` and the risk lies outside the range of the other arms.
 
-    Size: the ratio of the larger to the smaller arm above :data:`ARM_RATIO_LIMIT` and
-    more than :data:`ARM_RATIO_SPREAD` times the median ratio of the other studies.
+    Size (any outcome with arm sizes: 2x2 totals, or per-arm n of means and SDs): the ratio
+    of the larger to the smaller arm above :data:`ARM_RATIO_LIMIT` and more than
+    :data:`ARM_RATIO_SPREAD` times the median ratio of the other studies.
 
     Returns
     -------
@@ -447,7 +448,10 @@ def arm_reasons(data: StudyData) -> dict[int, list[Reason]]:
     """
     out: dict[int, list[Reason]] = {}
     k = data.k
-    if data.a.size != k or k == 0:
+    if k == 0:
+        return out
+    _arm_size_reasons(data, out)
+    if data.a.size != k:
         return out
     a, b, c, d = data.a, data.b, data.c, data.d
     have = np.isfinite(a) & np.isfinite(b) & np.isfinite(c) & np.isfinite(d)
@@ -506,12 +510,20 @@ def arm_reasons(data: StudyData) -> dict[int, list[Reason]]:
                     field=f"{fld}_total",
                 )
             )
-    n1 = a[idx] + b[idx]
-    n0 = c[idx] + d[idx]
-    ok = (n1 > 0) & (n0 > 0)
-    if ok.sum() >= ARM_MIN:
-        sel = idx[ok]
-        n1, n0 = n1[ok], n0[ok]
+    return out
+
+
+def _arm_size_reasons(data: StudyData, out: dict[int, list[Reason]]) -> None:
+    """Arm sizes far out of line (2x2 totals, or per-arm sizes for continuous outcomes)."""
+    k = data.k
+    if data.n1.size != k or data.n0.size != k:
+        return
+    with np.errstate(invalid="ignore"):
+        have = np.isfinite(data.n1) & np.isfinite(data.n0) & (data.n1 > 0) & (data.n0 > 0)
+    counts = np.isfinite(data.a) & np.isfinite(data.c) if data.a.size == k else np.zeros(k, bool)
+    if have.sum() >= ARM_MIN:
+        sel = np.flatnonzero(have)
+        n1, n0 = data.n1[sel], data.n0[sel]
         ratio = np.maximum(n1, n0) / np.minimum(n1, n0)
         for j in np.flatnonzero(ratio > ARM_RATIO_LIMIT):
             others = np.delete(ratio, j)
@@ -532,11 +544,11 @@ def arm_reasons(data: StudyData) -> dict[int, list[Reason]]:
                 other_max=_g(others.max(), 1),
                 other_median=_g(nums["others_median"], 1),
             )
-            smaller = "ctl_total" if n0[j] < n1[j] else "int_total"
+            arm = "ctl" if n0[j] < n1[j] else "int"
+            smaller = f"{arm}_total" if counts[sel[j]] else f"{arm}_n"
             out.setdefault(int(sel[j]), []).append(
                 Reason("arm_size", detail, MESSAGES["arm_size_check"], nums, field=smaller)
             )
-    return out
 
 
 def _natural(y: np.ndarray, measure: str) -> np.ndarray:
