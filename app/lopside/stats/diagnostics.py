@@ -153,8 +153,7 @@ MESSAGES: dict[str, str] = {
 #: the line that heads the list wherever flagged rows are shown
 HEADLINE = "Rows to check against the paper"
 NONE_FOUND = (
-    "no row stands out from the others (arm risks and sizes, outliers and influence, τ², "
-    "possible duplicates)"
+    "no row stands out from the others (arms, outliers and influence, τ², possible duplicates)"
 )
 EXPLAIN = (
     "Rows that pass the entry checks but stand out from the other studies: an arm whose "
