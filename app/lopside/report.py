@@ -129,6 +129,8 @@ def flagged_studies(result) -> list[dict[str, Any]]:
 
 def _influence(result) -> dict[str, Any] | None:
     flags = getattr(result, "row_flags", None)
+    if isinstance(flags, NotComputable):
+        return {"not_computable": flags.reason}
     inf = getattr(flags, "influence", None)
     if inf is None:
         return None
@@ -163,6 +165,7 @@ def to_json(result) -> dict[str, Any]:
                 "how": getattr(d, "route_text", ""),
             }
         )
+    note("flagged_studies", getattr(result, "row_flags", None))
     note("pooled.fixed", result.fixed)
     note("pooled.random", result.random)
     het = note("heterogeneity", result.heterogeneity)

@@ -415,9 +415,6 @@ class RowFlags:
                 return f
         return None
 
-    def __bool__(self) -> bool:
-        return bool(self.flagged)
-
 
 def _logit_risk(events: np.ndarray, total: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Logit of the event risk with 0.5 added to each cell, and its sampling variance."""
