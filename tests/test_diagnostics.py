@@ -537,3 +537,19 @@ def test_arm_sizes_of_a_continuous_outcome_are_checked_too():
     (r,) = reasons[7]
     assert r.kind == "arm_size" and r.field == "ctl_n"
     assert "arms of 118 (intervention) and 12 (control), 9.8:1" in r.detail
+
+
+def test_no_flag_says_what_was_compared(tmp_path):
+    from lopside.summary import row_flags_section
+
+    two = _result("\n".join(CLEAN_CSV.splitlines()[:3]) + "\n", tmp_path, "two.csv")
+    assert two.row_flags.checked == ("duplicates",)
+    sec = row_flags_section(two)
+    assert sec.rows == (
+        ("Result", "no row stands out from the others (possible duplicates checked)"),
+    )
+    assert any("three studies" in n for n in sec.notes)
+    clean = _result(CLEAN_CSV, tmp_path)
+    assert clean.row_flags.checked == ("arms", "influence", "tau2", "duplicates")
+    one = StudyData.from_arrays("MD", [0.3], [0.1])
+    assert dg.flag_rows(one, dg.NotComputable("x")).none_found() == dg.NONE_CHECKED

@@ -423,7 +423,9 @@ def row_flags_section(result) -> Section:
     if isinstance(flags, NotComputable):
         return Section("row_flags", dg.HEADLINE, (("Result", why_not(flags)),))
     if not flags.flagged:
-        return Section("row_flags", dg.HEADLINE, (("Result", dg.NONE_FOUND),), notes=flags.notes)
+        return Section(
+            "row_flags", dg.HEADLINE, (("Result", flags.none_found()),), notes=flags.notes
+        )
     shown = flags.flagged[:LIST_LIMIT]
     rows = [(dg.row_label(f), "\n".join(dg.flag_lines(f))) for f in shown]
     rest = flags.flagged[LIST_LIMIT:]

@@ -152,9 +152,15 @@ MESSAGES: dict[str, str] = {
 
 #: the line that heads the list wherever flagged rows are shown
 HEADLINE = "Rows to check against the paper"
-NONE_FOUND = (
-    "no row stands out from the others (arms, outliers and influence, τ², possible duplicates)"
-)
+NONE_FOUND = "no row stands out from the others ({checked} checked)"
+NONE_CHECKED = "too few studies to compare one row with the others"
+#: what :func:`flag_rows` could compare, for :data:`NONE_FOUND`
+CHECKED_WORDS = {
+    "arms": "arms",
+    "influence": "outliers and influence",
+    "tau2": "τ²",
+    "duplicates": "possible duplicates",
+}
 EXPLAIN = (
     "Rows that pass the entry checks but stand out from the other studies: an arm whose "
     "event risk or size is out of line, an outlier or influential study (Viechtbauer & "
@@ -408,6 +414,16 @@ class RowFlags:
     influence: Influence | NotComputable
     drivers: tuple[str, ...] = ()
     notes: tuple[str, ...] = ()
+    #: keys of :data:`CHECKED_WORDS`: what there were enough studies to compare
+    checked: tuple[str, ...] = ()
+
+    def none_found(self) -> str:
+        """The sentence for a review where no row is flagged (says what was compared)."""
+        if not self.checked:
+            return NONE_CHECKED
+        words = [CHECKED_WORDS[c] for c in self.checked]
+        listed = ", ".join(words[:-1]) + " and " + words[-1] if len(words) > 1 else words[0]
+        return NONE_FOUND.format(checked=listed)
 
     def for_row(self, row: int) -> FlaggedStudy | None:
         for f in self.flagged:
@@ -860,7 +876,26 @@ def flag_rows(data: StudyData, loo) -> RowFlags:
     for i in sorted(by_index, key=lambda j: rows[j]):
         reasons = sorted(by_index[i], key=lambda r: _ORDER.index(r.kind))
         flagged.append(FlaggedStudy(rows[i], labels[i], tuple(reasons)))
-    return RowFlags(tuple(flagged), inf, tuple(drivers), tuple(notes))
+    checked = []
+    if _enough_arms(data):
+        checked.append("arms")
+    if isinstance(inf, Influence):
+        checked += ["influence", "tau2"]
+    if data.k >= 2:
+        checked.append("duplicates")
+    return RowFlags(tuple(flagged), inf, tuple(drivers), tuple(notes), tuple(checked))
+
+
+def _enough_arms(data: StudyData) -> bool:
+    """Whether :func:`arm_reasons` had enough arms (counts or sizes) to compare."""
+    k = data.k
+    sizes = (
+        int((np.isfinite(data.n1) & np.isfinite(data.n0)).sum())
+        if data.n1.size == k and data.n0.size == k
+        else 0
+    )
+    counts = int(np.isfinite(data.a).sum()) if data.a.size == k else 0
+    return max(sizes, counts) >= ARM_MIN
 
 
 def reason_text(reason: Reason, *, check: bool = True) -> str:
