@@ -553,3 +553,34 @@ def test_no_flag_says_what_was_compared(tmp_path):
     assert clean.row_flags.checked == ("arms", "influence", "tau2", "duplicates")
     one = StudyData.from_arrays("MD", [0.3], [0.1])
     assert dg.flag_rows(one, dg.NotComputable("x")).none_found() == dg.NONE_CHECKED
+
+
+# the same invented trials with intervention arms that disagree (odds ratios 0.3 to 1.3)
+HETERO_CSV = """study,year,int_events,int_total,ctl_events,ctl_total
+Alderwick 2004,2004,11,310,29,305
+Brannock 2005,2005,16,148,14,150
+Calloway 2006,2006,30,612,52,608
+Dunsmore 2007,2007,25,205,22,210
+Eastleigh 2008,2008,22,880,53,876
+Fairbairn 2009,2009,20,120,17,118
+Garroway 2010,2010,18,402,41,398
+Hollister 2011,2011,62,770,66,77
+Inverlochy 2012,2012,4,95,12,97
+Jedburgh 2013,2013,52,520,50,515
+Kinloss 2014,2014,12,260,31,262
+Lochaber 2015,2015,30,340,36,335
+"""
+
+
+def test_typo_is_flagged_when_the_other_trials_disagree_too(tmp_path):
+    r = _result(HETERO_CSV, tmp_path)
+    (f,) = r.row_flags.flagged
+    kinds = [x.kind for x in f.reasons]
+    assert f.row == TYPO_ROW and kinds[:3] == ["arm_risk", "arm_size", "outlier"]
+    het = next(x for x in f.reasons if x.kind == "heterogeneity")
+    assert het.numbers["tau2"] > 1.0 and 0.05 < het.numbers["tau2_without"] < 0.3
+    # without the row tau2 stays above 0.1: the recommended test does not change, so no
+    # such claim is made
+    assert "test_switch" not in kinds
+    clean = _result(HETERO_CSV.replace(",66,77\n", ",66,770\n"), tmp_path, "h2.csv")
+    assert clean.row_flags.flagged == ()
