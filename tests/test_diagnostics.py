@@ -584,3 +584,25 @@ def test_typo_is_flagged_when_the_other_trials_disagree_too(tmp_path):
     assert "test_switch" not in kinds
     clean = _result(HETERO_CSV.replace(",66,77\n", ",66,770\n"), tmp_path, "h2.csv")
     assert clean.row_flags.flagged == ()
+
+
+def test_pasted_rows_from_a_paper_are_flagged_the_same_way(tmp_path):
+    # the same invented trials as "events/total" pairs, as pasted from a forest table
+    lines = []
+    for line in TYPO_CSV.splitlines()[1:]:
+        s, _, e1, n1, e0, n0 = line.split(",")
+        lines.append(f"{s}  {e1}/{n1}  {e0}/{n0}")
+    p = tmp_path / "pasted_invented.txt"
+    p.write_text("\n".join(lines) + "\n", encoding="utf-8")
+    out = subprocess.run(
+        [sys.executable, "-m", "lopside", "check", str(p), "--measure", "OR", "--json"],
+        capture_output=True,
+        text=True,
+        cwd=ROOT,
+        env={"PYTHONPATH": str(ROOT / "app"), "PATH": "/usr/bin:/bin"},
+        timeout=120,
+    )
+    assert out.returncode == 0, out.stderr
+    doc = json.loads(out.stdout)
+    assert doc["k"] == 12
+    assert [(f["study"], f["row"]) for f in doc["flagged_studies"]] == [("Hollister 2011", 8)]
