@@ -606,3 +606,29 @@ def test_pasted_rows_from_a_paper_are_flagged_the_same_way(tmp_path):
     doc = json.loads(out.stdout)
     assert doc["k"] == 12
     assert [(f["study"], f["row"]) for f in doc["flagged_studies"]] == [("Hollister 2011", 8)]
+
+
+def test_check_against_the_paper_names_the_flagged_row_first(tmp_path):
+    # the invented paper printed the pooled result of the correct rows (Mantel-Haenszel
+    # fixed effect); the typed-short total keeps the rows from reproducing it
+    from dataclasses import replace
+
+    from lopside.model.review import PublishedResult
+
+    clean = _result(CLEAN_CSV, tmp_path, "clean.csv")
+    mh = clean.mantel_haenszel
+    pub = PublishedResult(
+        round(float(np.exp(mh.estimate)), 2),
+        round(float(np.exp(mh.ci.low)), 2),
+        round(float(np.exp(mh.ci.high)), 2),
+        "Mantel-Haenszel fixed effect",
+    )
+    typo = _result(TYPO_CSV, tmp_path)
+    r = analyse(replace(typo.review, details=replace(typo.review.details, published=pub)))
+    rec = r.reconciliation
+    assert rec.verdict != "agrees"
+    row, label, why = rec.suspicious_rows[0]
+    assert (row, label) == (TYPO_ROW, "Hollister 2011")
+    assert why.startswith("it stands out from the other studies (event risk out of line")
+    ok = analyse(replace(clean.review, details=replace(clean.review.details, published=pub)))
+    assert ok.reconciliation.verdict == "agrees" and ok.reconciliation.suspicious_rows == ()

@@ -239,7 +239,7 @@ def _analyse(review, settings, *, with_power, power_progress) -> AnalysisResult:
     from .intake.checks import check_rows
     from .stats import adjust, applicability, asymmetry, binary, moderators, sensitivity
     from .stats import pooling as pl
-    from .stats.diagnostics import flag_rows
+    from .stats.diagnostics import flag_rows, suspects
     from .stats.effects import derive_all
     from .stats.reconcile import reconcile
 
@@ -300,7 +300,7 @@ def _analyse(review, settings, *, with_power, power_progress) -> AnalysisResult:
             ratio=measure in RATIO_MEASURES,
             published_model=review.details.published.model,
             loo=lambda key: _leave_one_out_estimates(data, key, measure),
-            flagged=_flagged_rows(review, problems),
+            flagged=_flagged_rows(review, problems) + suspects(row_flags, problems),
         )
 
     tau2 = random.tau2 if isinstance(random, PooledEstimate) else 0.0

@@ -151,6 +151,9 @@ MESSAGES: dict[str, str] = {
     ),
 }
 
+#: why a flagged row is among the rows to re-check when the paper is not reproduced
+SUSPECT = "it stands out from the other studies ({kinds}): see the rows to check"
+
 #: the line that heads the list wherever flagged rows are shown
 HEADLINE = "Rows to check against the paper"
 NONE_FOUND = "no row stands out from the others ({checked} checked)"
@@ -950,3 +953,17 @@ def glance_text(flags) -> str:
         + ". Every result on this sheet includes these rows: check them against the paper "
         "first (evidence below)."
     )
+
+
+def suspects(flags, problems=()) -> tuple[tuple[int, str, str], ...]:
+    """(row, label, why) of the flagged rows not already named by an entry problem, for the
+    check against the published result: when the rows do not reproduce the paper, these
+    are the first rows to re-check."""
+    taken = {getattr(p, "row", None) for p in problems}
+    out = []
+    for f in getattr(flags, "flagged", ()) or ():
+        if f.row in taken:
+            continue
+        kinds = ", ".join(dict.fromkeys(KIND_TITLES[r.kind].lower() for r in f.reasons))
+        out.append((f.row, f.study or f"Row {f.row + 1}", SUSPECT.format(kinds=kinds)))
+    return tuple(out)
