@@ -187,7 +187,11 @@ def build_figure(result, args: argparse.Namespace):
                 f"--colour-by {opts.colour_by}: no study has a {field} entry; fill in the "
                 f"{field} column or leave out --colour-by."
             )
-        return funnel_figure(inp, opts, size)
+        fig = funnel_figure(inp, opts, size)
+        from .flag_marks import flagged_points, mark_flagged  # rows to check
+
+        mark_flagged(fig.axes[0], flagged_points(result, opts.axis), size=size)
+        return fig
     if kind == "forest":
         from .forest import forest_figure
 
