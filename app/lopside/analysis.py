@@ -240,6 +240,7 @@ def _analyse(review, settings, *, with_power, power_progress) -> AnalysisResult:
     from .stats.reconcile import reconcile
 
     settings = settings or AnalysisSettings()
+    extra_notes: list[str] = []
     measure = settings.measure or review.details.measure
     level = review.details.ci_level
     conf = 0.95  # pooled results are reported at 95 % whatever the paper's study CIs used
@@ -372,6 +373,11 @@ def _analyse(review, settings, *, with_power, power_progress) -> AnalysisResult:
             progress=power_progress,
         )
 
+    # work thinned or done another way for a large review is said in the result (DESIGN 8)
+    notes = tuple(
+        n for n in (getattr(loo, "note", ""), getattr(cumulative, "note", ""), *extra_notes) if n
+    )
+
     return AnalysisResult(
         review=review,
         settings=settings,
@@ -404,4 +410,5 @@ def _analyse(review, settings, *, with_power, power_progress) -> AnalysisResult:
         meta_regression=meta_reg,
         power=power,
         fingerprint=fingerprint(review, measure),
+        notes=notes,
     )
