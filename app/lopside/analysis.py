@@ -217,22 +217,58 @@ def _safe(fn, *args, **kw):
         )
 
 
+class AnalysisCancelled(Exception):
+    """Raised by :func:`analyse` when its ``progress`` callback returned False."""
+
+
+#: the stages :func:`analyse` reports to its ``progress`` callback, in order
+STAGES: tuple[str, ...] = (
+    "reading the study rows",
+    "pooling",
+    "leave one out",
+    "cumulative analysis",
+    "small-study tests",
+    "trim and fill",
+    "other adjustments",
+    "subgroups",
+    "power simulation",
+)
+
+
+def _stage(progress, name: str) -> None:
+    """Tell ``progress`` a stage starts; stop the analysis when it answers False."""
+    if progress is not None and progress(name, STAGES.index(name), len(STAGES)) is False:
+        raise AnalysisCancelled(name)
+
+
 def analyse(
     review: Review,
     settings: AnalysisSettings | None = None,
     *,
     with_power: bool = False,
     power_progress=None,
+    progress=None,
 ) -> AnalysisResult:
-    """Analyse a review: derive effects, pool, test, adjust; return one frozen result."""
+    """Analyse a review: derive effects, pool, test, adjust; return one frozen result.
+
+    ``progress(stage, index, total)``, if given, is called as each stage of
+    :data:`STAGES` starts; returning False cancels the analysis
+    (:class:`AnalysisCancelled` is raised).
+    """
     from .stats import pooling
 
     # one analysis asks for the tau^2 of the same studies many times: estimate each once
     with pooling.reuse_tau2():
-        return _analyse(review, settings, with_power=with_power, power_progress=power_progress)
+        return _analyse(
+            review,
+            settings,
+            with_power=with_power,
+            power_progress=power_progress,
+            progress=progress,
+        )
 
 
-def _analyse(review, settings, *, with_power, power_progress) -> AnalysisResult:
+def _analyse(review, settings, *, with_power, power_progress, progress=None) -> AnalysisResult:
     from .intake.checks import check_rows
     from .stats import adjust, applicability, asymmetry, binary, moderators, sensitivity
     from .stats import pooling as pl
@@ -245,6 +281,7 @@ def _analyse(review, settings, *, with_power, power_progress) -> AnalysisResult:
     level = review.details.ci_level
     conf = 0.95  # pooled results are reported at 95 % whatever the paper's study CIs used
 
+    _stage(progress, "reading the study rows")
     derived = derive_all(
         review.studies,
         measure,
@@ -256,6 +293,7 @@ def _analyse(review, settings, *, with_power, power_progress) -> AnalysisResult:
     data, excluded = build_study_data(review, measure, derived)
     y, v = data.y, data.v
 
+    _stage(progress, "pooling")
     fixed = _safe(pl.fixed_effect, y, v, confidence_level=conf)
     by_method = {
         m: _safe(pl.random_effects, y, v, method=m, confidence_level=conf) for m in pl.TAU2_METHODS
@@ -279,7 +317,9 @@ def _analyse(review, settings, *, with_power, power_progress) -> AnalysisResult:
 
     het = _safe(pl.heterogeneity, y, v, tau2_method=settings.tau2_method, confidence_level=conf)
 
+    _stage(progress, "leave one out")
     loo = _safe(sensitivity.leave_one_out, data, tau2_method=settings.tau2_method)
+    _stage(progress, "cumulative analysis")
     cumulative = _safe(sensitivity.cumulative, data, tau2_method=settings.tau2_method)
 
     published = _published_on_scale(review, measure)
@@ -299,6 +339,7 @@ def _analyse(review, settings, *, with_power, power_progress) -> AnalysisResult:
             flagged=_flagged_rows(review, problems),
         )
 
+    _stage(progress, "small-study tests")
     tau2 = random.tau2 if isinstance(random, PooledEstimate) else 0.0
     recommendation = _safe(applicability.recommend, data, tau2)
     # the recommended test runs with the options it was recommended with (e.g. the arcsine
@@ -312,6 +353,7 @@ def _analyse(review, settings, *, with_power, power_progress) -> AnalysisResult:
     else:
         rules = _safe(applicability.applicability, data, het.i2, het.pvalue)
 
+    _stage(progress, "trim and fill")
     trim_fill = _safe(
         adjust.trim_and_fill,
         data,
@@ -341,6 +383,7 @@ def _analyse(review, settings, *, with_power, power_progress) -> AnalysisResult:
                 fill_model=fill_m,
                 tau2_method=settings.tau2_method,
             )
+    _stage(progress, "other adjustments")
     pet_peese = _safe(
         adjust.pet_peese, data, alpha=settings.petpeese_alpha, sided=settings.petpeese_sided
     )
@@ -348,6 +391,7 @@ def _analyse(review, settings, *, with_power, power_progress) -> AnalysisResult:
     selection = _safe(adjust.selection_model, data, cutpoints=settings.selection_cutpoints)
     failsafe = _safe(sensitivity.fail_safe_n, data, trivial=settings.orwin_trivial)
 
+    _stage(progress, "subgroups")
     subgroups: dict[str, Any] = {}
     meta_reg: dict[str, Any] = {}
     for by in ("risk_of_bias", "subgroup"):
@@ -362,6 +406,7 @@ def _analyse(review, settings, *, with_power, power_progress) -> AnalysisResult:
     if with_power:
         from .stats.power import simulate_power
 
+        _stage(progress, "power simulation")
         power = _safe(
             simulate_power,
             data,

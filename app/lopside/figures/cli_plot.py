@@ -94,6 +94,11 @@ def add_plot_arguments(parser: argparse.ArgumentParser) -> None:
         help="tau² estimator",
     )
     parser.add_argument("--hksj", action="store_true", help="Hartung-Knapp interval (modified)")
+    parser.add_argument(
+        "--quiet",
+        action="store_true",
+        help="no progress line on stderr while a long analysis runs",
+    )
 
 
 def _fail(message: str) -> int:
@@ -139,8 +144,12 @@ def run_plot(args: argparse.Namespace) -> int:
         settings = replace(settings, funnel_model=args.model)
 
     from ..analysis import analyse
+    from ..cli import _progress_for
 
-    result = analyse(review, settings)
+    progress = _progress_for(args, review)
+    result = analyse(review, settings, progress=progress)
+    if progress:
+        progress.done()
     if result.data.k == 0:
         return _fail(
             f"{args.file}: no study has a usable effect and standard error, so there is "

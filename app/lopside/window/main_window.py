@@ -502,11 +502,14 @@ class MainWindow(QMainWindow):
             return
         if self.analysis_worker is not None and self.analysis_worker.isRunning():
             self._rerun = True
+            self.analysis_worker.cancel()  # its result would be stale: stop at its next stage
             return
         s = self.session
         w = AnalysisWorker(s.review, s.settings, s.analysis_key(), self)
         w.finished_with.connect(self._analysis_done)
         w.failed.connect(self._analysis_failed)
+        w.cancelled.connect(self._analysis_failed_or_cancelled)
+        w.progress.connect(self._analysis_progress)
         self.analysis_worker = w
         self._rerun = False
         self.status_label.setText("Analysing\u2026")
@@ -519,6 +522,12 @@ class MainWindow(QMainWindow):
             self.refresh_soon()
             return
         self.update_views()
+
+    def _analysis_progress(self, stage: str, index: int, total: int) -> None:
+        self.status_label.setText(M.ANALYSIS_PROGRESS.format(stage=stage, n=index + 1, of=total))
+
+    def _analysis_failed_or_cancelled(self, key) -> None:
+        self._analysis_failed("", key)
 
     def _analysis_failed(self, message: str, key) -> None:
         if self._rerun:
