@@ -42,3 +42,66 @@ def test_a_cancelled_worker_says_so_and_gives_no_result(qtbot, user_state):
         w.start()
     w.wait()
     assert cancelled == ["key-2"] and results == []
+
+
+# --------------------------------------------------------------------------------------
+# Live redraw: the table repaints only what changed; the funnel reuses its layout
+
+
+def _window_with_sample(make_window):
+    w = make_window(_sample())
+    w.wait_for_analysis()
+    return w
+
+
+def test_table_emits_data_changed_only_for_cells_that_changed(make_window, qtbot):
+    from PySide6.QtCore import Qt
+
+    from lopside import edits as ed
+
+    w = _window_with_sample(make_window)
+    model = w.studies.model
+    spans = []
+    model.dataChanged.connect(
+        lambda a, b, roles=(): spans.append((a.row(), b.row(), a.column(), b.column()))
+    )
+    k = model.rowCount()
+    row = w.session.review.studies[2]
+    field = next(f for f in ("int_events", "estimate", "int_mean") if getattr(row, f) is not None)
+    value = getattr(row, field) + (1 if isinstance(getattr(row, field), int) else 0.01)
+    w.stack.push_edit(ed.SetCell(2, field, str(value)))
+    w.wait_for_analysis()
+    qtbot.waitUntil(lambda: w.result is not None and w.result.review is w.session.review)
+    assert spans, "the edited row must be repainted"
+    # only row 2 (its own edit, then its derived cells) was announced, never the whole table
+    assert all(lo == hi == 2 for lo, hi, _, _ in spans), spans
+    cells = sum((hi - lo + 1) * (c1 - c0 + 1) for lo, hi, c0, c1 in spans)
+    assert cells < k * model.columnCount()
+    # the shown derived value is the new analysis's
+    c = model.column_of("_y")
+    shown = model.data(model.index(2, c), Qt.DisplayRole)
+    assert float(shown) == pytest.approx(w.result.derived[2].y, rel=1e-3)
+
+
+def test_funnel_reuses_its_layout_after_an_edit_and_keeps_points_inside(make_window, qtbot):
+    from lopside import edits as ed
+
+    w = _window_with_sample(make_window)
+    w.views.setCurrentWidget(w.funnel)
+    w.funnel.draw_now()
+    w.funnel.draw_now()  # the first draw under constrained layout gives the layout
+    assert w.funnel._fixed_layout is not None
+    position = w.funnel.axes.get_position().bounds
+    row = w.session.review.studies[0]
+    field = next(f for f in ("int_events", "estimate", "int_mean") if getattr(row, f) is not None)
+    value = getattr(row, field) + (1 if isinstance(getattr(row, field), int) else 0.01)
+    w.stack.push_edit(ed.SetCell(0, field, str(value)))
+    w.wait_for_analysis()
+    w.update_views()
+    w.funnel.draw_now()
+    assert w.funnel.layout_reused
+    assert type(w.funnel.figure.get_layout_engine()).__name__ != "ConstrainedLayoutEngine"
+    assert w.funnel.axes.get_position().bounds == pytest.approx(position)
+    # the layout still holds every tick label inside the canvas
+    renderer = w.funnel.canvas.get_renderer()
+    assert w.funnel._fits(renderer)
