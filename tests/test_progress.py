@@ -54,3 +54,44 @@ def test_check_on_a_small_review_keeps_stderr_empty(capsys):
     assert capsys.readouterr().err == ""
     assert main(["check", "--quiet", path]) == 0
     assert capsys.readouterr().err == ""
+
+
+# --------------------------------------------------------------------------------------
+# Staged analysis: the core stage first, the full stage reusing it
+
+
+def test_core_stage_has_the_first_numbers_and_says_the_rest_is_pending():
+    from lopside.analysis import CORE_PENDING
+    from lopside.report import to_json
+    from lopside.stats.results import NotComputable
+
+    review = _sample()
+    full = analyse(review)
+    core = analyse(review, stage="core")
+    assert core.stage == "core" and full.stage == "full"
+    for name in ("fixed", "random", "heterogeneity", "trim_fill"):
+        assert to_json_part(getattr(core, name)) == to_json_part(getattr(full, name)), name
+    assert core.tests.keys() == full.tests.keys()
+    for name in ("leave_one_out", "cumulative", "selection", "limit", "pet_peese"):
+        value = getattr(core, name)
+        assert isinstance(value, NotComputable) and value.reason == CORE_PENDING, name
+    to_json(core)  # every output path can render a core result
+
+
+def test_full_stage_from_a_core_stage_equals_the_whole_analysis():
+    from lopside.report import to_json
+
+    review = _sample()
+    core = analyse(review, stage="core")
+    seen = []
+    full = analyse(review, core=core, progress=lambda s, i, n: seen.append(s))
+    assert full.fixed is core.fixed and full.data is core.data  # reused, not recomputed
+    assert "pooling" not in seen and "leave one out" in seen
+    whole = to_json(analyse(review))
+    assert to_json(full) == whole
+
+
+def to_json_part(x):
+    from lopside.report import plain
+
+    return plain(x)

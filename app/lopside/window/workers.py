@@ -31,11 +31,12 @@ class AnalysisWorker(QThread):
     failed = Signal(str, object)
     cancelled = Signal(object)
 
-    def __init__(self, review, settings, key, parent=None) -> None:
+    def __init__(self, review, settings, key, parent=None, core=None) -> None:
         super().__init__(parent)
         self.review = review
         self.settings = settings
         self.key = key
+        self.core = core  # a core-stage result of the same inputs, reused by the full stage
         self._cancel = threading.Event()
 
     def cancel(self) -> None:
@@ -53,7 +54,9 @@ class AnalysisWorker(QThread):
             from ..analysis import AnalysisCancelled, analyse
 
             try:
-                result = analyse(self.review, self.settings, progress=self._progress)
+                result = analyse(
+                    self.review, self.settings, progress=self._progress, core=self.core
+                )
             except AnalysisCancelled:
                 self.cancelled.emit(self.key)
                 return
