@@ -105,3 +105,28 @@ def test_funnel_reuses_its_layout_after_an_edit_and_keeps_points_inside(make_win
     # the layout still holds every tick label inside the canvas
     renderer = w.funnel.canvas.get_renderer()
     assert w.funnel._fits(renderer)
+
+
+def test_an_edit_shows_the_core_stage_first_then_the_full_one(make_window, qtbot):
+    from lopside import edits as ed
+    from lopside.window import messages as M
+
+    w = _window_with_sample(make_window)
+    w.views.setCurrentWidget(w.funnel)
+    w.funnel.draw_now()
+    row = w.session.review.studies[1]
+    field = next(f for f in ("int_events", "estimate", "int_mean") if getattr(row, f) is not None)
+    value = getattr(row, field) + (1 if isinstance(getattr(row, field), int) else 0.01)
+    w.stack.push_edit(ed.SetCell(1, field, str(value)))
+    w._timer.stop()
+    w.refresh_soon()  # as the debounce does: core stage now, full stage in the worker
+    assert w.result is not None and w.result.stage == "core"
+    assert w.result.review is w.session.review
+    assert w.status_label.text().endswith(M.CORE_STAGE_SUFFIX)
+    core_data = w.result.data
+    drawn = w.funnel.draw_count
+    w.wait_for_analysis()
+    qtbot.waitUntil(lambda: w.result.stage == "full", timeout=30000)
+    assert w.result.data is core_data  # the full stage reused the core's objects ...
+    assert w.funnel.draw_count == drawn  # ... so the funnel was not drawn again
+    assert not w.status_label.text().endswith(M.CORE_STAGE_SUFFIX)
