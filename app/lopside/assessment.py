@@ -80,13 +80,12 @@ def assessment_of(result: AnalysisResult | Assessment) -> Assessment:
 def assess(
     review,
     settings: AnalysisSettings | None = None,
-    *,
-    with_power: bool = False,
-    power_progress: Any = None,
+    **options: Any,
 ) -> Assessment:
     """Analyse a review and read it: the one call every face can make.
 
-    Parameters are those of :func:`lopside.analysis.analyse`.
+    ``options`` are those of :func:`lopside.analysis.analyse` (``with_power``,
+    ``power_progress``, ``progress``, ``stage``, ``core``), passed through unchanged.
     """
-    result = analyse(review, settings, with_power=with_power, power_progress=power_progress)
+    result = analyse(review, settings, **options)
     return assessment_of(result)

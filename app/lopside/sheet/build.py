@@ -214,6 +214,9 @@ def _page1(assessment, st, date: str) -> list:
     out = _header(result, st, date)
     out += [_spacer(5)] + _glance(assessment, st)
     out += _section(data_section(result), st)
+    from ..summary import row_flags_section  # rows that stand out (stats.diagnostics)
+
+    out += _section(row_flags_section(result), st)
     out += _section(reconciliation_section(result), st)
     out += _section(pooled_section(result), st)
     out += _section(heterogeneity_section(result), st)

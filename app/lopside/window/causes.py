@@ -188,6 +188,11 @@ class CausesPanel(QScrollArea):
         if result is None:
             self.reading.setText(html.escape(M.NO_ANALYSIS))
             return
+        if getattr(result, "stage", "full") != "full":
+            # a partial analysis would give a partial reading that the full one may contradict
+            self.reading.setText(html.escape(M.READING_UPDATING))
+            self._appraisal_for = None
+            return
         # the readings depend on the statistics, not on the notes: skip when only notes moved
         key = (result.data, result.settings, result.power)
         if self._appraisal_for is not None and all(

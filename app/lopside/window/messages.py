@@ -12,6 +12,9 @@ NOT_AVAILABLE = (
 )
 NO_ANALYSIS = "Enter at least two studies with an effect and its standard error to see this."
 ANALYSIS_FAILED = "The analysis could not be run: {error}"
+ANALYSIS_PROGRESS = "Analysing\u2026 {stage} ({n} of {of})"
+#: after the pooled result while only the core stage is shown
+CORE_STAGE_SUFFIX = " \u00b7 updating sensitivity analyses\u2026"
 STALE_POWER = "The review has changed since the power was simulated: run it again."
 POWER_NOT_RUN = "Not simulated yet for this review: press Simulate power."
 POWER_CANCELLED = "Power simulation cancelled."
@@ -88,3 +91,10 @@ PDF_STATUS = (
 PDF_FAILED = "The PDF could not be read ({error})."
 PDF_READING = "Reading the PDF's pages…"
 PDF_FROM = "{rows} rows from page(s) {pages} of {name} were added."
+
+#: The Causes view while only the core stage of the analysis is ready (the reading needs
+#: the sensitivity analyses, so it waits for the full stage rather than show a partial one).
+READING_UPDATING = (
+    "Updating the reading: the selection model and the other sensitivity analyses are "
+    "still running."
+)
