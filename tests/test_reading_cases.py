@@ -201,18 +201,61 @@ def test_case3_all_trim_and_fill_settings_reach_the_text_the_json_and_the_sheet(
     assert js["trim_fill_range"]["agree"] is False
 
 
-def test_case3_the_sheet_and_the_adjust_view_show_every_setting(six_selected):
+def _spread_variants(assessment: Assessment) -> Assessment:
+    """Invented: settings ranging from 0 to 4 filled studies, and from a CI that includes
+    no effect to one that does not."""
+    res = assessment.analysis
+    names = list(res.trim_fill_variants)
+    spread = dict(
+        _variant(res, n, k0, est, est - 0.5, est + hw)
+        for n, k0, est, hw in zip(
+            names,
+            (0, 1, 2, 3, 4, 4),
+            (-1.3, -1.2, -1.0, -0.8, -0.6, -0.5),
+            (0.3, 0.3, 0.4, 0.9, 0.9, 0.9),
+        )
+    )
+    return assessment_of(replace(res, trim_fill_variants=spread))
+
+
+def _sheet_text(assessment) -> str:
     pypdf = pytest.importorskip("pypdf")
     import io
 
     from lopside.sheet import sheet_bytes
 
-    pdf = sheet_bytes(six_selected, date="2026-01-01")
-    text = "\n".join(p.extract_text() or "" for p in pypdf.PdfReader(io.BytesIO(pdf)).pages)
-    flat = re.sub(r"\s+", " ", text)
+    pdf = sheet_bytes(assessment, date="2026-01-01")
+    pages = pypdf.PdfReader(io.BytesIO(pdf)).pages
+    return re.sub(r"\s+", " ", "\n".join(p.extract_text() or "" for p in pages))
+
+
+def test_case3_the_sheet_shows_every_setting_when_they_disagree(six_selected):
+    a = _spread_variants(six_selected)
+    flat = _sheet_text(a)
     assert "Trim and fill under each setting" in flat
-    for name in six_selected.analysis.trim_fill_variants:
+    for name in a.analysis.trim_fill_variants:
         assert name in flat
+    assert "fill 0 to 4 studies" in flat  # the range, on page 1 and under the table
+
+
+def test_case3_the_sheet_gives_the_range_when_the_settings_agree(six_selected):
+    from lopside.words.sentences import trim_fill_range
+
+    rng = trim_fill_range(six_selected.analysis)
+    assert rng is not None and rng.n == 6
+    flat = _sheet_text(six_selected)
+    # the sentence names the settings that give the lowest and highest estimates
+    assert re.sub(r"\s+", " ", rng.text) in flat
+
+
+def test_case3_the_adjust_view_lists_every_setting(six_selected):
+    from lopside.summary import trim_fill_section
+
+    sec = trim_fill_section(six_selected.analysis)
+    assert [r[0].removesuffix(" (default)") for r in sec.rows] == list(
+        six_selected.analysis.trim_fill_variants
+    )
+    assert sum(1 for r in sec.rows if r[0].endswith("(default)")) == 1
 
 
 # --------------------------------------------------------------------------------------

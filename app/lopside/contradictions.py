@@ -191,9 +191,11 @@ def page_one_equals_the_json(a, js) -> list[str]:
     out = []
     if rows != js["appraisal"]["page_one"]:
         out.append("page-1 lines differ from JSON appraisal.page_one")
-    first = rows[0]["text"] if rows else ""
-    if not first.startswith(js["appraisal"]["rating"]):
-        out.append(f"page-1 rating line {first!r} does not start with the JSON rating")
+    rating_line = next(
+        (r["text"] for r in rows if r["label"] == "Publication bias, suggested rating"), ""
+    )
+    if not rating_line.startswith(js["appraisal"]["rating"]):
+        out.append(f"page-1 rating line {rating_line!r} does not start with the JSON rating")
     lines = {r["label"]: r["text"] for r in rows}
     key = js["appraisal"]["funnel"]["test"]
     test = js["tests"].get(key) if key else None

@@ -5,8 +5,9 @@ Design invariants
 * Every word and number comes from :mod:`lopside.summary` (the same rows as the CLI text
   and the window), reading one :class:`lopside.assessment.Assessment` (the analysis and
   its appraisal, computed once); this module only lays them out and never appraises.
-* The main sheet is always exactly three pages: page 1 the review, the data and the pooled
-  results; page 2 the funnel plot, tests and adjustments; page 3 the explanations side by
+* The main sheet is always exactly three pages: page 1 the review, the key messages, the
+  data and the pooled results; page 2 the funnel plot, tests, adjustments (with trim and
+  fill under every setting) and leave-one-out; page 3 the explanations side by
   side, the suggested rating and the settings. Each page is a frame that shrinks its
   content only if it would overflow, so long labels or many problem rows never push the
   layout onto a fourth page. Lists are capped in :mod:`lopside.summary` so that shrinking
@@ -44,6 +45,7 @@ from ..summary import (
     trim_fill_section,
 )
 from ..words.numbers import fmt_num
+from ..words.sentences import trim_fill_range
 from . import fonts, layout
 from .layout import FRAME_H, FRAME_W, boxed, para, section_table
 
@@ -220,11 +222,6 @@ def _page1(assessment, st, date: str) -> list:
     out += _section(reconciliation_section(result), st)
     out += _section(pooled_section(result), st)
     out += _section(heterogeneity_section(result), st)
-    sens = sensitivity_section(result)
-    # fail-safe N is not recommended (Cochrane Handbook 5.1, 10.4.4.3): the window and the
-    # text show it with its caution; the printed sheet leaves it out to keep its room
-    sens = replace(sens, rows=tuple(r for r in sens.rows if not r[0].startswith("Fail-safe")))
-    out += _section(sens, st, label_width=150)
     sg = subgroups_section(result)
     if sg is not None:
         out += _section(sg, st)
@@ -269,10 +266,22 @@ def _page2(result, appraisal, st) -> list:
     out = _funnel_block(result, appraisal, st)
     out += _section(tests_section(result), st)
     out += _section(applicability_section(result), st)
-    out += _section(adjustments_section(result), st)
+    adj = adjustments_section(result)
     tf = trim_fill_section(result)
+    rng = trim_fill_range(result)
+    if tf is not None and rng is not None and rng.agree:
+        # the settings agree: one sentence (which setting gives the lowest and highest
+        # estimate) under the table is enough; the full table is printed when they disagree
+        adj = replace(adj, notes=adj.notes + (rng.text,))
+        tf = None
+    out += _section(adj, st)
     if tf is not None:
         out += _section(tf, st)
+    sens = sensitivity_section(result)
+    # fail-safe N is not recommended (Cochrane Handbook 5.1, 10.4.4.3): the window and the
+    # text show it with its caution; the printed sheet leaves it out to keep its room
+    sens = replace(sens, rows=tuple(r for r in sens.rows if not r[0].startswith("Fail-safe")))
+    out += _section(sens, st, label_width=150)
     # power is read out beside the funnel (simulated or not), so no separate block here
     return out
 
