@@ -37,7 +37,9 @@ def review_from_rows(rows, measure: str | None, name: str) -> Review:
     return Review(details=ReviewDetails(title=Path(name).stem, measure=m), studies=tuple(rows))
 
 
-def load_review_file(path: str | Path, measure: str | None = None) -> tuple[Review, dict[str, Any]]:
+def load_review_file(
+    path: str | Path, measure: str | None = None, *, accept_changed: bool = False
+) -> tuple[Review, dict[str, Any]]:
     """Read FILE into a review; ``measure`` overrides (or supplies) the measure.
 
     Raises :class:`InputError` (or the intake/project errors, which are ValueErrors) with a
@@ -57,7 +59,7 @@ def load_review_file(path: str | Path, measure: str | None = None) -> tuple[Revi
     if suffix == ".txt" and info.st_size > MAX_TEXT_BYTES:
         raise InputError(f"{p.name}: the file is larger than pasted text can be (more than 50 MB).")
     if suffix in (SUFFIX, ".json"):
-        review, settings = load(p)
+        review, settings = load(p, accept_changed=accept_changed)
         if measure:
             review = review.with_details(measure=measure)
         return review, settings
