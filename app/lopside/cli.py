@@ -50,6 +50,11 @@ def add_analysis_arguments(p: argparse.ArgumentParser) -> None:
         help="trim and fill: side of the missing studies",
     )
     p.add_argument(
+        "--accept-changed",
+        action="store_true",
+        help="read a project file even though it was changed outside Lopside",
+    )
+    p.add_argument(
         "--fill-estimator",
         choices=("L0", "R0"),
         default=None,
@@ -82,7 +87,9 @@ def _fail(message: str) -> int:
 def _load(args):
     from .cli_common import load_review_file
 
-    review, saved = load_review_file(args.file, args.measure)
+    review, saved = load_review_file(
+        args.file, args.measure, accept_changed=getattr(args, "accept_changed", False)
+    )
     settings = settings_from_args(args, AnalysisSettings.from_dict(saved))
     return review, settings
 
@@ -115,9 +122,32 @@ def cmd_check(args) -> int:
     return 0
 
 
+def check_output_arg(args, kind: str):
+    """The checked ``-o`` path of ``args`` (see :func:`lopside.fileio.check_output`).
+
+    Raises OutputRefused with a one-line message; nothing is written.
+    """
+    from pathlib import Path
+
+    from .fileio import OutputRefused, check_output
+
+    out = check_output(args.output, kind, (args.file,), force=getattr(args, "force", False))
+    folder = out.parent
+    if str(folder) and not folder.is_dir():
+        raise OutputRefused(
+            f"-o {out}: the folder {folder} does not exist; create it or pick another."
+        )
+    return Path(out)
+
+
 def cmd_sheet(args) -> int:
     from .cli_common import INPUT_ERRORS
+    from .fileio import OutputLocked, OutputRefused
 
+    try:
+        out = check_output_arg(args, "pdf")
+    except OutputRefused as exc:
+        return _fail(str(exc))
     try:
         review, settings = _load(args)
     except INPUT_ERRORS as exc:
@@ -129,10 +159,12 @@ def cmd_sheet(args) -> int:
 
     result = analyse(review, settings, with_power=args.power)
     try:
-        write_sheet(result, args.output, include_forest=args.include_forest)
+        write_sheet(result, out, include_forest=args.include_forest)
+    except OutputLocked as exc:
+        return _fail(f"-o {out}: {exc}")
     except OSError as exc:
-        return _fail(f"{args.output}: cannot write the sheet ({exc.strerror or exc}).")
-    print(f"wrote {args.output}")
+        return _fail(f"{out}: cannot write the sheet ({exc.strerror or exc}).")
+    print(f"wrote {out}")
     return 0
 
 
@@ -158,6 +190,11 @@ def build_parser() -> argparse.ArgumentParser:
     s.add_argument("--include-forest", action="store_true", help="add the forest plot")
     s.add_argument("--appraiser", default="", metavar="NAME")
     s.add_argument("--power", action="store_true", help="include the power simulation")
+    s.add_argument(
+        "--force",
+        action="store_true",
+        help="replace an existing file at OUT even if it is not a PDF (never the input)",
+    )
     s.set_defaults(func=cmd_sheet)
     p = sub.add_parser("plot", help="draw one figure to PNG, SVG or PDF")
     from .figures.cli_plot import add_plot_arguments, run_plot

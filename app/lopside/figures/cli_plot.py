@@ -44,6 +44,17 @@ def add_plot_arguments(parser: argparse.ArgumentParser) -> None:
         "--kind", choices=KINDS, default="funnel", help="which figure (default funnel)"
     )
     parser.add_argument(
+        "--force",
+        action="store_true",
+        help="replace an existing file at OUT of another kind (never the input)",
+    )
+    parser.add_argument(
+        "--accept-changed",
+        dest="accept_changed",
+        action="store_true",
+        help="read a project file even though it was changed outside Lopside",
+    )
+    parser.add_argument(
         "-o", "--output", required=True, metavar="OUT", help="output file: .png, .svg or .pdf"
     )
     parser.add_argument(
@@ -112,6 +123,7 @@ def run_plot(args: argparse.Namespace) -> int:
     from dataclasses import replace
 
     from ..cli_common import load_review_file
+    from ..fileio import OutputLocked, OutputRefused
     from ..settings import AnalysisSettings
     from .common import FigureInputError
     from .export import format_for
@@ -121,16 +133,21 @@ def run_plot(args: argparse.Namespace) -> int:
         fmt = format_for(out)
     except ValueError as exc:
         return _fail(f"-o {out}: {exc}.")
-    if out.parent and not out.parent.exists():
-        return _fail(
-            f"-o {out}: the folder {out.parent} does not exist; create it or pick another."
-        )
+    from ..cli import check_output_arg, settings_from_args
 
-    from ..cli import settings_from_args
+    try:
+        out = check_output_arg(args, fmt)
+    except OutputRefused as exc:
+        return _fail(str(exc))
+
     from ..cli_common import INPUT_ERRORS
 
     try:
-        review, saved = load_review_file(args.file, getattr(args, "measure", None))
+        review, saved = load_review_file(
+            args.file,
+            getattr(args, "measure", None),
+            accept_changed=getattr(args, "accept_changed", False),
+        )
     except INPUT_ERRORS as exc:
         return _fail(str(exc))
     # the same analysis options as check and sheet, plus the funnel's centre line
@@ -150,10 +167,13 @@ def run_plot(args: argparse.Namespace) -> int:
         fig = build_figure(result, args)
     except FigureInputError as exc:
         return _fail(f"{args.file}: {exc}")
-    from .export import save_figure
+    from ..fileio import write_atomic
+    from .export import figure_bytes
 
-    try:
-        save_figure(fig, out, fmt)
+    try:  # rendered first, then replaced atomically: never a half-written figure
+        write_atomic(out, figure_bytes(fig, fmt))
+    except OutputLocked as exc:
+        return _fail(f"-o {out}: {exc}")
     except OSError as exc:
         return _fail(f"-o {out}: cannot write the figure ({exc.strerror or exc}).")
     print(f"wrote {out}")
