@@ -39,7 +39,6 @@ from lopside import edits as ed  # noqa: E402
 from lopside.model import project_file  # noqa: E402
 from lopside.model.review import Review  # noqa: E402
 from lopside.window import autosave as AS  # noqa: E402
-from lopside.window import guards  # noqa: E402
 from lopside.window import messages as M  # noqa: E402
 from test_window import ci_review, invented_review  # noqa: E402
 
@@ -49,6 +48,8 @@ APP = Path(__file__).resolve().parents[1] / "app"
 @pytest.fixture
 def reports(monkeypatch):
     """The error-report dialog replaced by a list (summary, report, log path)."""
+    from lopside.window import guards
+
     shown: list[tuple[str, str, str]] = []
     monkeypatch.setattr(guards, "show_report", lambda s, r, log: shown.append((s, r, log)))
     return shown
@@ -351,6 +352,8 @@ def test_the_wheel_changes_nothing_without_focus_anywhere_in_the_window(make_win
     """Every combo box, spin box and slider in the window, found by walking the widget
     tree on every tab: a wheel turn over it without focus changes neither it nor the review.
     """
+    from lopside.window import guards
+
     w = make_window(invented_review())
     w.update_views()
     guarded: dict[int, QWidget] = {}
@@ -481,6 +484,8 @@ def test_a_failing_view_says_so_and_reports_it(make_window, reports, monkeypatch
 
 
 def test_an_exception_in_a_slot_becomes_a_report(make_window, reports, qtbot):
+    from lopside.window import guards
+
     make_window()
 
     def slot():
@@ -497,6 +502,8 @@ def test_an_exception_in_a_slot_becomes_a_report(make_window, reports, qtbot):
 
 
 def test_the_report_dialog_offers_the_report_to_copy(make_window, qtbot):
+    from lopside.window import guards
+
     make_window()
     dlg = guards.ReportDialog("RuntimeError: x", "Traceback ... x", "/tmp/lopside.log")
     qtbot.addWidget(dlg)

@@ -14,7 +14,7 @@ from pathlib import Path
 
 import pytest
 
-from lopside import cli, fileio
+from lopside import cli
 from lopside.model import project_file as pf
 
 SAMPLES = Path(__file__).resolve().parents[1] / "sample_reviews"
@@ -111,6 +111,8 @@ def test_plot_refuses_a_png_over_a_pdf_without_force(capsys, project, tmp_path):
 def test_a_locked_sheet_says_so_and_names_a_free_name(capsys, project, tmp_path, monkeypatch):
     # issue 22 item 6: on Windows a PDF viewer holds the old sheet open and the rename is
     # refused with "permission denied"; reproduced by refusing os.replace over it
+    from lopside import fileio
+
     out = tmp_path / "sheet.pdf"
     assert _run(capsys, "sheet", project, "-o", out)[0] == 0
     before = out.read_bytes()

@@ -23,7 +23,7 @@ import sys
 import traceback
 from pathlib import Path
 
-from PySide6.QtCore import QEvent, QObject, QStandardPaths, Qt
+from PySide6.QtCore import QEvent, QObject, Qt
 from PySide6.QtWidgets import (
     QAbstractScrollArea,
     QAbstractSlider,
@@ -106,12 +106,13 @@ def install_wheel_guard(app: QApplication | None = None) -> WheelGuard:
 
 
 def log_folder() -> Path:
+    """The per-user log folder: the same file the frozen build sends its messages to."""
     d = os.environ.get("LOPSIDE_LOG_DIR")
     if d:
-        p = Path(d)
-    else:
-        p = Path(QStandardPaths.writableLocation(QStandardPaths.AppDataLocation)) / "logs"
-    return p
+        return Path(d)
+    from ..frozen import user_cache_dir
+
+    return user_cache_dir() / "logs"
 
 
 def log_file() -> Path:
@@ -213,6 +214,8 @@ def install_exception_hook() -> None:
         if value is not None and value.__traceback__ is None:
             value = value.with_traceback(tb)
         report_exception(value, "unexpected error in the window")
+        if getattr(sys.stderr, "name", None) == str(log_file()):
+            return  # the windowed build's stderr is the log: written once already
         try:
             previous(etype, value, tb)  # stderr where there is one (and test harnesses)
         except Exception:  # noqa: BLE001 - no stderr in a windowed build
