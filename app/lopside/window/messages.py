@@ -67,8 +67,8 @@ ABOUT_TEXT = (
 
 ERROR_TITLE = "Something went wrong"
 ERROR_TEXT = (
-    "Lopside met an unexpected error: {summary}\n\nYour review is still open and is "
-    "autosaved. The report below was also written to {log}. Copy it and send it with a "
+    "Lopside met an unexpected error: {summary}\n\nYour review is still open (unsaved "
+    "work is autosaved). The report below was also written to {log}. Copy it and send it with a "
     "few words on what you were doing."
 )
 ERROR_NO_LOG = "no log file (the log folder could not be written)"

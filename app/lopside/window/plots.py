@@ -119,7 +119,8 @@ class FigurePanel(QWidget):
             self._show_message(M.NOT_AVAILABLE.format(part=exc.name))
             return
         except ValueError as exc:  # FigureInputError: nothing to plot, with the reason
-            self._show_message(str(exc))
+            text = str(exc)
+            self._show_message(text[:1].upper() + text[1:])
             self._last_key = key
             return
         except Exception as exc:  # noqa: BLE001 - say so in place of stale content
