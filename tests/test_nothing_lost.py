@@ -9,7 +9,6 @@ from __future__ import annotations
 
 import os
 import signal
-import socket
 import subprocess
 import sys
 import textwrap
@@ -21,7 +20,7 @@ import pytest
 pytest.importorskip("PySide6")
 pytest.importorskip("pytestqt")
 
-from PySide6.QtCore import QPoint, QPointF, Qt, QTimer  # noqa: E402
+from PySide6.QtCore import QPoint, QPointF, QSysInfo, Qt, QTimer  # noqa: E402
 from PySide6.QtGui import QWheelEvent  # noqa: E402
 from PySide6.QtWidgets import (  # noqa: E402
     QAbstractButton,
@@ -259,7 +258,7 @@ def test_pid_reuse_neither_hides_nor_deletes_another_runs_autosave(make_window, 
     _orphan(folder, old_style, ci_review())
     _foreign_lock(
         folder / f"{old_style}.lock",
-        host=socket.gethostname(),
+        host=QSysInfo.machineHostName(),  # the name QLockFile writes
         pid=pid,
         age_s=AS.STALE_AFTER_S + 60,
     )

@@ -27,12 +27,11 @@ from __future__ import annotations
 import json
 import os
 import secrets
-import socket
 import time
 from dataclasses import dataclass, field
 from pathlib import Path
 
-from PySide6.QtCore import QLockFile, QObject, QStandardPaths, QTimer, Signal
+from PySide6.QtCore import QLockFile, QObject, QStandardPaths, QSysInfo, QTimer, Signal
 
 from ..fileio import write_atomic
 from ..model import project_file
@@ -236,7 +235,7 @@ class Autosaver(QObject):
                 "title": s.review.details.title,
                 "studies": len(s.review.studies),
                 "saved_at": time.time(),
-                "host": socket.gethostname(),
+                "host": QSysInfo.machineHostName(),
                 "pid": os.getpid(),
             }
             write_atomic(self.meta, json.dumps(meta, ensure_ascii=False).encode("utf-8"))
