@@ -686,3 +686,18 @@ def test_recent_files_and_last_folder_keep_the_path_as_chosen(make_window, tmp_p
     assert w.open_path(mapped / "r.lopside")
     assert w.prefs.recent_files()[0] == str(mapped / "r.lopside")
     assert w.prefs.last_folder() == str(mapped)
+
+
+def test_save_as_never_writes_over_the_imported_table(make_window, tmp_path):
+    csv = tmp_path / "table.csv"
+    csv.write_text(
+        "study,estimate,lower,upper\nInvented A,0.8,0.6,1.1\nInvented B,0.7,0.5,0.98\n",
+        encoding="utf-8",
+    )
+    before = csv.read_bytes()
+    w = make_window(ask_measure=lambda name: "OR")
+    assert w.open_path(csv)
+    w.ask_save_path = lambda *a: str(csv)
+    assert not w.save()
+    assert csv.read_bytes() == before
+    assert "table.csv" in w.last_message and ".lopside" in w.last_message

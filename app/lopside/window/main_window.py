@@ -922,13 +922,23 @@ class MainWindow(QMainWindow):
             path = self.ask_save_path(suggested, "Save the review", f"Lopside project (*{SUFFIX})")
             if not path:
                 return False
-            if not _in_samples(os.path.dirname(os.path.abspath(path))):
+            if not Path(path).suffix:
+                path = str(Path(path).with_suffix(SUFFIX))
+            refused = ""
+            if _in_samples(os.path.dirname(os.path.abspath(path))):
+                refused = M.SAMPLE_FOLDER_REFUSED
+            else:
+                try:  # never over the CSV/XLSX/.txt it was imported from, never as a .csv
+                    check_output(path, "lopside", (self.session.imported_from,), force=True)
+                except OutputRefused as exc:
+                    refused = str(exc)
+            if not refused:
                 return self._save_to(Path(path))
-            self.say(M.SAMPLE_FOLDER_REFUSED, 15000)
-            self._warn(M.SAVE_FAILED_TITLE, M.SAMPLE_FOLDER_REFUSED)
+            self.say(refused, 15000)
+            self._warn(M.SAVE_FAILED_TITLE, refused)
             if _headless():
                 return False
-            suggested = str(Path(self._own_folder()) / Path(path).name)
+            suggested = str(Path(self._own_folder()) / (Path(path).stem + SUFFIX))
 
     def _own_folder(self) -> str:
         folder = self.prefs.last_folder()
