@@ -201,9 +201,22 @@ def test_only_discarded_autosaves_are_deleted(make_window, user_state, tmp_path)
 # ------------------------------------------------------------------ issue 22 item 3: locks
 
 
-def _foreign_lock(path: Path, *, host: str, pid: int, age_s: float) -> None:
-    """A QLockFile's file as another process wrote it (pid, app name, host name, ids)."""
-    path.write_text(f"{pid}\nLopside\n{host}\n0123456789abcdef\nfedcba9876543210\n")
+def _foreign_lock(
+    path: Path, *, host: str, pid: int, age_s: float, this_machine: bool = False
+) -> None:
+    """A QLockFile's file as another process wrote it (pid, app name, host name, ids).
+
+    ``this_machine`` writes this machine's and this boot's ids (Qt checks them to tell a
+    lock of this PC from one of another PC with the same name).
+    """
+    ids = "0123456789abcdef\nfedcba9876543210"
+    if this_machine:
+        ids = (
+            bytes(QSysInfo.machineUniqueId()).decode()
+            + "\n"
+            + bytes(QSysInfo.bootUniqueId()).decode()
+        )
+    path.write_text(f"{pid}\nLopside\n{host}\n{ids}\n")
     t = time.time() - age_s
     os.utime(path, (t, t))
 
@@ -701,3 +714,81 @@ def test_save_as_never_writes_over_the_imported_table(make_window, tmp_path):
     assert not w.save()
     assert csv.read_bytes() == before
     assert "table.csv" in w.last_message and ".lopside" in w.last_message
+
+
+def test_recovered_work_on_a_sample_stays_read_only(make_window, user_state, tmp_path):
+    from lopside.paths import sample_reviews
+
+    sample = next(p for p in sample_reviews() if p.suffix == ".lopside")
+    before = sample.read_bytes()
+    first = make_window()
+    assert first.open_sample(sample)
+    first.stack.push_edit(ed.SetCell(0, "study", "Edited sample"))
+    assert first.autosaver.save_now()
+    stem = first.autosaver.stem
+    # the window's lock goes as after a crash (the process is gone): its files stay
+    first.autosaver.lock.unlock()
+    _foreign_lock(  # a process of this PC that is gone: stale at once, whatever its age
+        first.autosaver.lock_file,
+        host=QSysInfo.machineHostName(),
+        pid=2**22 + 17,
+        age_s=5,
+        this_machine=True,
+    )
+    first.autosaver.close = lambda: None  # its clean exit must not remove them
+    offered = []
+    w = make_window(ask_recover=lambda items: offered.extend(items) or list(items))
+    assert [r.review_file.stem for r in offered] == [stem]
+    assert w.session.review.studies[0].study == "Edited sample"
+    assert "read-only" in w.windowTitle()
+    mine = tmp_path / "mine.lopside"
+    w.ask_save_path = lambda *a: str(mine)
+    assert w.save()
+    assert sample.read_bytes() == before and mine.exists()
+
+
+def test_the_recovery_dialog_restores_only_what_is_ticked(make_window, qtbot):
+    from lopside.window.recovery import RecoveryDialog, describe
+
+    make_window()
+    items = [
+        AS.Recoverable(
+            Path(f"/nowhere/{AS.PREFIX}{i}.lopside"),
+            f"/reviews/r{i}.lopside" if i else "",
+            f"r{i}",
+            f"Invented review {i}",
+            time.time(),
+            i + 3,
+            "WARD-PC-17",
+            AS.make_lock(Path(f"/nowhere/{i}.lock")),
+        )
+        for i in range(3)
+    ]
+    assert describe(items[0])[1] == "(never saved)" and describe(items[2])[3] == "5"
+    dlg = RecoveryDialog(items)
+    qtbot.addWidget(dlg)
+    assert dlg.tree.topLevelItemCount() == 3
+    dlg.tree.topLevelItem(1).setCheckState(0, Qt.Unchecked)
+    dlg.restore_button.click()
+    assert dlg.choice.restore == [items[0], items[2]] and dlg.choice.discard == []
+    later = RecoveryDialog(items)
+    qtbot.addWidget(later)
+    later.later_button.click()
+    assert later.choice.restore == [] and later.choice.discard == []
+
+
+def test_the_wheel_over_an_unfocused_box_scrolls_the_page_instead(make_window):
+    w = make_window(invented_review())
+    w.update_views()
+    w.views.setCurrentWidget(w.causes)
+    w.refresh_all_views()
+    QApplication.processEvents()
+    bar = w.causes.verticalScrollBar()
+    if bar.maximum() == 0:
+        pytest.skip("the causes page fits without scrolling at this size")
+    bar.setValue(0)
+    box = w.causes.judgement["chance"]
+    box.clearFocus()
+    before = box.currentIndex()
+    _wheel(box, -120)
+    assert box.currentIndex() == before and bar.value() > 0

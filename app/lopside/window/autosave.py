@@ -77,6 +77,7 @@ class Recoverable:
     studies: int | None
     host: str
     lock: QLockFile = field(repr=False)
+    read_only: str = ""  # why the original file must not be saved over (a sample ...)
 
     @property
     def meta_file(self) -> Path:
@@ -157,6 +158,7 @@ def find_recoverable(folder: Path | None = None, skip: tuple[str, ...] = ()) -> 
                 studies=studies if isinstance(studies, int) else None,
                 host=str(meta.get("host", "")),
                 lock=lock,
+                read_only=str(meta.get("read_only", "")),
             )
         )
     # clean up: locks (and sidecars) of windows that are gone and left no autosave
@@ -237,6 +239,7 @@ class Autosaver(QObject):
                 "saved_at": time.time(),
                 "host": QSysInfo.machineHostName(),
                 "pid": os.getpid(),
+                "read_only": s.read_only,
             }
             write_atomic(self.meta, json.dumps(meta, ensure_ascii=False).encode("utf-8"))
         except (OSError, ValueError) as exc:

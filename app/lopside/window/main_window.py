@@ -567,7 +567,10 @@ class MainWindow(QMainWindow):
             self.say(msg, 0)
             self._warn(M.RECOVER_TITLE, msg)
             return False
-        self.session.reset(review, settings, item.original or None, dirty=True)
+        read_only = item.read_only
+        if item.original and _in_samples(os.path.dirname(item.original)):
+            read_only = read_only or M.READ_ONLY_SAMPLE
+        self.session.reset(review, settings, item.original or None, dirty=True, read_only=read_only)
         self.stack.reset()
         self.studies.suggest_mode()
         self.say(M.RECOVERED.format(name=item.name))
