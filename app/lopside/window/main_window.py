@@ -25,7 +25,7 @@ import os
 from collections.abc import Callable
 from pathlib import Path
 
-from PySide6.QtCore import QByteArray, Qt, QTimer, QUrl, Signal
+from PySide6.QtCore import QByteArray, QPoint, Qt, QTimer, QUrl, Signal
 from PySide6.QtGui import QAction, QDesktopServices, QGuiApplication, QImage, QKeySequence
 from PySide6.QtWidgets import (
     QApplication,
@@ -551,6 +551,7 @@ class MainWindow(QMainWindow):
         """A new window with the same questions (for a second restored review)."""
         w = MainWindow(**self._window_kwargs)
         w.resize(self.size())
+        w.move(self.pos() + QPoint(40 * (len(self.spawned) + 1), 40 * (len(self.spawned) + 1)))
         w.show()
         self.spawned.append(w)
         return w

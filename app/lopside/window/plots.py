@@ -158,7 +158,11 @@ class FigurePanel(QWidget):
         self._show_message(text)
 
     def reset(self) -> None:
-        """The review changed completely: forget the figure and everything drawn on it."""
+        """The review changed completely: forget the figure and everything drawn on it.
+
+        The figure is cleared, so a panel that keeps artists between draws must build
+        them again on its next draw (``_last_key`` is None after this).
+        """
         self.result = None
         self._last_key = None
         self._pending = False
