@@ -792,3 +792,20 @@ def test_the_wheel_over_an_unfocused_box_scrolls_the_page_instead(make_window):
     before = box.currentIndex()
     _wheel(box, -120)
     assert box.currentIndex() == before and bar.value() > 0
+
+
+def test_a_failing_text_view_says_so_and_the_status_bar_still_updates(make_window, reports):
+    w = make_window(invented_review())
+    w.update_views()
+    w.views.setCurrentWidget(w.tests)
+
+    def broken(result):
+        raise KeyError("egger")
+
+    w.tests._build = broken
+    w.stack.push_edit(ed.SetCell(0, "study", "Renamed"))  # a new result: views redraw
+    w.wait_for_analysis()
+    w.update_views()
+    assert "could not be shown" in w.tests.plain_text() and "KeyError" in w.tests.plain_text()
+    assert w.status_label.text().startswith(f"k = {len(invented_review().studies)}")
+    assert reports and "KeyError" in reports[0][0]
