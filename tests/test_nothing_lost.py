@@ -809,3 +809,19 @@ def test_a_failing_text_view_says_so_and_the_status_bar_still_updates(make_windo
     assert "could not be shown" in w.tests.plain_text() and "KeyError" in w.tests.plain_text()
     assert w.status_label.text().startswith(f"k = {len(invented_review().studies)}")
     assert reports and "KeyError" in reports[0][0]
+
+
+def test_the_figure_export_never_writes_over_the_review(make_window, tmp_path):
+    path = tmp_path / "review.lopside"
+    project_file.save(invented_review(), path)
+    before = path.read_bytes()
+    w = make_window()
+    assert w.open_path(path)
+    w.update_views()
+    w.ask_save_path = lambda *a: str(path)
+    assert not w.export_figure()
+    assert path.read_bytes() == before
+    png = tmp_path / "funnel.png"
+    w.ask_save_path = lambda *a: str(png)
+    assert w.export_figure()
+    assert png.read_bytes().startswith(b"\x89PNG")

@@ -1045,7 +1045,7 @@ class MainWindow(QMainWindow):
                 path = str(Path(path).with_suffix("." + kind))
             k = Path(path).suffix.lower().lstrip(".") if kind == "figure" else kind
             if k not in ("png", "svg", "pdf"):
-                k = "pdf"
+                return path  # the export itself says which suffixes it can write
             if not self._refuse_export(path, k):
                 return path
             if _headless():
