@@ -825,3 +825,15 @@ def test_the_figure_export_never_writes_over_the_review(make_window, tmp_path):
     w.ask_save_path = lambda *a: str(png)
     assert w.export_figure()
     assert png.read_bytes().startswith(b"\x89PNG")
+
+
+def test_a_changed_autosave_is_restored_and_said_so(make_window, user_state):
+    folder = user_state["autosave"]
+    folder.mkdir(parents=True, exist_ok=True)
+    stem = AS.new_stem()
+    _orphan(folder, stem, ci_review())
+    f = folder / f"{stem}.lopside"
+    f.write_text(f.read_text(encoding="utf-8").replace("Study 2", "Study two"), "utf-8")
+    w = make_window(ask_recover=lambda items: list(items))
+    assert w.session.review.studies[1].study == "Study two"
+    assert M.RECOVERED_CHANGED in w.last_message

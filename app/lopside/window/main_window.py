@@ -560,8 +560,14 @@ class MainWindow(QMainWindow):
         from ..model import project_file
         from ..settings import AnalysisSettings
 
+        changed = ""
         try:
-            review, saved = project_file.load(item.review_file, accept_changed=True)
+            try:
+                review, saved = project_file.load(item.review_file)
+            except project_file.ChangedOutside as exc:
+                # never silent: restored (it is all there is of that work), and said so
+                review, saved = exc.review, exc.settings
+                changed = " " + M.RECOVERED_CHANGED
             settings = AnalysisSettings.from_dict(saved)
         except (OSError, ValueError) as exc:
             msg = M.RECOVER_FAILED.format(name=item.name, error=exc, path=item.review_file)
@@ -574,7 +580,7 @@ class MainWindow(QMainWindow):
         self.session.reset(review, settings, item.original or None, dirty=True, read_only=read_only)
         self.stack.reset()
         self.studies.suggest_mode()
-        self.say(M.RECOVERED.format(name=item.name))
+        self.say(M.RECOVERED.format(name=item.name) + changed, 0 if changed else 6000)
         if self.autosaver is not None and not self.autosaver.save_now():
             # keep the old autosave: our own could not take the work over
             msg = M.RECOVER_FAILED.format(

@@ -25,6 +25,10 @@ UNSAVED_TITLE = "Unsaved changes"
 UNSAVED_TEXT = "“{name}” has changes that are not saved. Save them before closing?"
 RECOVER_TITLE = "Recover unsaved work"
 RECOVERED = "Recovered the autosaved work on “{name}”. Save it to keep it."
+RECOVERED_CHANGED = (
+    "Its autosave had been changed outside Lopside since it was written: check it before "
+    "relying on it."
+)
 OPEN_FAILED = "Could not open {name}: {error}"
 SAVE_FAILED = "Could not save {name}: {error}"
 SAVED = "Saved {name}."
