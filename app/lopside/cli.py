@@ -8,6 +8,8 @@
     lopside plot FILE --kind funnel|forest|cumulative|radial -o OUT.png|.svg|.pdf
 
 Exit status 0 on success, 2 on bad input (message on stderr naming the problem).
+An output never replaces the input, must have its format's suffix, and replaces an
+existing file of another kind only with ``--force`` (:func:`lopside.fileio.check_output`).
 """
 
 from __future__ import annotations
