@@ -171,8 +171,8 @@ _open_dialogs: list[ReportDialog] = []
 
 
 def _show_report_dialog(summary: str, report: str, log: str) -> None:
-    if QApplication.instance() is None:
-        return
+    if QApplication.instance() is None or QApplication.platformName() in ("offscreen", "minimal"):
+        return  # nobody could see it (self-test, test runs): the log has the report
     for d in list(_open_dialogs):
         try:
             if d.isVisible():  # one dialog: later reports are appended to it
