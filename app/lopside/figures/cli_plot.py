@@ -122,9 +122,7 @@ def run_plot(args: argparse.Namespace) -> int:
     """
     from dataclasses import replace
 
-    from ..cli_common import load_review_file
     from ..fileio import OutputLocked, OutputRefused
-    from ..settings import AnalysisSettings
     from .common import FigureInputError
     from .export import format_for
 
@@ -133,25 +131,21 @@ def run_plot(args: argparse.Namespace) -> int:
         fmt = format_for(out)
     except ValueError as exc:
         return _fail(f"-o {out}: {exc}.")
-    from ..cli import check_output_arg, settings_from_args
+    from ..cli import check_output_arg
 
     try:
         out = check_output_arg(args, fmt)
     except OutputRefused as exc:
         return _fail(str(exc))
 
+    from ..cli import _load
     from ..cli_common import INPUT_ERRORS
 
     try:
-        review, saved = load_review_file(
-            args.file,
-            getattr(args, "measure", None),
-            accept_changed=getattr(args, "accept_changed", False),
-        )
+        # the same loading and analysis options as check and sheet (PDF pages included)
+        review, settings = _load(args)
     except INPUT_ERRORS as exc:
         return _fail(str(exc))
-    # the same analysis options as check and sheet, plus the funnel's centre line
-    settings = settings_from_args(args, AnalysisSettings.from_dict(saved))
     if getattr(args, "model", None):
         settings = replace(settings, funnel_model=args.model)
 
