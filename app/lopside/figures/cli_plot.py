@@ -31,6 +31,7 @@ def add_plot_arguments(parser: argparse.ArgumentParser) -> None:
     Arguments (attribute names on the parsed namespace in brackets):
 
     * ``--kind`` [kind] — funnel (default), forest, cumulative or radial.
+    * ``--force`` [force] — replace an existing file at OUT that is not of its format.
     * ``-o/--output OUT`` [output] — required; the suffix .png, .svg or .pdf sets the format.
     * ``--size`` [size] — column (85 mm, default), page (180 mm) or slide (16:9).
     * ``--axis`` [axis] — funnel's vertical axis: se (default), precision, variance, size.
@@ -48,12 +49,6 @@ def add_plot_arguments(parser: argparse.ArgumentParser) -> None:
         "--force",
         action="store_true",
         help="replace an existing file at OUT of another kind (never the input)",
-    )
-    parser.add_argument(
-        "--accept-changed",
-        dest="accept_changed",
-        action="store_true",
-        help="read a project file even though it was changed outside Lopside",
     )
     parser.add_argument(
         "-o", "--output", required=True, metavar="OUT", help="output file: .png, .svg or .pdf"
