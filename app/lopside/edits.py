@@ -386,6 +386,9 @@ def apply(edit: Edit, review: Review) -> tuple[Review, Edit]:
         elif edit.field in _DETAIL_FIELDS:
             old_value = getattr(d, edit.field)
             new_details = replace(d, **{edit.field: _detail_value(edit.field, edit.value)})
+            if edit.field == "favours" and new_details.favours != d.favours:
+                # the account says where the direction came from (issue 12)
+                new_details = replace(new_details, favours_source="window")
         else:
             raise EditError(f"'{edit.field}' is not a review detail.")
         return replace(review, details=new_details), SetDetail(edit.field, old_value)

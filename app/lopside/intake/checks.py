@@ -295,8 +295,21 @@ def check_row(
                 total=fmt(f"{prefix}_total"),
             )
 
+    for prefix in ("int", "ctl"):
+        arm_n = getattr(row, f"{prefix}_n")
+        if arm_n is not None and 0 <= arm_n < 2:
+            add(f"{prefix}_n", ERROR, "arm_too_small", arm=_arm(prefix), value=fmt(f"{prefix}_n"))
+        tot = getattr(row, f"{prefix}_total")
+        if tot is not None and tot == 0:
+            add(f"{prefix}_total", ERROR, "total_zero", arm=_arm(prefix))
+
     # -- the estimate and its interval
     est, lo, hi = row.estimate, row.lower, row.upper
+    if measure == "RD":
+        for fld in ("estimate", "lower", "upper"):
+            v = getattr(row, fld)
+            if v is not None and abs(v) > 1.0:
+                add(fld, ERROR, "rd_over_one", value=fmt(fld))
     if ratio:
         for fld, what in (
             ("estimate", "estimate"),

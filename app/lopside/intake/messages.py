@@ -140,6 +140,17 @@ CHECKS: dict[str, str] = {
         "this row repeats row {other} exactly. Is the study entered twice? If so, delete one."
     ),
     "no_label": "the study has no label. Give it one (for example 'Smith 2004').",
+    "rd_over_one": (
+        "a risk difference of {value} is beyond -1 to 1: risk differences are proportions "
+        "(5 % is 0.05). If the paper printed percentages, enter them divided by 100."
+    ),
+    "arm_too_small": (
+        "the {arm} arm has {value} participant(s); a mean and SD need at least 2. Check the "
+        "number in the paper."
+    ),
+    "total_zero": (
+        "the {arm} total is 0, so the arm has no participants. Check the number in the paper."
+    ),
 }
 
 # -- pasted text (paste.py) -----------------------------------------------------------

@@ -189,6 +189,8 @@ class ReviewDetails:
     appraiser: str = ""
     #: free text shown on screen and on the sheet; invented demo reviews say so here
     source_note: str = ""
+    #: where ``favours`` came from (one of FAVOURS_SOURCES; "" = not recorded, older files)
+    favours_source: str = ""
 
 
 #: The alternative explanations of funnel asymmetry, in the order we present them.
@@ -237,11 +239,81 @@ class AppraisalNotes:
         return replace(self, causes=tuple((c, d.get(c, CauseNote())) for c in CAUSES))
 
 
+#: Where the direction of benefit came from, and how the account says it.
+FAVOURS_SOURCES: dict[str, str] = {
+    "": "as saved in the review",
+    "assumed": "not given: assumed lower",
+    "option": "set on the command line (--favours)",
+    "table": "given in the study table",
+    "window": "set in the review details",
+}
+
+
+@dataclass(frozen=True, slots=True)
+class NotRead:
+    """One piece of the user's input that did not reach the review, and why.
+
+    ``kind`` is ``"line"`` (a pasted line that looks like a study), ``"cells"`` (cells of a
+    table row), ``"column"`` (a column of a table) or ``"row"`` (a table row);
+    ``where`` names the place as the user sees it ("line 4", "row 7", "column 'or'").
+    """
+
+    kind: str
+    where: str
+    text: str
+    reason: str
+
+
+#: How a decimal-mark decision was reached.
+DECIMAL_HOW: tuple[str, ...] = ("", "evidence", "option", "asked", "none needed")
+
+
+@dataclass(frozen=True, slots=True)
+class IntakeAccount:
+    """What happened on the way in: what was not read, and what was decided.
+
+    Saved with the project, shown in the window's problems list, printed under the
+    entered data (text, JSON, sheet). An empty account means the review was typed in or
+    came from a file without one.
+    """
+
+    #: the file (or "pasted text") the rows came from; "" when typed in
+    source: str = ""
+    not_read: tuple[NotRead, ...] = ()
+    #: "point", "comma" or "" (no decimal number needed deciding)
+    decimal_mark: str = ""
+    #: how the mark was decided: one of DECIMAL_HOW
+    decimal_how: str = ""
+    #: a number that settled it ("0,82"), for the account
+    decimal_evidence: str = ""
+    #: how the measure was chosen ("named in the header", "--measure", ...)
+    measure_how: str = ""
+
+    def is_empty(self) -> bool:
+        return self == IntakeAccount()
+
+    def decimal_text(self) -> str:
+        """The decimal decision in words, or "" when none was needed."""
+        if not self.decimal_mark:
+            return ""
+        name = "decimal comma" if self.decimal_mark == "comma" else "decimal point"
+        how = {
+            "evidence": f"from the numbers ('{self.decimal_evidence}')"
+            if self.decimal_evidence
+            else "from the numbers",
+            "option": "as the command line asked",
+            "asked": "as chosen by the user when asked",
+        }.get(self.decimal_how, "")
+        return f"{name}, {how}" if how else name
+
+
 @dataclass(frozen=True, slots=True)
 class Review:
     details: ReviewDetails = field(default_factory=ReviewDetails)
     studies: tuple[StudyRow, ...] = ()
     notes: AppraisalNotes = field(default_factory=AppraisalNotes)
+    #: what happened on the way in (unread lines, decimal decision); see IntakeAccount
+    intake: IntakeAccount = field(default_factory=IntakeAccount)
 
     @property
     def measure(self) -> str:
