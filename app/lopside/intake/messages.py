@@ -174,6 +174,11 @@ NOT_UNDERSTOOD: dict[str, tuple[str, str]] = {
         "study row is much shorter",
         "Check that the line breaks were kept when copying, or paste fewer rows at a time.",
     ),
+    "percent_values": (
+        "the estimate and its limits are printed as percentages ({numbers})",
+        "For a risk difference choose that measure (RD): 5% is then read as 0.05. For any "
+        "other measure, type the numbers without the % sign as the paper means them.",
+    ),
     "no_numbers": (
         "there are no numbers on this line",
         "If this is a study, add its numbers (for example 'Smith 2004 0.82 (0.61 to 1.10)'); "
@@ -240,6 +245,11 @@ NOT_UNDERSTOOD: dict[str, tuple[str, str]] = {
 
 #: Notes in the account of a study line (joined with "; ").
 PASTE_NOTES: dict[str, str] = {
+    "percent_converted": "percentages read as proportions for the risk difference ({text})",
+    "summary_word_study": (
+        "read as a study although the label starts with '{word}': a summary line has that "
+        "word alone or followed by '(95% CI)'; check that this is a trial"
+    ),
     "weight": "weight {weight}% ignored",
     "weight_no_percent": "{value} read as a weight without a % sign (ignored)",
     "event_percent": "percentage {value}% in brackets ignored",
@@ -362,6 +372,31 @@ TABLE: dict[str, str] = {
     "note_cell": "row {row}, {field}: {note}",
     "note_quote_removed": "row {row}, {field}: the leading quote (added to stop formulas) removed",
     "note_year_suffix": "row {row}, year: '{text}' read as {year}",
+}
+
+
+#: Why the paste preview assumes a measure (a suggestion the user confirms).
+MEASURE_WHY: dict[str, str] = {
+    "header": "the header line names it ({name})",
+    "counts": (
+        "every row gives events and totals per arm: the odds ratio is assumed; the risk "
+        "ratio or risk difference are as possible"
+    ),
+    "means": "every row gives means, SDs and numbers per arm: looks like a mean difference",
+    "none": "the rows give no interval to judge the measure by",
+    "negative": (
+        "no header; values at or below 0, which a ratio can never be: looks like a mean "
+        "difference (or a standardised one)"
+    ),
+    "linear": (
+        "no header; {n} of {k} intervals are symmetric on the plain scale, not the log scale: "
+        "looks like a mean difference"
+    ),
+    "log": (
+        "no header; {n} of {k} intervals are symmetric on the log scale: looks like a ratio "
+        "(odds ratio assumed; risk or hazard ratio as possible)"
+    ),
+    "positive": "no header; all values above 0: a ratio is assumed (odds ratio)",
 }
 
 
