@@ -7,7 +7,12 @@
     lopside sheet FILE -o OUT.pdf [--measure M] [--include-forest] [--appraiser NAME]
     lopside plot FILE --kind funnel|forest|cumulative|radial -o OUT.png|.svg|.pdf
 
-Exit status 0 on success, 2 on bad input (message on stderr naming the problem).
+Options shared by check, sheet and plot for the input: --favours lower|higher,
+--decimal-comma / --decimal-point, --allow-unread.
+
+Exit status (see EXIT_* below and the README): 0 success; 2 bad input (message on
+stderr naming the problem); 3 internal error; 4 some of the input was not read (lines,
+cells or columns listed on stderr; nothing written) unless --allow-unread; 130 stopped.
 """
 
 from __future__ import annotations
@@ -23,6 +28,72 @@ from .model.review import MEASURES
 from .settings import AnalysisSettings
 
 SUBCOMMANDS = ("check", "sheet", "plot")
+
+#: Exit statuses of the headless commands (documented in the README).
+EXIT_OK = 0
+EXIT_BAD_INPUT = 2
+EXIT_INTERNAL = 3
+#: lines, cells or columns of a study table or pasted text were not read
+EXIT_UNREAD = 4
+
+
+def add_intake_arguments(p: argparse.ArgumentParser) -> None:
+    """How the input is read: direction of benefit, decimal mark, unread lines (issue 12)."""
+    p.add_argument(
+        "--favours",
+        choices=("lower", "higher"),
+        default=None,
+        help="which values favour the intervention (default: the file's, else lower)",
+    )
+    mark = p.add_mutually_exclusive_group()
+    mark.add_argument(
+        "--decimal-comma",
+        dest="decimal",
+        action="store_const",
+        const="comma",
+        help="numbers the file does not settle (1,105) use a decimal comma",
+    )
+    mark.add_argument(
+        "--decimal-point",
+        dest="decimal",
+        action="store_const",
+        const="point",
+        help="numbers the file does not settle (1,105) use a decimal point",
+    )
+    p.add_argument(
+        "--allow-unread",
+        action="store_true",
+        help=f"go on when lines, cells or columns were not read (else exit {EXIT_UNREAD})",
+    )
+
+
+class UnreadInput(Exception):
+    """Some of the input was not read and --allow-unread was not given."""
+
+
+def load_input(args):
+    """The review and settings for a headless command, with its input options applied.
+
+    Raises the input errors (exit 2) or :class:`UnreadInput` (exit 4) with a message.
+    """
+    from .cli_common import is_project, load_review_file, unread_report
+
+    review, saved = load_review_file(
+        args.file,
+        getattr(args, "measure", None),
+        decimal=getattr(args, "decimal", None),
+        favours=getattr(args, "favours", None),
+    )
+    account = review.intake
+    if account.not_read and not is_project(args.file) and not getattr(args, "allow_unread", False):
+        n = len(account.not_read)
+        raise UnreadInput(
+            f"{account.source or args.file}: {n} part(s) of the input not read:\n"
+            f"{unread_report(account)}\n"
+            "Nothing was written. Fix them in the file, or add --allow-unread to go on "
+            "without them (they are then listed in the output)."
+        )
+    return review, settings_from_args(args, AnalysisSettings.from_dict(saved))
 
 
 def add_analysis_arguments(p: argparse.ArgumentParser) -> None:
@@ -55,6 +126,7 @@ def add_analysis_arguments(p: argparse.ArgumentParser) -> None:
         default=None,
         help="trim and fill: estimator of the number missing",
     )
+    add_intake_arguments(p)
 
 
 def settings_from_args(args, base: AnalysisSettings) -> AnalysisSettings:
@@ -79,12 +151,9 @@ def _fail(message: str) -> int:
     return 2
 
 
-def _load(args):
-    from .cli_common import load_review_file
-
-    review, saved = load_review_file(args.file, args.measure)
-    settings = settings_from_args(args, AnalysisSettings.from_dict(saved))
-    return review, settings
+def _unread(exc: UnreadInput) -> int:
+    print(f"lopside: {exc}", file=sys.stderr)
+    return EXIT_UNREAD
 
 
 def cmd_check(args) -> int:
@@ -92,9 +161,11 @@ def cmd_check(args) -> int:
     from .cli_common import INPUT_ERRORS
 
     try:
-        review, settings = _load(args)
+        review, settings = load_input(args)
     except INPUT_ERRORS as exc:
         return _fail(str(exc))
+    except UnreadInput as exc:
+        return _unread(exc)
     progress = None
     if args.power and not args.json and sys.stderr.isatty():
 
@@ -119,9 +190,11 @@ def cmd_sheet(args) -> int:
     from .cli_common import INPUT_ERRORS
 
     try:
-        review, settings = _load(args)
+        review, settings = load_input(args)
     except INPUT_ERRORS as exc:
         return _fail(str(exc))
+    except UnreadInput as exc:
+        return _unread(exc)
     if args.appraiser:
         review = review.with_details(appraiser=args.appraiser)
     from .analysis import analyse
@@ -217,7 +290,7 @@ def main(argv: list[str] | None = None) -> int:
                 "Please report it with the file that caused it.",
                 file=sys.stderr,
             )
-            return 3
+            return EXIT_INTERNAL
     return window_main(argv)
 
 

@@ -94,6 +94,9 @@ def add_plot_arguments(parser: argparse.ArgumentParser) -> None:
         help="tau² estimator",
     )
     parser.add_argument("--hksj", action="store_true", help="Hartung-Knapp interval (modified)")
+    from ..cli import add_intake_arguments
+
+    add_intake_arguments(parser)
 
 
 def _fail(message: str) -> int:
@@ -107,12 +110,11 @@ def run_plot(args: argparse.Namespace) -> int:
     Returns
     -------
     int
-        0 on success, 2 on bad input (message on stderr).
+        0 on success, 2 on bad input (message on stderr), 4 when some of the input was
+        not read (see ``lopside.cli.EXIT_UNREAD``).
     """
     from dataclasses import replace
 
-    from ..cli_common import load_review_file
-    from ..settings import AnalysisSettings
     from .common import FigureInputError
     from .export import format_for
 
@@ -126,15 +128,18 @@ def run_plot(args: argparse.Namespace) -> int:
             f"-o {out}: the folder {out.parent} does not exist; create it or pick another."
         )
 
-    from ..cli import settings_from_args
+    from ..cli import EXIT_UNREAD, UnreadInput, load_input
     from ..cli_common import INPUT_ERRORS
 
     try:
-        review, saved = load_review_file(args.file, getattr(args, "measure", None))
+        # the same input and analysis options as check and sheet
+        review, settings = load_input(args)
     except INPUT_ERRORS as exc:
         return _fail(str(exc))
-    # the same analysis options as check and sheet, plus the funnel's centre line
-    settings = settings_from_args(args, AnalysisSettings.from_dict(saved))
+    except UnreadInput as exc:
+        print(f"lopside: {exc}", file=sys.stderr)
+        return EXIT_UNREAD
+    # plus the funnel's centre line
     if getattr(args, "model", None):
         settings = replace(settings, funnel_model=args.model)
 

@@ -372,6 +372,25 @@ TABLE: dict[str, str] = {
     "note_cell": "row {row}, {field}: {note}",
     "note_quote_removed": "row {row}, {field}: the leading quote (added to stop formulas) removed",
     "note_year_suffix": "row {row}, year: '{text}' read as {year}",
+    "note_favours_line": "row {row}: the direction of benefit is given: {favours} values favour",
+    "note_comment": "row {row}: a comment line, not read as a study ('{text}')",
+    "note_decimal_option": "numbers no cell settles are read with a decimal {mark}, as asked",
+    "note_percent": "row {row}, {field}: '{text}' read as {value} (a risk difference)",
+    "percent_cell": (
+        "'{text}' is a percentage; the text is kept. For a risk difference choose the measure "
+        "RD (5% is then read as 0.05); otherwise type the number without the % sign."
+    ),
+    "favours_value": "expected 'lower' or 'higher'",
+    "favours_mixed": (
+        "the direction of benefit differs between rows ({rows}). Give one value, 'lower' or "
+        "'higher', for the whole table."
+    ),
+    "not_used": "not read as a number (the text is kept in its cell)",
+    "extra_reason": "{count} cell(s) beyond the last column name",
+    "unknown_column_reason": (
+        "not a column of the study table ({count} cell(s) with data). Rename the column "
+        "(see the list of columns in the README) if it should be read."
+    ),
 }
 
 

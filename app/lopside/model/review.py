@@ -243,7 +243,7 @@ class AppraisalNotes:
 FAVOURS_SOURCES: dict[str, str] = {
     "": "as saved in the review",
     "assumed": "not given: assumed lower",
-    "option": "set on the command line (--favours)",
+    "option": "set on the command line with --favours",
     "table": "given in the study table",
     "window": "set in the review details",
 }
