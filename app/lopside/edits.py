@@ -32,6 +32,7 @@ from .model.review import (
     RISK_OF_BIAS_LEVELS,
     TABLE_COLUMNS,
     CauseNote,
+    IntakeAccount,
     PublishedResult,
     Review,
     ReviewDetails,
@@ -146,6 +147,13 @@ class SetGeneralNotes:
     """The appraiser's general notes."""
 
     text: str
+
+
+@dataclass(frozen=True, slots=True)
+class SetIntake:
+    """Replace the account of what was read on the way in (a paste adds to it)."""
+
+    account: IntakeAccount
 
 
 @dataclass(frozen=True, slots=True)
@@ -392,6 +400,10 @@ def apply(edit: Edit, review: Review) -> tuple[Review, Edit]:
         else:
             raise EditError(f"'{edit.field}' is not a review detail.")
         return replace(review, details=new_details), SetDetail(edit.field, old_value)
+    if isinstance(edit, SetIntake):
+        if not isinstance(edit.account, IntakeAccount):
+            raise EditError("The intake account must be an IntakeAccount.")
+        return replace(review, intake=edit.account), SetIntake(review.intake)
     if isinstance(edit, SetCauseNote):
         if edit.key not in CAUSES:
             raise EditError(f"'{edit.key}' is not one of the explanations {', '.join(CAUSES)}.")
@@ -498,6 +510,8 @@ def change_of(edit: Edit) -> Change:
         return Change("move", (edit.src, edit.dst))
     if isinstance(edit, SetDetail):
         return Change("details", (), edit.field)
+    if isinstance(edit, SetIntake):
+        return Change("details", (), "intake")
     if isinstance(edit, ReplaceStudies):
         return Change("studies")
     return Change("notes")
@@ -524,6 +538,8 @@ def describe(edit: Edit) -> str:
         return f"move row {edit.src + 1}"
     if isinstance(edit, SetExclude):
         return f"{'exclude' if edit.exclude else 'include'} row {edit.row + 1}"
+    if isinstance(edit, SetIntake):
+        return "record what was read"
     if isinstance(edit, SetDetail):
         return f"change {edit.field.replace('published.', 'published ').replace('_', ' ')}"
     if isinstance(edit, SetCauseNote):

@@ -292,6 +292,29 @@ class IntakeAccount:
     def is_empty(self) -> bool:
         return self == IntakeAccount()
 
+    def plus(self, later: IntakeAccount) -> IntakeAccount:
+        """This account followed by a later import (a paste into the review)."""
+        if self.is_empty():
+            return later
+        if later.is_empty():
+            return self
+        tag = later.source or "later input"
+        added = tuple(replace(n, where=f"{tag}, {n.where}") for n in later.not_read)
+        sources = (
+            self.source
+            if later.source in self.source.split("; ")
+            else (f"{self.source}; {later.source}" if self.source else later.source)
+        )
+        decided = later if later.decimal_mark else self
+        return IntakeAccount(
+            source=sources,
+            not_read=self.not_read + added,
+            decimal_mark=decided.decimal_mark,
+            decimal_how=decided.decimal_how,
+            decimal_evidence=decided.decimal_evidence,
+            measure_how=later.measure_how or self.measure_how,
+        )
+
     def decimal_text(self) -> str:
         """The decimal decision in words, or "" when none was needed."""
         if not self.decimal_mark:
