@@ -554,3 +554,20 @@ def _write(tmp_path, name, text):
     p = tmp_path / name
     p.write_text(text, encoding="utf-8")
     return p
+
+
+def test_case5_row_messages_name_the_spreadsheet_row(tmp_path, capsys):
+    # a blank row and the header push study 1 down to spreadsheet row 3
+    p = _write(
+        tmp_path,
+        "rows.csv",
+        "study,estimate,lower,upper\n\nAske 2004,0.80,0.90,1.07\nBirn 2006,0.70,0.50,0.98\n",
+    )
+    code, out, _ = run(["check", str(p), "--measure", "OR", "--json"], capsys)
+    assert code == 0
+    messages = [pr["message"] for pr in json.loads(out)["problems"]]
+    assert any(m.startswith("Row 1 (Aske 2004; spreadsheet row 3), estimate:") for m in messages)
+    # the places follow the rows by label after an edit moves them
+    review, _ = load_review_file(p, "OR")
+    moved = review.with_studies(review.studies[::-1])
+    assert moved.intake.places(moved.studies) == ("spreadsheet row 4", "spreadsheet row 3")

@@ -424,15 +424,18 @@ def check_message(key: str, **fields: object) -> str:
     return CHECKS[key].format(**fields)
 
 
-def where(row_index: int, study: str, field: str) -> str:
+def where(row_index: int, study: str, field: str, place: str = "") -> str:
     """The prefix naming the place of a problem: ``"Row 3 (Smith 2004), lower: "``.
 
-    Rows are counted from 1 for the user (``row_index`` is 0-based). A negative index
-    means the review's own settings; an empty field names the row as a whole.
+    Rows are counted from 1 for the user (``row_index`` is 0-based), as the window's
+    table numbers them; ``place`` adds where the row is in the file it came from
+    (``"Row 3 (Smith 2004; spreadsheet row 5), lower: "``). A negative index means the
+    review's own settings; an empty field names the row as a whole.
     """
     if row_index < 0:
         return f"Review settings, {field}: " if field else "Review settings: "
-    label = f" ({study})" if study else ""
+    inner = "; ".join(x for x in (study, place) if x)
+    label = f" ({inner})" if inner else ""
     if not field:
         return f"Row {row_index + 1}{label}: "
     return f"Row {row_index + 1}{label}, {field}: "

@@ -304,6 +304,11 @@ class PasteResult:
             decimal_how=self.decimal_how,
             decimal_evidence=self.decimal_evidence,
             measure_how=measure_how,
+            rows_at=tuple(
+                (self.rows[r.row_index].study, f"{source} line {r.line_no}")
+                for r in self.studies
+                if r.row_index is not None
+            ),
         )
 
     def printed(self, row_index: int) -> dict[str, str]:

@@ -113,6 +113,9 @@ class TableResult:
             decimal_how=self.decimal_how if self.decimal_mark else "",
             decimal_evidence=self.decimal_evidence,
             measure_how=measure_how,
+            rows_at=tuple(
+                (r.study, f"spreadsheet row {n}") for r, n in zip(self.rows, self.row_numbers)
+            ),
         )
 
     def printed_dicts(self) -> list[dict[str, str]]:

@@ -34,6 +34,7 @@ def intake_to_dict(account: IntakeAccount) -> dict[str, Any] | None:
         "decimal_how": account.decimal_how,
         "decimal_evidence": account.decimal_evidence,
         "measure_how": account.measure_how,
+        "rows_at": [[label, place] for label, place in account.rows_at],
     }
 
 
@@ -77,7 +78,16 @@ def intake_from_dict(doc: object) -> IntakeAccount:
     how = _text(doc.get("decimal_how"), "decimal_how")
     if how not in DECIMAL_HOW:
         raise IntakeFileError(f"intake, decimal_how: '{how}' is not one of {DECIMAL_HOW}.")
+    at = doc.get("rows_at", []) or []
+    if not isinstance(at, list) or len(at) > MAX_NOT_READ:
+        raise IntakeFileError("intake, rows_at: expected a list of [label, place] pairs.")
+    rows_at = []
+    for i, pair in enumerate(at, start=1):
+        if not (isinstance(pair, list) and len(pair) == 2):
+            raise IntakeFileError(f"intake, rows_at entry {i}: expected [label, place].")
+        rows_at.append((_text(pair[0], f"rows_at {i}"), _text(pair[1], f"rows_at {i}")))
     return IntakeAccount(
+        rows_at=tuple(rows_at),
         source=_text(doc.get("source"), "source"),
         not_read=tuple(not_read),
         decimal_mark=mark,

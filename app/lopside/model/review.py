@@ -288,6 +288,24 @@ class IntakeAccount:
     decimal_evidence: str = ""
     #: how the measure was chosen ("named in the header", "--measure", ...)
     measure_how: str = ""
+    #: (study label, place in the file) per row read: "spreadsheet row 5", "pasted line 7"
+    rows_at: tuple[tuple[str, str], ...] = ()
+
+    def places(self, studies: tuple[StudyRow, ...]) -> tuple[str, ...] | None:
+        """Where each study came from in its file, matched by label ("" when unknown).
+
+        Matching by label (only labels read once) keeps the places right after rows are
+        added, moved or deleted; a renamed or typed-in study simply has none.
+        """
+        if not self.rows_at:
+            return None
+        seen: dict[str, str] = {}
+        twice: set[str] = set()
+        for label, place in self.rows_at:
+            if label in seen:
+                twice.add(label)
+            seen[label] = place
+        return tuple("" if s.study in twice else seen.get(s.study, "") for s in studies)
 
     def is_empty(self) -> bool:
         return self == IntakeAccount()
@@ -313,6 +331,7 @@ class IntakeAccount:
             decimal_how=decided.decimal_how,
             decimal_evidence=decided.decimal_evidence,
             measure_how=later.measure_how or self.measure_how,
+            rows_at=self.rows_at + later.rows_at,
         )
 
     def decimal_text(self) -> str:
