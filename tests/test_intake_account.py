@@ -571,3 +571,23 @@ def test_case5_row_messages_name_the_spreadsheet_row(tmp_path, capsys):
     review, _ = load_review_file(p, "OR")
     moved = review.with_studies(review.studies[::-1])
     assert moved.intake.places(moved.studies) == ("spreadsheet row 4", "spreadsheet row 3")
+
+
+def test_comment_rows_above_the_header_are_listed_not_dropped(tmp_path):
+    p = _write(tmp_path, "c.csv", "# invented data for a test\n" + SMOKING)
+    t = read_table(p)
+    assert [(n.kind, n.where) for n in t.not_read] == [("row", "row 1")]
+    assert len(t.rows) == 4
+
+
+def test_decimal_option_settles_a_file_with_both_marks(tmp_path):
+    p = _write(
+        tmp_path,
+        "mixed.csv",
+        'study,estimate,lower,upper\nA 2001,"0,80","0,60","1,07"\nB 2002,0.70,0.50,0.98\n'
+        'C 2003,"1,105","1,012","1,206"\n',
+    )
+    with pytest.raises(DecimalUndecided):
+        load_review_file(p, "RR")
+    review, _ = load_review_file(p, "RR", decimal="comma")
+    assert [r.estimate for r in review.studies] == [0.8, 0.7, 1.105]

@@ -373,7 +373,10 @@ TABLE: dict[str, str] = {
     "note_quote_removed": "row {row}, {field}: the leading quote (added to stop formulas) removed",
     "note_year_suffix": "row {row}, year: '{text}' read as {year}",
     "note_favours_line": "row {row}: the direction of benefit is given: {favours} values favour",
-    "note_comment": "row {row}: a comment line, not read as a study ('{text}')",
+    "comment_row": (
+        "a comment line above the column names; only '# favours: lower' or '# favours: "
+        "higher' is read there"
+    ),
     "note_decimal_option": "numbers no cell settles are read with a decimal {mark}, as asked",
     "note_percent": "row {row}, {field}: '{text}' read as {value} (a risk difference)",
     "percent_cell": (

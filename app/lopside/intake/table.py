@@ -548,7 +548,7 @@ def _rows_from_sheet(
             favours = m.group(1).casefold()
             notes.append(M.table_message("note_favours_line", row=number, favours=favours))
         else:
-            notes.append(M.table_message("note_comment", row=number, text=text[:80]))
+            not_read.append(NotRead("row", f"row {number}", text, M.table_message("comment_row")))
     if header_at is None:
         raise IntakeError(M.table_message("empty"), path=path)
     header_number, header = grid[header_at]
@@ -613,7 +613,7 @@ def _rows_from_sheet(
     decision = decide_decimal_mark(bodies)
     mark: str | None = decision.settled
     decimal_how = "evidence" if mark else ""
-    if mark is None and decimal in ("point", "comma") and decision.mark != "mixed":
+    if mark is None and decimal in ("point", "comma"):
         mark, decimal_how = decimal, "option"
         notes.append(M.table_message("note_decimal_option", mark=mark))
     if decision.mark == "mixed":
@@ -639,9 +639,6 @@ def _rows_from_sheet(
         unread: list[tuple[str, str]] = []
         printed: list[tuple[str, str]] = []
         row_problems: list[tuple[str, str, str]] = []  # (field, severity, message)
-        if _comment(cells) is not None:
-            notes.append(M.table_message("note_comment", row=number, text=_comment(cells)[:80]))
-            continue
         for col, name in columns.items():
             cell = cells[col - 1] if col - 1 < len(cells) else _Cell(None)
             _read_cell(
