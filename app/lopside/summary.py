@@ -333,7 +333,7 @@ def header_section(result, *, date: str = "") -> Section:
 
 
 def favours_text(details) -> str:
-    """ "higher values favour the intervention (set on the command line (--favours))"."""
+    """The direction of benefit and where it came from, in words (header of every output)."""
     from .model.review import FAVOURS_SOURCES
 
     text = f"{'higher' if details.favours == 'higher' else 'lower'} values favour the intervention"
@@ -346,7 +346,7 @@ NOT_READ_LIMIT = 20
 
 
 def not_read_label(account) -> str:
-    """ "2 lines not read", "1 column, 3 cells not read" (grouped by kind)."""
+    """A label such as "2 lines not read" or "1 column, 3 places not read"."""
     words = {
         "line": ("line", "lines"),
         "cells": ("place", "places"),
