@@ -268,6 +268,7 @@ PASTE_NOTES: dict[str, str] = {
     ),
     "count_thousands": "'{text}' read as {value} (a count, so the comma separates thousands)",
     "ambiguous_decimal": "'{text}' read as {value} (decimal mark as elsewhere on the line)",
+    "ambiguous_chosen": "'{text}' read as {value} (decimal {mark}, as chosen)",
     "ambiguous_from_text": (
         "'{text}' read as {value} (nothing on the line shows the decimal mark; most other "
         "lines use decimal {mark}s)"

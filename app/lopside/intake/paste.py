@@ -769,6 +769,8 @@ class _Ctx:
     subgroup: str | None = None
     subgroup_line: int = 0
     fallback_mark: str | None = None
+    #: True when the fallback mark is the user's choice (the decimal option)
+    mark_chosen: bool = False
     measure: str | None = None
     #: ambiguous numbers ("1,105") read on the current line with nothing to settle them
     undecided_now: list[str] = field(default_factory=list)
@@ -805,6 +807,10 @@ def _read_num(
                 notes.append(M.paste_note("ambiguous_thousands", text=body, value=_fmt(value)))
                 if len(ctx_mark_used) > 1:
                     ctx_mark_used[1].append(body)
+            elif ctx_mark_used[0] == "chosen":
+                notes.append(
+                    M.paste_note("ambiguous_chosen", text=body, value=_fmt(value), mark=mark)
+                )
             elif ctx_mark_used[0]:
                 notes.append(
                     M.paste_note("ambiguous_from_text", text=body, value=_fmt(value), mark=mark)
@@ -834,7 +840,7 @@ def _to_items(
     toks: list[_Tok],
     mark: str | None,
     notes: list[str],
-    from_text: bool,
+    from_text: bool | str,
     undecided: list[str] | None = None,
 ) -> list[_It]:
     items: list[_It] = []
@@ -1122,10 +1128,11 @@ def _read_study(
     if prep.mark == "mixed":
         raise _Fail("mixed_marks", point=prep.mark_evidence, comma=prep.mark_counter)
     mark = prep.mark if prep.mark in (POINT, COMMA) else None
-    from_text = False
+    from_text: bool | str = False
     if mark is None and ctx.fallback_mark is not None:
         mark = ctx.fallback_mark
-        from_text = True
+        # "chosen": the user said; True: the other lines of the paste settled it
+        from_text = "chosen" if ctx.mark_chosen else True
     items = _to_items(tail, mark, notes, from_text, ctx.undecided_now)
     items = _percent_values(items, ctx, notes)
     items = _groups(items, notes)
@@ -1523,6 +1530,7 @@ def read_pasted(text: str, measure: str | None = None, decimal: str | None = Non
     decimal_how = ""
     if decimal in (POINT, COMMA):
         ctx.fallback_mark = decimal
+        ctx.mark_chosen = True
         decimal_how = "option"
     elif marks[COMMA] > marks[POINT]:
         ctx.fallback_mark = COMMA
