@@ -591,3 +591,25 @@ def test_decimal_option_settles_a_file_with_both_marks(tmp_path):
         load_review_file(p, "RR")
     review, _ = load_review_file(p, "RR", decimal="comma")
     assert [r.estimate for r in review.studies] == [0.8, 0.7, 1.105]
+
+
+def test_favours_set_in_the_window_is_one_undoable_edit_with_its_source():
+    from lopside import edits as ed
+
+    review, _ = load_review_file(_write_tmp("s.csv", SMOKING))
+    assert review.details.favours_source == "assumed"
+    new, inverse = ed.apply(ed.SetFavours("higher", "window"), review)
+    assert (new.details.favours, new.details.favours_source) == ("higher", "window")
+    back, _ = ed.apply(inverse, new)
+    assert back == review
+    with pytest.raises(ed.EditError):
+        ed.apply(ed.SetFavours("sideways"), review)
+
+
+def _write_tmp(name, text):
+    import tempfile
+    from pathlib import Path
+
+    p = Path(tempfile.mkdtemp()) / name
+    p.write_text(text, encoding="utf-8")
+    return p
