@@ -613,3 +613,12 @@ def _write_tmp(name, text):
     p = Path(tempfile.mkdtemp()) / name
     p.write_text(text, encoding="utf-8")
     return p
+
+
+def test_a_saved_project_prints_its_unread_lines_without_stopping(seven, tmp_path, capsys):
+    s = Session()
+    s.open(seven)
+    target = s.save(tmp_path / "seven.lopside")
+    code, out, _ = run(["check", str(target)], capsys)
+    assert code == 0  # the lines were shown when it was imported; the output still lists them
+    assert "2 lines not read" in out and "Cottam 2005" in out
