@@ -622,3 +622,17 @@ def test_a_saved_project_prints_its_unread_lines_without_stopping(seven, tmp_pat
     code, out, _ = run(["check", str(target)], capsys)
     assert code == 0  # the lines were shown when it was imported; the output still lists them
     assert "2 lines not read" in out and "Cottam 2005" in out
+
+
+def test_a_line_without_numbers_is_listed_but_does_not_stop_the_cli(tmp_path, capsys):
+    p = _write(
+        tmp_path,
+        "t.txt",
+        "Table 4. Invented trials\n"
+        + SEVEN.split("\n", 1)[1]
+        .replace("Cottam 2005    0.91 (0.70 to 1.18) 0.88 (0.60 to 1.20)\n", "")
+        .replace("Eskarra 2009   0,70 (0.50 to 0.98)\n", ""),
+    )
+    code, out, _ = run(["check", str(p), "--measure", "OR"], capsys)
+    assert code == 0
+    assert "1 text line not read" in out and "Table 4. Invented trials" in out

@@ -19,12 +19,13 @@ from .model.review import (
     MEASURE_NAMES,
     MEASURES,
     IntakeAccount,
+    NotRead,
     Review,
     ReviewDetails,
     StudyRow,
 )
 
-ACCEPTED = (SUFFIX, ".json", ".csv", ".xlsx", ".txt")
+ACCEPTED = (SUFFIX, ".json", ".csv", ".xlsx", ".txt", ".pdf")
 MAX_TEXT_BYTES = 50 * 2**20
 
 
@@ -119,6 +120,61 @@ def _with_favours(review: Review, favours: str | None, from_file: str = "") -> R
     return review.with_details(favours="lower", favours_source="assumed")
 
 
+def load_pdf_review(
+    path: Path,
+    measure: str | None = None,
+    page: str | None = None,
+    progress=None,
+    *,
+    decimal: str | None = None,
+    favours: str | None = None,
+) -> tuple[Review, list[str]]:
+    """Rows from a review's PDF: the page(s) ``page`` ('7', '7-8'), else the page with the
+    most study rows. Returns the review and what to tell the user (which page was read,
+    which others hold rows, footnote marks left out, lines not read)."""
+    from .intake.pdf import choose_pages, read_pdf, rows_from_pages
+
+    try:
+        from .intake.pdf import parse_pages
+
+        wanted = parse_pages(page) if page else None
+    except ValueError as exc:
+        raise InputError(f"--page {page}: {exc}.") from exc
+    doc = read_pdf(path, pages=wanted, progress=progress)
+    pages, notes = choose_pages(doc, page)
+    got = rows_from_pages(doc, pages, measure, decimal=decimal)
+    notes = notes + list(got.notes)
+    paste = got.paste
+    where = f"page {pages[0]}" if len(pages) == 1 else f"pages {pages[0]}-{pages[-1]}"
+    if not paste.rows:
+        raise InputError(f"{path.name}: no study rows could be read on {where}.\n{paste.account()}")
+    if paste.undecided and not decimal:
+        raise _undecided_error(path.name, paste.undecided, "line")
+    prose = 0
+    not_read = []
+    for r in paste.not_understood:
+        if not any(ch.isdigit() for ch in r.text):
+            prose += 1  # text without a number cannot be a study row (titles, prose)
+            continue
+        # study-looking lines not read go into the account (stderr, output, exit 4)
+        where = f"page {got.line_pages[r.line_no - 1]}, line {r.line_no}"
+        kind = next((n.kind for n in paste.not_read() if n.where == f"line {r.line_no}"), "line")
+        not_read.append(NotRead(kind, where, r.text.strip(), r.reason))
+    if prose:
+        notes.append(f"{path.name}: {prose} line(s) of text without numbers passed over.")
+    review = review_from_rows(
+        paste.rows, measure, path.name, hint=paste.measure_hint, why=paste.measure_why
+    )
+    review = review.with_details(
+        title=f"{path.stem} ({where})", source_note=got.source_note(path.name)
+    )
+    account = paste.intake_account(path.name, review.intake.measure_how)
+    review = replace(review, intake=replace(account, not_read=tuple(not_read)))
+    if paste.published is not None:
+        review = review.with_details(published=paste.published)
+    return _with_favours(review, favours), notes
+
+
 def load_review_file(
     path: str | Path,
     measure: str | None = None,
@@ -134,7 +190,8 @@ def load_review_file(
 
     Raises :class:`InputError` (or the intake/project errors, which are ValueErrors) with a
     message that names the file and, where it applies, the row and field;
-    :class:`DecimalUndecided` when the decimal mark is needed and not settled.
+    :class:`DecimalUndecided` when the decimal mark is needed and not settled. A PDF is
+    read from the page with the most study rows (:func:`load_pdf_review` says which).
     """
     p = Path(path)
     if measure is not None and measure not in MEASURES:
@@ -188,6 +245,8 @@ def load_review_file(
         if pasted.published is not None:
             review = review.with_details(published=pasted.published)
         return _with_favours(review, favours), {}
+    if suffix == ".pdf":
+        return load_pdf_review(p, measure, decimal=decimal, favours=favours)[0], {}
     raise InputError(
         f"{p.name}: Lopside opens {', '.join(ACCEPTED)} files; this one is '{suffix or 'none'}'."
     )
@@ -198,8 +257,8 @@ def is_project(path: str | Path) -> bool:
 
 
 def unread_report(account: IntakeAccount) -> str:
-    """The lines of input that were not read, one per line, for stderr."""
-    return "\n".join(f"  {n.where}: {n.text}  ({n.reason})" for n in account.not_read)
+    """The study-looking input that was not read, one per line, for stderr."""
+    return "\n".join(f"  {n.where}: {n.text}  ({n.reason})" for n in account.study_looking())
 
 
 INPUT_ERRORS = (InputError, IntakeError, ProjectFileError)

@@ -349,6 +349,7 @@ def not_read_label(account) -> str:
     """A label such as "2 lines not read" or "1 column, 3 places not read"."""
     words = {
         "line": ("line", "lines"),
+        "text": ("text line", "text lines"),
         "cells": ("place", "places"),
         "column": ("column", "columns"),
         "row": ("row", "rows"),

@@ -132,7 +132,7 @@ def run_plot(args: argparse.Namespace) -> int:
     from ..cli_common import INPUT_ERRORS
 
     try:
-        # the same input and analysis options as check and sheet
+        # the same input and analysis options as check and sheet (PDF pages included)
         review, settings = load_input(args)
     except INPUT_ERRORS as exc:
         return _fail(str(exc))

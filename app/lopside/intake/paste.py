@@ -290,8 +290,15 @@ class PasteResult:
 
     def not_read(self) -> tuple[NotRead, ...]:
         """Lines that were not read, for the review's intake account."""
+        no_numbers = M.not_understood("no_numbers")[0]
+        # a line with no numbers after its label is listed, but is not study-looking
         return tuple(
-            NotRead("line", f"line {r.line_no}", r.text.strip(), r.reason)
+            NotRead(
+                "text" if r.reason == no_numbers else "line",
+                f"line {r.line_no}",
+                r.text.strip(),
+                r.reason,
+            )
             for r in self.not_understood
         )
 

@@ -253,8 +253,9 @@ FAVOURS_SOURCES: dict[str, str] = {
 class NotRead:
     """One piece of the user's input that did not reach the review, and why.
 
-    ``kind`` is ``"line"`` (a pasted line that looks like a study), ``"cells"`` (cells of a
-    table row), ``"column"`` (a column of a table) or ``"row"`` (a table row);
+    ``kind`` is ``"line"`` (a pasted line that looks like a study), ``"text"`` (a pasted
+    line with no numbers after its label: listed, but not study-looking), ``"cells"``
+    (cells of a table row), ``"column"`` (a column of a table) or ``"row"`` (a table row);
     ``where`` names the place as the user sees it ("line 4", "row 7", "column 'or'").
     """
 
@@ -309,6 +310,10 @@ class IntakeAccount:
 
     def is_empty(self) -> bool:
         return self == IntakeAccount()
+
+    def study_looking(self) -> tuple[NotRead, ...]:
+        """What was not read and may hold study data (stops the CLI unless allowed)."""
+        return tuple(n for n in self.not_read if n.kind != "text")
 
     def plus(self, later: IntakeAccount) -> IntakeAccount:
         """This account followed by a later import (a paste into the review)."""
