@@ -70,6 +70,9 @@ class AnalysisResult:
     #: trim and fill under other estimator/model choices, keyed "L0, trim FE, fill RE" etc.
     trim_fill_variants: dict[str, Any] = field(default_factory=dict)
     power: Any = None
+    #: rows worth checking against the paper (stats.diagnostics.RowFlags): implausible
+    #: arms, outliers and influential studies, heterogeneity drivers, possible duplicates
+    row_flags: Any = None
     fingerprint: str = ""
     notes: tuple[str, ...] = field(default_factory=tuple)
 
@@ -236,6 +239,7 @@ def _analyse(review, settings, *, with_power, power_progress) -> AnalysisResult:
     from .intake.checks import check_rows
     from .stats import adjust, applicability, asymmetry, binary, moderators, sensitivity
     from .stats import pooling as pl
+    from .stats.diagnostics import flag_rows, suspects
     from .stats.effects import derive_all
     from .stats.reconcile import reconcile
 
@@ -282,6 +286,7 @@ def _analyse(review, settings, *, with_power, power_progress) -> AnalysisResult:
 
     loo = _safe(sensitivity.leave_one_out, data, tau2_method=settings.tau2_method)
     cumulative = _safe(sensitivity.cumulative, data, tau2_method=settings.tau2_method)
+    row_flags = _safe(flag_rows, data, loo)
 
     published = _published_on_scale(review, measure)
     if published is None:
@@ -297,7 +302,7 @@ def _analyse(review, settings, *, with_power, power_progress) -> AnalysisResult:
             ratio=measure in RATIO_MEASURES,
             published_model=review.details.published.model,
             loo=lambda key: _leave_one_out_estimates(data, key, measure),
-            flagged=_flagged_rows(review, problems),
+            flagged=_flagged_rows(review, problems) + suspects(row_flags, problems),
         )
 
     tau2 = random.tau2 if isinstance(random, PooledEstimate) else 0.0
@@ -405,5 +410,6 @@ def _analyse(review, settings, *, with_power, power_progress) -> AnalysisResult:
         subgroups=subgroups,
         meta_regression=meta_reg,
         power=power,
+        row_flags=row_flags,
         fingerprint=fingerprint(review, measure),
     )
