@@ -126,8 +126,12 @@ def run_plot(args: argparse.Namespace) -> int:
         settings = replace(settings, funnel_model=args.model)
 
     from ..analysis import analyse
+    from ..cli import _progress_for
 
-    result = analyse(review, settings)
+    progress = _progress_for(args, review)
+    result = analyse(review, settings, progress=progress)
+    if progress:
+        progress.done()
     if result.data.k == 0:
         return _fail(
             f"{args.file}: no study has a usable effect and standard error, so there is "
@@ -187,7 +191,11 @@ def build_figure(result, args: argparse.Namespace):
                 f"--colour-by {opts.colour_by}: no study has a {field} entry; fill in the "
                 f"{field} column or leave out --colour-by."
             )
-        return funnel_figure(inp, opts, size)
+        fig = funnel_figure(inp, opts, size)
+        from .flag_marks import flagged_points, mark_flagged  # rows to check
+
+        mark_flagged(fig.axes[0], flagged_points(result, opts.axis), size=size)
+        return fig
     if kind == "forest":
         from .forest import forest_figure
 
