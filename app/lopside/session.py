@@ -245,23 +245,29 @@ class Session:
         self,
         path: str | Path,
         measure: str | None = None,
+        decimal: str | None = None,
         *,
         accept_changed: bool = False,
         read_only: str = "",
     ) -> None:
         """Open a project file, or import a CSV/XLSX study table or a .txt of pasted rows.
 
-        ``read_only`` (a reason) keeps Save from writing over the file: a sample review,
-        a file changed outside Lopside (opened with ``accept_changed``).
+        ``decimal`` ("point"/"comma") settles numbers the file does not. ``read_only`` (a
+        reason) keeps Save from writing over the file: a sample review, a file changed
+        outside Lopside (opened with ``accept_changed``).
 
         Raises the intake/project-file errors (ValueErrors with a message for the user),
-        among them ``project_file.ChangedOutside`` unless ``accept_changed``.
+        among them :class:`lopside.cli_common.DecimalUndecided` when the caller must ask
+        and ``project_file.ChangedOutside`` unless ``accept_changed``.
         """
         from .cli_common import load_review_file
         from .model.project_file import SUFFIX
 
         p = Path(path)
-        review, saved = load_review_file(p, measure, accept_changed=accept_changed)
+        review, saved = load_review_file(p, measure, decimal=decimal, accept_changed=accept_changed)
+        if decimal and review.intake.decimal_how == "option":
+            # in the window the user was asked: the account says so
+            review = replace(review, intake=replace(review.intake, decimal_how="asked"))
         settings = AnalysisSettings.from_dict(saved)
         if p.suffix.lower() in (SUFFIX, ".json"):
             self.reset(review, settings, p, read_only=read_only)
@@ -322,16 +328,21 @@ class Session:
                 return result
         return None
 
-    def analyse(self):
+    def analyse(self, *, allow_core: bool = False):
         """The analysis of the current review (cached; see the module docstring).
 
         The returned result always carries the current review (with its notes), and the
-        power simulation when one was run for exactly these inputs.
+        power simulation when one was run for exactly these inputs. With ``allow_core``,
+        a core-stage result of the current state (:meth:`analyse_core`) is returned while
+        the full one is not ready (``result.stage`` says which).
         """
         from .analysis import analyse
 
         key = self.analysis_key()
         result = self._lookup(key)
+        core = getattr(self, "_core", None)
+        if result is None and allow_core and core is not None and _same_key(core[0], key):
+            result = core[1]
         if result is None:
             result = analyse(self._review, self._settings)
             self._cache.insert(0, (key, result))
@@ -342,6 +353,18 @@ class Session:
         if result.review is not self._review:
             result = replace(result, review=self._review)
         return result
+
+    def analyse_core(self):
+        """The core stage of the current state (effects, pooling, tests, trim and fill),
+        kept until the full analysis of that state arrives."""
+        from .analysis import analyse
+
+        key = self.analysis_key()
+        core = getattr(self, "_core", None)
+        if core is None or not _same_key(core[0], key):
+            core = (key, analyse(self._review, self._settings, stage="core"))
+            self._core = core
+        return core[1]
 
     def has_analysis(self) -> bool:
         """True when :meth:`analyse` would return at once (the current state is cached)."""

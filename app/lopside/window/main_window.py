@@ -175,6 +175,35 @@ def _ask_measure(window, name: str) -> str | None:
     return text.split(" ", 1)[0] if ok else None
 
 
+def _ask_decimal(window, name: str, examples) -> str | None:
+    """Ask once how numbers the file does not settle are read; two readings side by side."""
+    from ..cli_common import two_readings
+
+    rows = []
+    for place, text in examples[:4]:
+        as_point, as_comma = two_readings(text)
+        rows.append(
+            f"<tr><td>{place}</td><td>{text}</td><td>{as_point}</td><td>{as_comma}</td></tr>"
+        )
+    box = QMessageBox(window)
+    box.setWindowTitle("Decimal point or decimal comma?")
+    box.setTextFormat(Qt.RichText)
+    box.setText(
+        M.ASK_DECIMAL.format(name=name)
+        + "<table cellpadding='4'><tr><th>Where</th><th>Printed</th><th>Decimal point</th>"
+        "<th>Decimal comma</th></tr>" + "".join(rows) + "</table>"
+    )
+    point = box.addButton("Decimal &point", QMessageBox.AcceptRole)
+    comma = box.addButton("Decimal &comma", QMessageBox.AcceptRole)
+    box.addButton(QMessageBox.Cancel)
+    box.exec()
+    if box.clickedButton() is point:
+        return "point"
+    if box.clickedButton() is comma:
+        return "comma"
+    return None
+
+
 def _ask_open_sheet(window, path: str) -> bool:
     answer = QMessageBox.question(
         window,
@@ -218,6 +247,8 @@ class MainWindow(QMainWindow):
             lambda folder, title, filt: _ask_save_path(self, folder, title, filt)
         )
         self.ask_measure = ask_measure or (lambda name: _ask_measure(self, name))
+        #: asked when a file cannot settle its decimal mark (tests replace it)
+        self.ask_decimal = lambda name, examples: _ask_decimal(self, name, examples)
         self.ask_open_sheet = ask_open_sheet or (lambda path: _ask_open_sheet(self, path))
         self.ask_save_failed = ask_save_failed or (
             lambda name, error: _ask_save_failed(self, name, error)
@@ -629,19 +660,47 @@ class MainWindow(QMainWindow):
         if self.session.has_analysis():
             self.update_views()
             return
-        if self.analysis_worker is not None and self.analysis_worker.isRunning():
+        if self.analysis_worker is not None and (
+            self.analysis_worker.isRunning() or getattr(self, "_worker_starting", False)
+        ):
             self._rerun = True
+            self.analysis_worker.cancel()  # its result would be stale: stop at its next stage
             return
         s = self.session
-        w = AnalysisWorker(s.review, s.settings, s.analysis_key(), self)
+        # staged: the core stage (effects, pooling, tests, trim and fill) is drawn at once;
+        # the full stage follows in the worker and is cancelled by the next edit
+        core = None
+        try:
+            core = s.analyse_core()
+        except Exception:  # noqa: BLE001 - the full stage (and update_views) reports it
+            core = None
+        self._awaiting_full = core is not None
+        if core is not None:
+            self.update_views()
+        w = AnalysisWorker(s.review, s.settings, s.analysis_key(), self, core=core)
         w.finished_with.connect(self._analysis_done)
         w.failed.connect(self._analysis_failed)
+        w.cancelled.connect(self._analysis_failed_or_cancelled)
+        w.progress.connect(self._analysis_progress)
         self.analysis_worker = w
         self._rerun = False
-        self.status_label.setText("Analysing\u2026")
-        w.start()
+        if core is None:
+            self.status_label.setText("Analysing\u2026")
+            w.start()
+        else:
+            # after the core stage's redraw (queued before this), so that the worker does
+            # not compete with drawing the funnel for the interpreter
+            self._worker_starting = True
+            QTimer.singleShot(0, self._start_worker)
+
+    def _start_worker(self) -> None:
+        self._worker_starting = False
+        w = self.analysis_worker
+        if w is not None and not w.isRunning() and not w.isFinished():
+            w.start()
 
     def _analysis_done(self, result, key) -> None:
+        self._awaiting_full = False
         current = self.session.remember_analysis(key, result)
         if self._rerun or not current:
             self._rerun = False
@@ -649,7 +708,16 @@ class MainWindow(QMainWindow):
             return
         self.update_views()
 
+    def _analysis_progress(self, stage: str, index: int, total: int) -> None:
+        if self.result is not None and getattr(self.result, "stage", "") == "core":
+            return  # the status already says the sensitivity analyses are being updated
+        self.status_label.setText(M.ANALYSIS_PROGRESS.format(stage=stage, n=index + 1, of=total))
+
+    def _analysis_failed_or_cancelled(self, key) -> None:
+        self._analysis_failed("", key)
+
     def _analysis_failed(self, message: str, key) -> None:
+        self._awaiting_full = False
         if self._rerun:
             self._rerun = False
             self.refresh_soon()
@@ -661,8 +729,10 @@ class MainWindow(QMainWindow):
         from PySide6.QtCore import QDeadlineTimer
 
         deadline = QDeadlineTimer(timeout_ms)
-        while self._timer.isActive() or (
-            self.analysis_worker is not None and self.analysis_worker.isRunning()
+        while (
+            self._timer.isActive()
+            or getattr(self, "_worker_starting", False)
+            or (self.analysis_worker is not None and self.analysis_worker.isRunning())
         ):
             if deadline.hasExpired():
                 break
@@ -675,7 +745,8 @@ class MainWindow(QMainWindow):
         """Analyse (cached) and refresh the visible views; the rest are marked stale."""
         self._timer.stop()
         try:
-            result = self.session.analyse()
+            # the core stage while the full one runs in the worker (the status bar says so)
+            result = self.session.analyse(allow_core=getattr(self, "_awaiting_full", False))
             self.analysis_error = ""
         except ModuleNotFoundError as exc:
             result = None
@@ -762,6 +833,8 @@ class MainWindow(QMainWindow):
             text = f"k = {r.k} \u00b7 random effects {pooled_text(r.random, r.measure)}"
         except (ImportError, AttributeError, TypeError):
             text = f"k = {r.k}"
+        if getattr(r, "stage", "full") == "core":
+            text += M.CORE_STAGE_SUFFIX
         self.status_label.setText(text)
 
     def _clean_changed(self, _clean: bool) -> None:
@@ -786,7 +859,8 @@ class MainWindow(QMainWindow):
 
     def open_paste_dialog(self, text: str | None = None) -> PasteDialog:
         """Open the paste dialog (window-modal, not blocking) and return it."""
-        dlg = PasteDialog(self.session.review.measure, text or "", self)
+        review = self.session.review
+        dlg = PasteDialog(review.measure, text or "", self, empty=not review.studies)
         dlg.accepted.connect(lambda: self.insert_paste(dlg))
         dlg.setWindowModality(Qt.WindowModal)
         dlg.show()
@@ -807,6 +881,10 @@ class MainWindow(QMainWindow):
         pub = dlg.chosen_published()
         if pub is not None and not self.session.review.details.published.is_complete():
             edits.append(ed.SetDetail("published", pub))
+        account = dlg.account()
+        if account is not None:
+            # what was not read stays listed with the review (problems list, sheet)
+            edits.append(ed.SetIntake(self.session.review.intake.plus(account)))
         n = len(rows)
         ok = self.stack.push_many(f"paste {n} row{'s' if n != 1 else ''}", edits)
         self.studies.suggest_mode()
@@ -868,14 +946,19 @@ class MainWindow(QMainWindow):
 
         if ask and not self._maybe_save():
             return False
+        from ..cli_common import DecimalUndecided
+
         p = Path(path)
         if p.suffix.lower() == ".pdf":
             return self.open_pdf(p)
         measure = None
+        decimal = None
         accept_changed = False
-        for _attempt in range(3):
+        for _attempt in range(4):
             try:
-                self.session.open(p, measure, accept_changed=accept_changed, read_only=read_only)
+                self.session.open(
+                    p, measure, decimal, accept_changed=accept_changed, read_only=read_only
+                )
                 break
             except ChangedOutside:
                 if accept_changed or not self.ask_open_changed(p.name):
@@ -884,6 +967,12 @@ class MainWindow(QMainWindow):
                 accept_changed = True
                 read_only = read_only or M.READ_ONLY_CHANGED
                 continue
+            except DecimalUndecided as exc:
+                decimal = self.ask_decimal(p.name, exc.examples) if decimal is None else None
+                if decimal:
+                    continue
+                self._open_failed(p, exc)
+                return False
             except INPUT_ERRORS as exc:
                 if measure is None and "measure" in str(exc) and p.suffix.lower() != SUFFIX:
                     measure = self.ask_measure(p.name)

@@ -12,6 +12,9 @@ NOT_AVAILABLE = (
 )
 NO_ANALYSIS = "Enter at least two studies with an effect and its standard error to see this."
 ANALYSIS_FAILED = "The analysis could not be run: {error}"
+ANALYSIS_PROGRESS = "Analysing\u2026 {stage} ({n} of {of})"
+#: after the pooled result while only the core stage is shown
+CORE_STAGE_SUFFIX = " \u00b7 updating sensitivity analyses\u2026"
 STALE_POWER = "The review has changed since the power was simulated: run it again."
 POWER_NOT_RUN = "Not simulated yet for this review: press Simulate power."
 POWER_CANCELLED = "Power simulation cancelled."
@@ -65,6 +68,25 @@ ABOUT_TEXT = (
     "<p>Appraise small-study effects and publication bias in a published meta-analysis, "
     "offline.</p><p><b>Caution.</b> {caution}</p>"
     "<p>The sample reviews shipped with Lopside are invented for demonstration.</p>"
+)
+
+ASK_DECIMAL = (
+    "<p>Nothing in <b>{name}</b> shows whether a comma in these numbers is a decimal mark or "
+    "separates thousands. Which does the paper use?</p>"
+)
+
+NOT_READ_TIP = (
+    "This part of the input was not read, so it is not in the table. Add the study by hand "
+    "(or fix the line and paste it again)."
+)
+
+PASTE_MEASURE_WHY = "Assumed because {why}. Change it if the paper says otherwise."
+PASTE_MEASURE_OTHER = "The rows look like a {guess} ({why}); check the measure."
+PASTE_MEASURE_REVIEW = "The review's measure; change it if the pasted rows use another."
+PASTE_MEASURE_CHANGES = "Adding the rows sets the review's measure to {name}."
+PASTE_DECIMAL = (
+    "Nothing in the pasted text shows whether the comma in '{text}' is a decimal mark or "
+    "separates thousands. Which does the paper use?"
 )
 
 PDF_TITLE = "Rows from {name}"
