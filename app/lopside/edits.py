@@ -11,7 +11,9 @@ Design invariants
   ``StudyRow.unread`` (field -> text) and the typed field is cleared, so nothing typed is
   ever lost and the row check can say what is wrong.
 * An edit that does not fit the review (row out of range, unknown field) raises
-  :class:`EditError`; it never half-applies.
+  :class:`EditError`; it never half-applies. Text that could not be saved or printed (a
+  lone surrogate, a control character; :mod:`lopside.model.text`) is refused here, at
+  entry, with a message naming the field, so a save never fails on it later.
 * :func:`merge` says when two consecutive edits are one step for the user (typing in one
   cell, one notes box, one details field).
 * No Qt here.
@@ -26,17 +28,20 @@ from typing import Any
 from .model.review import (
     CAUSES,
     DOMAIN_RATINGS,
+    FAVOURS_SOURCES,
     JUDGEMENTS,
     MEASURES,
     NUMERIC_FIELDS,
     RISK_OF_BIAS_LEVELS,
     TABLE_COLUMNS,
     CauseNote,
+    IntakeAccount,
     PublishedResult,
     Review,
     ReviewDetails,
     StudyRow,
 )
+from .model.text import text_problem
 
 
 class EditError(ValueError):
@@ -146,6 +151,21 @@ class SetGeneralNotes:
     """The appraiser's general notes."""
 
     text: str
+
+
+@dataclass(frozen=True, slots=True)
+class SetFavours:
+    """Set the direction of benefit and where it came from (the account says so)."""
+
+    favours: str
+    source: str = "window"
+
+
+@dataclass(frozen=True, slots=True)
+class SetIntake:
+    """Replace the account of what was read on the way in (a paste adds to it)."""
+
+    account: IntakeAccount
 
 
 @dataclass(frozen=True, slots=True)
@@ -298,6 +318,8 @@ def _detail_value(field: str, value: Any) -> Any:
         raise EditError(f"'{value}' is not one of {', '.join(MEASURES)}.")
     if field == "favours" and value not in ("lower", "higher"):
         raise EditError("favours must be 'lower' or 'higher'.")
+    if field == "favours_source" and value not in FAVOURS_SOURCES:
+        raise EditError(f"'{value}' is not a source of the direction of benefit.")
     if field == "ci_level":
         if not isinstance(value, (int, float)) or not 50.0 < float(value) < 100.0:
             raise EditError("The CI level must be a percentage between 50 and 100.")
@@ -322,6 +344,7 @@ def apply(edit: Edit, review: Review) -> tuple[Review, Edit]:
     EditError
         When the edit does not fit the review (nothing is changed).
     """
+    _check_text(edit)
     studies = review.studies
     if isinstance(edit, SetCell):
         _check_row(review, edit.row)
@@ -389,6 +412,18 @@ def apply(edit: Edit, review: Review) -> tuple[Review, Edit]:
         else:
             raise EditError(f"'{edit.field}' is not a review detail.")
         return replace(review, details=new_details), SetDetail(edit.field, old_value)
+    if isinstance(edit, SetFavours):
+        if edit.favours not in ("lower", "higher"):
+            raise EditError("favours must be 'lower' or 'higher'.")
+        if edit.source not in FAVOURS_SOURCES:
+            raise EditError(f"'{edit.source}' is not a source of the direction of benefit.")
+        d = review.details
+        new_details = replace(d, favours=edit.favours, favours_source=edit.source)
+        return replace(review, details=new_details), SetFavours(d.favours, d.favours_source)
+    if isinstance(edit, SetIntake):
+        if not isinstance(edit.account, IntakeAccount):
+            raise EditError("The intake account must be an IntakeAccount.")
+        return replace(review, intake=edit.account), SetIntake(review.intake)
     if isinstance(edit, SetCauseNote):
         if edit.key not in CAUSES:
             raise EditError(f"'{edit.key}' is not one of the explanations {', '.join(CAUSES)}.")
@@ -412,6 +447,46 @@ def apply(edit: Edit, review: Review) -> tuple[Review, Edit]:
     if isinstance(edit, ReplaceStudies):
         return review.with_studies(edit.studies), ReplaceStudies(studies)
     raise EditError(f"Unknown edit {type(edit).__name__}.")
+
+
+_DETAIL_NAMES = {
+    "title": "Title",
+    "question": "Question",
+    "outcome": "Outcome",
+    "int_label": "Intervention label",
+    "ctl_label": "Control label",
+    "appraiser": "Appraiser",
+    "source_note": "Source note",
+    "published.model": "Published model",
+}
+
+
+def _refuse_text(where: str, text: Any, *, controls: bool = True) -> None:
+    if isinstance(text, str):
+        problem = text_problem(text, controls=controls)
+        if problem:
+            raise EditError(f"{where}: {problem}. Nothing was changed.")
+
+
+def _check_text(edit: Edit) -> None:
+    """Refuse text that could not be saved (see the module docstring)."""
+    if isinstance(edit, SetCell):
+        _refuse_text(f"Row {edit.row + 1}, {edit.field}", edit.text)
+    elif isinstance(edit, SetDetail):
+        _refuse_text(_DETAIL_NAMES.get(edit.field, edit.field), edit.value)
+    elif isinstance(edit, SetCauseNote):
+        _refuse_text(f"Notes on {edit.key}", edit.note.notes)
+    elif isinstance(edit, SetRatingOverride):
+        _refuse_text("Reason for your rating", edit.reason)
+    elif isinstance(edit, SetGeneralNotes):
+        _refuse_text("General notes", edit.text)
+    elif isinstance(edit, (AddRows, PasteBlock)):
+        # rows read from a paste or a file: only what cannot be saved at all is refused
+        for i, row in enumerate(edit.rows):
+            for f in ("study", "risk_of_bias", "subgroup"):
+                _refuse_text(f"Row {edit.at + i + 1}, {f}", getattr(row, f), controls=False)
+            for f, text in row.unread:
+                _refuse_text(f"Row {edit.at + i + 1}, {f}", text, controls=False)
 
 
 def _optional_number(value: Any) -> float | None:
@@ -495,6 +570,10 @@ def change_of(edit: Edit) -> Change:
         return Change("move", (edit.src, edit.dst))
     if isinstance(edit, SetDetail):
         return Change("details", (), edit.field)
+    if isinstance(edit, SetIntake):
+        return Change("details", (), "intake")
+    if isinstance(edit, SetFavours):
+        return Change("details", (), "favours")
     if isinstance(edit, ReplaceStudies):
         return Change("studies")
     return Change("notes")
@@ -521,6 +600,10 @@ def describe(edit: Edit) -> str:
         return f"move row {edit.src + 1}"
     if isinstance(edit, SetExclude):
         return f"{'exclude' if edit.exclude else 'include'} row {edit.row + 1}"
+    if isinstance(edit, SetIntake):
+        return "record what was read"
+    if isinstance(edit, SetFavours):
+        return "change favours"
     if isinstance(edit, SetDetail):
         return f"change {edit.field.replace('published.', 'published ').replace('_', ' ')}"
     if isinstance(edit, SetCauseNote):

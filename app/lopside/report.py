@@ -407,6 +407,7 @@ def to_json(result) -> dict[str, Any]:
     out["trim_fill_range"] = _trim_fill_range_json(result)
     out["published_heterogeneity"] = _published_het_json(result)
     out["appraisal"] = appraisal_json(assessment)
+    out["intake"] = intake_json(result.review)
     out["not_computable"] = nc
     return out
 
@@ -442,4 +443,26 @@ def _published_het_json(result) -> dict[str, Any] | None:
         "computed_i2": _num(het.i2),
         "agree": abs(pub - het.i2) <= HET_AGREE_POINTS,
         "sentence": heterogeneity_reconciled(pub, het.i2),
+    }
+
+
+def intake_json(review) -> dict[str, Any]:
+    """What happened on the way in: unread input, decimal mark, measure, direction."""
+    from .summary import favours_text
+
+    a = review.intake
+    d = review.details
+    return {
+        "source": a.source,
+        "not_read": [
+            {"kind": n.kind, "where": n.where, "text": n.text, "reason": n.reason}
+            for n in a.not_read
+        ],
+        "decimal": {
+            "mark": a.decimal_mark or None,
+            "how": a.decimal_how or None,
+            "evidence": a.decimal_evidence or None,
+        },
+        "measure_how": a.measure_how,
+        "favours": {"value": d.favours, "source": d.favours_source, "text": favours_text(d)},
     }
