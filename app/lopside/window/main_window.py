@@ -41,6 +41,7 @@ from .details_form import DetailsForm
 from .paste_dialog import PasteDialog
 from .plots import CompanionPanel, ForestPanel, FunnelPanel
 from .power_panel import PowerPanel
+from .screen_fit import keep_on_screen, place_window, screen_signature
 from .sections import SectionsPanel
 from .study_panel import StudyPanel
 from .undo import EditStack
@@ -397,16 +398,14 @@ class MainWindow(QMainWindow):
     # ------------------------------------------------------------------ prefs
 
     def _restore_prefs(self) -> None:
-        geo = self.prefs.get_bytes(P.GEOMETRY)
-        if geo is not None:
-            self.restoreGeometry(geo)
-        else:
-            self.resize(1366, 740)
+        # a geometry saved on another screen or scale is not reused; any is clamped
+        placed = place_window(self, self.prefs.get_bytes(P.GEOMETRY), self.prefs.get_str(P.SCREEN))
         split = self.prefs.get_bytes(P.SPLITTER)
-        if split is not None:
+        if split is not None and placed != "default":
             self.split.restoreState(split)
         else:
-            self.split.setSizes([730, 636])
+            w = self.width()
+            self.split.setSizes([w * 57 // 100, w - w * 57 // 100])
         self.views.setCurrentIndex(
             max(0, min(self.prefs.get_int(P.VIEW_TAB, 0), self.views.count() - 1))
         )
@@ -423,6 +422,7 @@ class MainWindow(QMainWindow):
 
     def _save_prefs(self) -> None:
         self.prefs.set(P.GEOMETRY, self.saveGeometry())
+        self.prefs.set(P.SCREEN, screen_signature(self.screen()))
         self.prefs.set(P.SPLITTER, self.split.saveState())
         self.prefs.set(P.VIEW_TAB, self.views.currentIndex())
         self.prefs.set(P.ENTRY_MODE, self.studies.model.mode)
@@ -432,6 +432,13 @@ class MainWindow(QMainWindow):
     def _save_funnel_options(self) -> None:
         for k, v in self.funnel.option_state().items():
             self.prefs.set(P.FUNNEL_PREFIX + k, v)
+
+    def showEvent(self, event) -> None:  # noqa: N802 - Qt API
+        super().showEvent(event)
+        if not getattr(self, "_placed_once", False):
+            self._placed_once = True
+            # the real frame is known only now: pull a window that sticks out back in
+            QTimer.singleShot(0, lambda: keep_on_screen(self))
 
     # ------------------------------------------------------------------ start-up
 

@@ -19,7 +19,6 @@ from PySide6.QtGui import QCursor
 from PySide6.QtWidgets import (
     QCheckBox,
     QComboBox,
-    QHBoxLayout,
     QLabel,
     QSizePolicy,
     QStackedLayout,
@@ -29,6 +28,7 @@ from PySide6.QtWidgets import (
 )
 
 from . import messages as M
+from .flow import FlowLayout, labelled
 
 
 class FigurePanel(QWidget):
@@ -42,7 +42,8 @@ class FigurePanel(QWidget):
         self.setAccessibleName(name)
         self._outer = QVBoxLayout(self)
         self._outer.setContentsMargins(2, 2, 2, 2)
-        self.controls = QHBoxLayout()
+        # option controls wrap in a narrow panel instead of widening the window
+        self.controls = FlowLayout(h_spacing=8)
         self._outer.addLayout(self.controls)
         self._stack_host = QWidget()
         self._stack = QStackedLayout(self._stack_host)
@@ -233,19 +234,15 @@ class FunnelPanel(FigurePanel):
         for key, text in (("none", "No names"), ("selected", "Name selected"), ("all", "Name all")):
             self.labels_box.addItem(text, key)
         self.labels_box.setAccessibleName("Study names on the plot")
-        for lab, w in (("Axis:", self.axis_box), ("Centre:", self.model_box)):
-            ql = QLabel(lab)
-            ql.setBuddy(w)
-            row1.addWidget(ql)
-            row1.addWidget(w)
+        for lab, w in (("A&xis:", self.axis_box), ("Centre:", self.model_box)):
+            row1.addWidget(labelled(lab, w))
         row1.addWidget(self.colour_box)
         row1.addWidget(self.labels_box)
-        row1.addStretch(1)
-        row2 = QHBoxLayout()
-        self.contours_box = QCheckBox("&Significance bands")
-        self.egger_box = QCheckBox("&Egger line")
-        self.filled_box = QCheckBox("Filled st&udies")
-        self.adjusted_box = QCheckBox("Adjusted estimates")
+        row2 = row1
+        self.contours_box = QCheckBox("Significance &bands")
+        self.egger_box = QCheckBox("E&gger line")
+        self.filled_box = QCheckBox("Sho&w trim-and-fill studies")
+        self.adjusted_box = QCheckBox("Ad&justed estimates")
         for w, tip in (
             (self.contours_box, "Shade where a study would be significant at p < 0.10/0.05/0.01"),
             (self.egger_box, "Draw the Egger regression line"),
@@ -254,8 +251,6 @@ class FunnelPanel(FigurePanel):
         ):
             w.setToolTip(tip)
             row2.addWidget(w)
-        row2.addStretch(1)
-        self._outer.insertLayout(1, row2)
         self.hint = QLabel("Hover over a study to see it; click to select its row.")
         self.hint.setStyleSheet("color: #616E7C;")
         self._outer.addWidget(self.hint)
@@ -584,10 +579,7 @@ class ForestPanel(BuiltFigurePanel):
         self.model_box.addItem("Random effects", "random")
         self.model_box.addItem("Fixed effect", "fixed")
         self.model_box.setAccessibleName("Pooled results shown on the forest plot")
-        lab = QLabel("&Pooled rows:")
-        lab.setBuddy(self.model_box)
-        self.controls.addWidget(lab)
-        self.controls.addWidget(self.model_box)
+        self.controls.addWidget(labelled("Summar&y rows:", self.model_box))
         self.controls.addStretch(1)
         self.model_box.currentIndexChanged.connect(lambda _i: self.redraw())
 
@@ -632,12 +624,9 @@ class CompanionPanel(BuiltFigurePanel):
         for key, text in self.KINDS:
             self.kind_box.addItem(text, key)
         self.kind_box.setAccessibleName("Companion plot")
-        lab = QLabel("&Plot:")
-        lab.setBuddy(self.kind_box)
-        self.egger_box = QCheckBox("Egger line")
+        self.egger_box = QCheckBox("E&gger line")
         self.egger_box.setToolTip("On the radial plot, draw the Egger regression line")
-        self.controls.addWidget(lab)
-        self.controls.addWidget(self.kind_box)
+        self.controls.addWidget(labelled("Plot &kind:", self.kind_box))
         self.controls.addWidget(self.egger_box)
         self.controls.addStretch(1)
         self.kind_box.currentIndexChanged.connect(lambda _i: self.redraw())
