@@ -322,7 +322,7 @@ def header_section(result, *, date: str = "") -> Section:
         ("Review", d.title or "(untitled review)"),
         ("Question", d.question or "(not stated)"),
         ("Outcome", d.outcome or "(not stated)"),
-        ("Effect measure", measure),
+        ("Effect measure", measure + (f"; units: {d.units}" if d.units else "")),
         ("Favours intervention", "lower values" if d.favours == "lower" else "higher values"),
         ("Appraiser", d.appraiser or "(not stated)"),
     ]

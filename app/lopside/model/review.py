@@ -189,6 +189,9 @@ class ReviewDetails:
     appraiser: str = ""
     #: free text shown on screen and on the sheet; invented demo reviews say so here
     source_note: str = ""
+    #: optional units of the outcome scale ("mmHg", "points on a 0-100 scale"), printed
+    #: on the effect axes and the sheet for mean differences
+    units: str = ""
 
 
 #: The alternative explanations of funnel asymmetry, in the order we present them.

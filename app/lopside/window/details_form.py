@@ -123,6 +123,11 @@ class DetailsForm(QScrollArea):
         self.int_label = self._line("Intervention arm label", "intervention")
         self.ctl_label = self._line("Comparator arm label", "control")
         f2.addRow("&Measure:", self.measure)
+        self.units = self._line("Units of the outcome", "optional, e.g. mmHg (mean differences)")
+        self.units.setToolTip(
+            "The outcome's units, printed on the axes and the sheet for mean differences"
+        )
+        f2.addRow("U&nits:", self.units)
         f2.addRow("CI &level of the studies:", self.ci_level)
         f2.addRow("Favo&urs:", self.favours)
         arms = QHBoxLayout()
@@ -168,6 +173,7 @@ class DetailsForm(QScrollArea):
             "question": self.question,
             "outcome": self.outcome,
             "appraiser": self.appraiser,
+            "units": self.units,
             "int_label": self.int_label,
             "ctl_label": self.ctl_label,
             "published.model": self.pub_model,

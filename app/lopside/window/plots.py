@@ -22,6 +22,7 @@ from PySide6.QtWidgets import (
     QLabel,
     QSizePolicy,
     QStackedLayout,
+    QStyle,
     QToolTip,
     QVBoxLayout,
     QWidget,
@@ -506,12 +507,44 @@ class FunnelPanel(FigurePanel):
 # Forest and companions
 
 
-class BuiltFigurePanel(FigurePanel):
-    """A panel for builders that make their own Figure (forest, cumulative).
+#: logical pixels per inch at which the built figures are laid out for their panel
+SCREEN_DPI = 96.0
+#: a width change smaller than this (pixels) keeps the current layout (only rescaled)
+RELAYOUT_STEP = 24
 
-    The figure keeps the size the builder chose (it grows with the number of studies) and
-    scrolls inside the panel, so nothing is squeezed or cut off.
+
+class BuiltFigurePanel(FigurePanel):
+    """A panel for builders that make their own Figure (forest, cumulative, radial).
+
+    The builder lays the figure out for the panel's width (label and plot columns sized
+    from the text drawn); it grows in height with the number of studies and scrolls
+    vertically inside the panel, so nothing is squeezed or cut off. A resize of more
+    than ``RELAYOUT_STEP`` pixels lays it out again.
     """
+
+    def _area(self):
+        sa = getattr(self, "scroll", None)  # QWidget.scroll() until the area is made
+        return sa if hasattr(sa, "viewport") else None
+
+    def layout_px(self) -> int:
+        """The panel's usable width in pixels, in steps of RELAYOUT_STEP.
+
+        Measured on the scroll area less its frame and a vertical scroll bar, whether
+        or not the bar shows, so that the bar appearing does not change the layout.
+        """
+        sa = self._area()
+        bar = self.style().pixelMetric(QStyle.PM_ScrollBarExtent)
+        if sa is None or not sa.isVisible():  # not laid out yet: the panel's own width
+            avail = self.width() - 6 - bar - 8
+        else:
+            avail = sa.width() - 2 * sa.frameWidth() - bar - 8
+        return int(max(avail, 360) // RELAYOUT_STEP * RELAYOUT_STEP)
+
+    def layout_inches(self) -> tuple[float, float]:
+        """Width and height (inches) the builder should lay the figure out for."""
+        sa = self._area()
+        h = sa.height() - 2 * sa.frameWidth() - 8 if sa is not None else self.height() - 60
+        return self.layout_px() / SCREEN_DPI, max(h, 280) / SCREEN_DPI
 
     def ensure_canvas(self) -> None:
         if self.canvas is not None:
@@ -532,29 +565,43 @@ class BuiltFigurePanel(FigurePanel):
         if old is not None:
             old.deleteLater()
         self.figure = fig
+        # the size the builder laid out for; the canvas's resize events must not change it
+        self._fig_inches = tuple(float(v) for v in fig.get_size_inches())
+        fig.set_dpi(SCREEN_DPI * (self.devicePixelRatioF() or 1.0))
         canvas = FigureCanvasQTAgg(fig)
         self.scroll.setWidget(canvas)
         self.figure_canvas = canvas
         self._fit()
 
     def _fit(self) -> None:
-        """Scale the figure to the panel's width (its proportions are the builder's)."""
+        """Show the figure at SCREEN_DPI: it was laid out for the panel's width."""
         c = getattr(self, "figure_canvas", None)
         if c is None or self.figure is None:
             return
-        w, h = self.figure.get_size_inches()
-        avail = max(self.scroll.viewport().width() - 8, 200)
-        # screen dpi between 60 and 110: narrower panels shrink the figure, not cut it
-        dpi = max(60.0, min(110.0, avail / w))
+        w, h = getattr(self, "_fig_inches", None) or self.figure.get_size_inches()
         ratio = c.devicePixelRatioF() or 1.0
-        self.figure.set_dpi(dpi * ratio)
-        c.setFixedSize(int(w * dpi), int(h * dpi))
+        self.figure.set_dpi(SCREEN_DPI * ratio)
+        c.setFixedSize(round(w * SCREEN_DPI), round(h * SCREEN_DPI))
+        self.figure.set_size_inches(w, h, forward=False)
 
     def resizeEvent(self, event) -> None:  # noqa: N802 - Qt API
         super().resizeEvent(event)
         if getattr(self, "figure_canvas", None) is not None:
             self._fit()
             self.figure_canvas.draw_idle()
+            if self.result is not None and self.isVisible():
+                self._relayout_timer().start()
+
+    def _relayout_timer(self):
+        t = getattr(self, "_relayout", None)
+        if t is None:
+            from PySide6.QtCore import QTimer
+
+            t = self._relayout = QTimer(self)
+            t.setSingleShot(True)
+            t.setInterval(150)
+            t.timeout.connect(self.redraw)  # the key holds the width: same width, no work
+        return t
 
     def _request_draw(self) -> None:
         c = getattr(self, "figure_canvas", None)
@@ -592,7 +639,9 @@ class ForestPanel(BuiltFigurePanel):
             d.favours,
             d.int_label,
             d.ctl_label,
+            d.units,
             self.model_box.currentData(),
+            self.layout_px(),
         )
 
     def build(self, result):
@@ -604,6 +653,7 @@ class ForestPanel(BuiltFigurePanel):
         opts = replace(
             opts,
             size="page",
+            width=self.layout_inches()[0],
             show_fixed=which in ("both", "fixed"),
             show_random=which in ("both", "random"),
         )
@@ -641,6 +691,8 @@ class CompanionPanel(BuiltFigurePanel):
             result.fixed,
             self.kind_box.currentData(),
             self.egger_box.isChecked(),
+            self.layout_px(),
+            result.review.details.units,
         )
 
     def build(self, result):
@@ -655,12 +707,15 @@ class CompanionPanel(BuiltFigurePanel):
                     getattr(result.cumulative, "reason", "")
                     or "The cumulative analysis could not be computed."
                 )
-            fig = cumulative_figure(inp, size="page")
+            fig = cumulative_figure(inp, size="page", width=self.layout_inches()[0])
         else:
+            w, h = self.layout_inches()
             fig = radial_figure(
                 adaptors.radial_input_from_result(result),
                 size="page",
                 egger_line=self.egger_box.isChecked(),
+                width=w,
+                height=min(h, w * 0.85),
             )
         self.set_figure(fig)
         return True

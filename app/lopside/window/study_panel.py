@@ -204,6 +204,7 @@ class StudyPanel(QWidget):
         self.table.horizontalHeader().setStretchLastSection(False)
         self.table.horizontalHeader().setMinimumSectionSize(28)
         self.table.resized.connect(self.fit_columns)
+        self.table.verticalScrollBar().rangeChanged.connect(lambda *_a: self.fit_columns())
         rob = PickListDelegate(lambda: RISK_OF_BIAS_LEVELS, self.table)
         sub = PickListDelegate(self._subgroups, self.table)
         self._delegates = (rob, sub)
@@ -301,8 +302,9 @@ class StudyPanel(QWidget):
         # a vertical scroll bar may come and go as rows are added: keep its room
         avail = self.table.viewport().width() - 2
         vbar = self.table.verticalScrollBar()
-        if not vbar.isVisible():
-            avail -= vbar.sizeHint().width()
+        rows_h = n_rows * self.table.verticalHeader().defaultSectionSize()
+        if not vbar.isVisible() and rows_h > self.table.viewport().height():
+            avail -= vbar.sizeHint().width()  # about to appear
         if avail > 50:
             over = sum(want) - avail
             cols = [(m.column_of(k), COLUMN_LIMITS[k][0]) for k in ELASTIC]
