@@ -206,3 +206,109 @@ def test_question_field_is_multi_line_and_round_trips(make_window, qtbot):
     assert "\n" not in q.toPlainText()
     qtbot.waitUntil(lambda: w.session.review.details.question == text, timeout=2000)
     assert q.height() >= 2 * q.fontMetrics().lineSpacing()
+
+
+# ------------------------------------------------------------------ keyboard
+
+
+def _mnemonic(text: str) -> str:
+    """The letter after a single '&' ("" when none; '&&' is a literal ampersand)."""
+    i = 0
+    while i < len(text) - 1:
+        if text[i] == "&":
+            if text[i + 1] == "&":
+                i += 2
+                continue
+            return text[i + 1].lower()
+        i += 1
+    return ""
+
+
+def _widget_mnemonics(root) -> list[tuple[str, str]]:
+    """(letter, where) for every control under ``root`` a mnemonic can reach."""
+    from PySide6.QtWidgets import QAbstractButton, QGroupBox, QLabel, QTabWidget
+
+    out = []
+    for wdg in [root, *root.findChildren(object)]:
+        if not hasattr(wdg, "isVisibleTo") or (wdg is not root and not wdg.isVisibleTo(root)):
+            continue
+        text = ""
+        if isinstance(wdg, QAbstractButton):
+            text = wdg.text()
+        elif isinstance(wdg, QLabel) and wdg.buddy() is not None:
+            text = wdg.text()
+        elif isinstance(wdg, QGroupBox):
+            text = wdg.title()
+        elif isinstance(wdg, QTabWidget) and wdg is not root:
+            text = " ".join(wdg.tabText(i) for i in range(wdg.count()))
+        letter = _mnemonic(text)
+        if letter:
+            out.append((letter, f"{type(wdg).__name__} {text!r}"))
+    return out
+
+
+def test_mnemonics_are_unique_in_every_window_and_tab_scope(make_window):
+    w = make_window(invented_review())
+    menus = [(_mnemonic(a.text()), f"menu {a.text()!r}") for a in w.menuBar().actions()]
+    assert {m for m, _ in menus} >= {"f", "e", "v", "h"}  # Alt+F is the File menu
+    tabs = [(_mnemonic(w.left.tabText(i)), f"tab {w.left.tabText(i)!r}") for i in range(2)]
+    tabs += [
+        (_mnemonic(w.views.tabText(i)), f"tab {w.views.tabText(i)!r}")
+        for i in range(w.views.count())
+    ]
+    clashes = []
+    checked = 0
+    for li in range(w.left.count()):
+        w.left.setCurrentIndex(li)
+        for vi in range(w.views.count()):
+            w.views.setCurrentIndex(vi)
+            w.refresh_all_views()
+            scope = [(m, s) for m, s in menus + tabs if m]
+            scope += _widget_mnemonics(w.left.widget(li))
+            scope += _widget_mnemonics(w.views.widget(vi))
+            seen: dict[str, str] = {}
+            for letter, where in scope:
+                if letter in seen:
+                    clashes.append(f"Alt+{letter.upper()}: {seen[letter]} and {where}")
+                seen[letter] = where
+            checked += len(scope)
+    assert checked > 100  # the walk really visited the controls
+    assert clashes == []
+    # every menu's own entries are unique too
+    from PySide6.QtWidgets import QMenu
+
+    for menu in w.menuBar().findChildren(QMenu):
+        letters = [_mnemonic(a.text()) for a in menu.actions() if not a.isSeparator()]
+        letters = [x for x in letters if x]
+        assert len(letters) == len(set(letters)), menu.title()
+
+
+def test_every_focusable_control_gets_the_visible_focus_frame(make_window, qtbot):
+    from PySide6.QtCore import Qt
+    from PySide6.QtWidgets import QApplication, QFocusFrame, QWidget
+
+    from lopside.window.focus import FOCUS_RULE, FOCUS_WIDTH_PX, wants_frame
+
+    w = make_window(invented_review())
+    w.activateWindow()
+    assert "border" in FOCUS_RULE and FOCUS_WIDTH_PX >= 2
+    frame = w.focus_tracker.frame
+    assert isinstance(frame, QFocusFrame) and FOCUS_RULE in frame.styleSheet()
+    controls = 0
+    for li in range(w.left.count()):
+        w.left.setCurrentIndex(li)
+        for vi in range(w.views.count()):
+            w.views.setCurrentIndex(vi)
+            w.refresh_all_views()
+            for c in w.findChildren(QWidget):
+                if not (c.isVisible() and c.focusPolicy() & Qt.TabFocus) or c is frame:
+                    continue
+                assert wants_frame(c)
+                c.setFocus(Qt.TabFocusReason)
+                QApplication.processEvents()
+                if QApplication.focusWidget() is not c:
+                    w.focus_tracker.follow(c)  # offscreen focus can lag: place it directly
+                assert frame.widget() is c, type(c).__name__
+                assert frame.isVisible()
+                controls += 1
+    assert controls > 40

@@ -271,6 +271,9 @@ class MainWindow(QMainWindow):
         self.autosaver = Autosaver(self.session, parent=self) if autosave else None
         self._update_title()
         self._set_tab_order()
+        from .focus import FocusTracker
+
+        self.focus_tracker = FocusTracker(self)
 
     # ------------------------------------------------------------------ menus
 
@@ -302,7 +305,7 @@ class MainWindow(QMainWindow):
         self.recent_menu.aboutToShow.connect(self._fill_recent)
         f.addSeparator()
         self.act_save = self._action("&Save", self.save, QKeySequence.Save)
-        self.act_save_as = self._action("Save &as\u2026", self.save_as, QKeySequence.SaveAs)
+        self.act_save_as = self._action("Sa&ve as\u2026", self.save_as, QKeySequence.SaveAs)
         f.addAction(self.act_save)
         f.addAction(self.act_save_as)
         f.addSeparator()
@@ -336,9 +339,9 @@ class MainWindow(QMainWindow):
             self._action("&Paste rows from a paper\u2026", self.open_paste_dialog, "Ctrl+Shift+V")
         )
         e.addAction(self._action("&Add a row", s.add_row, "Ctrl+Shift+N"))
-        e.addAction(self._action("D&uplicate rows", s.duplicate_rows, "Ctrl+D"))
+        e.addAction(self._action("Dupli&cate rows", s.duplicate_rows, "Ctrl+D"))
         e.addAction(self._action("&Delete rows", s.delete_rows, "Ctrl+Shift+Del"))
-        e.addAction(self._action("Move row &up", lambda: s.move_current(-1), "Ctrl+Shift+Up"))
+        e.addAction(self._action("Mo&ve row up", lambda: s.move_current(-1), "Ctrl+Shift+Up"))
         e.addAction(self._action("Move row do&wn", lambda: s.move_current(1), "Ctrl+Shift+Down"))
         e.addAction(self._action("&Leave out / bring back", s.toggle_exclude, "Ctrl+E"))
 
