@@ -38,6 +38,7 @@ from . import prefs as P
 from .autosave import Autosaver, Recoverable, find_recoverable
 from .causes import CausesPanel
 from .details_form import DetailsForm
+from .errors import details, plain, show_error
 from .paste_dialog import PasteDialog
 from .plots import CompanionPanel, ForestPanel, FunnelPanel
 from .power_panel import PowerPanel
@@ -182,6 +183,7 @@ class MainWindow(QMainWindow):
         self.analysis_error = ""
         self.sheet_worker: SheetWorker | None = None
         self.last_message = ""
+        self.last_error: tuple[str, str, str] | None = None
         self._closing_ok = False
 
         self.setWindowTitle("Lopside")
@@ -563,7 +565,8 @@ class MainWindow(QMainWindow):
             self.analysis_error = M.NOT_AVAILABLE.format(part=exc.name)
         except Exception as exc:  # noqa: BLE001 - shown to the user; the window stays up
             result = None
-            self.analysis_error = M.ANALYSIS_FAILED.format(error=f"{type(exc).__name__}: {exc}")
+            self.analysis_error = M.ANALYSIS_FAILED.format(error=plain(str(exc)))
+            self.last_error = (M.ANALYSIS_FAILED_TITLE, self.analysis_error, details(exc))
         if result is not None and result is self.result:
             # nothing changed since the last update (e.g. the debounce after a cached
             # state): only a view shown since then may need catching up
@@ -723,16 +726,16 @@ class MainWindow(QMainWindow):
         return True
 
     def _open_failed(self, p: Path, exc: Exception) -> None:
-        msg = M.OPEN_FAILED.format(name=p.name, error=exc)
+        # plain words in the dialog; the file's path and the exception behind "Show details"
+        msg = M.OPEN_FAILED.format(name=p.name, error=plain(str(exc), p.name, str(p)))
         self.say(msg, 15000)
-        QTimer.singleShot(
-            0,
-            lambda: (
-                QMessageBox.warning(self, "Could not open", msg)
-                if self.isVisible() and not _headless()
-                else None
-            ),
-        )
+        self._error_dialog(M.OPEN_FAILED_TITLE, msg, details(exc, f"File: {p}"))
+
+    def _error_dialog(self, title: str, text: str, detail: str) -> None:
+        """Show an error box (not in headless runs); the last one is kept for tests."""
+        self.last_error = (title, text, detail)
+        if self.isVisible() and not _headless():
+            QTimer.singleShot(0, lambda: show_error(self, title, text, detail))
 
     def save(self) -> bool:
         self.causes.flush()
@@ -755,7 +758,11 @@ class MainWindow(QMainWindow):
         try:
             saved = self.session.save(path)
         except (OSError, ValueError) as exc:
-            self.say(M.SAVE_FAILED.format(name=Path(path).name, error=exc), 15000)
+            msg = M.SAVE_FAILED.format(
+                name=Path(path).name, error=plain(str(exc), Path(path).name, str(path))
+            )
+            self.say(msg, 15000)
+            self._error_dialog(M.SAVE_FAILED_TITLE, msg, details(exc, f"File: {path}"))
             return False
         self.stack.mark_clean()
         self.prefs.add_recent(saved)
@@ -804,7 +811,7 @@ class MainWindow(QMainWindow):
                 return None
         w = SheetWorker(self.result, path, parent=self)
         w.finished_with.connect(self._sheet_done)
-        w.failed.connect(lambda msg: self.say(M.SHEET_FAILED.format(error=msg), 15000))
+        w.failed.connect(lambda msg: self.say(M.SHEET_FAILED.format(error=plain(msg)), 15000))
         self.sheet_worker = w
         self.say("Writing the appraisal sheet\u2026", 0)
         w.start()
@@ -854,7 +861,7 @@ class MainWindow(QMainWindow):
                 return False
             save_figure(fig, path)
         except (OSError, ValueError) as exc:
-            self.say(M.SHEET_FAILED.format(error=exc))
+            self.say(M.SHEET_FAILED.format(error=plain(str(exc), str(path))))
             return False
         self.say(M.EXPORTED_FIGURE.format(path=path))
         return True

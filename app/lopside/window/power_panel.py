@@ -103,7 +103,9 @@ class PowerPanel(QWidget):
 
     def _failed(self, message: str) -> None:
         self._reset_buttons()
-        self.state.setText(M.ANALYSIS_FAILED.format(error=message))
+        from .errors import plain
+
+        self.state.setText(M.ANALYSIS_FAILED.format(error=plain(message)))
 
     def _reset_buttons(self) -> None:
         self.run_button.setEnabled(True)

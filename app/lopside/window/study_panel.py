@@ -351,6 +351,8 @@ class StudyPanel(QWidget):
                 # the row checks already name the row and field; other messages get both
                 text = p.message if p.message.startswith("Row ") else f"{where}: {p.message}"
                 item = QListWidgetItem(f"{mark} {text}")
+                if p.detail:
+                    item.setToolTip(p.detail)
                 item.setData(Qt.UserRole, (r, p.field))
                 self.problems.addItem(item)
                 n += 1
