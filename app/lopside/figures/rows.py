@@ -108,7 +108,7 @@ def draw_rows(
         col_w.append(max(widths) / 72.0)
     numeric_w = sum(col_w) + gap_pt / 72.0 * (len(columns) + 1)
     # the plot keeps at least a third of the width: a forest plot is read by its picture
-    plot_min = (0.36 if W < 4.5 else 0.40) * W
+    plot_min = (0.36 if W < 6.5 else 0.40) * W
     label_natural = (
         max(
             [text_width_pt(label_header, fs, "bold")]

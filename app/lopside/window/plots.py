@@ -567,7 +567,11 @@ class BuiltFigurePanel(FigurePanel):
         self.figure = fig
         # the size the builder laid out for; the canvas's resize events must not change it
         self._fig_inches = tuple(float(v) for v in fig.get_size_inches())
-        fig.set_dpi(SCREEN_DPI * (self.devicePixelRatioF() or 1.0))
+        # matplotlib's Qt canvas multiplies the figure's original dpi by the screen's
+        # pixel ratio (1.25 at 125 %); the original must be SCREEN_DPI, the dpi the
+        # canvas is sized for, or the figure is drawn larger than its widget and cut
+        fig.set_dpi(SCREEN_DPI)
+        fig._original_dpi = SCREEN_DPI  # noqa: SLF001 - read by matplotlib's canvas
         canvas = FigureCanvasQTAgg(fig)
         self.scroll.setWidget(canvas)
         self.figure_canvas = canvas
@@ -579,8 +583,6 @@ class BuiltFigurePanel(FigurePanel):
         if c is None or self.figure is None:
             return
         w, h = getattr(self, "_fig_inches", None) or self.figure.get_size_inches()
-        ratio = c.devicePixelRatioF() or 1.0
-        self.figure.set_dpi(SCREEN_DPI * ratio)
         c.setFixedSize(round(w * SCREEN_DPI), round(h * SCREEN_DPI))
         self.figure.set_size_inches(w, h, forward=False)
 

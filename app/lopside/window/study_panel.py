@@ -310,7 +310,9 @@ class StudyPanel(QWidget):
             cols = [(m.column_of(k), COLUMN_LIMITS[k][0]) for k in ELASTIC]
             slack = {c: want[c] - lo for c, lo in cols if c >= 0 and want[c] > lo}
             total = sum(slack.values())
-            if over > 0 and total > 0:
+            # shrink only when that makes the table fit: if it must scroll sideways
+            # anyway (a narrow panel at 125 %), the names keep their full width
+            if 0 < over <= total:
                 # each elastic column gives in proportion to what it has above its minimum
                 share = min(1.0, over / total)
                 for c, extra in slack.items():
