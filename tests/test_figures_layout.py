@@ -224,3 +224,34 @@ def test_how_to_read_lines_under_radial_and_cumulative():
     )
     texts = " ".join(t.get_text().replace("\n", " ") for t in cum.texts)
     assert READ_CUMULATIVE in texts
+
+
+def test_plot_command_draws_forest_and_cumulative_at_page_width_by_default(tmp_path):
+    """`lopside plot --kind forest` with no --size: the 180 mm page width, 30 long names."""
+    from PIL import Image
+
+    from lopside.cli import main
+    from lopside.figures.style import SIZES
+    from lopside.model import project_file
+    from lopside.model.review import Review, ReviewDetails, StudyRow
+
+    rows, _pooled = thirty_long()
+    studies = tuple(
+        StudyRow(
+            study=r.label,
+            estimate=round(math.exp(r.estimate), 3),
+            lower=round(math.exp(r.ci_low), 3),
+            upper=round(math.exp(r.ci_high), 3),
+        )
+        for r in rows
+    )
+    path = tmp_path / "thirty.lopside"
+    project_file.save(
+        Review(details=ReviewDetails(title="Invented", measure="OR"), studies=studies), path
+    )
+    for kind, size in (("forest", "page"), ("cumulative", "page"), ("funnel", "column")):
+        out = tmp_path / f"{kind}.png"
+        assert main(["plot", str(path), "--kind", kind, "-o", str(out)]) == 0
+        with Image.open(out) as im:
+            dpi = im.info.get("dpi", (300, 300))[0]
+            assert im.size[0] / dpi == pytest.approx(SIZES[size].width, rel=0.02), kind
