@@ -255,3 +255,10 @@ def test_plot_command_draws_forest_and_cumulative_at_page_width_by_default(tmp_p
         with Image.open(out) as im:
             dpi = im.info.get("dpi", (300, 300))[0]
             assert im.size[0] / dpi == pytest.approx(SIZES[size].width, rel=0.02), kind
+
+
+def test_a_wrapped_cumulative_label_keeps_its_plus_with_the_name():
+    from lopside.figures.rows import Row, _wrap_label
+
+    r = _wrap_label(Row("point", label="+ Nakamura-Ellis multicentre 2005"), 60.0, 8.5)
+    assert r.label.split("\n")[0].startswith("+ Nakamura")

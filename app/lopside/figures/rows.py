@@ -510,6 +510,8 @@ def _wrap_label(r: Row, room_pt: float, fs: float) -> Row:
     if not r.label or text_width_pt(r.label, fs, weight) <= room_pt or r.kind == "header":
         return r
     words = r.label.split()
+    if len(words) > 2 and len(words[0]) == 1 and not words[0].isalnum():
+        words = [f"{words[0]} {words[1]}", *words[2:]]  # "+ Name" stays together
     if len(words) < 2:
         return r
     # the longest first line that fits; the rest (with the year) on the second

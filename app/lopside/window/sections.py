@@ -101,8 +101,8 @@ class SectionsPanel(QWidget):
         self.browser.setOpenExternalLinks(False)
         self.browser.setAccessibleName(name)
         self.browser.document().setDefaultStyleSheet(_CSS)
-        # break lines between words only: "Studies" must not become "Studie / s"
-        self.browser.setWordWrapMode(QTextOption.WordWrap)
+        # words break only where one is longer than its column (headers never: nowrap)
+        self.browser.setWordWrapMode(QTextOption.WrapAtWordBoundaryOrAnywhere)
         lay.addWidget(self.browser)
         self._shown_for = None
         self.html = ""
