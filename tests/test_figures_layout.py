@@ -262,3 +262,21 @@ def test_a_wrapped_cumulative_label_keeps_its_plus_with_the_name():
 
     r = _wrap_label(Row("point", label="+ Nakamura-Ellis multicentre 2005"), 60.0, 8.5)
     assert r.label.split("\n")[0].startswith("+ Nakamura")
+
+
+@pytest.mark.parametrize("width", [4.2, 5.5, 7.0])
+def test_linear_ticks_of_a_narrow_cumulative_plot_never_touch(width):
+    from lopside.figures.companions import CumulativeInput, CumulativeStep, cumulative_figure
+
+    steps = tuple(
+        CumulativeStep(
+            f"Trial {i} 20{10 + i}", -3.2 - 0.35 * i, -8.0 + 0.1 * i, 1.6 - 0.6 * i, i + 1
+        )
+        for i in range(12)
+    )
+    fig = cumulative_figure(CumulativeInput(steps, "MD"), size="page", width=width)
+    r = _renderer(fig)
+    boxes = _tick_boxes(fig.lopside_artists["ax"], r)
+    assert len(boxes) >= 2
+    for (ta, a), (tb, b) in zip(boxes, boxes[1:]):
+        assert b.x0 - a.x1 >= 2, f"tick labels {ta!r} and {tb!r} touch"

@@ -218,9 +218,13 @@ def tick_fit_check(lo: float, hi: float, axis_pt: float, font_pt: float, natural
 
     def fits(values) -> bool:
         pos = [math.log(v) if natural else v for v in values]
-        widths = [
-            text_width_pt(format_tick_value(v) if natural else _plain(v), font_pt) for v in values
-        ]
+        if natural:
+            texts = [format_tick_value(v) for v in values]
+        else:
+            # matplotlib prints linear ticks with a common number of decimals ("−5.0")
+            decimals = max((len(f"{v:.6g}".partition(".")[2]) for v in values), default=0)
+            texts = [_plain(v, decimals) for v in values]
+        widths = [text_width_pt(t, font_pt) for t in texts]
         for i in range(len(values) - 1):
             gap = (pos[i + 1] - pos[i]) / (hi - lo) * axis_pt
             if gap < (widths[i] + widths[i + 1]) / 2 + 0.6 * font_pt:
@@ -230,8 +234,8 @@ def tick_fit_check(lo: float, hi: float, axis_pt: float, font_pt: float, natural
     return fits
 
 
-def _plain(v: float) -> str:
-    s = f"{v:g}"
+def _plain(v: float, decimals: int = 0) -> str:
+    s = f"{v:.{decimals}f}"
     return MINUS + s[1:] if s.startswith("-") else s
 
 
