@@ -460,7 +460,9 @@ def draw_rows(
                 lines_used = max(lines_used, row + 1)
                 y_off = ScaledTranslation(0, words_y - row * line_pt / 72.0, fig.dpi_scale_trans)
                 tr = blended_transform_factory(fig.dpi_scale_trans, ax.transAxes) + y_off
-                fit = fit_label(txt, plot_pt, fs_small)
+                # on a line of its own a phrase may run past the plot's other end
+                room_pt = (W - margin - plot_x0 if sign < 0 else plot_x1 - margin) * 72.0
+                fit = fit_label(txt, plot_pt if row == 0 and sign > 0 else room_pt, fs_small)
                 edge = plot_x0 if sign < 0 else plot_x1
                 t = _text(fig, edge, 0, fit, tr, fs_small, "left" if sign < 0 else "right")
                 fig.texts.append(t)
