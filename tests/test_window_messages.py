@@ -115,3 +115,30 @@ def test_subgroup_egger_on_few_studies_carries_the_caution(make_window):
     w.refresh_all_views()
     shown = " ".join(w.pooled.plain_text().split())
     assert " ".join(SMALL_SAMPLE_NOTE.split()) in shown
+
+
+#: width of the right-hand views on a 1366-pixel screen at 100 % (43 % of 1350, less frames)
+VIEWS_WIDTH_1366 = 560
+
+
+def test_summary_panels_do_not_scroll_sideways(qtbot):
+    from lopside.window import main_window as MW
+    from lopside.window.app import make_application
+    from lopside.window.sections import SectionsPanel
+
+    make_application()
+    result = analyse(_small_groups_review(), AnalysisSettings())
+    for name, build in (
+        ("Pooled", MW._pooled_sections),
+        ("Tests", MW._tests_sections),
+        ("Adjust", MW._adjust_sections),
+    ):
+        panel = SectionsPanel(name, build)
+        qtbot.addWidget(panel)
+        panel.resize(VIEWS_WIDTH_1366, 600)
+        panel.show()
+        qtbot.waitExposed(panel)
+        panel.show_result(result)
+        qtbot.wait(30)
+        assert panel.browser.horizontalScrollBar().maximum() == 0, name
+        assert "Studie\ns" not in panel.plain_text()

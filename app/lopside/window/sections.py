@@ -101,8 +101,9 @@ class SectionsPanel(QWidget):
         self.browser.setOpenExternalLinks(False)
         self.browser.setAccessibleName(name)
         self.browser.document().setDefaultStyleSheet(_CSS)
-        # words break only where one is longer than its column (headers never: nowrap)
-        self.browser.setWordWrapMode(QTextOption.WrapAtWordBoundaryOrAnywhere)
+        # break between words only: breaking inside them ("Studie / s") also left tables
+        # a pixel wider than the panel, so it scrolled sideways
+        self.browser.setWordWrapMode(QTextOption.WordWrap)
         lay.addWidget(self.browser)
         self._shown_for = None
         self.html = ""
