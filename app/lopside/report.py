@@ -17,22 +17,42 @@ import numpy as np
 from . import __version__
 from .stats.results import ConfidenceInterval, NotComputable, PooledEstimate
 
+#: per dataclass type: the names of the fields that plain() writes
+_FIELDS: dict[type, tuple[str, ...]] = {}
+
+
+def _field_names(cls: type) -> tuple[str, ...]:
+    names = _FIELDS.get(cls)
+    if names is None:
+        names = tuple(f.name for f in dataclasses.fields(cls) if not f.name.startswith("_"))
+        _FIELDS[cls] = names
+    return names
+
+
+def _plain_float(obj) -> float | None:
+    f = float(obj)
+    return f if math.isfinite(f) else None
+
 
 def plain(obj: Any) -> Any:
     """JSON-ready copy of a result: dataclasses to dicts, arrays to lists, NaN to None."""
+    t = type(obj)
+    # the common leaf types first (a large review has millions of them)
+    if t is float:
+        return obj if math.isfinite(obj) else None
+    if t is str or t is int or t is bool or obj is None:
+        return obj
     if isinstance(obj, NotComputable):
         return {"not_computable": obj.reason}
     if isinstance(obj, ConfidenceInterval):
         return {"low": plain(obj.low), "high": plain(obj.high)}
     if dataclasses.is_dataclass(obj) and not isinstance(obj, type):
         out = {}
-        for f in dataclasses.fields(obj):
-            if f.name.startswith("_"):
-                continue
-            value = getattr(obj, f.name)
+        for name in _field_names(t):
+            value = getattr(obj, name)
             if callable(value):
                 continue
-            out[f.name] = plain(value)
+            out[name] = plain(value)
         return out
     if isinstance(obj, dict):
         return {str(k): plain(v) for k, v in obj.items()}
@@ -43,13 +63,12 @@ def plain(obj: Any) -> Any:
     if isinstance(obj, np.ndarray):
         return [plain(v) for v in obj.tolist()]
     if isinstance(obj, (np.floating, float)):
-        f = float(obj)
-        return f if math.isfinite(f) else None
+        return _plain_float(obj)
     if isinstance(obj, (np.integer,)):
         return int(obj)
     if isinstance(obj, (np.bool_,)):
         return bool(obj)
-    if isinstance(obj, (str, int, bool)) or obj is None:
+    if isinstance(obj, (str, int, bool)):
         return obj
     if callable(obj):
         return None
@@ -95,6 +114,52 @@ def _get(obj, *names, default=None):
     return default
 
 
+def flagged_studies(result) -> list[dict[str, Any]]:
+    """``flagged_studies``: each row worth checking, with every reason and its numbers.
+
+    ``row`` counts table rows from 1; ``other_row`` (duplicates) likewise.
+    """
+    from .stats.diagnostics import KIND_TITLES, reason_text
+
+    flags = getattr(result, "row_flags", None)
+    if not flags or isinstance(flags, NotComputable):
+        return []
+    return [
+        {
+            "study": f.study,
+            "row": f.row + 1,
+            "reasons": [
+                {
+                    "kind": r.kind,
+                    "title": KIND_TITLES.get(r.kind, r.kind),
+                    "detail": r.detail,
+                    "check": r.check,
+                    "text": reason_text(r),
+                    "field": r.field,
+                    "other_row": None if r.other_row is None else r.other_row + 1,
+                    "numbers": plain(r.numbers),
+                }
+                for r in f.reasons
+            ],
+        }
+        for f in flags.flagged
+    ]
+
+
+def _influence(result) -> dict[str, Any] | None:
+    flags = getattr(result, "row_flags", None)
+    if isinstance(flags, NotComputable):
+        return {"not_computable": flags.reason}
+    inf = getattr(flags, "influence", None)
+    if inf is None:
+        return None
+    if isinstance(inf, NotComputable):
+        return {"not_computable": inf.reason}
+    out = plain(inf)
+    out["rows"] = [r + 1 for r in inf.rows]  # table rows counted from 1, like "studies"
+    return out
+
+
 def to_json(result) -> dict[str, Any]:
     """The ``check --json`` object."""
     nc: dict[str, str] = {}
@@ -119,6 +184,7 @@ def to_json(result) -> dict[str, Any]:
                 "how": getattr(d, "route_text", ""),
             }
         )
+    note("flagged_studies", getattr(result, "row_flags", None))
     note("pooled.fixed", result.fixed)
     note("pooled.random", result.random)
     het = note("heterogeneity", result.heterogeneity)
@@ -181,6 +247,8 @@ def to_json(result) -> dict[str, Any]:
         "studies": studies,
         "excluded": [plain(e) for e in result.excluded],
         "problems": [plain(p) for p in result.problems],
+        "flagged_studies": flagged_studies(result),
+        "influence": _influence(result),
         "pooled": {
             "fixed": _pooled(result.fixed, random=False),
             "random": _pooled(result.random, random=True),
@@ -222,6 +290,8 @@ def to_json(result) -> dict[str, Any]:
         "meta_regression": plain(result.meta_regression),
         "power": plain(result.power) if result.power is not None else None,
         "fingerprint_sha256": result.fingerprint,
+        # what was thinned or computed another way for a large review (never silent)
+        "notes": list(getattr(result, "notes", ())),
         "settings": result.settings.to_dict(),
     }
     out["not_computable"] = nc
