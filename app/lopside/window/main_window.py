@@ -442,9 +442,10 @@ class MainWindow(QMainWindow):
 
     def showEvent(self, event) -> None:  # noqa: N802 - Qt API
         super().showEvent(event)
-        if not getattr(self, "_placed_once", False):
+        if not getattr(self, "_placed_once", False) and not _headless():
             self._placed_once = True
-            # the real frame is known only now: pull a window that sticks out back in
+            # the window manager's real frame is known only now: pull a window that
+            # sticks out back in (headless platforms have no frame; place_window did it)
             QTimer.singleShot(0, lambda: keep_on_screen(self))
 
     # ------------------------------------------------------------------ start-up

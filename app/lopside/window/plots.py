@@ -367,6 +367,13 @@ class FunnelPanel(FigurePanel):
 
         opts = self.funnel_options(result)
         inp = adaptor(result, opts)
+        c = self.canvas
+        # the builder lays out the key for the figure's width: make it the size the canvas
+        # has (or, when just created, the area it will fill), not the size it was made with
+        host = c if c.isVisible() else self._stack_host
+        if host.width() > 50 and host.height() > 50:
+            px = (c.devicePixelRatioF() or 1.0) / self.figure.dpi
+            self.figure.set_size_inches(host.width() * px, host.height() * px, forward=False)
         self.figure.clear()
         # the builder puts the key below the axes as a figure legend when the layout engine
         # makes room for it: build under constrained layout, then fix the layout if known
