@@ -73,6 +73,25 @@ ABOUT_TEXT = (
     "<p>The sample reviews shipped with Lopside are invented for demonstration.</p>"
 )
 
+ASK_DECIMAL = (
+    "<p>Nothing in <b>{name}</b> shows whether a comma in these numbers is a decimal mark or "
+    "separates thousands. Which does the paper use?</p>"
+)
+
+NOT_READ_TIP = (
+    "This part of the input was not read, so it is not in the table. Add the study by hand "
+    "(or fix the line and paste it again)."
+)
+
+PASTE_MEASURE_WHY = "Assumed because {why}. Change it if the paper says otherwise."
+PASTE_MEASURE_OTHER = "The rows look like a {guess} ({why}); check the measure."
+PASTE_MEASURE_REVIEW = "The review's measure; change it if the pasted rows use another."
+PASTE_MEASURE_CHANGES = "Adding the rows sets the review's measure to {name}."
+PASTE_DECIMAL = (
+    "Nothing in the pasted text shows whether the comma in '{text}' is a decimal mark or "
+    "separates thousands. Which does the paper use?"
+)
+
 PDF_TITLE = "Rows from {name}"
 PDF_HELP = (
     "Pages are listed with the most study rows first. Every line found on the page is boxed: "
