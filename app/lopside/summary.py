@@ -119,7 +119,7 @@ def header_section(result, *, date: str = "") -> Section:
         ("Review", d.title or "(untitled review)"),
         ("Question", d.question or "(not stated)"),
         ("Outcome", d.outcome or "(not stated)"),
-        ("Effect measure", measure),
+        ("Effect measure", measure + (f"; units: {d.units}" if d.units else "")),
         ("Favours intervention", favours_text(d)),
         ("Appraiser", d.appraiser or "(not stated)"),
     ]
@@ -617,6 +617,16 @@ def sensitivity_section(result) -> Section:
     return Section("sensitivity", "Leave one out and cumulative analysis", tuple(rows), notes=notes)
 
 
+#: below this many studies a test for funnel asymmetry has too little power to be read
+#: (Sterne et al. 2011, BMJ: at least 10 studies; the main test's conditions use the same)
+SMALL_SAMPLE_K = 10
+SMALL_SAMPLE_MARK = " \u2020"
+SMALL_SAMPLE_NOTE = (
+    "\u2020 Fewer than 10 studies in this group: Egger's test has little power and its "
+    "p value can mislead either way; read it as a hint at most (Sterne et al. 2011)."
+)
+
+
 def subgroups_section(result) -> Section | None:
     """Pooled results and Egger's slope within each level, with the meta-regression answer."""
     if not result.subgroups and not result.meta_regression:
@@ -625,6 +635,7 @@ def subgroups_section(result) -> Section | None:
     rows: list[tuple[str, ...]] = []
     notes: list[str] = []
     names = {"risk_of_bias": "Risk of bias", "subgroup": "Subgroup"}
+    few_in_group = False
     for by, sg in result.subgroups.items():
         title = names.get(by, by)
         if not is_ok(sg):
@@ -633,6 +644,9 @@ def subgroups_section(result) -> Section | None:
         for lv in sg.levels:
             eg = lv.egger
             eg_text = f"{fmt_p(eg.pvalue)}" if is_ok(eg) else "–"
+            if is_ok(eg) and lv.k < SMALL_SAMPLE_K:
+                eg_text += SMALL_SAMPLE_MARK
+                few_in_group = True
             rows.append(
                 (
                     f"{title}: {lv.level}",
@@ -667,6 +681,8 @@ def subgroups_section(result) -> Section | None:
     notes.insert(
         0, "Egger p: Egger's test within the group; Difference: do the groups' effects differ?"
     )
+    if few_in_group:
+        notes.insert(1, SMALL_SAMPLE_NOTE)
     return Section(
         "subgroups",
         "Within subgroups",

@@ -6,7 +6,7 @@ Layout (version 1)::
       "lopside_project": 1,
       "saved_by": "Lopside 0.1.0",
       "details":  {title, question, outcome, measure, ci_level, favours, int_label,
-                   ctl_label, appraiser, source_note,
+                   ctl_label, appraiser, source_note, units (optional),
                    published: {estimate, lower, upper, model}},
       "studies":  [{study, year, estimate, ... , exclude, unread: {field: text}}, ...],
       "intake":   {source, not_read: [{kind, where, text, reason}], decimal_mark, ...},
@@ -159,6 +159,7 @@ def review_to_dict(review: Review, settings: dict[str, Any] | None = None) -> di
             "appraiser": d.appraiser,
             "source_note": d.source_note,
             "favours_source": d.favours_source,
+            "units": d.units,
             "published": {
                 "estimate": d.published.estimate,
                 "lower": d.published.lower,
@@ -474,6 +475,8 @@ def review_from_dict(doc: Any) -> tuple[Review, dict[str, Any]]:
         appraiser=_text(det.get("appraiser"), "details, appraiser"),
         source_note=_notes(det.get("source_note"), "details, source_note"),
         favours_source=_intake_part(favours_source_from, det.get("favours_source")),
+        # added later: files without it (all older ones) read as "no units"
+        units=_text(det.get("units"), "details, units"),
     )
     studies = doc.get("studies", [])
     if not isinstance(studies, list):

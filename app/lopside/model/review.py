@@ -191,6 +191,9 @@ class ReviewDetails:
     appraiser: str = ""
     #: free text shown on screen and on the sheet; invented demo reviews say so here
     source_note: str = ""
+    #: optional units of the outcome scale ("mmHg", "points on a 0-100 scale"), printed
+    #: on the effect axes and the sheet for mean differences
+    units: str = ""
     #: where ``favours`` came from (one of FAVOURS_SOURCES; "" = not recorded, older files)
     favours_source: str = ""
 

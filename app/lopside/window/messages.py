@@ -32,8 +32,11 @@ RECOVERED_CHANGED = (
     "Its autosave had been changed outside Lopside since it was written: check it before "
     "relying on it."
 )
-OPEN_FAILED = "Could not open {name}: {error}"
-SAVE_FAILED = "Could not save {name}: {error}"
+OPEN_FAILED = "Could not open {name}. {error}"
+OPEN_FAILED_TITLE = "Could not open the file"
+SAVE_FAILED = "Could not save {name}. {error}"
+SAVE_FAILED_TITLE = "Could not save"
+ANALYSIS_FAILED_TITLE = "The analysis could not be run"
 SAVED = "Saved {name}."
 AUTOSAVE_FAILED = "Autosave failed: {error}. Save the review to keep your changes."
 ANALYSING = "Analysing\u2026"
@@ -48,6 +51,8 @@ CELL_UNREAD_HINT = {
     "exclude": "yes or no",
     "p": "a P value such as 0.03 or <0.001",
 }
+#: added to a row check's message when that problem also keeps the study out
+LEFT_OUT = "The study is left out of the analysis until this is fixed."
 DETAIL_UNREAD = "“{text}” is not a number; the published result is not used until it is one."
 
 PASTE_TITLE = "Paste rows from a paper"
