@@ -51,7 +51,9 @@ def section_html(section) -> str:
     """One summary Section as an HTML block (title, table, notes)."""
     out = [f"<h3>{html.escape(section.title)}</h3>"]
     if section.rows:
-        out.append("<table width='100%'>")
+        # 99 %: at 100 % Qt's table layout can overflow its view by a pixel and show a
+        # horizontal scroll bar for nothing
+        out.append("<table width='99%'>")
         if section.header:
             out.append(
                 "<tr>" + "".join(f"<th nowrap>{_cell(h)}</th>" for h in section.header) + "</tr>"
