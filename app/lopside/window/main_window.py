@@ -713,9 +713,14 @@ class MainWindow(QMainWindow):
             QTimer.singleShot(0, self._start_worker)
 
     def _start_worker(self) -> None:
+        import shiboken6
+
         self._worker_starting = False
         w = self.analysis_worker
-        if w is not None and not w.isRunning() and not w.isFinished():
+        # the window may have closed (and its worker been deleted) before this queued start
+        if w is None or not shiboken6.isValid(w):
+            return
+        if not w.isRunning() and not w.isFinished():
             w.start()
 
     def _analysis_done(self, result, key) -> None:
