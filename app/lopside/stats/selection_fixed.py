@@ -1,0 +1,240 @@
+"""Fixed-weight selection models (Vevea & Woods 2005, Psychol Methods 10:428).
+
+The step-function selection model of :mod:`adjust_selection` (Vevea & Hedges 1995), but
+with the publication weights fixed a priori instead of estimated: only μ and τ² are fitted
+by maximum likelihood. Useful exactly where k is too small to estimate the weights: the
+adjusted estimate says what the pooled effect would be *if* selection were moderate or
+severe, one- or two-tailed.
+
+The four weight patterns below are Table 1 of Vevea & Woods (2005) **as recalled from
+memory** (methods.md 11.4). They could not be checked against the paper in this project;
+the sheet and the JSON say so (``WEIGHTS_PROVENANCE``). One-sided p-values are computed in
+the direction of the pooled estimate (small p = a large effect on that side), as in the
+fitted selection model.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from .data import StudyData
+from .results import NotComputable
+
+#: upper bounds of the one-sided p intervals (the last interval runs to 1)
+CUTPOINTS: tuple[float, ...] = (
+    0.005, 0.01, 0.05, 0.10, 0.25, 0.35, 0.50, 0.65, 0.75, 0.90, 0.95, 0.99, 0.995,
+)  # fmt: skip
+
+#: weights per interval, most significant first (14 intervals) - from memory
+PATTERNS: dict[str, tuple[float, ...]] = {
+    "moderate one-tailed": (
+        1, 0.99, 0.95, 0.90, 0.80, 0.75, 0.65, 0.60, 0.55, 0.50, 0.50, 0.50, 0.50, 0.50,
+    ),
+    "severe one-tailed": (
+        1, 0.99, 0.90, 0.75, 0.60, 0.50, 0.40, 0.35, 0.30, 0.25, 0.10, 0.10, 0.10, 0.10,
+    ),
+    "moderate two-tailed": (
+        1, 0.99, 0.95, 0.90, 0.80, 0.75, 0.60, 0.60, 0.75, 0.80, 0.90, 0.95, 0.99, 1,
+    ),
+    "severe two-tailed": (
+        1, 0.99, 0.90, 0.75, 0.60, 0.50, 0.25, 0.25, 0.50, 0.60, 0.75, 0.90, 0.99, 1,
+    ),
+}  # fmt: skip
+
+WEIGHTS_PROVENANCE = (
+    "weight patterns of Vevea & Woods (2005, Table 1) as recalled from memory; "
+    "not re-checked against the paper"
+)
+
+
+@dataclass(frozen=True, slots=True)
+class FixedWeightEstimate:
+    pattern: str
+    estimate: float
+    tau2: float
+    weights: tuple[float, ...]
+
+
+@dataclass(frozen=True, slots=True)
+class FixedWeightSelection:
+    """Adjusted estimates under each a priori weight pattern (analysis scale)."""
+
+    unadjusted: float  # ML random-effects estimate (all weights 1), for comparison
+    unadjusted_tau2: float
+    estimates: tuple[FixedWeightEstimate | NotComputable, ...]
+    patterns: tuple[str, ...]
+    cutpoints: tuple[float, ...]
+    direction: str
+    provenance: str = WEIGHTS_PROVENANCE
+    k: int = 0
+
+    def by_pattern(self) -> dict[str, FixedWeightEstimate | NotComputable]:
+        return dict(zip(self.patterns, self.estimates))
+
+
+class _Batch:
+    """Negative log-likelihood and exact gradient over (μ, τ²) for many weight sets at once.
+
+    Same likelihood as :class:`adjust_selection._Model` (Vevea & Hedges 1995, methods.md
+    5.4), vectorised over B parameter points so that the Newton steps of every pattern,
+    with their finite-difference stencils, cost one array evaluation.
+    """
+
+    def __init__(self, y: np.ndarray, se: np.ndarray, cutpoints: tuple[float, ...]):
+        from scipy.special import ndtr, ndtri
+
+        self.y, self.v = y, se**2
+        zc = ndtri(1.0 - np.asarray(cutpoints))  # interior bounds, decreasing
+        self.inner = se[:, None] * zc[None, :]  # k x (J-1)
+        p = ndtr(-y / se)
+        self.interval = np.searchsorted(np.asarray(cutpoints), p, side="left")
+        self._ndtr = ndtr
+
+    def __call__(self, mu: np.ndarray, t2: np.ndarray, logw: np.ndarray):
+        """f (B,), grad (B, 2) for B points; ``logw`` is B x J with logw[:, 0] = 0."""
+        st2 = self.v[None, :] + t2[:, None]
+        st = np.sqrt(st2)
+        r = self.y[None, :] - mu[:, None]
+        z2 = r * r / st2
+        omega = np.exp(logw)
+        a = (self.inner[None, :, :] - mu[:, None, None]) / st[:, :, None]  # B,k,J-1
+        cdf = self._ndtr(a)
+        pdf = np.exp(-0.5 * a * a) * (1.0 / math.sqrt(2.0 * math.pi))
+        apdf = a * pdf
+        dw = omega[:, 1:] - omega[:, :-1]  # B x (J-1): weight step at each inner bound
+        # A = Σ_j ω_j P_j = ω_1 + Σ_m (ω_{m+1} − ω_m) Φ(a_m) over the inner bounds
+        A = omega[:, :1] + np.einsum("bkm,bm->bk", cdf, dw)
+        dA_mu = -np.einsum("bkm,bm->bk", pdf, dw) / st
+        dA_t2 = -0.5 * np.einsum("bkm,bm->bk", apdf, dw) / st2
+        with np.errstate(divide="ignore", invalid="ignore"):
+            ll = (
+                -0.5 * np.log(2.0 * np.pi * st2)
+                - 0.5 * z2
+                + np.take_along_axis(logw, np.broadcast_to(self.interval, r.shape), axis=1)
+                - np.log(A)
+            )
+            g_mu = (r / st2 - dA_mu / A).sum(axis=1)
+            g_t2 = (0.5 * (z2 - 1.0) / st2 - dA_t2 / A).sum(axis=1)
+        f = -ll.sum(axis=1)
+        f[~np.isfinite(f) | np.any(A <= 0, axis=1)] = np.inf
+        return f, -np.stack([g_mu, g_t2], axis=1)
+
+
+def _newton_batch(model: _Batch, logw: np.ndarray, x0: np.ndarray, *, maxiter: int = 60):
+    """Damped Newton over (μ, τ² ≥ 0) for every weight set at once.
+
+    The Hessian is a forward difference of the exact gradient; a step that does not lower
+    the objective is halved at the next round (backtracking folded into the loop).
+    Returns (x, converged) with x of shape B x 2.
+    """
+    P = logw.shape[0]
+    x = np.array(x0, dtype=float)
+    x[:, 1] = np.maximum(x[:, 1], 0.0)
+    best_x = x.copy()
+    best_f = np.full(P, np.inf)
+    step = np.zeros_like(x)
+    done = np.zeros(P, dtype=bool)
+    lw3 = np.repeat(logw, 3, axis=0)
+    for _ in range(maxiter):
+        h = 1e-6 * np.maximum(1.0, np.abs(x))
+        pts = np.repeat(x, 3, axis=0)
+        pts[1::3, 0] += h[:, 0]
+        pts[2::3, 1] += h[:, 1]
+        f3, g3 = model(pts[:, 0], pts[:, 1], lw3)
+        f, g = f3[0::3], g3[0::3]
+        worse = ~(f <= best_f + 1e-13 * np.abs(best_f)) & np.isfinite(best_f)
+        # accept the improved points; halve the step of the others from their best point
+        ok = ~worse
+        best_x[ok], best_f[ok] = x[ok], f[ok]
+        H = np.empty((P, 2, 2))
+        H[:, :, 0] = (g3[1::3] - g) / h[:, :1]
+        H[:, :, 1] = (g3[2::3] - g) / h[:, 1:]
+        H = 0.5 * (H + np.transpose(H, (0, 2, 1)))
+        active = ~done
+        back = active & worse
+        step[back] *= 0.5
+        done |= back & (np.max(np.abs(step), axis=1) < 1e-14)
+        fwd = active & ~worse
+        at_bound = (x[:, 1] <= 0.0) & (g[:, 1] > 0)
+        gfree = np.where(at_bound, 0.0, g[:, 1])
+        conv = np.maximum(np.abs(g[:, 0]), np.abs(gfree)) < 1e-9 * np.maximum(1.0, np.abs(f))
+        done |= fwd & conv
+        fwd &= ~conv
+        h00, h01, h11 = H[:, 0, 0], H[:, 0, 1], H[:, 1, 1]
+        det = h00 * h11 - h01 * h01
+        with np.errstate(divide="ignore", invalid="ignore"):
+            full = np.stack([-(h11 * g[:, 0] - h01 * g[:, 1]) / det,
+                             -(h00 * g[:, 1] - h01 * g[:, 0]) / det], axis=1)  # fmt: skip
+            mu_only = np.stack([-g[:, 0] / h00, np.zeros(P)], axis=1)
+        gmax = np.maximum(1.0, np.max(np.abs(g), axis=1))[:, None]
+        descent = -np.stack([g[:, 0], gfree], axis=1) / gmax
+        newton_ok = np.where(at_bound, h00 > 0, (h00 > 0) & (det > 0))
+        s_new = np.where(at_bound[:, None], mu_only, full)
+        s_new = np.where(newton_ok[:, None] & np.isfinite(s_new), s_new, descent)
+        step[fwd] = s_new[fwd]
+        move = active & ~done
+        x[move] = best_x[move] + step[move]
+        x[:, 1] = np.maximum(x[:, 1], 0.0)
+        done |= move & (np.max(np.abs(x - best_x), axis=1) < 1e-13)
+        if done.all():
+            break
+    return best_x, done
+
+
+def fixed_weight_selection(
+    data: StudyData,
+    *,
+    pooled_estimate: float,
+    patterns: dict[str, tuple[float, ...]] | None = None,
+) -> FixedWeightSelection | NotComputable:
+    """Adjusted estimates under the Vevea & Woods a priori weight patterns.
+
+    ``pooled_estimate`` (the uncorrected random-effects estimate) sets the direction of
+    the one-sided p-values. Each pattern is fitted by ML over μ and τ² ≥ 0.
+    """
+    patterns = PATTERNS if patterns is None else patterns
+    y = np.asarray(data.y, dtype=float)
+    se = np.asarray(data.se, dtype=float)
+    k = y.size
+    if k < 2:
+        return NotComputable("the fixed-weight selection models need at least two studies")
+    if not math.isfinite(pooled_estimate):
+        return NotComputable("the uncorrected pooled estimate is not available")
+    sign = -1.0 if pooled_estimate < 0 else 1.0
+    direction = "negative" if sign < 0 else "positive"
+    model = _Batch(sign * y, se, CUTPOINTS)
+    names = ["(unadjusted)", *patterns]
+    logw = np.zeros((len(names), len(CUTPOINTS) + 1))
+    for i, name in enumerate(patterns, start=1):
+        w = tuple(float(x) for x in patterns[name])
+        if len(w) != len(CUTPOINTS) + 1 or w[0] != 1.0 or min(w) <= 0:
+            raise ValueError(f"pattern {name!r} needs {len(CUTPOINTS) + 1} weights, first 1")
+        logw[i] = np.log(w)
+    # start every pattern at the uncorrected estimate with the moment τ² of the data
+    start = np.tile(
+        [sign * pooled_estimate, max(0.0, float(np.var(y) - np.mean(se**2)))], (len(names), 1)
+    )
+    x, ok = _newton_batch(model, logw, start)
+    if not ok[0]:
+        return NotComputable("the random-effects likelihood could not be maximised")
+    estimates: list[FixedWeightEstimate | NotComputable] = []
+    for i, name in enumerate(names[1:], start=1):
+        if not ok[i]:
+            estimates.append(
+                NotComputable(f"the {name} pattern: the likelihood maximisation did not converge")
+            )
+            continue
+        w = tuple(float(t) for t in patterns[name])
+        estimates.append(FixedWeightEstimate(name, sign * float(x[i, 0]), float(x[i, 1]), w))
+    return FixedWeightSelection(
+        unadjusted=sign * float(x[0, 0]),
+        unadjusted_tau2=float(x[0, 1]),
+        estimates=tuple(estimates),
+        patterns=tuple(patterns),
+        cutpoints=CUTPOINTS,
+        direction=direction,
+        k=int(k),
+    )
