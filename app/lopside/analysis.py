@@ -70,6 +70,10 @@ class AnalysisResult:
     #: trim and fill under other estimator/model choices, keyed "L0, trim FE, fill RE" etc.
     trim_fill_variants: dict[str, Any] = field(default_factory=dict)
     power: Any = None
+    #: how strong selection would have to be (Mathur & VanderWeele 2020)
+    selection_sensitivity: Any = None
+    #: adjusted estimates under a priori selection weights (Vevea & Woods 2005)
+    selection_fixed_weights: Any = None
     fingerprint: str = ""
     notes: tuple[str, ...] = field(default_factory=tuple)
 
@@ -217,6 +221,30 @@ def _safe(fn, *args, **kw):
         )
 
 
+def _selection_block(data: StudyData, random, settings: AnalysisSettings):
+    """Sensitivity to selection and the fixed-weight selection models, both read off the
+    main random-effects estimate (its side defines "affirmative"; its τ² is held fixed)."""
+    from .stats.selection_fixed import fixed_weight_selection
+    from .stats.selection_sensitivity import DEFAULT_ETAS, selection_sensitivity
+
+    if not isinstance(random, PooledEstimate):
+        why = NotComputable("needs the random-effects pooled estimate, which is not available")
+        return why, why
+    etas = DEFAULT_ETAS
+    extra = settings.selection_eta
+    if extra is not None and math.isfinite(extra) and extra >= 1:
+        etas = (*DEFAULT_ETAS, float(extra))
+    sens = _safe(
+        selection_sensitivity,
+        data,
+        pooled_estimate=random.estimate,
+        tau2=random.tau2,
+        etas=etas,
+    )
+    fixed_w = _safe(fixed_weight_selection, data, pooled_estimate=random.estimate)
+    return sens, fixed_w
+
+
 def analyse(
     review: Review,
     settings: AnalysisSettings | None = None,
@@ -346,6 +374,7 @@ def _analyse(review, settings, *, with_power, power_progress) -> AnalysisResult:
     limit = _safe(adjust.limit_meta_analysis, data, tau2_method=settings.tau2_method)
     selection = _safe(adjust.selection_model, data, cutpoints=settings.selection_cutpoints)
     failsafe = _safe(sensitivity.fail_safe_n, data, trivial=settings.orwin_trivial)
+    sel_sens, sel_fixed = _selection_block(data, random, settings)
 
     subgroups: dict[str, Any] = {}
     meta_reg: dict[str, Any] = {}
@@ -403,5 +432,7 @@ def _analyse(review, settings, *, with_power, power_progress) -> AnalysisResult:
         subgroups=subgroups,
         meta_regression=meta_reg,
         power=power,
+        selection_sensitivity=sel_sens,
+        selection_fixed_weights=sel_fixed,
         fingerprint=fingerprint(review, measure),
     )

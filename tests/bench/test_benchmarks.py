@@ -94,6 +94,21 @@ def test_bare_pooling(benchmark, keep, reviews, k):
     assert out.estimate == pytest.approx(result.random_by_method["REML"].estimate, rel=1e-12)
 
 
+def test_selection_block(benchmark, keep, reviews):
+    # issue 20: sensitivity to selection + the four fixed-weight selection models, the part
+    # of analyse() they add; target <= 10 % of analyse() at 30 studies (ratio below)
+    from lopside.analysis import _selection_block
+
+    _, result = reviews[30]
+    benchmark.group = "analyse k=30"
+    sens, fixed_w = benchmark.pedantic(
+        _selection_block, args=(result.data, result.random, result.settings), rounds=30,
+        iterations=1,
+    )  # fmt: skip
+    keep("selection-block-30")
+    assert sens.affirmative + sens.nonaffirmative == 30 and len(fixed_w.estimates) == 4
+
+
 def _loo_by_subsets(y, v):
     """Leave-one-out the plain way (what the batch replaced): per subset the fixed-effect
     and REML random-effects pooling and Cochran's Q."""
