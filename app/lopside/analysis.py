@@ -74,6 +74,9 @@ class AnalysisResult:
     selection_sensitivity: Any = None
     #: adjusted estimates under a priori selection weights (Vevea & Woods 2005)
     selection_fixed_weights: Any = None
+    #: trials known to be missing (reported = no): pooled estimate had they reported
+    #: (None when the table has no such row)
+    unreported_trials: Any = None
     fingerprint: str = ""
     notes: tuple[str, ...] = field(default_factory=tuple)
 
@@ -109,6 +112,12 @@ def fingerprint(review: Review, measure: str) -> str:
     return hashlib.sha256(payload.encode("ascii")).hexdigest()
 
 
+UNREPORTED_REASON = (
+    "a trial that never reported its results: not in the main analysis, only in the "
+    "missing-trial scenarios"
+)
+
+
 def _nan_array(values) -> np.ndarray:
     return np.array([np.nan if v is None else float(v) for v in values], dtype=float)
 
@@ -120,7 +129,9 @@ def build_study_data(review: Review, measure: str, derived) -> tuple[StudyData, 
     for i, (row, d) in enumerate(zip(review.studies, derived)):
         label = row.study or f"Row {i + 1}"
         usable = d.y is not None and d.se is not None and math.isfinite(d.y) and d.se > 0
-        if row.exclude:
+        if not row.reported:
+            excluded.append(ExcludedStudy(i, label, UNREPORTED_REASON))
+        elif row.exclude:
             excluded.append(
                 ExcludedStudy(
                     i,
@@ -243,6 +254,31 @@ def _selection_block(data: StudyData, random, settings: AnalysisSettings):
     )
     fixed_w = _safe(fixed_weight_selection, data, pooled_estimate=random.estimate)
     return sens, fixed_w
+
+
+def _unreported_block(review: Review, data: StudyData, random, settings: AnalysisSettings):
+    """Scenarios for the trials marked as never reported (None when there are none)."""
+    rows = [i for i, r in enumerate(review.studies) if not r.reported]
+    if not rows:
+        return None
+    from .stats.unreported import sizes_of, unreported_trials
+
+    with_size = [i for i in rows if sizes_of([review.studies[i]])]
+    if not with_size:
+        return NotComputable(
+            f"{len(rows)} trial(s) marked as never reported, but none has its size entered"
+        )
+    if not isinstance(random, PooledEstimate):
+        return NotComputable("needs the random-effects pooled estimate, which is not available")
+    return _safe(
+        unreported_trials,
+        data,
+        sizes_of([review.studies[i] for i in with_size]),
+        tuple(with_size),
+        random,
+        tau2_method=settings.tau2_method,
+        rows_without_size=tuple(i for i in rows if i not in with_size),
+    )
 
 
 def analyse(
@@ -375,6 +411,7 @@ def _analyse(review, settings, *, with_power, power_progress) -> AnalysisResult:
     selection = _safe(adjust.selection_model, data, cutpoints=settings.selection_cutpoints)
     failsafe = _safe(sensitivity.fail_safe_n, data, trivial=settings.orwin_trivial)
     sel_sens, sel_fixed = _selection_block(data, random, settings)
+    missing = _unreported_block(review, data, random, settings)
 
     subgroups: dict[str, Any] = {}
     meta_reg: dict[str, Any] = {}
@@ -434,5 +471,6 @@ def _analyse(review, settings, *, with_power, power_progress) -> AnalysisResult:
         power=power,
         selection_sensitivity=sel_sens,
         selection_fixed_weights=sel_fixed,
+        unreported_trials=missing,
         fingerprint=fingerprint(review, measure),
     )

@@ -207,6 +207,8 @@ def cell_text(row: StudyRow, field: str) -> str:
         return getattr(row, field) or ""
     if field == "exclude":
         return "yes" if row.exclude else ""
+    if field == "reported":
+        return "" if row.reported else "no"
     if field in NUMERIC_FIELDS:
         return format_number(getattr(row, field))
     raise EditError(f"'{field}' is not a column of the study table.")
@@ -253,6 +255,13 @@ def set_cell(row: StudyRow, field: str, text: str) -> StudyRow:
                 if s.casefold() == level:
                     value = level
         return replace(row, **{field: value}, unread=clean)
+    if field == "reported":
+        low = s.casefold()
+        if not low or low in ("yes", "y", "true", "1", "reported"):
+            return replace(row, reported=True, unread=clean)
+        if low in ("no", "n", "false", "0", "not reported", "unreported", "missing"):
+            return replace(row, reported=False, unread=clean)
+        return replace(row, reported=True, unread=_with_unread(row, field, raw))
     if field == "exclude":
         low = s.casefold()
         if low in _TRUE_WORDS:

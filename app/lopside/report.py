@@ -196,6 +196,34 @@ def fixed_weights_json(res) -> dict[str, Any] | None:
     }
 
 
+def unreported_json(res) -> dict[str, Any] | None:
+    """``unreported_trials`` (issue 20); None when no row is marked reported = no."""
+    if res is None:
+        return None
+    if isinstance(res, NotComputable):
+        return {"count": None, "participants": None, "scenarios": [], "reason": res.reason}
+    return {
+        "count": res.count,
+        "participants": _num(res.participants),
+        "rows": [r + 1 for r in res.rows],
+        "se": [_num(s) for s in res.se],
+        "rows_without_size": [r + 1 for r in res.rows_without_size],
+        "se_rule": res.se_rule,
+        "reported_estimate": _num(res.reported_estimate),
+        "scenarios": [
+            {
+                "assumed": s.assumed,
+                "assumed_estimate": _num(s.assumed_value),
+                "estimate": _num(s.pooled.estimate),
+                "ci_low": _num(s.pooled.ci.low),
+                "ci_high": _num(s.pooled.ci.high),
+                "tau2": _num(s.pooled.tau2),
+            }
+            for s in res.scenarios
+        ],
+    }
+
+
 def to_json(result) -> dict[str, Any]:
     """The ``check --json`` object."""
     nc: dict[str, str] = {}
@@ -327,5 +355,8 @@ def to_json(result) -> dict[str, Any]:
         "fingerprint_sha256": result.fingerprint,
         "settings": result.settings.to_dict(),
     }
+    missing = unreported_json(result.unreported_trials)
+    if missing is not None:
+        out["unreported_trials"] = missing
     out["not_computable"] = nc
     return out

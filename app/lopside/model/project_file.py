@@ -318,7 +318,17 @@ def _settings(doc: Any) -> dict[str, Any]:
 
 
 _STUDY_KEYS = frozenset(
-    {"study", "year", "p_bound", "risk_of_bias", "subgroup", "exclude", "unread", *NUMERIC_FIELDS}
+    {
+        "study",
+        "year",
+        "p_bound",
+        "risk_of_bias",
+        "subgroup",
+        "exclude",
+        "reported",
+        "unread",
+        *NUMERIC_FIELDS,
+    }  # fmt: skip
 )
 _TABLE_KEYS = frozenset(TABLE_COLUMNS)
 
@@ -356,6 +366,10 @@ def _study(obj: Any, i: int) -> StudyRow:
     if not isinstance(ex, bool):
         raise ProjectFileError(f"{where}, exclude: expected true or false.")
     kw["exclude"] = ex
+    rep = obj.get("reported", True)
+    if not isinstance(rep, bool):
+        raise ProjectFileError(f"{where}, reported: expected true or false.")
+    kw["reported"] = rep
     unread = obj.get("unread", {})
     if not isinstance(unread, dict):
         raise ProjectFileError(f"{where}, unread: expected an object of field: text.")

@@ -67,6 +67,7 @@ TABLE_COLUMNS: tuple[str, ...] = (
     "risk_of_bias",
     "subgroup",
     "exclude",
+    "reported",
 )
 
 
@@ -103,6 +104,10 @@ class StudyRow:
     risk_of_bias: str | None = None
     subgroup: str | None = None
     exclude: bool = False
+    #: False for a trial known to exist (registered, presented, listed as ongoing) that
+    #: never reported results: only its size is entered, and it enters only the
+    #: missing-trial scenarios, never the main analysis
+    reported: bool = True
     #: field name -> text the user typed that could not be read (kept, never lost)
     unread: tuple[tuple[str, str], ...] = ()
 
@@ -151,6 +156,8 @@ class StudyRow:
                     out["unread"] = dict(value)
                 continue
             if value is None or (f.name == "exclude" and value is False):
+                continue
+            if f.name == "reported" and value is True:
                 continue
             out[f.name] = value
         return out
