@@ -41,6 +41,7 @@ CELL_UNREAD = "“{text}” could not be read as {what}. It is kept here; type {
 CELL_UNREAD_HINT = {
     "year": "a four-digit year",
     "exclude": "yes or no",
+    "reported": "no (a trial that never reported results) or leave it blank",
     "p": "a P value such as 0.03 or <0.001",
 }
 DETAIL_UNREAD = "“{text}” is not a number; the published result is not used until it is one."

@@ -33,6 +33,7 @@ COLUMN_WIDTHS = {
     "risk_of_bias": 108,
     "subgroup": 84,
     "exclude": 44,
+    "reported": 64,
     "_y": 64,
     "_se": 60,
 }
