@@ -312,3 +312,60 @@ def test_fixed_weight_two_studies():
     res = fixed_weight_selection(data([0.5, 0.1], [0.2, 0.3]), pooled_estimate=0.3)
     assert len(res.estimates) == 4
     assert all(not isinstance(e, NotComputable) for e in res.estimates)
+
+
+# --------------------------------------------------------- words and picture
+
+
+def _md_review():
+    from lopside.model.review import Review, ReviewDetails, StudyRow
+
+    rows = tuple(
+        StudyRow(study=f"Invented {i}", estimate=float(y), se=float(s))
+        for i, (y, s) in enumerate(zip(Y, SE), start=1)
+    )
+    return Review(details=ReviewDetails(measure="MD"), studies=rows)
+
+
+def test_figure_marks_the_s_values_on_the_null_line_and_follows_the_curve():
+    from matplotlib.figure import Figure
+
+    from lopside.analysis import analyse
+    from lopside.figures.selection import draw_selection_curve, selection_curve_input_from_result
+
+    res = analyse(_md_review())
+    model = res.selection_sensitivity.random
+    inp = selection_curve_input_from_result(res)
+    ax = Figure().add_subplot()
+    art = draw_selection_curve(ax, inp)
+    assert ax.get_xscale() == "log"
+    x, y = art["line"].get_data()
+    assert np.allclose(x, [c[0] for c in model.curve]) and np.allclose(
+        y, [c[1] for c in model.curve]
+    )
+    sx, sy = art["s_value"].get_data()
+    assert sx[0] == pytest.approx(model.s_value) and sy[0] == 0.0
+    cx, _ = art["s_value_ci"].get_data()
+    assert cx[0] == pytest.approx(model.s_value_ci)
+    assert art["null"].get_ydata()[0] == 0.0
+    assert art["worst"].get_ydata()[0] == pytest.approx(model.worst_case.estimate)
+    # the curve reaches the worst case from the uncorrected side (monotone towards it)
+    assert abs(y[-1] - model.worst_case.estimate) < abs(y[0] - model.worst_case.estimate)
+
+
+def test_sentence_quotes_the_numbers_of_the_result():
+    from lopside import summary as S
+    from lopside.analysis import analyse
+
+    res = analyse(_md_review())
+    m = res.selection_sensitivity.random
+    text = S.selection_sentence(res)
+    assert f"at least {S.fmt_eta(m.s_value)} times" in text
+    assert S.fmt_eta(m.s_value_ci) in text
+    wc = m.worst_case
+    assert S.fmt_effect_ci(wc.estimate, wc.ci_low, wc.ci_high, "MD") in text
+    sec = S.selection_strength_section(res)
+    labels = [r[0] for r in sec.rows]
+    assert "η = 1 (no selection)" in labels and "η = 50" in labels
+    assert any(r.startswith("Fixed weights: severe one-tailed") for r in labels)
+    assert any("from memory" in n for n in sec.notes)

@@ -752,6 +752,203 @@ def adjustments_section(result) -> Section:
     )
 
 
+def fmt_eta(x: Any) -> str:
+    """A selection ratio η: "7", "2.4", "1,250" (whole numbers from 10 up)."""
+    if not is_finite(x):
+        return MISSING
+    x = float(x)
+    return fmt_int(x) if x >= 10 or x == int(x) else fmt_num(x, 1)
+
+
+def _short_measure(measure: str) -> str:
+    return measure if measure in RATIO_MEASURES or measure in ("RD", "MD", "SMD") else measure
+
+
+def selection_sentence(result) -> str | None:
+    """One sentence: how strong selection would have to be (Mathur & VanderWeele 2020).
+
+    Reads the random-effects version (the analysis' main model). None when not computed.
+    """
+    ss = getattr(result, "selection_sensitivity", None)
+    if ss is None:
+        return None
+    if isinstance(ss, NotComputable):
+        return f"How strong selection would have to be was not computed: {ss.reason}."
+    m = result.measure
+    short = _short_measure(m)
+    model = ss.random if is_ok(ss.random) else ss.fixed
+    if not is_ok(model):
+        return f"How strong selection would have to be was not computed: {why_not(model)}."
+    if ss.affirmative == 0:
+        return (
+            "No study is significant on the side of the pooled effect, so selective "
+            "publication of significant results cannot be what produced it."
+        )
+    wc = model.worst_case
+    if is_ok(wc):
+        if wc.ci_low is not None:
+            worst = f"{short} {fmt_effect_ci(wc.estimate, wc.ci_low, wc.ci_high, m)}"
+        else:
+            worst = f"{short} {fmt_effect(wc.estimate, m)} (no interval: {wc.reason})"
+        tail = (
+            "; under the strongest possible selection of this kind the effect would be that "
+            f"of the {plural(wc.k, 'study', 'studies')} not significant in its favour, "
+            f"alone: {worst}."
+        )
+    else:
+        tail = "; every study is significant, so there is no worst case to compute."
+    if model.s_value is not None:
+        head = (
+            "To reduce the effect to no effect, significant results favouring it would "
+            f"have to be at least {fmt_eta(model.s_value)} times as likely to be published "
+            "as others"
+        )
+        if model.s_value_ci is not None:
+            head += f" (for its interval to include no effect, {fmt_eta(model.s_value_ci)} times)"
+    else:
+        head = (
+            "No strength of selection favouring significant results could reduce the "
+            "effect to no effect"
+        )
+        if model.s_value_ci is not None:
+            head += f" (its interval would include no effect at {fmt_eta(model.s_value_ci)} times)"
+    return head + tail
+
+
+def missing_trials_sentence(result) -> str | None:
+    """ "3 registered trials (1,240 participants) never reported; had they found no
+    effect, OR 0.74 (0.63 to 0.87) instead of 0.66." None when none were entered."""
+    u = getattr(result, "unreported_trials", None)
+    if u is None:
+        return None
+    if isinstance(u, NotComputable):
+        return f"Trials known to be missing were entered, but no scenario was computed: {u.reason}."
+    m = result.measure
+    short = _short_measure(m)
+    null = next((s for s in u.scenarios if s.assumed == "no effect"), None)
+    text = (
+        f"{plural(u.count, 'trial', 'trials')} known to exist "
+        f"({fmt_int(u.participants)} participants) never reported results"
+    )
+    if null is not None:
+        p = null.pooled
+        text += (
+            f"; had {'it' if u.count == 1 else 'they'} found no effect, {short} "
+            f"{fmt_effect_ci(p.estimate, p.ci.low, p.ci.high, m)} instead of "
+            f"{fmt_effect(u.reported_estimate, m)}"
+        )
+    return text + "."
+
+
+def selection_strength_section(result) -> Section:
+    """Corrected estimates by η, S-values, worst case; fixed-weight patterns; missing trials."""
+    m = result.measure
+    rows: list[tuple[str, ...]] = []
+    notes: list[str] = []
+    ss = getattr(result, "selection_sensitivity", None)
+    if is_ok(ss):
+        fe, re_ = ss.fixed, ss.random
+        for c_re in re_.by_eta if is_ok(re_) else ():
+            c_fe = fe.at(c_re.eta) if is_ok(fe) else None
+            rows.append(
+                (
+                    f"η = {fmt_eta(c_re.eta)}" + (" (no selection)" if c_re.eta == 1 else ""),
+                    fmt_effect_ci(c_re.estimate, c_re.ci_low, c_re.ci_high, m),
+                    fmt_effect_ci(c_fe.estimate, c_fe.ci_low, c_fe.ci_high, m) if c_fe else "",
+                )
+            )
+
+        def s_text(model, attr):
+            if not is_ok(model):
+                return why_not(model)
+            v = getattr(model, attr)
+            if v is not None:
+                return fmt_eta(v)
+            # the short form in the table ("not attainable"); the sentence explains it
+            return getattr(model, attr + "_reason").split(":")[0]
+
+        def worst(model):
+            if not is_ok(model):
+                return why_not(model)
+            wc = model.worst_case
+            if not is_ok(wc):
+                return why_not(wc)
+            return fmt_effect_ci(wc.estimate, wc.ci_low, wc.ci_high, m)
+
+        rows.append(
+            ("η that reaches no effect (S-value)", s_text(re_, "s_value"), s_text(fe, "s_value"))
+        )
+        rows.append(
+            (
+                "η at which the interval reaches it",
+                s_text(re_, "s_value_ci"),
+                s_text(fe, "s_value_ci"),
+            )
+        )
+        rows.append(("Worst case (studies not significant in its favour)", worst(re_), worst(fe)))
+        notes.append(
+            f"{plural(ss.affirmative, 'study is', 'studies are')} significant (two-sided p < "
+            f"0.05) on the side of the pooled effect, {ss.nonaffirmative} not. η is how many "
+            "times more likely such a result is to be published than the others; the "
+            "corrected estimate gives the others η times their weight (Mathur & "
+            "VanderWeele 2020). Random effects: τ² of the uncorrected model, robust "
+            "(sandwich) interval."
+        )
+        if ss.reason:
+            notes.append(ss.reason[0].upper() + ss.reason[1:] + ".")
+        else:
+            notes.append(selection_sentence(result))
+    elif ss is not None:
+        rows.append(("How strong selection would have to be", why_not(ss), ""))
+    fw = getattr(result, "selection_fixed_weights", None)
+    if is_ok(fw):
+        for name, e in fw.by_pattern().items():
+            label = f"Fixed weights: {name} selection"
+            if is_ok(e):
+                rows.append((label, fmt_effect(e.estimate, m), ""))
+            else:
+                rows.append((label, why_not(e), ""))
+        notes.append(
+            "Fixed-weight selection models (Vevea & Woods 2005) assume a set pattern of "
+            "publication chances by p-value and refit; the weights used are the paper's as "
+            "recalled from memory, not re-checked against it. Unadjusted maximum likelihood: "
+            f"{fmt_effect(fw.unadjusted, m)}."
+        )
+    elif fw is not None:
+        rows.append(("Fixed-weight selection models", why_not(fw), ""))
+    u = getattr(result, "unreported_trials", None)
+    if is_ok(u):
+        for sc in u.scenarios:
+            p = sc.pooled
+            what = "no effect" if sc.assumed == "no effect" else "the opposite effect"
+            rows.append(
+                (
+                    f"Missing trials had found {what}",
+                    fmt_effect_ci(p.estimate, p.ci.low, p.ci.high, m),
+                    "",
+                )
+            )
+        notes.append(
+            f"{missing_trials_sentence(result)} The SE of each missing trial comes from its "
+            f"size: {u.se_rule}."
+        )
+        if u.rows_without_size:
+            notes.append(
+                f"{plural(len(u.rows_without_size), 'trial')} marked as never reported "
+                "had no size and could not be used."
+            )
+    elif u is not None:
+        rows.append(("Trials known to be missing", why_not(u), ""))
+    return Section(
+        "selection_strength",
+        "How strong would selection have to be?",
+        tuple(rows),
+        header=("", "Random effects", "Fixed effect"),
+        notes=tuple(notes),
+        widths=(2.4, 1.6, 1.6),
+    )
+
+
 def sensitivity_section(result) -> Section:
     """Leave-one-out range, cumulative drift by precision, fail-safe N (with its caution)."""
     m = result.measure
@@ -936,6 +1133,7 @@ def analysis_sections(result) -> tuple[Section, ...]:
         tests_section(result),
         applicability_section(result),
         adjustments_section(result),
+        selection_strength_section(result),
         sensitivity_section(result),
     ]
     sg = subgroups_section(result)

@@ -51,6 +51,8 @@ DEFAULT_ETAS: tuple[float, ...] = (1.0, 2.0, 5.0, 10.0, 20.0, 50.0)
 AFFIRMATIVE_ALPHA = 0.05
 #: the S-value for the interval is searched up to this η
 ETA_SEARCH_MAX = 1e6
+#: points of the η curve kept for the figure
+CURVE_POINTS = 48
 
 FIXED_METHOD = "fixed effect, inverse-variance weights; normal (z) interval"
 ROBUST_METHOD = (
@@ -117,6 +119,8 @@ class SensitivityModel:
     s_value_ci: float | None
     s_value_ci_reason: str
     worst_case: WorstCase | NotComputable
+    #: the corrected estimate on a log grid of η (for the figure): (eta, estimate, low, high)
+    curve: tuple[tuple[float, float, float, float], ...] = ()
 
     def at(self, eta: float) -> CorrectedEstimate | None:
         for c in self.by_eta:
@@ -340,6 +344,18 @@ def _model(
                 # linear interpolation inside the (already very narrow) bracket
                 s_ci = lo_eta + (hi_eta - lo_eta) * g_lo / (g_lo - g_hi)
                 ci_reason = ""
+    # the curve for the figure: far enough to show the S-values, at least to η = 100
+    reach = [x for x in (s_value, s_ci) if x is not None]
+    top = min(ETA_SEARCH_MAX, max(100.0, 3.0 * max(reach, default=1.0)))
+    grid = np.geomspace(1.0, top, CURVE_POINTS)
+    ce, cs, _, cc = evaluate(grid)
+    lo_c, hi_c = ce - cc * cs, ce + cc * cs
+    if sign < 0:
+        lo_c, hi_c = -hi_c, -lo_c
+    curve = tuple(
+        (float(g), float(sign * e), float(lo), float(hi))
+        for g, e, lo, hi in zip(grid, ce, lo_c, hi_c)
+    )
     return SensitivityModel(
         model=name,
         method=ROBUST_METHOD if robust else FIXED_METHOD,
@@ -350,6 +366,7 @@ def _model(
         s_value_ci=s_ci,
         s_value_ci_reason=ci_reason,
         worst_case=worst,
+        curve=curve,
     )
 
 
