@@ -189,3 +189,25 @@ def test_unreported_trials_needs_rows():
 
     d = StudyData(measure="OR", y=np.array([0.2]), se=np.array([0.1]))
     assert not unreported_trials(d, [], (), None)
+
+
+def test_sheet_page_one_carries_both_sentences_and_page_two_the_block():
+    import io
+
+    import pypdf
+
+    from lopside import summary as S
+    from lopside.sheet.build import build_sheet
+
+    res = analyse(review(MISSING))
+    b = build_sheet(res, date="2026-12-02")
+    assert b.pages == 3
+    pages = [p.extract_text() or "" for p in pypdf.PdfReader(io.BytesIO(b.pdf)).pages]
+    flat = [" ".join(p.split()) for p in pages]
+    missing = " ".join(S.missing_trials_sentence(res).split())
+    assert missing[:60] in flat[0]
+    assert "Selection needed" in flat[0] and "Trials never reported" in flat[0]
+    assert "How strong would selection have to be?" in flat[1]
+    assert "Missing trials found no effect" in flat[1]
+    # the caution stays on every page
+    assert all("Lopside informs an appraisal" in p for p in flat)

@@ -112,10 +112,7 @@ def fingerprint(review: Review, measure: str) -> str:
     return hashlib.sha256(payload.encode("ascii")).hexdigest()
 
 
-UNREPORTED_REASON = (
-    "a trial that never reported its results: not in the main analysis, only in the "
-    "missing-trial scenarios"
-)
+UNREPORTED_REASON = "never reported results: used only in the missing-trial scenarios"
 
 
 def _nan_array(values) -> np.ndarray:

@@ -949,6 +949,73 @@ def selection_strength_section(result) -> Section:
     )
 
 
+def selection_strength_brief(result) -> Section:
+    """The same content as :func:`selection_strength_section`, compact (the printed sheet):
+    random effects only, one row per kind of result."""
+    m = result.measure
+    rows: list[tuple[str, str]] = []
+    notes: list[str] = []
+    ss = getattr(result, "selection_sensitivity", None)
+    model = ss.random if is_ok(ss) else None
+    if is_ok(model):
+        etas = " / ".join(fmt_eta(c.eta) for c in model.by_eta)
+        ests = " / ".join(fmt_effect(c.estimate, m) for c in model.by_eta)
+        rows.append((f"Corrected, η = {etas}", ests))
+
+        def s_text(attr):
+            v = getattr(model, attr)
+            return fmt_eta(v) if v is not None else getattr(model, attr + "_reason").split(":")[0]
+
+        rows.append(
+            ("No effect reached at η (estimate / CI)",
+             f"{s_text('s_value')} / {s_text('s_value_ci')}")
+        )  # fmt: skip
+        wc = model.worst_case
+        rows.append(
+            (
+                "Worst case",
+                fmt_effect_ci(wc.estimate, wc.ci_low, wc.ci_high, m) if is_ok(wc) else why_not(wc),
+            )
+        )
+        notes.append(
+            f"{ss.affirmative} of {ss.affirmative + ss.nonaffirmative} studies significant in "
+            "favour of the effect; worst case: the others alone. Random effects, robust "
+            "interval (Mathur & VanderWeele 2020)."
+        )
+    elif ss is not None:
+        rows.append(("How strong selection would have to be", why_not(model if ss else ss)))
+    fw = getattr(result, "selection_fixed_weights", None)
+    if is_ok(fw):
+        by = fw.by_pattern()
+        for tail in ("one-tailed", "two-tailed"):
+            vals = [by.get(f"{lvl} {tail}") for lvl in ("moderate", "severe")]
+            rows.append(
+                (
+                    f"Fixed weights, {tail} (moderate / severe)",
+                    " / ".join(fmt_effect(v.estimate, m) if is_ok(v) else MISSING for v in vals),
+                )
+            )
+        notes.append("Fixed weights: Vevea & Woods (2005) patterns, recalled from memory.")
+    u = getattr(result, "unreported_trials", None)
+    if is_ok(u):
+        for sc in u.scenarios:
+            p = sc.pooled
+            what = "no effect" if sc.assumed == "no effect" else "the opposite effect"
+            rows.append(
+                (
+                    f"Missing trials found {what}",
+                    fmt_effect_ci(p.estimate, p.ci.low, p.ci.high, m),
+                )
+            )
+        notes.append(f"SE of a missing trial from its size: {u.se_rule}.")
+    elif u is not None:
+        rows.append(("Trials known to be missing", why_not(u)))
+    return Section(
+        "selection_strength", "How strong would selection have to be?", tuple(rows),
+        notes=tuple(notes),
+    )  # fmt: skip
+
+
 def sensitivity_section(result) -> Section:
     """Leave-one-out range, cumulative drift by precision, fail-safe N (with its caution)."""
     m = result.measure

@@ -32,9 +32,12 @@ from ..summary import (
     fmt_num,
     header_section,
     heterogeneity_section,
+    missing_trials_sentence,
     pooled_section,
     rating_section,
     reconciliation_section,
+    selection_sentence,
+    selection_strength_brief,
     sensitivity_section,
     settings_section,
     small_study_section,
@@ -171,8 +174,15 @@ def _glance(result, appraisal, st) -> list:
             f"<b>Adjusted estimates:</b> {layout.markup(ss.adjustments.text.split(' Methods: ')[0])}",
             st["box"],
         ),
-        Paragraph(f"<b>Caution.</b> {layout.markup(CAUTION)}", st["small"]),
     ]
+    # issue 20: how strong selection would have to be, and trials known to be missing
+    for label, text in (
+        ("Selection needed", selection_sentence(result)),
+        ("Trials never reported", missing_trials_sentence(result)),
+    ):
+        if text:
+            items.append(Paragraph(f"<b>{label}:</b> {layout.markup(text)}", st["box"]))
+    items.append(Paragraph(f"<b>Caution.</b> {layout.markup(CAUTION)}", st["small"]))
     return [boxed(items, fill=layout.HEAD_FILL)]
 
 
@@ -271,11 +281,43 @@ def _funnel_block(result, appraisal, st) -> list:
     return [_h2("The funnel plot and what it shows", st), t]
 
 
+def _selection_block(result, st) -> list:
+    """How strong selection would have to be: the table beside the η curve."""
+    from reportlab.platypus import Table, TableStyle
+
+    from .figures import FigureUnavailable, selection_curve_flowable
+
+    sec = selection_strength_brief(result)
+    if not sec.rows:
+        return []
+    fig_w = 190.0
+    try:
+        fig = selection_curve_flowable(result, fig_w, 120.0)
+    except FigureUnavailable as exc:
+        fig = para(f"The selection curve could not be drawn: {exc}", st["muted"])
+    text_w = FRAME_W - fig_w - 8
+    table = section_table(sec, st, width=text_w, label_width=185)
+    t = Table([[table, fig]], colWidths=[text_w + 8, fig_w], hAlign="LEFT")
+    t.setStyle(
+        TableStyle(
+            [
+                ("VALIGN", (0, 0), (-1, -1), "TOP"),
+                ("FONTNAME", (0, 0), (-1, -1), fonts.REGULAR),
+                ("LEFTPADDING", (0, 0), (-1, -1), 0),
+                ("RIGHTPADDING", (0, 0), (-1, -1), 0),
+                ("TOPPADDING", (0, 0), (-1, -1), 0),
+            ]
+        )
+    )
+    return [_h2(sec.title, st), t]
+
+
 def _page2(result, appraisal, st) -> list:
     out = _funnel_block(result, appraisal, st)
     out += _section(tests_section(result), st)
     out += _section(applicability_section(result), st)
     out += _section(adjustments_section(result), st)
+    out += _selection_block(result, st)
     # power is read out beside the funnel (simulated or not), so no separate block here
     return out
 
