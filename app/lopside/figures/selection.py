@@ -18,7 +18,7 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 
 from . import style
-from .common import FigureInputError, effect_axis_label, format_effect, set_effect_axis
+from .common import FigureInputError, format_effect, set_effect_axis
 
 if TYPE_CHECKING:  # pragma: no cover
     from matplotlib.axes import Axes
@@ -164,7 +164,7 @@ def draw_selection_curve(ax: Axes, inp: SelectionCurveInput, *, size: str = "col
         pad = 0.08 * max(y_hi - y_lo, 1e-6)
         set_effect_axis(ax, inp.measure, y_lo - pad, y_hi + pad, which="y")
         ax.set_xlabel(X_LABEL)
-        ax.set_ylabel(f"Corrected {effect_axis_label(inp.measure).lower()}")
+        ax.set_ylabel(f"Corrected {inp.measure}")
     return art
 
 

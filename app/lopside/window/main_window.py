@@ -35,6 +35,7 @@ from ..model.review import MEASURE_NAMES, MEASURES
 from ..session import Session
 from . import messages as M
 from . import prefs as P
+from .adjust_panel import AdjustPanel
 from .autosave import Autosaver, Recoverable, find_recoverable
 from .causes import CausesPanel
 from .details_form import DetailsForm
@@ -83,12 +84,6 @@ def _tests_sections(result):
     except ImportError:
         pass
     return out
-
-
-def _adjust_sections(result):
-    from .. import summary as S
-
-    return [S.adjustments_section(result), S.sensitivity_section(result)]
 
 
 # ------------------------------------------------------------------ default questions
@@ -205,7 +200,7 @@ class MainWindow(QMainWindow):
         self.companions = CompanionPanel()
         self.pooled = SectionsPanel("Pooled results", _pooled_sections)
         self.tests = SectionsPanel("Tests", _tests_sections)
-        self.adjust = SectionsPanel("Adjustments", _adjust_sections)
+        self.adjust = AdjustPanel(self.session)
         self.causes = CausesPanel(self.session, self.stack.push_edit)
         self.power = PowerPanel(self.session)
         self.view_panels = (

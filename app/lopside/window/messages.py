@@ -65,3 +65,12 @@ ABOUT_TEXT = (
     "offline.</p><p><b>Caution.</b> {caution}</p>"
     "<p>The sample reviews shipped with Lopside are invented for demonstration.</p>"
 )
+
+ETA_LABEL = "Your own selection ratio η:"
+ETA_TIP = (
+    "How many times more likely a result significant in favour of the effect is to be "
+    "published than any other (at least 1). The corrected estimate for it is added to the "
+    "table below, beside η = 1, 2, 5, 10, 20 and 50."
+)
+ETA_BAD = "“{text}” is not a selection ratio: type a number of at least 1 (or clear the field)."
+CURVE_FAILED = "The selection curve could not be drawn: {error}"
