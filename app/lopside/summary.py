@@ -1016,6 +1016,26 @@ def selection_strength_brief(result) -> Section:
     )  # fmt: skip
 
 
+def review_claim_section(result) -> Section | None:
+    """What the review said about small-study effects beside Lopside's reading (or None)."""
+    from .appraise.claim import compare_claim
+
+    c = compare_claim(result)
+    if c is None:
+        return None
+    rows = (
+        ("The review said", c.said),
+        ("Its test for these data", c.applicable),
+        ("Power here", c.power),
+        ("Lopside's reading", c.agreement),
+        ("Verdict", c.verdict),
+    )
+    return Section(
+        "review_claim", "What the review itself said about small-study effects", rows,
+        emphasis=(4,),
+    )  # fmt: skip
+
+
 def sensitivity_section(result) -> Section:
     """Leave-one-out range, cumulative drift by precision, fail-safe N (with its caution)."""
     m = result.measure
@@ -1192,13 +1212,14 @@ def settings_section(result, *, version: str = "") -> Section:
 
 def analysis_sections(result) -> tuple[Section, ...]:
     """The numeric sections in reading order (no appraisal readings)."""
-    out = [
+    out: list[Section | None] = [
         data_section(result),
         reconciliation_section(result),
         pooled_section(result),
         heterogeneity_section(result),
         tests_section(result),
         applicability_section(result),
+        review_claim_section(result),
         adjustments_section(result),
         selection_strength_section(result),
         sensitivity_section(result),
@@ -1207,7 +1228,7 @@ def analysis_sections(result) -> tuple[Section, ...]:
     if sg is not None:
         out.append(sg)
     out.append(power_section(result))
-    return tuple(out)
+    return tuple(s for s in out if s is not None)
 
 
 # --------------------------------------------------------------------------------------

@@ -35,6 +35,7 @@ from typing import Any
 
 from .review import (
     CAUSES,
+    CLAIM_CONCLUSIONS,
     JUDGEMENTS,
     MEASURES,
     NUMERIC_FIELDS,
@@ -43,6 +44,7 @@ from .review import (
     CauseNote,
     PublishedResult,
     Review,
+    ReviewClaim,
     ReviewDetails,
     StudyRow,
 )
@@ -112,6 +114,13 @@ def review_to_dict(review: Review, settings: dict[str, Any] | None = None) -> di
                 "lower": d.published.lower,
                 "upper": d.published.upper,
                 "model": d.published.model,
+            },
+            "claim": {
+                "test": d.claim.test,
+                "statistic": d.claim.statistic,
+                "p": d.claim.p,
+                "k": d.claim.k,
+                "conclusion": d.claim.conclusion,
             },
         },
         "studies": [s.to_dict() for s in review.studies],
@@ -426,6 +435,29 @@ def review_from_dict(doc: Any) -> tuple[Review, dict[str, Any]]:
         upper=_number(pub.get("upper"), "details, published upper"),
         model=_text(pub.get("model"), "details, published model"),
     )
+    cl = det.get("claim", {}) or {}
+    if not isinstance(cl, dict):
+        raise ProjectFileError("details, claim: expected an object.")
+    conclusion = _text(cl.get("conclusion"), "details, claim conclusion")
+    if conclusion not in CLAIM_CONCLUSIONS:
+        raise ProjectFileError(
+            "details, claim conclusion: expected one of "
+            + ", ".join(repr(c) for c in CLAIM_CONCLUSIONS if c)
+            + " or nothing."
+        )
+    claim_k = _number(cl.get("k"), "details, claim k")
+    if claim_k is not None and (claim_k != int(claim_k) or claim_k < 0):
+        raise ProjectFileError("details, claim k: expected a whole number of studies.")
+    claim_p = _number(cl.get("p"), "details, claim p")
+    if claim_p is not None and not 0.0 <= claim_p <= 1.0:
+        raise ProjectFileError("details, claim p: expected a P value between 0 and 1.")
+    claim = ReviewClaim(
+        test=_text(cl.get("test"), "details, claim test"),
+        statistic=_number(cl.get("statistic"), "details, claim statistic"),
+        p=claim_p,
+        k=None if claim_k is None else int(claim_k),
+        conclusion=conclusion,
+    )
     details = ReviewDetails(
         title=_text(det.get("title"), "details, title"),
         question=_notes(det.get("question"), "details, question"),
@@ -438,6 +470,7 @@ def review_from_dict(doc: Any) -> tuple[Review, dict[str, Any]]:
         published=published,
         appraiser=_text(det.get("appraiser"), "details, appraiser"),
         source_note=_notes(det.get("source_note"), "details, source_note"),
+        claim=claim,
     )
     studies = doc.get("studies", [])
     if not isinstance(studies, list):

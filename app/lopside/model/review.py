@@ -177,6 +177,34 @@ class PublishedResult:
         return None not in (self.estimate, self.lower, self.upper)
 
 
+#: What a review may have concluded about small-study effects ("" = not entered).
+CLAIM_CONCLUSIONS: tuple[str, ...] = ("", "none found", "found", "not assessed", "not reported")
+
+
+@dataclass(frozen=True, slots=True)
+class ReviewClaim:
+    """What the review itself reported about small-study effects (all optional).
+
+    ``test`` is the test as named in the paper ("Egger's test", "funnel plot inspection");
+    ``statistic`` and ``p`` as printed; ``k`` the number of studies it used;
+    ``conclusion`` one of :data:`CLAIM_CONCLUSIONS`.
+    """
+
+    test: str = ""
+    statistic: float | None = None
+    p: float | None = None
+    k: int | None = None
+    conclusion: str = ""
+
+    def is_empty(self) -> bool:
+        return (
+            not self.test
+            and self.statistic is None
+            and self.p is None
+            and (self.k is None and not self.conclusion)
+        )
+
+
 @dataclass(frozen=True, slots=True)
 class ReviewDetails:
     """What the review is about and how its effects are expressed."""
@@ -196,6 +224,8 @@ class ReviewDetails:
     appraiser: str = ""
     #: free text shown on screen and on the sheet; invented demo reviews say so here
     source_note: str = ""
+    #: what the review said about small-study effects (compared with Lopside's reading)
+    claim: ReviewClaim = field(default_factory=ReviewClaim)
 
 
 #: The alternative explanations of funnel asymmetry, in the order we present them.

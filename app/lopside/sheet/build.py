@@ -36,6 +36,7 @@ from ..summary import (
     pooled_section,
     rating_section,
     reconciliation_section,
+    review_claim_section,
     selection_sentence,
     selection_strength_brief,
     sensitivity_section,
@@ -175,8 +176,11 @@ def _glance(result, appraisal, st) -> list:
             st["box"],
         ),
     ]
-    # issue 20: how strong selection would have to be, and trials known to be missing
+    # issue 20: how strong selection would have to be, trials known to be missing, and the
+    # review's own claim about small-study effects
+    claim = review_claim_section(result)
     for label, text in (
+        ("The review's own claim", claim.rows[-1][1] if claim is not None else None),
         ("Selection needed", selection_sentence(result)),
         ("Trials never reported", missing_trials_sentence(result)),
     ):
@@ -341,6 +345,9 @@ def _rating_for_print(sec, appraisal):
 
 def _page3(result, appraisal, st) -> list:
     out = _section(_causes_for_print(causes_section(appraisal)), st)
+    claim = review_claim_section(result)
+    if claim is not None:
+        out += _section(claim, st, label_width=118)
     out += _section(_rating_for_print(rating_section(appraisal), appraisal), st)
     out += _settings(result, st)
     return out

@@ -74,3 +74,10 @@ ETA_TIP = (
 )
 ETA_BAD = "“{text}” is not a selection ratio: type a number of at least 1 (or clear the field)."
 CURVE_FAILED = "The selection curve could not be drawn: {error}"
+CLAIM_P_BAD = (
+    "“{text}” is not a P value: type a number from 0 to 1; it is not used until it is one."
+)
+CLAIM_K_BAD = (
+    "“{text}” is not a number of studies: type a whole number; it is not used until it is one."
+)
+CLAIM_UNREAD = "“{text}” is not a number; it is kept here and not used until it is one."
