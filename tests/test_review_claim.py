@@ -15,7 +15,7 @@ import pytest
 from lopside import edits as ed
 from lopside import summary as S
 from lopside.analysis import analyse
-from lopside.appraise.claim import compare_claim, claim_test_key
+from lopside.appraise.claim import claim_test_key, compare_claim
 from lopside.model import project_file
 from lopside.model.review import Review, ReviewClaim, ReviewDetails, StudyRow
 
@@ -26,7 +26,11 @@ COUNTS = [
 ]  # fmt: skip
 
 
-def review(claim=ReviewClaim(), n=len(COUNTS)):
+NO_CLAIM = ReviewClaim()
+
+
+def review(claim=NO_CLAIM, n=None):
+    n = len(COUNTS) if n is None else n
     rows = tuple(
         StudyRow(study=f"Invented {i}", int_events=a, int_total=n1, ctl_events=c, ctl_total=n0)
         for i, (a, n1, c, n0) in enumerate(COUNTS[:n], start=1)
