@@ -355,6 +355,13 @@ def to_json(result) -> dict[str, Any]:
         "fingerprint_sha256": result.fingerprint,
         "settings": result.settings.to_dict(),
     }
+    from .appraise.claim import compare_claim
+
+    claim = result.review.details.claim
+    comparison = compare_claim(result)
+    out["review_claim"] = (
+        None if comparison is None else {**plain(claim), "comparison": plain(comparison)}
+    )
     missing = unreported_json(result.unreported_trials)
     if missing is not None:
         out["unreported_trials"] = missing
