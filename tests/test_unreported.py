@@ -211,3 +211,16 @@ def test_sheet_page_one_carries_both_sentences_and_page_two_the_block():
     assert "Missing trials found no effect" in flat[1]
     # the caution stays on every page
     assert all("Lopside informs an appraisal" in p for p in flat)
+
+
+def test_appraisal_counts_known_missing_trials_for_selective_reporting():
+    from lopside import summary as S
+    from lopside.appraise import appraise
+
+    res = analyse(review(MISSING))
+    sel = next(c for c in appraise(res).causes if c.key == "selection")
+    lines = [(e.direction, e.text) for e in sel.evidence]
+    assert ("for", S.missing_trials_sentence(res)) in lines
+    assert ("unclear", S.selection_sentence(res)) in lines
+    base = next(c for c in appraise(analyse(review())).causes if c.key == "selection")
+    assert not any("never reported" in e.text for e in base.evidence)

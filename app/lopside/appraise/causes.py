@@ -186,6 +186,10 @@ def selection_evidence(result, ss: SmallStudyReading, g: Glossary) -> list[Evide
                     f"({fmt_p_eq(sel.lrt_pvalue)}); its test is weak with few studies.",
                 )
             )
+    # issue 20: trials known to be missing, strength of selection needed, review's claim
+    from .selection_items import selection_items
+
+    out.extend(selection_items(result))
     out.append(
         _ev(
             "unclear",
