@@ -95,18 +95,31 @@ def test_bare_pooling(benchmark, keep, reviews, k):
 
 
 def test_selection_block(benchmark, keep, reviews):
-    # issue 20: sensitivity to selection + the four fixed-weight selection models, the part
-    # of analyse() they add; target <= 10 % of analyse() at 30 studies (ratio below)
-    from lopside.analysis import _selection_block
+    # issue 20: sensitivity to selection, the four fixed-weight selection models and the
+    # missing-trial scenarios (3 trials never reported), the part of analyse() they add;
+    # target <= 10 % of analyse() at 30 studies (ratio below)
+    from dataclasses import replace
 
-    _, result = reviews[30]
+    from lopside.analysis import _selection_block, _unreported_block
+    from lopside.model.review import StudyRow
+
+    review, _ = reviews[30]
+    missing = tuple(
+        StudyRow(study=f"Invented registered {i}", n=200.0 + 50 * i, reported=False)
+        for i in range(3)
+    )
+    review = replace(review, studies=review.studies + missing)
+    result = analyse(review)
+
+    def block():
+        sens, fixed_w = _selection_block(result.data, result.random, result.settings)
+        return sens, fixed_w, _unreported_block(review, result.data, result.random, result.settings)
+
     benchmark.group = "analyse k=30"
-    sens, fixed_w = benchmark.pedantic(
-        _selection_block, args=(result.data, result.random, result.settings), rounds=30,
-        iterations=1,
-    )  # fmt: skip
+    sens, fixed_w, unrep = benchmark.pedantic(block, rounds=30, iterations=1)
     keep("selection-block-30")
     assert sens.affirmative + sens.nonaffirmative == 30 and len(fixed_w.estimates) == 4
+    assert unrep.count == 3
 
 
 def _loo_by_subsets(y, v):

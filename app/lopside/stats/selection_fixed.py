@@ -137,23 +137,26 @@ def _newton_batch(model: _Batch, logw: np.ndarray, x0: np.ndarray, *, maxiter: i
     best_f = np.full(P, np.inf)
     step = np.zeros_like(x)
     done = np.zeros(P, dtype=bool)
-    lw3 = np.repeat(logw, 3, axis=0)
     for _ in range(maxiter):
-        h = 1e-6 * np.maximum(1.0, np.abs(x))
-        pts = np.repeat(x, 3, axis=0)
+        active = ~done
+        idx = np.flatnonzero(active)  # only the weight sets still moving are evaluated
+        xa = x[idx]
+        h = 1e-6 * np.maximum(1.0, np.abs(xa))
+        pts = np.repeat(xa, 3, axis=0)
         pts[1::3, 0] += h[:, 0]
         pts[2::3, 1] += h[:, 1]
-        f3, g3 = model(pts[:, 0], pts[:, 1], lw3)
-        f, g = f3[0::3], g3[0::3]
+        f3, g3 = model(pts[:, 0], pts[:, 1], np.repeat(logw[idx], 3, axis=0))
+        f = np.full(P, np.inf)
+        g = np.zeros((P, 2))
+        H = np.zeros((P, 2, 2))
+        f[idx], g[idx] = f3[0::3], g3[0::3]
+        H[idx, :, 0] = (g3[1::3] - g3[0::3]) / h[:, :1]
+        H[idx, :, 1] = (g3[2::3] - g3[0::3]) / h[:, 1:]
+        H = 0.5 * (H + np.transpose(H, (0, 2, 1)))
         worse = ~(f <= best_f + 1e-13 * np.abs(best_f)) & np.isfinite(best_f)
         # accept the improved points; halve the step of the others from their best point
-        ok = ~worse
+        ok = active & ~worse
         best_x[ok], best_f[ok] = x[ok], f[ok]
-        H = np.empty((P, 2, 2))
-        H[:, :, 0] = (g3[1::3] - g) / h[:, :1]
-        H[:, :, 1] = (g3[2::3] - g) / h[:, 1:]
-        H = 0.5 * (H + np.transpose(H, (0, 2, 1)))
-        active = ~done
         back = active & worse
         step[back] *= 0.5
         done |= back & (np.max(np.abs(step), axis=1) < 1e-14)
