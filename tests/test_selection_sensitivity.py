@@ -369,3 +369,56 @@ def test_sentence_quotes_the_numbers_of_the_result():
     assert "η = 1 (no selection)" in labels and "η = 50" in labels
     assert any(r.startswith("Fixed weights: severe one-tailed") for r in labels)
     assert any("from memory" in n for n in sec.notes)
+
+
+# --------------------------------------------------------- the JSON of check --json
+
+
+def test_json_selection_sensitivity_has_the_issue_keys_and_the_result_values():
+    import json
+
+    from lopside.analysis import analyse
+    from lopside.report import to_json
+
+    res = analyse(_md_review())
+    out = json.loads(json.dumps(to_json(res), allow_nan=False))
+    ss = out["selection_sensitivity"]
+    assert ss["affirmative"] == res.selection_sensitivity.affirmative
+    assert ss["nonaffirmative"] == res.selection_sensitivity.nonaffirmative
+    for name in ("fixed", "random"):
+        block, model = ss[name], getattr(res.selection_sensitivity, name)
+        assert {"s_value", "s_value_ci", "worst_case", "by_eta"} <= block.keys()
+        assert block["s_value"] == pytest.approx(model.s_value)
+        assert block["s_value_ci"] == pytest.approx(model.s_value_ci)
+        assert set(block["worst_case"]) >= {"estimate", "ci_low", "ci_high"}
+        assert [e["eta"] for e in block["by_eta"]] == [1, 2, 5, 10, 20, 50]
+        for e, c in zip(block["by_eta"], model.by_eta):
+            assert {"eta", "estimate", "ci_low", "ci_high"} <= e.keys()
+            assert e["estimate"] == c.estimate and e["ci_low"] == c.ci_low
+    fw = out["selection_fixed_weights"]
+    assert [p["pattern"] for p in fw["patterns"]] == list(PATTERNS)
+    assert "from memory" in fw["provenance"]
+    assert "unreported_trials" not in out
+
+
+def test_json_null_with_reason_when_not_computable():
+    from lopside.analysis import analyse
+    from lopside.model.review import Review, ReviewDetails, StudyRow
+    from lopside.report import to_json
+
+    one = Review(
+        details=ReviewDetails(measure="MD"), studies=(StudyRow(study="A", estimate=0.3, se=0.1),)
+    )
+    ss = to_json(analyse(one))["selection_sensitivity"]
+    assert ss["affirmative"] is None and ss["reason"]
+    assert ss["fixed"]["s_value"] is None and ss["fixed"]["worst_case"]["estimate"] is None
+
+    # all affirmative: the worst case is null with its reason; no S-value, with its reason
+    rows = tuple(StudyRow(study=f"I{i}", estimate=y, se=0.1) for i, y in enumerate((0.5, 0.6, 0.7)))
+    ss = to_json(analyse(Review(details=ReviewDetails(measure="MD"), studies=rows)))[
+        "selection_sensitivity"
+    ]
+    assert ss["nonaffirmative"] == 0
+    for name in ("fixed", "random"):
+        assert ss[name]["worst_case"]["estimate"] is None and ss[name]["worst_case"]["reason"]
+        assert ss[name]["s_value"] is None and ss[name]["s_value_reason"]

@@ -224,3 +224,18 @@ def test_appraisal_counts_known_missing_trials_for_selective_reporting():
     assert ("unclear", S.selection_sentence(res)) in lines
     base = next(c for c in appraise(analyse(review())).causes if c.key == "selection")
     assert not any("never reported" in e.text for e in base.evidence)
+
+
+def test_xlsx_reads_the_reported_column(tmp_path):
+    import openpyxl
+
+    wb = openpyxl.Workbook()
+    ws = wb.active
+    ws.append(["Study", "N", "Reported"])
+    ws.append(["Invented A", 120, "No"])
+    ws.append(["Invented B", 80, True])
+    ws.append(["Invented C", 60, 0])
+    path = tmp_path / "t.xlsx"
+    wb.save(path)
+    rows = read_table(path).rows
+    assert [r.reported for r in rows] == [False, True, False]
