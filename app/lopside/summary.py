@@ -764,6 +764,20 @@ def _short_measure(measure: str) -> str:
     return measure if measure in RATIO_MEASURES or measure in ("RD", "MD", "SMD") else measure
 
 
+def short_reason(reason: str) -> str:
+    """A table-cell form of why an S-value is missing ("not attainable", "nothing to
+    correct", "already at η = 1"); the section's sentence gives the full reason."""
+    from .stats import selection_sensitivity as ssm
+
+    short = {
+        ssm.MSG_NO_AFFIRMATIVE: "nothing to correct",
+        ssm.MSG_ALL_AFFIRMATIVE: "no worst case",
+        ssm.MSG_CI_ALREADY: "already at η = 1",
+        ssm.MSG_ESTIMATE_ALREADY: "already at η = 1",
+    }
+    return short.get(reason, reason.split(":")[0])
+
+
 def selection_sentence(result) -> str | None:
     """One sentence: how strong selection would have to be (Mathur & VanderWeele 2020).
 
@@ -865,7 +879,7 @@ def selection_strength_section(result) -> Section:
             if v is not None:
                 return fmt_eta(v)
             # the short form in the table ("not attainable"); the sentence explains it
-            return getattr(model, attr + "_reason").split(":")[0]
+            return short_reason(getattr(model, attr + "_reason"))
 
         def worst(model):
             if not is_ok(model):
@@ -964,7 +978,7 @@ def selection_strength_brief(result) -> Section:
 
         def s_text(attr):
             v = getattr(model, attr)
-            return fmt_eta(v) if v is not None else getattr(model, attr + "_reason").split(":")[0]
+            return fmt_eta(v) if v is not None else short_reason(getattr(model, attr + "_reason"))
 
         rows.append(
             ("No effect reached at η (estimate / CI)",
