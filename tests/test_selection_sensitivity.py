@@ -422,3 +422,59 @@ def test_json_null_with_reason_when_not_computable():
     for name in ("fixed", "random"):
         assert ss[name]["worst_case"]["estimate"] is None and ss[name]["worst_case"]["reason"]
         assert ss[name]["s_value"] is None and ss[name]["s_value_reason"]
+
+
+# --------------------------------------------------------- properties over generated data
+
+from hypothesis import HealthCheck, given  # noqa: E402
+from hypothesis import settings as hyp_settings  # noqa: E402
+from hypothesis import strategies as st  # noqa: E402
+
+
+@st.composite
+def study_sets(draw):
+    k = draw(st.integers(2, 25))
+    y = draw(st.lists(st.floats(-3, 3, allow_nan=False), min_size=k, max_size=k))
+    se = draw(st.lists(st.floats(0.02, 2.0), min_size=k, max_size=k))
+    return np.array(y), np.array(se)
+
+
+@hyp_settings(max_examples=150, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(study_sets(), st.floats(0.0, 0.5))
+def test_s_values_and_worst_case_are_consistent(data_, tau2):
+    # properties that follow from the definitions (methods.md 11.3): the corrected estimate
+    # is 0 at the S-value; the interval reaches the null no later than the estimate; with
+    # N >= 0 the null is not attainable and the worst case stays on the effect's side
+    y, se = data_
+    w = 1 / (se**2 + tau2)
+    mu = float(np.sum(w * y) / np.sum(w))
+    if mu == 0.0:
+        return
+    res = selection_sensitivity(data(y, se), pooled_estimate=mu, tau2=tau2)
+    sign = res.direction
+    for name, ww in (("fixed", 1 / se**2), ("random", w)):
+        m = getattr(res, name)
+        aff = affirmative(y, se, sign)
+        if m.s_value is not None:
+            a = np.where(aff, 1.0, m.s_value)
+            assert abs(np.sum(a * ww * y) / np.sum(a * ww)) < 1e-9 * max(1.0, np.max(np.abs(y)))
+            if m.s_value_ci is not None:
+                assert m.s_value_ci <= m.s_value * (1 + 1e-9)
+        wc = m.worst_case
+        if not isinstance(wc, NotComputable) and m.s_value is None and res.affirmative:
+            if "not attainable" in m.s_value_reason:
+                assert sign * wc.estimate >= -1e-12
+        for c in m.by_eta:
+            assert np.isfinite(c.estimate) and c.se >= 0
+
+
+@hyp_settings(max_examples=60, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(study_sets())
+def test_fixed_weight_fits_never_raise_and_stay_finite(data_):
+    y, se = data_
+    res = fixed_weight_selection(data(y, se), pooled_estimate=float(np.mean(y)) or 0.1)
+    if isinstance(res, NotComputable):
+        assert res.reason
+        return
+    for e in res.estimates:
+        assert isinstance(e, NotComputable) or (np.isfinite(e.estimate) and e.tau2 >= 0)
