@@ -13,6 +13,9 @@ Register it once for the whole suite, in ``pyproject.toml``::
 or from ``tests/conftest.py`` with ``pytest_plugins = ["_no_network"]``.
 
 A test that truly needs the network (none does) is marked ``@pytest.mark.allow_network``.
+A test of ``lopside batch`` on a local Dask cluster is marked
+``@pytest.mark.loopback_only``: sockets may then be opened, but only to addresses on this
+machine (127.0.0.0/8, ::1, "localhost"); any other address still fails the test.
 Local-only sockets (``AF_UNIX``, e.g. ``socket.socketpair`` on Linux) are allowed. What a
 test starts in a subprocess is not covered (tests/test_offline.py guards its own).
 """
@@ -36,13 +39,31 @@ class NetworkAccessError(RuntimeError):
     """
 
 
-def block_network(attempts: list[str]) -> Callable[[], None]:
+_LOOPBACK_NAMES = {"localhost", "127.0.0.1", "::1", "", None}
+
+
+def _is_loopback(host) -> bool:
+    if isinstance(host, bytes):
+        host = host.decode("ascii", "replace")
+    if host in _LOOPBACK_NAMES:
+        return True
+    import ipaddress
+
+    try:
+        return ipaddress.ip_address(str(host).split("%")[0]).is_loopback
+    except ValueError:
+        return False
+
+
+def block_network(attempts: list[str], *, loopback: bool = False) -> Callable[[], None]:
     """Make every network call in this process raise; return a function that undoes it.
 
     Parameters
     ----------
     attempts : list of str
         Each attempt is appended here (a short description) before the error is raised.
+    loopback : bool
+        Allow sockets whose every address is on this machine (loopback); refuse the rest.
 
     Returns
     -------
@@ -69,12 +90,35 @@ def block_network(attempts: list[str]) -> Callable[[], None]:
     class GuardedSocket(real["socket"]):  # type: ignore[misc, valid-type]
         def __init__(self, family=-1, type=-1, proto=-1, fileno=None):
             # fileno given: wrapping an existing (e.g. socketpair) descriptor, not opening
-            if fileno is None and family in _NET_FAMILIES:
+            if fileno is None and family in _NET_FAMILIES and not loopback:
                 refuse(f"socket.socket(family={family!r}, type={type!r})")
             super().__init__(family, type, proto, fileno)
 
+        def _check(self, what: str, address) -> None:
+            if self.family in _NET_FAMILIES and isinstance(address, tuple):
+                if not _is_loopback(address[0]):
+                    refuse(f"socket.{what}{address!r}")
+
+        def connect(self, address):
+            self._check("connect", address)
+            return super().connect(address)
+
+        def connect_ex(self, address):
+            self._check("connect_ex", address)
+            return super().connect_ex(address)
+
+        def bind(self, address):
+            self._check("bind", address)
+            return super().bind(address)
+
+        def sendto(self, data, *args):
+            self._check("sendto", args[-1])
+            return super().sendto(data, *args)
+
     def guard(name: str):
         def blocked(*args, **kwargs):
+            if loopback and args and _is_loopback(args[0]):
+                return real[name](*args, **kwargs)
             refuse(f"socket.{name}{args!r}")
 
         blocked.__name__ = name
@@ -98,6 +142,10 @@ def pytest_configure(config: pytest.Config) -> None:
         "markers",
         "allow_network: this test may open network connections (Lopside itself never should)",
     )
+    config.addinivalue_line(
+        "markers",
+        "loopback_only: this test may open sockets to this machine only (lopside batch on Dask)",
+    )
 
 
 _ATTEMPTS = pytest.StashKey[list]()
@@ -119,7 +167,9 @@ def _block_network_during_test(request: pytest.FixtureRequest):
         return
     attempts: list[str] = []
     request.node.stash[_ATTEMPTS] = attempts
-    undo = block_network(attempts)
+    undo = block_network(
+        attempts, loopback=request.node.get_closest_marker("loopback_only") is not None
+    )
     try:
         yield
     finally:

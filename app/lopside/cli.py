@@ -6,6 +6,9 @@
     lopside check FILE [--measure M] [--json] [--power]
     lopside sheet FILE -o OUT.pdf [--measure M] [--include-forest] [--appraiser NAME]
     lopside plot FILE --kind funnel|forest|cumulative|radial -o OUT.png|.svg|.pdf
+    lopside batch INPUT... -o OUT.csv|.xlsx|.parquet [--workers N] [--scheduler ADDRESS]
+    lopside panel FILE... -o OUT.pdf|.docx|.xlsx|.csv [--skip-bad]
+    lopside slide FILE -o slide.pptx|.png [--outcome NAME]
 
 Exit status 0 on success, 2 on bad input (message on stderr naming the problem).
 """
@@ -23,13 +26,19 @@ from . import __version__
 from .model.review import MEASURES
 from .settings import AnalysisSettings
 
-SUBCOMMANDS = ("check", "sheet", "plot")
+SUBCOMMANDS = ("check", "sheet", "plot", "batch", "panel", "slide")
 
 
 def add_analysis_arguments(p: argparse.ArgumentParser) -> None:
     """Options shared by check, sheet and plot (the same engine as the window)."""
     p.add_argument("file", metavar="FILE", help="project file, CSV/XLSX study table or .txt")
     p.add_argument("--measure", choices=MEASURES, help="effect measure (overrides the file's)")
+    p.add_argument(
+        "--page",
+        metavar="N",
+        help="PDF only: the page(s) holding the table, e.g. 7 or 7-8 (default: the page with "
+        "the most study rows)",
+    )
     p.add_argument(
         "--tau2",
         dest="tau2_method",
@@ -103,8 +112,26 @@ def _fail(message: str) -> int:
 
 
 def _load(args):
-    from .cli_common import load_review_file
+    from pathlib import Path
 
+    from .cli_common import InputError, load_pdf_review, load_review_file
+
+    page = getattr(args, "page", None)
+    if Path(args.file).suffix.lower() == ".pdf" and Path(args.file).is_file():
+
+        def pages_read(done: int, total: int) -> bool:
+            if total >= 20 and not getattr(args, "quiet", False):
+                end = "\n" if done == total else ""
+                print(f"\rreading PDF page {done}/{total}", end=end, file=sys.stderr)
+            return True
+
+        review, notes = load_pdf_review(Path(args.file), args.measure, page, pages_read)
+        # which page was read, other pages with rows, marks left out, lines not read
+        for line in notes:
+            print(f"lopside: {line}", file=sys.stderr)
+        return review, settings_from_args(args, AnalysisSettings())
+    if page:
+        raise InputError(f"--page {page}: pages are for PDF files only; {args.file} is not one.")
     review, saved = load_review_file(args.file, args.measure)
     settings = settings_from_args(args, AnalysisSettings.from_dict(saved))
     return review, settings
@@ -159,6 +186,207 @@ def cmd_sheet(args) -> int:
     return 0
 
 
+def cmd_batch(args) -> int:
+    from pathlib import Path
+
+    from .batch import BatchError, BatchOptions, console_progress, find_inputs, run_batch
+
+    files, problems = find_inputs(args.inputs, args.output)
+    if problems:
+        return _fail(problems[0])
+    if not files:
+        return _fail(
+            "no input files found (looked for .lopside, .csv, .xlsx, .txt and .pdf files)."
+        )
+    if args.workers is not None and args.workers < 1:
+        return _fail("--workers: give a whole number of 1 or more.")
+    options = BatchOptions(
+        measure=args.measure,
+        favours=args.favours,
+        tau2_method=args.tau2_method,
+        ci_method=args.ci_method,
+        hksj=args.hksj,
+        sheets_dir=args.sheets,
+    )
+    if args.sheets:
+        Path(args.sheets).mkdir(parents=True, exist_ok=True)
+    try:
+        summary = run_batch(
+            files,
+            Path(args.output),
+            options=options,
+            workers=args.workers,
+            scheduler=args.scheduler,
+            dashboard=args.dashboard,
+            resume=args.resume,
+            progress=None if args.quiet else console_progress(),
+        )
+    except BatchError as exc:
+        return _fail(str(exc))
+    except OSError as exc:
+        return _fail(f"{args.output}: cannot write the results ({exc.strerror or exc}).")
+    ok, na, err = (summary.count(s) for s in ("ok", "not analysable", "error"))
+    line = f"wrote {args.output}: {ok} analysed, {na} not analysable, {err} with errors" + (
+        f", {summary.skipped} already done" if summary.skipped else ""
+    )
+    if summary.interrupted:
+        print(f"stopped: {line}; run again with --resume to continue.", file=sys.stderr)
+        return 130
+    print(line)
+    return 0
+
+
+def _outcome_inputs(args):
+    """One outcome per table file (named by its stem), every outcome of a project."""
+    from pathlib import Path
+
+    from .cli_common import INPUT_ERRORS
+    from .panel import OutcomeInput
+
+    inputs = []
+    for f in args.files:
+        ns = argparse.Namespace(**{**vars(args), "file": f})
+        try:
+            review, settings = _load(ns)
+        except INPUT_ERRORS as exc:
+            if not getattr(args, "skip_bad", False):
+                raise
+            inputs.append(OutcomeInput(Path(f).stem, skipped=str(exc).splitlines()[0]))
+            continue
+        if getattr(args, "favours", None):
+            review = review.with_details(favours=args.favours)
+        suffix = Path(f).suffix.lower()
+        name = (review.details.title or Path(f).stem) if suffix == ".lopside" else Path(f).stem
+        inputs.append(OutcomeInput(name, review, settings))
+    return inputs
+
+
+def cmd_panel(args) -> int:
+    from pathlib import Path
+
+    from .cli_common import INPUT_ERRORS
+    from .panel import build_panel
+    from .panel.export import FORMATS, write_panel
+
+    out = Path(args.output)
+    if out.suffix.lower() not in FORMATS:
+        return _fail(f"-o {out}: write the panel summary as .pdf, .docx, .xlsx or .csv.")
+    for f in args.files:
+        if Path(f).exists() and out.exists() and out.samefile(f):
+            return _fail(f"-o {out}: is also an input; write the summary to another file.")
+    try:
+        inputs = _outcome_inputs(args)
+        summary = build_panel(args.title or "Panel summary", inputs, with_power=args.power)
+    except INPUT_ERRORS as exc:
+        return _fail(str(exc).splitlines()[0])
+    except ValueError as exc:
+        return _fail(str(exc))
+    try:
+        write_panel(summary, out)
+    except OSError as exc:
+        return _fail(f"{out}: cannot write the summary ({exc.strerror or exc}).")
+    n = len(summary.outcomes)
+    bad = sum(1 for o in summary.outcomes if not o.analysable)
+    print(
+        f"wrote {out}: {n} outcome{'s' if n != 1 else ''}"
+        + (f", {bad} not analysed" if bad else "")
+    )
+    return 0
+
+
+def cmd_slide(args) -> int:
+    from pathlib import Path
+
+    from .analysis import analyse
+    from .appraise import appraise
+    from .cli_common import INPUT_ERRORS
+    from .panel.slide import write_slide
+
+    out = Path(args.output)
+    if out.suffix.lower() not in (".pptx", ".png"):
+        return _fail(f"-o {out}: write the slide as .pptx or .png.")
+    if out.exists() and Path(args.file).exists() and out.samefile(args.file):
+        return _fail(f"-o {out}: is also the input; write the slide to another file.")
+    try:
+        review, settings = _load(args)
+    except INPUT_ERRORS as exc:
+        return _fail(str(exc))
+    if args.favours:
+        review = review.with_details(favours=args.favours)
+    name = review.details.title or Path(args.file).stem
+    if args.outcome and args.outcome.strip().casefold() != name.strip().casefold():
+        return _fail(f"{args.file}: has no outcome called '{args.outcome}' (it has '{name}').")
+    result = analyse(review, settings)
+    try:
+        write_slide(result, appraise(result), out, title=name)
+    except ValueError as exc:
+        return _fail(f"{args.file}: {exc}.")
+    except OSError as exc:
+        return _fail(f"{out}: cannot write the slide ({exc.strerror or exc}).")
+    print(f"wrote {out}")
+    return 0
+
+
+def add_batch_arguments(b: argparse.ArgumentParser) -> None:
+    b.add_argument(
+        "inputs",
+        nargs="+",
+        metavar="INPUT",
+        help="files or folders (searched recursively for .lopside, .csv, .xlsx, .txt, .pdf)",
+    )
+    b.add_argument(
+        "-o",
+        "--output",
+        required=True,
+        metavar="OUT",
+        help="results file: .csv, .xlsx or .parquet (one row per outcome)",
+    )
+    b.add_argument("--measure", choices=MEASURES, help="effect measure for study tables")
+    b.add_argument(
+        "--favours",
+        choices=("lower", "higher"),
+        help="which values favour the intervention, for study tables",
+    )
+    b.add_argument(
+        "--tau2",
+        dest="tau2_method",
+        choices=("REML", "PM", "DL"),
+        default=None,
+        help="between-study variance estimator (default REML)",
+    )
+    b.add_argument(
+        "--ci-method",
+        choices=("z", "t", "auto"),
+        default=None,
+        help="how the papers' study CIs were computed (default z)",
+    )
+    b.add_argument("--hksj", action="store_true", help="Hartung-Knapp interval (modified)")
+    b.add_argument(
+        "--workers",
+        type=int,
+        default=None,
+        metavar="N",
+        help="local worker processes (default: one per core; 1 = no Dask, in this process)",
+    )
+    b.add_argument(
+        "--scheduler",
+        metavar="ADDRESS",
+        help="use an existing Dask cluster, e.g. tcp://10.0.0.5:8786, instead of local workers",
+    )
+    b.add_argument(
+        "--resume",
+        action="store_true",
+        help="skip inputs already in OUT (unchanged files); failed ones are tried again",
+    )
+    b.add_argument("--sheets", metavar="DIR", help="also write each appraisal sheet into DIR")
+    b.add_argument(
+        "--dashboard",
+        action="store_true",
+        help="open Dask's dashboard on 127.0.0.1:8787 (off by default: no port is opened)",
+    )
+    b.add_argument("--quiet", action="store_true", help="no progress line on stderr")
+
+
 def build_parser() -> argparse.ArgumentParser:
     parser = argparse.ArgumentParser(
         prog="lopside",
@@ -187,6 +415,41 @@ def build_parser() -> argparse.ArgumentParser:
 
     add_plot_arguments(p)
     p.set_defaults(func=run_plot)
+    pn = sub.add_parser(
+        "panel", help="summary of several outcomes side by side (PDF, DOCX, XLSX or CSV)"
+    )
+    pn.add_argument(
+        "files",
+        nargs="+",
+        metavar="FILE",
+        help="a project, or one study table per outcome (named by its file name)",
+    )
+    pn.add_argument(
+        "-o", "--output", required=True, metavar="OUT", help=".pdf, .docx, .xlsx or .csv"
+    )
+    pn.add_argument("--measure", choices=MEASURES, help="effect measure for study tables")
+    pn.add_argument(
+        "--favours", choices=("lower", "higher"), help="which values favour the intervention"
+    )
+    pn.add_argument("--title", default="", help="title of the summary (default: Panel summary)")
+    pn.add_argument("--power", action="store_true", help="simulate each test's power (slower)")
+    pn.add_argument(
+        "--skip-bad",
+        action="store_true",
+        help="list a file that cannot be read as skipped, instead of stopping",
+    )
+    pn.set_defaults(func=cmd_panel, page=None)
+    sl = sub.add_parser("slide", help="one journal-club slide: funnel and reading (PPTX or PNG)")
+    add_analysis_arguments(sl)
+    sl.add_argument("-o", "--output", required=True, metavar="OUT", help=".pptx or .png")
+    sl.add_argument("--outcome", metavar="NAME", help="the outcome to show (by name)")
+    sl.add_argument(
+        "--favours", choices=("lower", "higher"), help="which values favour the intervention"
+    )
+    sl.set_defaults(func=cmd_slide)
+    b = sub.add_parser("batch", help="appraise many files at once (Dask), one row per outcome")
+    add_batch_arguments(b)
+    b.set_defaults(func=cmd_batch)
     return parser
 
 

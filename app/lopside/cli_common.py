@@ -10,7 +10,7 @@ from .intake.errors import IntakeError
 from .model.project_file import SUFFIX, ProjectFileError, load
 from .model.review import MEASURES, Review, ReviewDetails, StudyRow
 
-ACCEPTED = (SUFFIX, ".json", ".csv", ".xlsx", ".txt")
+ACCEPTED = (SUFFIX, ".json", ".csv", ".xlsx", ".txt", ".pdf")
 MAX_TEXT_BYTES = 50 * 2**20
 
 
@@ -37,11 +37,54 @@ def review_from_rows(rows, measure: str | None, name: str) -> Review:
     return Review(details=ReviewDetails(title=Path(name).stem, measure=m), studies=tuple(rows))
 
 
+def load_pdf_review(
+    path: Path, measure: str | None = None, page: str | None = None, progress=None
+) -> tuple[Review, list[str]]:
+    """Rows from a review's PDF: the page(s) ``page`` ('7', '7-8'), else the page with the
+    most study rows. Returns the review and what to tell the user (which page was read,
+    which others hold rows, footnote marks left out, lines not read)."""
+    from .intake.pdf import choose_pages, read_pdf, rows_from_pages
+
+    try:
+        from .intake.pdf import parse_pages
+
+        wanted = parse_pages(page) if page else None
+    except ValueError as exc:
+        raise InputError(f"--page {page}: {exc}.") from exc
+    doc = read_pdf(path, pages=wanted, progress=progress)
+    pages, notes = choose_pages(doc, page)
+    got = rows_from_pages(doc, pages, measure)
+    notes = notes + list(got.notes)
+    paste = got.paste
+    where = f"page {pages[0]}" if len(pages) == 1 else f"pages {pages[0]}-{pages[-1]}"
+    if not paste.rows:
+        raise InputError(f"{path.name}: no study rows could be read on {where}.\n{paste.account()}")
+    prose = 0
+    for r in paste.not_understood:
+        if not any(ch.isdigit() for ch in r.text):
+            prose += 1  # text without a number cannot be a study row (titles, prose)
+            continue
+        notes.append(
+            f"{path.name}, page {got.line_pages[r.line_no - 1]}: line not read: "
+            f"{r.text.strip()[:80]} ({r.reason})"
+        )
+    if prose:
+        notes.append(f"{path.name}: {prose} line(s) of text without numbers passed over.")
+    review = review_from_rows(paste.rows, measure or paste.measure_hint, path.name)
+    review = review.with_details(
+        title=f"{path.stem} ({where})", source_note=got.source_note(path.name)
+    )
+    if paste.published is not None:
+        review = review.with_details(published=paste.published)
+    return review, notes
+
+
 def load_review_file(path: str | Path, measure: str | None = None) -> tuple[Review, dict[str, Any]]:
     """Read FILE into a review; ``measure`` overrides (or supplies) the measure.
 
     Raises :class:`InputError` (or the intake/project errors, which are ValueErrors) with a
-    message that names the file and, where it applies, the row and field.
+    message that names the file and, where it applies, the row and field. A PDF is read
+    from the page with the most study rows (:func:`load_pdf_review` says which).
     """
     p = Path(path)
     if measure is not None and measure not in MEASURES:
@@ -80,6 +123,8 @@ def load_review_file(path: str | Path, measure: str | None = None) -> tuple[Revi
         if pasted.published is not None:
             review = review.with_details(published=pasted.published)
         return review, {}
+    if suffix == ".pdf":
+        return load_pdf_review(p, measure)[0], {}
     raise InputError(
         f"{p.name}: Lopside opens {', '.join(ACCEPTED)} files; this one is '{suffix or 'none'}'."
     )

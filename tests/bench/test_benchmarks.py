@@ -201,3 +201,24 @@ def test_sheet(benchmark, keep, reviews, k, forest):
     )
     keep(f"sheet-forest-{k}" if forest else f"sheet-{k}")
     assert pdf.startswith(b"%PDF")
+
+
+@pytest.mark.loopback_only
+def test_batch_throughput_one_vs_two_workers():
+    """lopside batch: reviews per second on 1 and 2 local Dask workers, and the batch path
+    against a plain loop over the analysis (tests/bench/bench_batch.py; ratios printed)."""
+    from bench_batch import measure, report
+
+    r = measure(n=200, k=30, rounds=2)
+    print("\n" + report(r))
+    assert r["reviews"] == 200  # the run completed; the ratios are read, not asserted
+
+
+def test_pdf_candidate_pages_against_plain_text():
+    """Candidate pages of a 60-page PDF against pdfplumber's plain text extraction
+    (tests/bench/bench_pdf.py; the ratio is printed, not asserted)."""
+    from bench_pdf import measure, report
+
+    r = measure(pages=60, rounds=3)
+    print("\n" + report(r))
+    assert r["pages"] == 60

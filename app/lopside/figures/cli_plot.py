@@ -111,8 +111,6 @@ def run_plot(args: argparse.Namespace) -> int:
     """
     from dataclasses import replace
 
-    from ..cli_common import load_review_file
-    from ..settings import AnalysisSettings
     from .common import FigureInputError
     from .export import format_for
 
@@ -126,15 +124,14 @@ def run_plot(args: argparse.Namespace) -> int:
             f"-o {out}: the folder {out.parent} does not exist; create it or pick another."
         )
 
-    from ..cli import settings_from_args
+    from ..cli import _load
     from ..cli_common import INPUT_ERRORS
 
     try:
-        review, saved = load_review_file(args.file, getattr(args, "measure", None))
+        # the same loading and analysis options as check and sheet (PDF pages included)
+        review, settings = _load(args)
     except INPUT_ERRORS as exc:
         return _fail(str(exc))
-    # the same analysis options as check and sheet, plus the funnel's centre line
-    settings = settings_from_args(args, AnalysisSettings.from_dict(saved))
     if getattr(args, "model", None):
         settings = replace(settings, funnel_model=args.model)
 

@@ -51,8 +51,9 @@ MAX_ROW_CELLS = 16_384
 #: cells in all
 MAX_TABLE_CELLS = 4_000_000
 
-#: Text that a spreadsheet would treat as a formula if written plainly.
-FORMULA_STARTS: tuple[str, ...] = ("=", "+", "-", "@", "\t", "\r")
+#: Text that a spreadsheet would treat as a formula if written plainly (also after leading
+#: spaces; U+2212 is the minus sign some spreadsheets take for "-").
+FORMULA_STARTS: tuple[str, ...] = ("=", "+", "-", "\u2212", "@", "\t", "\r")
 _XLSX_ERRORS = frozenset(
     {"#DIV/0!", "#N/A", "#NAME?", "#NULL!", "#NUM!", "#REF!", "#VALUE!", "#GETTING_DATA"}
 )
@@ -112,10 +113,31 @@ def _normalise_name(name: object) -> str:
     return re.sub(r"[\s\-]+", "_", text.casefold())
 
 
+def _formula_like(text: str) -> bool:
+    """True when a spreadsheet could run ``text`` as a formula (also after leading spaces)."""
+    return text.startswith(FORMULA_STARTS) or text.lstrip(" ").startswith(FORMULA_STARTS)
+
+
 def _quoted_formula(text: str) -> bool:
     """True for quotes followed by a formula start ("'=x", "''+y"): one quote is ours."""
     rest = text.lstrip("'")
-    return len(rest) < len(text) and rest[:1] != "" and rest[0] in "=+-@\t\r"
+    return len(rest) < len(text) and rest[:1] != "" and _formula_like(rest)
+
+
+def spreadsheet_safe(text: str) -> str:
+    """``text`` as a cell no spreadsheet will run: formula-like text gets a leading quote.
+
+    The one rule every CSV/XLSX/DOCX writer uses (DESIGN.md section 8, rule 4);
+    :func:`unquote_formula` gives back exactly what was written through it.
+    """
+    if _formula_like(text) or _quoted_formula(text):
+        return "'" + text
+    return text
+
+
+def unquote_formula(text: str) -> str:
+    """The inverse of :func:`spreadsheet_safe`."""
+    return _unquote(text)[0]
 
 
 def _unquote(text: str) -> tuple[str, bool]:
@@ -747,9 +769,7 @@ def _neutralise(text: str) -> str:
     Text that already looks quoted ("'=x", typed so) gets a second quote, so that
     :func:`read_table`, which removes one, gives back exactly what was typed.
     """
-    if text.startswith(FORMULA_STARTS) or _quoted_formula(text):
-        return "'" + text
-    return text
+    return spreadsheet_safe(text)
 
 
 def _number_text(value: float) -> str:
@@ -825,4 +845,11 @@ def write_table_csv(
         raise
 
 
-__all__ = ["FORMULA_STARTS", "TableResult", "read_table", "write_table_csv"]
+__all__ = [
+    "FORMULA_STARTS",
+    "TableResult",
+    "read_table",
+    "spreadsheet_safe",
+    "unquote_formula",
+    "write_table_csv",
+]

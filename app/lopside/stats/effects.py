@@ -748,7 +748,9 @@ def _derive(
 
     se_modified = None
     if measure == "SMD" and n1 is not None and n0 is not None:
-        se_modified = math.sqrt(1 / n1 + 1 / n0)
+        # arm sizes far below one participant (a typo such as 5e-324) overflow 1/n
+        inv = 1 / n1 + 1 / n0
+        se_modified = math.sqrt(inv) if math.isfinite(inv) else None
 
     return Derived(
         y=y if route else None,

@@ -49,10 +49,11 @@ from .workers import AnalysisWorker, SheetWorker
 
 DEBOUNCE_MS = 50
 OPEN_FILTER = (
-    "Reviews and study tables (*.lopside *.json *.csv *.xlsx *.txt);;"
-    "Lopside projects (*.lopside);;Study tables (*.csv *.xlsx);;Pasted rows (*.txt)"
+    "Reviews and study tables (*.lopside *.json *.csv *.xlsx *.txt *.pdf);;"
+    "Lopside projects (*.lopside);;Study tables (*.csv *.xlsx);;Pasted rows (*.txt);;"
+    "A review's PDF (*.pdf)"
 )
-ACCEPTED_SUFFIXES = (SUFFIX, ".json", ".csv", ".xlsx", ".txt")
+ACCEPTED_SUFFIXES = (SUFFIX, ".json", ".csv", ".xlsx", ".txt", ".pdf")
 
 
 # ------------------------------------------------------------------ summary section choices
@@ -683,6 +684,8 @@ class MainWindow(QMainWindow):
         if ask and not self._maybe_save():
             return False
         p = Path(path)
+        if p.suffix.lower() == ".pdf":
+            return self.open_pdf(p)
         measure = None
         for _attempt in range(2):
             try:
@@ -706,6 +709,57 @@ class MainWindow(QMainWindow):
         self.update_views()
         self.say(f"Opened {p.name}.")
         return True
+
+    def open_pdf(self, p: Path):
+        """Read a review's PDF in the background, then let the user pick the rows."""
+        from PySide6.QtWidgets import QProgressDialog
+
+        from .pdf_dialog import PdfDialog, PdfReadWorker
+
+        worker = PdfReadWorker(str(p), self)
+        progress = QProgressDialog(M.PDF_READING, "Cancel", 0, 0, self)
+        progress.setWindowModality(Qt.WindowModal)
+        progress.setMinimumDuration(500)
+        progress.canceled.connect(worker.cancel)
+
+        def step(done: int, total: int) -> None:
+            progress.setMaximum(total)
+            progress.setValue(done)
+
+        def failed(message: str) -> None:
+            progress.close()
+            self._open_failed(p, ValueError(message))
+
+        def done(doc) -> None:
+            progress.close()
+            dlg = PdfDialog(str(p), self, doc=doc)
+            dlg.setWindowModality(Qt.WindowModal)
+            dlg.accepted.connect(lambda: self._pdf_chosen(p, dlg))
+            dlg.show()
+            self.pdf_dialog = dlg
+
+        worker.progress.connect(step)
+        worker.failed.connect(failed)
+        worker.finished_ok.connect(done)
+        self.pdf_worker = worker
+        worker.start()
+        return worker
+
+    def _pdf_chosen(self, p: Path, dlg) -> None:
+        """A new review from the chosen lines, through the paste preview."""
+        self.session.new()
+        self.stack.reset()
+        pages = ", ".join(str(n) for n in dlg.chosen_pages)
+        note = dlg.reading().source_note(p.name)
+        self.update_views()
+        paste = self.open_paste_dialog(dlg.chosen_text())
+
+        def added() -> None:
+            # where the rows came from stays with the review (shown on screen and sheet)
+            self.stack.push_many("note the PDF page", [ed.SetDetail("source_note", note)])
+            self.say(M.PDF_FROM.format(rows=len(paste.rows()), pages=pages, name=p.name), 15000)
+
+        paste.accepted.connect(added)
 
     def _open_failed(self, p: Path, exc: Exception) -> None:
         msg = M.OPEN_FAILED.format(name=p.name, error=exc)

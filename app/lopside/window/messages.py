@@ -81,3 +81,27 @@ CLAIM_K_BAD = (
     "“{text}” is not a number of studies: type a whole number; it is not used until it is one."
 )
 CLAIM_UNREAD = "“{text}” is not a number; it is kept here and not used until it is one."
+
+PDF_TITLE = "Rows from {name}"
+PDF_HELP = (
+    "Pages are listed with the most study rows first. Every line found on the page is boxed: "
+    "rows read as studies are numbered. Untick a line to leave it out, or drag a rectangle on "
+    "the page to keep only the lines inside it. Select several pages (Ctrl or Shift) for a "
+    "table that runs on. The chosen lines then go to the paste preview, which shows how each "
+    "was read before anything is added."
+)
+PDF_PAGES = "Pages"
+PDF_LINES = "Lines found (untick to leave out)"
+PDF_CLEAR_REGION = "Keep the whole page"
+PDF_USE = "Preview these rows"
+PDF_PAGE_ROWS = "Page {n}: {rows} study rows"
+PDF_PAGE_NONE = "Page {n}: no study rows"
+PDF_PAGE_PROBLEM = "Page {n}: {problem}"
+PDF_CANCELLED = "Reading stopped after {n} pages; pages after those are not listed."
+PDF_EMPTY_LINE = "an empty line"
+PDF_STATUS = (
+    "{rows} study rows on page(s) {pages}; {other} other line(s) will be listed as not used."
+)
+PDF_FAILED = "The PDF could not be read ({error})."
+PDF_READING = "Reading the PDF's pages…"
+PDF_FROM = "{rows} rows from page(s) {pages} of {name} were added."
