@@ -63,7 +63,7 @@ def _ratio_rows() -> list[tuple[str, str, float | None]]:
         )
     rows.append(
         (
-            "selection sensitivity + fixed weights, k = 30",
+            "selection block (+ fixed weights, missing), k = 30",
             "/ the whole analyse() (target <= 0.10)",
             ratio("selection-block-30", "analyse-30"),
         )
