@@ -478,3 +478,20 @@ def test_fixed_weight_fits_never_raise_and_stay_finite(data_):
         return
     for e in res.estimates:
         assert isinstance(e, NotComputable) or (np.isfinite(e.estimate) and e.tau2 >= 0)
+
+
+def test_fixed_weight_exact_hessian_matches_differences_of_the_gradient():
+    # central differences of the exact gradient (common practice) at a few points
+    from lopside.stats.selection_fixed import _Batch
+
+    model = _Batch(-Y, SE, CUTPOINTS)
+    logw = np.log(np.array([PATTERNS["severe one-tailed"], PATTERNS["moderate two-tailed"]]))
+    for mu, t2 in ((0.1, 0.0), (0.3, 0.05), (-0.2, 0.4)):
+        m = np.full(2, mu)
+        t = np.full(2, t2 + 1e-3)
+        _, _, H = model(m, t, logw, hessian=True)
+        h = 1e-6
+        for j, (dm, dt) in enumerate(((h, 0.0), (0.0, h))):
+            _, gp = model(m + dm, t + dt, logw)
+            _, gm = model(m - dm, t - dt, logw)
+            assert np.allclose(H[:, :, j], (gp - gm) / (2 * h), rtol=1e-5, atol=1e-5)

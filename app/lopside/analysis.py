@@ -249,7 +249,7 @@ def _selection_block(data: StudyData, random, settings: AnalysisSettings):
         tau2=random.tau2,
         etas=etas,
     )
-    fixed_w = _safe(fixed_weight_selection, data, pooled_estimate=random.estimate)
+    fixed_w = _safe(fixed_weight_selection, data, pooled_estimate=random.estimate, tau2=random.tau2)
     return sens, fixed_w
 
 

@@ -79,8 +79,8 @@ class _Batch:
     """Negative log-likelihood and exact gradient over (μ, τ²) for many weight sets at once.
 
     Same likelihood as :class:`adjust_selection._Model` (Vevea & Hedges 1995, methods.md
-    5.4), vectorised over B parameter points so that the Newton steps of every pattern,
-    with their finite-difference stencils, cost one array evaluation.
+    5.4), vectorised over B parameter points so that the Newton steps of every pattern
+    cost one array evaluation.
     """
 
     def __init__(self, y: np.ndarray, se: np.ndarray, cutpoints: tuple[float, ...]):
@@ -91,10 +91,20 @@ class _Batch:
         self.inner = se[:, None] * zc[None, :]  # k x (J-1)
         p = ndtr(-y / se)
         self.interval = np.searchsorted(np.asarray(cutpoints), p, side="left")
+        #: studies per interval: Σ_i log ω_j(i) = counts · log ω
+        self.counts = np.bincount(self.interval, minlength=len(cutpoints) + 1).astype(float)
         self._ndtr = ndtr
 
-    def __call__(self, mu: np.ndarray, t2: np.ndarray, logw: np.ndarray):
-        """f (B,), grad (B, 2) for B points; ``logw`` is B x J with logw[:, 0] = 0."""
+    def __call__(self, mu: np.ndarray, t2: np.ndarray, logw: np.ndarray, *, hessian=False):
+        """f (B,), grad (B, 2) [and Hessian (B, 2, 2)] of the negative log-likelihood at B
+        points; ``logw`` is B x J with logw[:, 0] = 0.
+
+        With σ² = v + τ², a_m = (b_m − μ)/σ at the inner bounds, Δω_m = ω_{m+1} − ω_m and
+        S_n = Σ_m Δω_m a_mⁿ φ(a_m): A = ω_1 + Σ_m Δω_m Φ(a_m),
+        ∂A/∂μ = −S_0/σ, ∂A/∂τ² = −S_1/(2σ²), ∂²A/∂μ² = −S_1/σ²,
+        ∂²A/∂μ∂τ² = −(S_2 − S_0)/(2σ³), ∂²A/∂(τ²)² = (3S_1 − S_3)/(4σ⁴)
+        (from φ′(a) = −aφ(a), ∂a/∂μ = −1/σ, ∂a/∂τ² = −a/(2σ²)).
+        """
         st2 = self.v[None, :] + t2[:, None]
         st = np.sqrt(st2)
         r = self.y[None, :] - mu[:, None]
@@ -105,28 +115,44 @@ class _Batch:
         pdf = np.exp(-0.5 * a * a) * (1.0 / math.sqrt(2.0 * math.pi))
         apdf = a * pdf
         dw = omega[:, 1:] - omega[:, :-1]  # B x (J-1): weight step at each inner bound
-        # A = Σ_j ω_j P_j = ω_1 + Σ_m (ω_{m+1} − ω_m) Φ(a_m) over the inner bounds
-        A = omega[:, :1] + np.einsum("bkm,bm->bk", cdf, dw)
-        dA_mu = -np.einsum("bkm,bm->bk", pdf, dw) / st
-        dA_t2 = -0.5 * np.einsum("bkm,bm->bk", apdf, dw) / st2
+        dwb = dw[:, :, None]
+        # sums over the inner bounds as batched matrix products (B,k,m) @ (B,m,1)
+        A = omega[:, :1] + (cdf @ dwb)[:, :, 0]
+        S0 = (pdf @ dwb)[:, :, 0]
+        S1 = (apdf @ dwb)[:, :, 0]
+        dA_mu = -S0 / st
+        dA_t2 = -0.5 * S1 / st2
         with np.errstate(divide="ignore", invalid="ignore"):
-            ll = (
-                -0.5 * np.log(2.0 * np.pi * st2)
-                - 0.5 * z2
-                + np.take_along_axis(logw, np.broadcast_to(self.interval, r.shape), axis=1)
-                - np.log(A)
-            )
-            g_mu = (r / st2 - dA_mu / A).sum(axis=1)
-            g_t2 = (0.5 * (z2 - 1.0) / st2 - dA_t2 / A).sum(axis=1)
-        f = -ll.sum(axis=1)
+            ll = -0.5 * np.log(2.0 * np.pi * st2) - 0.5 * z2 - np.log(A)
+            q_mu = dA_mu / A
+            q_t2 = dA_t2 / A
+            g_mu = (r / st2 - q_mu).sum(axis=1)
+            g_t2 = (0.5 * (z2 - 1.0) / st2 - q_t2).sum(axis=1)
+        f = -ll.sum(axis=1) - logw @ self.counts
         f[~np.isfinite(f) | np.any(A <= 0, axis=1)] = np.inf
-        return f, -np.stack([g_mu, g_t2], axis=1)
+        grad = -np.stack([g_mu, g_t2], axis=1)
+        if not hessian:
+            return f, grad
+        a2pdf = a * apdf
+        S2 = (a2pdf @ dwb)[:, :, 0]
+        S3 = ((a * a2pdf) @ dwb)[:, :, 0]
+        st3 = st2 * st
+        st4 = st2 * st2
+        with np.errstate(divide="ignore", invalid="ignore"):
+            A_mm = -S1 / st2
+            A_mt = -(S2 - S0) / (2.0 * st3)
+            A_tt = (3.0 * S1 - S3) / (4.0 * st4)
+            h_mm = (-1.0 / st2 - (A_mm / A - q_mu * q_mu)).sum(axis=1)
+            h_mt = (-r / st4 - (A_mt / A - q_mu * q_t2)).sum(axis=1)
+            h_tt = (-(r * r) / (st4 * st2) + 0.5 / st4 - (A_tt / A - q_t2 * q_t2)).sum(axis=1)
+        H = -np.stack([np.stack([h_mm, h_mt], axis=1), np.stack([h_mt, h_tt], axis=1)], axis=1)
+        return f, grad, H
 
 
 def _newton_batch(model: _Batch, logw: np.ndarray, x0: np.ndarray, *, maxiter: int = 60):
     """Damped Newton over (μ, τ² ≥ 0) for every weight set at once.
 
-    The Hessian is a forward difference of the exact gradient; a step that does not lower
+    Exact gradient and Hessian (see :meth:`_Batch.__call__`); a step that does not lower
     the objective is halved at the next round (backtracking folded into the loop).
     Returns (x, converged) with x of shape B x 2.
     """
@@ -140,19 +166,11 @@ def _newton_batch(model: _Batch, logw: np.ndarray, x0: np.ndarray, *, maxiter: i
     for _ in range(maxiter):
         active = ~done
         idx = np.flatnonzero(active)  # only the weight sets still moving are evaluated
-        xa = x[idx]
-        h = 1e-6 * np.maximum(1.0, np.abs(xa))
-        pts = np.repeat(xa, 3, axis=0)
-        pts[1::3, 0] += h[:, 0]
-        pts[2::3, 1] += h[:, 1]
-        f3, g3 = model(pts[:, 0], pts[:, 1], np.repeat(logw[idx], 3, axis=0))
+        fa, ga, Ha = model(x[idx, 0], x[idx, 1], logw[idx], hessian=True)
         f = np.full(P, np.inf)
         g = np.zeros((P, 2))
         H = np.zeros((P, 2, 2))
-        f[idx], g[idx] = f3[0::3], g3[0::3]
-        H[idx, :, 0] = (g3[1::3] - g3[0::3]) / h[:, :1]
-        H[idx, :, 1] = (g3[2::3] - g3[0::3]) / h[:, 1:]
-        H = 0.5 * (H + np.transpose(H, (0, 2, 1)))
+        f[idx], g[idx], H[idx] = fa, ga, Ha
         worse = ~(f <= best_f + 1e-13 * np.abs(best_f)) & np.isfinite(best_f)
         # accept the improved points; halve the step of the others from their best point
         ok = active & ~worse
@@ -181,7 +199,19 @@ def _newton_batch(model: _Batch, logw: np.ndarray, x0: np.ndarray, *, maxiter: i
         move = active & ~done
         x[move] = best_x[move] + step[move]
         x[:, 1] = np.maximum(x[:, 1], 0.0)
-        done |= move & (np.max(np.abs(x - best_x), axis=1) < 1e-13)
+        # a full Newton step this small lands within rounding of the maximum (quadratic
+        # convergence): take it without spending another evaluation to confirm
+        tiny = (
+            move
+            & fwd
+            & newton_ok
+            & (
+                np.max(np.abs(x - best_x), axis=1)
+                < 1e-9 * np.maximum(1.0, np.abs(best_x).max(axis=1))
+            )
+        )
+        best_x[tiny] = x[tiny]
+        done |= tiny
         if done.all():
             break
     return best_x, done
@@ -191,6 +221,7 @@ def fixed_weight_selection(
     data: StudyData,
     *,
     pooled_estimate: float,
+    tau2: float | None = None,
     patterns: dict[str, tuple[float, ...]] | None = None,
 ) -> FixedWeightSelection | NotComputable:
     """Adjusted estimates under the Vevea & Woods a priori weight patterns.
@@ -216,10 +247,12 @@ def fixed_weight_selection(
         if len(w) != len(CUTPOINTS) + 1 or w[0] != 1.0 or min(w) <= 0:
             raise ValueError(f"pattern {name!r} needs {len(CUTPOINTS) + 1} weights, first 1")
         logw[i] = np.log(w)
-    # start every pattern at the uncorrected estimate with the moment τ² of the data
-    start = np.tile(
-        [sign * pooled_estimate, max(0.0, float(np.var(y) - np.mean(se**2)))], (len(names), 1)
-    )
+    # start every pattern at the uncorrected estimate with its τ² (when given), else the
+    # moment τ² of the data; the starting point changes the speed, not the maximum
+    t0 = tau2 if tau2 is not None and math.isfinite(tau2) and tau2 >= 0 else None
+    if t0 is None:
+        t0 = max(0.0, float(np.var(y) - np.mean(se**2)))
+    start = np.tile([sign * pooled_estimate, t0], (len(names), 1))
     x, ok = _newton_batch(model, logw, start)
     if not ok[0]:
         return NotComputable("the random-effects likelihood could not be maximised")

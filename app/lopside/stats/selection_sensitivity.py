@@ -320,7 +320,7 @@ def _model(
             e_, s_, _, c_ = evaluate(np.asarray(e, dtype=float))
             return e_ - c_ * s_
 
-        first = float(near(np.array([1.0]))[0])
+        first = float(est[0] - crit[0] * se[0])  # η = 1 is the first of ``etas``
         if not math.isfinite(first):
             ci_reason = "the interval cannot be computed at η = 1 for these studies"
         elif first <= 0:
@@ -329,7 +329,7 @@ def _model(
             # vectorised bracketing: a log grid, then finer grids inside the first bracket
             lo_eta, hi_eta = 1.0, ETA_SEARCH_MAX
             s_ci, ci_reason = None, MSG_NOT_ATTAINABLE_CI
-            for _ in range(6):
+            for _ in range(5):
                 grid = np.geomspace(lo_eta, hi_eta, 41)
                 g = near(grid)
                 hit = np.flatnonzero(~(g > 0))
@@ -352,10 +352,7 @@ def _model(
     lo_c, hi_c = ce - cc * cs, ce + cc * cs
     if sign < 0:
         lo_c, hi_c = -hi_c, -lo_c
-    curve = tuple(
-        (float(g), float(sign * e), float(lo), float(hi))
-        for g, e, lo, hi in zip(grid, ce, lo_c, hi_c)
-    )
+    curve = tuple(map(tuple, np.column_stack([grid, sign * ce, lo_c, hi_c]).tolist()))
     return SensitivityModel(
         model=name,
         method=ROBUST_METHOD if robust else FIXED_METHOD,
