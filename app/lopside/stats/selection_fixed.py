@@ -110,16 +110,26 @@ class _Batch:
         r = self.y[None, :] - mu[:, None]
         z2 = r * r / st2
         omega = np.exp(logw)
-        a = (self.inner[None, :, :] - mu[:, None, None]) / st[:, :, None]  # B,k,J-1
-        cdf = self._ndtr(a)
-        pdf = np.exp(-0.5 * a * a) * (1.0 / math.sqrt(2.0 * math.pi))
-        apdf = a * pdf
-        dw = omega[:, 1:] - omega[:, :-1]  # B x (J-1): weight step at each inner bound
-        dwb = dw[:, :, None]
-        # sums over the inner bounds as batched matrix products (B,k,m) @ (B,m,1)
-        A = omega[:, :1] + (cdf @ dwb)[:, :, 0]
-        S0 = (pdf @ dwb)[:, :, 0]
-        S1 = (apdf @ dwb)[:, :, 0]
+        dwb = (omega[:, 1:] - omega[:, :-1])[None, :, :, None]  # weight step per inner bound
+        a = self.inner[None, :, :] - mu[:, None, None]
+        a /= st[:, :, None]  # B,k,J-1
+        n = 5 if hessian else 3
+        T = np.empty((n, *a.shape))  # Φ(a), φ(a), aφ(a) [, a²φ(a), a³φ(a)]
+        self._ndtr(a, out=T[0])
+        np.multiply(a, a, out=T[1])
+        if hessian:
+            np.multiply(T[1], a, out=T[4])  # a³ for now
+        T[1] *= -0.5
+        np.exp(T[1], out=T[1])
+        T[1] *= 1.0 / math.sqrt(2.0 * math.pi)
+        np.multiply(a, T[1], out=T[2])
+        if hessian:
+            np.multiply(a, T[2], out=T[3])
+            T[4] *= T[1]
+        # sums over the inner bounds in one batched matrix product: (n,B,k,m) @ (1,B,m,1)
+        Ssum = (T @ dwb)[..., 0]
+        A = omega[:, :1] + Ssum[0]
+        S0, S1 = Ssum[1], Ssum[2]
         dA_mu = -S0 / st
         dA_t2 = -0.5 * S1 / st2
         with np.errstate(divide="ignore", invalid="ignore"):
@@ -133,88 +143,88 @@ class _Batch:
         grad = -np.stack([g_mu, g_t2], axis=1)
         if not hessian:
             return f, grad
-        a2pdf = a * apdf
-        S2 = (a2pdf @ dwb)[:, :, 0]
-        S3 = ((a * a2pdf) @ dwb)[:, :, 0]
-        st3 = st2 * st
+        S2, S3 = Ssum[3], Ssum[4]
         st4 = st2 * st2
         with np.errstate(divide="ignore", invalid="ignore"):
             A_mm = -S1 / st2
-            A_mt = -(S2 - S0) / (2.0 * st3)
+            A_mt = -(S2 - S0) / (2.0 * st2 * st)
             A_tt = (3.0 * S1 - S3) / (4.0 * st4)
             h_mm = (-1.0 / st2 - (A_mm / A - q_mu * q_mu)).sum(axis=1)
             h_mt = (-r / st4 - (A_mt / A - q_mu * q_t2)).sum(axis=1)
             h_tt = (-(r * r) / (st4 * st2) + 0.5 / st4 - (A_tt / A - q_t2 * q_t2)).sum(axis=1)
-        H = -np.stack([np.stack([h_mm, h_mt], axis=1), np.stack([h_mt, h_tt], axis=1)], axis=1)
+        H = np.empty((f.size, 2, 2))
+        H[:, 0, 0] = -h_mm
+        H[:, 0, 1] = H[:, 1, 0] = -h_mt
+        H[:, 1, 1] = -h_tt
         return f, grad, H
 
 
 def _newton_batch(model: _Batch, logw: np.ndarray, x0: np.ndarray, *, maxiter: int = 60):
     """Damped Newton over (μ, τ² ≥ 0) for every weight set at once.
 
-    Exact gradient and Hessian (see :meth:`_Batch.__call__`); a step that does not lower
-    the objective is halved at the next round (backtracking folded into the loop).
-    Returns (x, converged) with x of shape B x 2.
+    Exact gradient and Hessian (see :meth:`_Batch.__call__`), evaluated for all the weight
+    sets still moving in one array call; the 2 x 2 step of each is plain arithmetic. A
+    step that does not lower the objective is halved at the next round (backtracking
+    folded into the loop); on the τ² = 0 boundary with the gradient pushing outwards only
+    μ moves. Returns (x, converged) with x of shape B x 2.
     """
     P = logw.shape[0]
-    x = np.array(x0, dtype=float)
-    x[:, 1] = np.maximum(x[:, 1], 0.0)
-    best_x = x.copy()
-    best_f = np.full(P, np.inf)
-    step = np.zeros_like(x)
-    done = np.zeros(P, dtype=bool)
+    x = [[float(a), max(float(b), 0.0)] for a, b in np.asarray(x0, dtype=float)]
+    best_x = [list(p) for p in x]
+    best_f = [math.inf] * P
+    step = [[0.0, 0.0] for _ in range(P)]
+    done = [False] * P
     for _ in range(maxiter):
-        active = ~done
-        idx = np.flatnonzero(active)  # only the weight sets still moving are evaluated
-        fa, ga, Ha = model(x[idx, 0], x[idx, 1], logw[idx], hessian=True)
-        f = np.full(P, np.inf)
-        g = np.zeros((P, 2))
-        H = np.zeros((P, 2, 2))
-        f[idx], g[idx], H[idx] = fa, ga, Ha
-        worse = ~(f <= best_f + 1e-13 * np.abs(best_f)) & np.isfinite(best_f)
-        # accept the improved points; halve the step of the others from their best point
-        ok = active & ~worse
-        best_x[ok], best_f[ok] = x[ok], f[ok]
-        back = active & worse
-        step[back] *= 0.5
-        done |= back & (np.max(np.abs(step), axis=1) < 1e-14)
-        fwd = active & ~worse
-        at_bound = (x[:, 1] <= 0.0) & (g[:, 1] > 0)
-        gfree = np.where(at_bound, 0.0, g[:, 1])
-        conv = np.maximum(np.abs(g[:, 0]), np.abs(gfree)) < 1e-9 * np.maximum(1.0, np.abs(f))
-        done |= fwd & conv
-        fwd &= ~conv
-        h00, h01, h11 = H[:, 0, 0], H[:, 0, 1], H[:, 1, 1]
-        det = h00 * h11 - h01 * h01
-        with np.errstate(divide="ignore", invalid="ignore"):
-            full = np.stack([-(h11 * g[:, 0] - h01 * g[:, 1]) / det,
-                             -(h00 * g[:, 1] - h01 * g[:, 0]) / det], axis=1)  # fmt: skip
-            mu_only = np.stack([-g[:, 0] / h00, np.zeros(P)], axis=1)
-        gmax = np.maximum(1.0, np.max(np.abs(g), axis=1))[:, None]
-        descent = -np.stack([g[:, 0], gfree], axis=1) / gmax
-        newton_ok = np.where(at_bound, h00 > 0, (h00 > 0) & (det > 0))
-        s_new = np.where(at_bound[:, None], mu_only, full)
-        s_new = np.where(newton_ok[:, None] & np.isfinite(s_new), s_new, descent)
-        step[fwd] = s_new[fwd]
-        move = active & ~done
-        x[move] = best_x[move] + step[move]
-        x[:, 1] = np.maximum(x[:, 1], 0.0)
-        # a full Newton step this small lands within rounding of the maximum (quadratic
-        # convergence): take it without spending another evaluation to confirm
-        tiny = (
-            move
-            & fwd
-            & newton_ok
-            & (
-                np.max(np.abs(x - best_x), axis=1)
-                < 1e-9 * np.maximum(1.0, np.abs(best_x).max(axis=1))
-            )
-        )
-        best_x[tiny] = x[tiny]
-        done |= tiny
-        if done.all():
+        idx = [p for p in range(P) if not done[p]]
+        if not idx:
             break
-    return best_x, done
+        pts = np.array([x[p] for p in idx])
+        fa, ga, Ha = model(pts[:, 0], pts[:, 1], logw[idx], hessian=True)
+        fa, ga, Ha = fa.tolist(), ga.tolist(), Ha.tolist()
+        for n, p in enumerate(idx):
+            f = fa[n]
+            g0, g1 = ga[n]
+            (h00, h01), (_, h11) = Ha[n]
+            bf = best_f[p]
+            if math.isfinite(bf) and not f <= bf + 1e-13 * abs(bf):
+                # worse than the best point: halve the step from there
+                step[p] = [0.5 * step[p][0], 0.5 * step[p][1]]
+                if max(abs(step[p][0]), abs(step[p][1])) < 1e-14:
+                    done[p] = True
+                    continue
+                x[p] = [best_x[p][0] + step[p][0], max(best_x[p][1] + step[p][1], 0.0)]
+                continue
+            best_x[p], best_f[p] = list(x[p]), f
+            at_bound = x[p][1] <= 0.0 and g1 > 0
+            g1f = 0.0 if at_bound else g1
+            if max(abs(g0), abs(g1f)) < 1e-9 * max(1.0, abs(f)):
+                done[p] = True
+                continue
+            det = h00 * h11 - h01 * h01
+            newton = False
+            if at_bound:
+                if h00 > 0:
+                    s0, s1, newton = -g0 / h00, 0.0, True
+            elif h00 > 0 and det > 0:
+                s0 = -(h11 * g0 - h01 * g1) / det
+                s1 = -(h00 * g1 - h01 * g0) / det
+                newton = math.isfinite(s0) and math.isfinite(s1)
+            if not newton:
+                gmax = max(1.0, abs(g0), abs(g1))
+                s0, s1 = -g0 / gmax, -g1f / gmax
+            step[p] = [s0, s1]
+            new = [best_x[p][0] + s0, max(best_x[p][1] + s1, 0.0)]
+            moved = max(abs(new[0] - best_x[p][0]), abs(new[1] - best_x[p][1]))
+            x[p] = new
+            scale = max(1.0, abs(best_x[p][0]), abs(best_x[p][1]))
+            if newton and moved < 1e-9 * scale:
+                # a full Newton step this small lands within rounding of the maximum
+                # (quadratic convergence): take it without another evaluation to confirm
+                best_x[p] = new
+                done[p] = True
+            elif moved < 1e-13:
+                done[p] = True
+    return np.array(best_x), np.array(done)
 
 
 def fixed_weight_selection(
