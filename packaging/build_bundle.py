@@ -10,10 +10,15 @@ On Windows use ``py -3.11 packaging\\build_bundle.py`` from a normal (non-admin)
 Steps, all inside ``packaging/build`` and ``packaging/dist`` (both git-ignored):
 
 1. a throwaway virtual environment ``packaging/build/venv`` with the exact versions of
-   ``packaging/requirements-bundle.txt`` (PyInstaller and its hooks pinned with scipy);
-   Lopside itself is installed from this checkout as a wheel would be (not editable), so
-   the bundle gets the same package data as users of the wheel;
-2. PyInstaller on ``packaging/lopside.spec`` -> ``packaging/dist/Lopside/``;
+   ``packaging/requirements-bundle.txt`` (pip, setuptools, PyInstaller and its hooks
+   pinned with scipy; the Python version must be the file's ``bundle-python``); Lopside
+   itself is installed from this checkout as a wheel would be (not editable, built with
+   the pinned setuptools), so the bundle gets the same package data as users of the wheel;
+2. PyInstaller on ``packaging/lopside.spec`` -> ``packaging/dist/Lopside/``; a hidden
+   import PyInstaller could not find fails the build (unless :data:`KNOWN_ABSENT` says
+   why it does not matter and the module indeed does not exist); then
+   ``packaging/notices.py`` collects every licence text into
+   ``THIRD-PARTY-NOTICES/`` and fails the build when a bundled distribution has none;
 3. a smoke test of the built folder: ``--self-test`` offscreen, ``check --json``,
    ``sheet -o`` and ``plot`` on a sample review bundled inside it, with throwaway user
    folders; on Linux, when ``unshare`` can make a network namespace, with no network at
@@ -28,6 +33,7 @@ from __future__ import annotations
 import argparse
 import json
 import os
+import re
 import shutil
 import statistics
 import subprocess
@@ -90,6 +96,15 @@ FORBIDDEN_FILES = (
     "_ssl*",
 )
 
+#: Hidden imports that PyInstaller's own hooks ask for but that the pinned versions do not
+#: have, so "not found" is expected. Each is re-checked at build time: if the module
+#: exists after all (a new release brought it back), the build fails again.
+KNOWN_ABSENT = {
+    "scipy.special._cdflib": "listed by PyInstaller's scipy hook for older scipy releases; "
+    "scipy 1.17 has no such module",
+}
+HIDDEN_IMPORT_MISSING = re.compile(r'Hidden import [\'"]([\w.]+)[\'"] not found')
+
 #: Keys the JSON of ``check --json`` must have (DESIGN.md section 3).
 JSON_KEYS = ("measure", "k", "studies", "pooled", "heterogeneity", "tests", "trim_fill")
 
@@ -138,11 +153,26 @@ def run(cmd: list[str | os.PathLike], what: str, **kw) -> subprocess.CompletedPr
 
 def make_venv(python: str) -> Path:
     """Create (or reuse) the build environment and install the pinned set and Lopside."""
+    sys.path.insert(0, str(HERE))
+    from windows_readiness import read_pins
+
+    pins, bundle_python = read_pins(REQUIREMENTS)
     py = venv_python()
     quiet = dict(capture_output=True, text=True)  # pip's output is shown only on failure
     if not py.exists():
         run([python, "-m", "venv", VENV], "creating the build environment")
-    run([py, "-m", "pip", "install", "-q", "--upgrade", "pip"], "upgrading pip", **quiet)
+    got = run(
+        [py, "-c", "import sys; print('%d.%d' % sys.version_info[:2])"],
+        "asking the build environment's Python version",
+        **quiet,
+    ).stdout.strip()
+    if got != bundle_python:
+        raise StepFailed(
+            f"the build environment has Python {got}; requirements-bundle.txt pins "
+            f"{bundle_python}: run with --python python{bundle_python} --fresh"
+        )
+    pip_pin = next(f"pip=={p.version}" for p in pins if p.name.lower() == "pip")
+    run([py, "-m", "pip", "install", "-q", pip_pin], f"installing {pip_pin}", **quiet)
     run(
         [py, "-m", "pip", "install", "-q", "-r", REQUIREMENTS],
         "installing the pinned set",
@@ -150,8 +180,19 @@ def make_venv(python: str) -> Path:
     )
     # Not editable: the bundle must see the package exactly as a wheel installs it,
     # sample reviews and resources included. --no-deps: the pins above are the deps.
+    # --no-build-isolation: built with the pinned setuptools, not whatever is newest.
     run(
-        [py, "-m", "pip", "install", "-q", "--no-deps", "--force-reinstall", REPO],
+        [
+            py,
+            "-m",
+            "pip",
+            "install",
+            "-q",
+            "--no-deps",
+            "--no-build-isolation",
+            "--force-reinstall",
+            REPO,
+        ],
         "installing Lopside from this checkout",
         **quiet,
     )
@@ -162,11 +203,31 @@ def make_venv(python: str) -> Path:
 # --- 2. build ---------------------------------------------------------------------------
 
 
+def missing_hidden_imports(log: str, exists) -> list[str]:
+    """Hidden imports PyInstaller reported as not found that matter: all of them except
+    those in :data:`KNOWN_ABSENT` that ``exists(name)`` confirms are really absent."""
+    bad = []
+    for name in dict.fromkeys(HIDDEN_IMPORT_MISSING.findall(log)):
+        if name in KNOWN_ABSENT and not exists(name):
+            continue
+        bad.append(name)
+    return bad
+
+
+def _module_exists_in(py: Path):
+    def exists(name: str) -> bool:
+        code = f"import importlib.util as u, sys; sys.exit(0 if u.find_spec({name!r}) else 1)"
+        proc = subprocess.run([str(py), "-c", code], capture_output=True, env=clean_env())
+        return proc.returncode == 0
+
+    return exists
+
+
 def build(py: Path) -> Path:
-    """Run PyInstaller on the spec; return the bundle folder."""
+    """Run PyInstaller on the spec, then collect the licence notices; return the bundle."""
     if BUNDLE.exists():
         shutil.rmtree(BUNDLE)
-    run(
+    proc = run(
         [
             py,
             "-m",
@@ -183,13 +244,28 @@ def build(py: Path) -> Path:
         ],
         "PyInstaller",
         cwd=HERE,
+        capture_output=True,
+        text=True,
     )
+    log = proc.stdout + proc.stderr
+    print(log, end="" if log.endswith("\n") or not log else "\n")
+    bad = missing_hidden_imports(log, _module_exists_in(py))
+    if bad:
+        raise StepFailed(
+            f"PyInstaller could not find hidden imports {bad}: a module the app or a hook "
+            "needs is missing from the bundle. Fix the pins or the spec; if the module "
+            "truly does not exist in the pinned version, add it to KNOWN_ABSENT with why."
+        )
     window_exe, cli_exe = bundle_exes()
     for exe in {window_exe, cli_exe}:
         if not exe.exists():
             raise StepFailed(f"PyInstaller finished but {exe} is missing")
     # the notes for IT and users travel with the folder
     shutil.copy2(HERE / "README-IT.md", BUNDLE / "README-IT.md")
+    run(
+        [py, HERE / "notices.py", "--bundle", BUNDLE, "--modules", WORK / "lopside" / "PYZ-00.toc"],
+        "collecting THIRD-PARTY-NOTICES (licence texts)",
+    )
     return BUNDLE
 
 
@@ -214,9 +290,12 @@ def check_contents(bundle: Path = BUNDLE, work: Path = WORK) -> list[str]:
     missing = [m for m in REQUIRED_MODULES if not has(m)]
     if missing:
         raise StepFailed(f"the bundle lacks modules: {missing}")
-    files = [p for pat in FORBIDDEN_FILES for p in bundle.rglob(pat)]
+    files = [p for pat in FORBIDDEN_FILES for p in (bundle / "_internal").rglob(pat)]
     if files:
         raise StepFailed(f"the bundle contains files it must not: {files[:5]}")
+    index = bundle / "THIRD-PARTY-NOTICES" / "INDEX.txt"
+    if not index.is_file():
+        raise StepFailed(f"no licence notices {index}: run packaging/notices.py")
     internal = bundle / "_internal"
     if not (internal / "svglib" / "svglib.py").is_file():
         raise StepFailed("svglib is not in _internal/svglib as replaceable .py files")
@@ -242,6 +321,8 @@ def check_contents(bundle: Path = BUNDLE, work: Path = WORK) -> list[str]:
         "(network clients, dev tools, other toolkits)",
         f"Qt platform plugins: {', '.join(sorted(platforms))}; DejaVu Sans bundled; "
         "svglib as replaceable .py files",
+        f"licence notices: {index.relative_to(bundle)} "
+        f"({sum(1 for _ in index.parent.rglob('*') if _.is_file())} files)",
     ]
 
 

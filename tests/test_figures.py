@@ -16,7 +16,6 @@ inputs to drawing code, not reference values. Expected geometry comes from:
 
 from __future__ import annotations
 
-import argparse
 import math
 import subprocess
 import sys
@@ -903,11 +902,9 @@ def test_cumulative_and_radial_adaptors(result):
 
 
 def _plot_args(argv):
-    from lopside.figures.cli_plot import add_plot_arguments
+    from lopside.cli import build_parser
 
-    p = argparse.ArgumentParser()
-    add_plot_arguments(p)
-    return p.parse_args(argv)
+    return build_parser().parse_args(["plot", *argv])
 
 
 def _write_csv(path, with_n=True):

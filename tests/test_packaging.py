@@ -314,13 +314,16 @@ def test_bundle_pins_every_runtime_dependency():
         "dependencies"
     ]
     names = {_norm(re.split(r"[\s<>=!~;\[]", d, maxsplit=1)[0]) for d in declared}
-    pins = {}
-    for line in (REPO / "packaging" / "requirements-bundle.txt").read_text().splitlines():
-        line = line.split("#", 1)[0].strip()
-        if line:
-            name, _, version = line.partition("==")
-            assert version, f"not an exact pin: {line!r}"
-            pins[_norm(name)] = version
+    import importlib.util
+
+    spec = importlib.util.spec_from_file_location(
+        "lopside_windows_readiness_pins", REPO / "packaging" / "windows_readiness.py"
+    )
+    readiness = importlib.util.module_from_spec(spec)
+    sys.modules[spec.name] = readiness
+    spec.loader.exec_module(readiness)
+    # read_pins refuses anything but name==version (with an optional platform marker)
+    pins = {_norm(p.name): p.version for p in readiness.read_pins()[0]}
     missing = sorted(names - pins.keys())
     assert missing == [], f"add exact pins to packaging/requirements-bundle.txt: {missing}"
     for tool in ("pyinstaller", "pyinstaller-hooks-contrib", "scipy"):

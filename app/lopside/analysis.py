@@ -77,6 +77,9 @@ class AnalysisResult:
     #: trials known to be missing (reported = no): pooled estimate had they reported
     #: (None when the table has no such row)
     unreported_trials: Any = None
+    #: rows worth checking against the paper (stats.diagnostics.RowFlags): implausible
+    #: arms, outliers and influential studies, heterogeneity drivers, possible duplicates
+    row_flags: Any = None
     fingerprint: str = ""
     notes: tuple[str, ...] = field(default_factory=tuple)
 
@@ -297,6 +300,7 @@ def _analyse(review, settings, *, with_power, power_progress) -> AnalysisResult:
     from .intake.checks import check_rows
     from .stats import adjust, applicability, asymmetry, binary, moderators, sensitivity
     from .stats import pooling as pl
+    from .stats.diagnostics import flag_rows, suspects
     from .stats.effects import derive_all
     from .stats.reconcile import reconcile
 
@@ -341,6 +345,7 @@ def _analyse(review, settings, *, with_power, power_progress) -> AnalysisResult:
 
     loo = _safe(sensitivity.leave_one_out, data, tau2_method=settings.tau2_method)
     cumulative = _safe(sensitivity.cumulative, data, tau2_method=settings.tau2_method)
+    row_flags = _safe(flag_rows, data, loo)
 
     published = _published_on_scale(review, measure)
     if published is None:
@@ -356,7 +361,7 @@ def _analyse(review, settings, *, with_power, power_progress) -> AnalysisResult:
             ratio=measure in RATIO_MEASURES,
             published_model=review.details.published.model,
             loo=lambda key: _leave_one_out_estimates(data, key, measure),
-            flagged=_flagged_rows(review, problems),
+            flagged=_flagged_rows(review, problems) + suspects(row_flags, problems),
         )
 
     tau2 = random.tau2 if isinstance(random, PooledEstimate) else 0.0
@@ -469,5 +474,6 @@ def _analyse(review, settings, *, with_power, power_progress) -> AnalysisResult:
         selection_sensitivity=sel_sens,
         selection_fixed_weights=sel_fixed,
         unreported_trials=missing,
+        row_flags=row_flags,
         fingerprint=fingerprint(review, measure),
     )

@@ -10,7 +10,9 @@
     lopside panel FILE... -o OUT.pdf|.docx|.xlsx|.csv [--skip-bad]
     lopside slide FILE -o slide.pptx|.png [--outcome NAME]
 
-Exit status 0 on success, 2 on bad input (message on stderr naming the problem).
+Exit status 0 on success, 2 on bad input (message on stderr naming the problem), 3 on an
+internal error. Output redirected to a file or a pipe is UTF-8; a console gets plain ASCII
+for what it cannot show (lopside.console decides, once, in main()).
 """
 
 from __future__ import annotations
@@ -27,6 +29,29 @@ from .model.review import MEASURES
 from .settings import AnalysisSettings
 
 SUBCOMMANDS = ("check", "sheet", "plot", "batch", "panel", "slide")
+
+#: What ``lopside --help`` says before the list of commands: every way to start Lopside.
+USAGE = (
+    "lopside [FILE]\n"
+    "       lopside --self-test\n"
+    "       lopside COMMAND ... [options]   (COMMAND: " + ", ".join(SUBCOMMANDS) + ")"
+)
+DESCRIPTION = """\
+Appraise small-study effects in a published meta-analysis (offline).
+
+ways to start:
+  lopside               open the window
+  lopside FILE          open the window on FILE (a project .lopside, a CSV/XLSX study
+                        table, a .txt of rows pasted from a paper, or the review's PDF)
+  lopside --self-test   build the window offscreen, analyse a sample review, write a
+                        sheet, and exit (0 when everything worked)
+  lopside COMMAND ...   one of the headless commands below; 'lopside COMMAND -h' lists
+                        its options"""
+EPILOG = """\
+Exit status: 0 done, 2 bad input (one message on stderr naming the file and what to do),
+3 internal error (nothing half-written). Output redirected to a file or a pipe is UTF-8
+without a byte-order mark; a console that cannot show a character (tau, sqrt, >=, -) gets
+it spelled in plain ASCII."""
 
 
 def add_analysis_arguments(p: argparse.ArgumentParser) -> None:
@@ -153,15 +178,19 @@ def cmd_check(args) -> int:
             return True
 
     result = analyse(review, settings, with_power=args.power, power_progress=progress)
+    # the whole text is made before the first byte goes out, so a failure leaves an empty
+    # output rather than a cut-off one
     if args.json:
         from .report import to_json
 
-        json.dump(to_json(result), sys.stdout, indent=2, ensure_ascii=False, allow_nan=False)
-        sys.stdout.write("\n")
+        text = json.dumps(to_json(result), indent=2, ensure_ascii=False, allow_nan=False)
+        text += "\n"
     else:
         from .summary import text_summary
 
-        sys.stdout.write(text_summary(result))
+        text = text_summary(result)
+    sys.stdout.write(text)
+    sys.stdout.flush()
     return 0
 
 
@@ -390,10 +419,16 @@ def add_batch_arguments(b: argparse.ArgumentParser) -> None:
 def build_parser() -> argparse.ArgumentParser:
     parser = argparse.ArgumentParser(
         prog="lopside",
-        description="Appraise small-study effects in a published meta-analysis (offline).",
+        usage=USAGE,
+        description=DESCRIPTION,
+        epilog=EPILOG,
+        formatter_class=argparse.RawDescriptionHelpFormatter,
     )
     parser.add_argument("--version", action="version", version=f"Lopside {__version__}")
-    sub = parser.add_subparsers(dest="command", metavar="COMMAND")
+    add_self_test_argument(parser)
+    sub = parser.add_subparsers(
+        dest="command", metavar="COMMAND", title="headless commands", prog="lopside"
+    )
     c = sub.add_parser("check", help="print the analysis summary")
     add_analysis_arguments(c)
     c.add_argument("--json", action="store_true", help="print the JSON object instead of text")
@@ -405,14 +440,19 @@ def build_parser() -> argparse.ArgumentParser:
     c.set_defaults(func=cmd_check)
     s = sub.add_parser("sheet", help="write the appraisal sheet (PDF)")
     add_analysis_arguments(s)
-    s.add_argument("-o", "--output", required=True, metavar="OUT.pdf")
+    s.add_argument(
+        "-o", "--output", required=True, metavar="OUT.pdf", help="where to write the sheet (PDF)"
+    )
     s.add_argument("--include-forest", action="store_true", help="add the forest plot")
-    s.add_argument("--appraiser", default="", metavar="NAME")
+    s.add_argument(
+        "--appraiser", default="", metavar="NAME", help="name printed on the sheet as appraiser"
+    )
     s.add_argument("--power", action="store_true", help="include the power simulation")
     s.set_defaults(func=cmd_sheet)
     p = sub.add_parser("plot", help="draw one figure to PNG, SVG or PDF")
     from .figures.cli_plot import add_plot_arguments, run_plot
 
+    add_analysis_arguments(p)
     add_plot_arguments(p)
     p.set_defaults(func=run_plot)
     pn = sub.add_parser(
@@ -453,14 +493,47 @@ def build_parser() -> argparse.ArgumentParser:
     return parser
 
 
-def window_main(argv: list[str]) -> int:
-    wp = argparse.ArgumentParser(prog="lopside", description="Open the Lopside window.")
-    wp.add_argument("file", nargs="?", metavar="FILE", help="review or study table to open")
-    wp.add_argument(
+def add_self_test_argument(p: argparse.ArgumentParser) -> None:
+    p.add_argument(
         "--self-test",
         action="store_true",
-        help="build the window offscreen, analyse a sample, write a sheet, exit",
+        help="build the window offscreen, analyse a sample review, write a sheet, exit",
     )
+
+
+def unknown_command(argv: list[str]) -> str | None:
+    """The message for a first argument that is neither a command nor a file to open.
+
+    ``lopside chek FILE`` would otherwise try to open a window on a file called "chek".
+    A first word that names an existing path, or looks like a file name (has a suffix)
+    and stands alone, is left to the window, which reports a missing file itself.
+    """
+    if not argv or argv[0].startswith("-"):
+        return None
+    word = argv[0]
+    if os.path.exists(word):
+        return None
+    if len(argv) == 1 and os.path.splitext(word)[1]:
+        return None
+    import difflib
+
+    close = difflib.get_close_matches(word.lower(), SUBCOMMANDS, n=1, cutoff=0.6)
+    hint = f" (did you mean {close[0]}?)" if close else ""
+    return (
+        f"unknown command '{word}'{hint}. Commands: {', '.join(SUBCOMMANDS)}; "
+        "or give a file to open in the window; 'lopside --help' for more."
+    )
+
+
+def window_main(argv: list[str]) -> int:
+    bad = unknown_command(argv)
+    if bad:
+        return _fail(bad)
+    wp = argparse.ArgumentParser(
+        prog="lopside", description="Open the Lopside window.", epilog="Commands: lopside --help"
+    )
+    wp.add_argument("file", nargs="?", metavar="FILE", help="review or study table to open")
+    add_self_test_argument(wp)
     wp.add_argument("--version", action="version", version=f"Lopside {__version__}")
     args = wp.parse_args(argv)
     if args.self_test:
@@ -487,6 +560,9 @@ def single_thread_blas() -> None:
 
 def main(argv: list[str] | None = None) -> int:
     single_thread_blas()
+    from .console import use_safe_output
+
+    use_safe_output()
     argv = list(sys.argv[1:] if argv is None else argv)
     if argv and argv[0] in SUBCOMMANDS or argv[:1] in (["-h"], ["--help"]):
         parser = build_parser()
@@ -495,6 +571,10 @@ def main(argv: list[str] | None = None) -> int:
             return int(args.func(args) or 0)
         except KeyboardInterrupt:
             return 130
+        except BrokenPipeError:
+            # the reader stopped early (``| head``): not our failure, and nothing to say
+            _silence_stdout()
+            return 0
         except Exception as exc:  # noqa: BLE001 - last guard: one line, never a traceback
             if os.environ.get("LOPSIDE_DEBUG"):
                 raise
@@ -505,6 +585,16 @@ def main(argv: list[str] | None = None) -> int:
             )
             return 3
     return window_main(argv)
+
+
+def _silence_stdout() -> None:
+    """Point stdout at the null device, so the interpreter's final flush into a closed
+    pipe does not print an error of its own."""
+    try:
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, sys.stdout.fileno())
+    except (OSError, ValueError, AttributeError):
+        pass
 
 
 if __name__ == "__main__":  # pragma: no cover

@@ -40,4 +40,6 @@ def resources_dir() -> Path:
 
 def sample_reviews() -> list[Path]:
     d = sample_reviews_dir()
-    return sorted(p for p in d.iterdir() if p.suffix in {".lopside", ".csv", ".txt", ".xlsx"})
+    return sorted(
+        p for p in d.iterdir() if p.suffix.lower() in {".lopside", ".csv", ".txt", ".xlsx"}
+    )

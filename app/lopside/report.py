@@ -224,6 +224,52 @@ def unreported_json(res) -> dict[str, Any] | None:
     }
 
 
+def flagged_studies(result) -> list[dict[str, Any]]:
+    """``flagged_studies``: each row worth checking, with every reason and its numbers.
+
+    ``row`` counts table rows from 1; ``other_row`` (duplicates) likewise.
+    """
+    from .stats.diagnostics import KIND_TITLES, reason_text
+
+    flags = getattr(result, "row_flags", None)
+    if not flags or isinstance(flags, NotComputable):
+        return []
+    return [
+        {
+            "study": f.study,
+            "row": f.row + 1,
+            "reasons": [
+                {
+                    "kind": r.kind,
+                    "title": KIND_TITLES.get(r.kind, r.kind),
+                    "detail": r.detail,
+                    "check": r.check,
+                    "text": reason_text(r),
+                    "field": r.field,
+                    "other_row": None if r.other_row is None else r.other_row + 1,
+                    "numbers": plain(r.numbers),
+                }
+                for r in f.reasons
+            ],
+        }
+        for f in flags.flagged
+    ]
+
+
+def _influence(result) -> dict[str, Any] | None:
+    flags = getattr(result, "row_flags", None)
+    if isinstance(flags, NotComputable):
+        return {"not_computable": flags.reason}
+    inf = getattr(flags, "influence", None)
+    if inf is None:
+        return None
+    if isinstance(inf, NotComputable):
+        return {"not_computable": inf.reason}
+    out = plain(inf)
+    out["rows"] = [r + 1 for r in inf.rows]  # table rows counted from 1, like "studies"
+    return out
+
+
 def to_json(result) -> dict[str, Any]:
     """The ``check --json`` object."""
     nc: dict[str, str] = {}
@@ -248,6 +294,7 @@ def to_json(result) -> dict[str, Any]:
                 "how": getattr(d, "route_text", ""),
             }
         )
+    note("flagged_studies", getattr(result, "row_flags", None))
     note("pooled.fixed", result.fixed)
     note("pooled.random", result.random)
     het = note("heterogeneity", result.heterogeneity)
@@ -310,6 +357,8 @@ def to_json(result) -> dict[str, Any]:
         "studies": studies,
         "excluded": [plain(e) for e in result.excluded],
         "problems": [plain(p) for p in result.problems],
+        "flagged_studies": flagged_studies(result),
+        "influence": _influence(result),
         "pooled": {
             "fixed": _pooled(result.fixed, random=False),
             "random": _pooled(result.random, random=True),

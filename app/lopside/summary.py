@@ -413,6 +413,28 @@ def data_section(result) -> Section:
     return Section("data", "Data entered", tuple(rows))
 
 
+def row_flags_section(result) -> Section:
+    """Rows that pass the entry checks but stand out from the others (stats.diagnostics)."""
+    from .stats import diagnostics as dg
+
+    flags = getattr(result, "row_flags", None)
+    if flags is None:
+        return Section("row_flags", dg.HEADLINE, (("Result", "not assessed"),))
+    if isinstance(flags, NotComputable):
+        return Section("row_flags", dg.HEADLINE, (("Result", why_not(flags)),))
+    if not flags.flagged:
+        return Section(
+            "row_flags", dg.HEADLINE, (("Result", flags.none_found()),), notes=flags.notes
+        )
+    shown = flags.flagged[:LIST_LIMIT]
+    rows = [(dg.row_label(f), "\n".join(dg.flag_lines(f))) for f in shown]
+    rest = flags.flagged[LIST_LIMIT:]
+    if rest:  # the evidence of the first few; the others named (all of them in the JSON)
+        names = [dg.row_label(f) for f in rest]
+        rows.append((f"{len(rest)} more", "; ".join(_limit(names, 5 * LIST_LIMIT))))
+    return Section("row_flags", dg.HEADLINE, tuple(rows), notes=(dg.EXPLAIN,) + flags.notes)
+
+
 def reconciliation_section(result) -> Section:
     """Your rows pooled against the review's published pooled result."""
     m = result.measure
@@ -1228,6 +1250,7 @@ def analysis_sections(result) -> tuple[Section, ...]:
     """The numeric sections in reading order (no appraisal readings)."""
     out: list[Section | None] = [
         data_section(result),
+        row_flags_section(result),
         reconciliation_section(result),
         pooled_section(result),
         heterogeneity_section(result),

@@ -1,10 +1,15 @@
 """The ``lopside plot`` command: draw one figure of a review to PNG, SVG or PDF.
 
     lopside plot FILE [--kind funnel|forest|cumulative|radial] -o OUT.png|.svg|.pdf
-                 [--measure M] [--size column|page|slide] [--axis se|precision|variance|size]
+                 [--size column|page|slide] [--axis se|precision|variance|size]
                  [--model fixed|random] [--colour-by none|subgroup|risk_of_bias]
                  [--no-contours] [--egger-line] [--show-filled] [--labels [NAMES]]
-                 [--tau2 REML|PM|DL] [--hksj]
+                 [the analysis options of check and sheet: --measure, --tau2, --hksj,
+                  --ci-method, --fill-side, --fill-estimator]
+
+FILE and the analysis options come from ``lopside.cli.add_analysis_arguments`` (one
+definition for check, sheet and plot); this module adds only the figure's own options.
+The figure is written atomically (a temporary file in the same folder, then replaced).
 
 Exit status 0 on success; 2 on bad input, with one message on stderr that names the
 problem and what to do.
@@ -17,18 +22,16 @@ import sys
 from pathlib import Path
 
 KINDS = ("funnel", "forest", "cumulative", "radial")
-MEASURE_CHOICES = ("OR", "RR", "HR", "RD", "MD", "SMD")
 
 
 def add_plot_arguments(parser: argparse.ArgumentParser) -> None:
-    """Add the ``plot`` arguments to ``parser``.
+    """Add the figure's own ``plot`` arguments to ``parser`` (FILE and the analysis options
+    come from ``lopside.cli.add_analysis_arguments``, added before these).
 
     Arguments (attribute names on the parsed namespace in brackets):
 
-    * ``FILE`` [file] — project file, CSV/XLSX study table or .txt of pasted rows.
     * ``--kind`` [kind] — funnel (default), forest, cumulative or radial.
     * ``-o/--output OUT`` [output] — required; the suffix .png, .svg or .pdf sets the format.
-    * ``--measure M`` [measure] — OR, RR, HR, RD, MD or SMD (overrides the file's).
     * ``--size`` [size] — column (85 mm, default), page (180 mm) or slide (16:9).
     * ``--axis`` [axis] — funnel's vertical axis: se (default), precision, variance, size.
     * ``--model`` [model] — fixed or random centre for the funnel (default: settings).
@@ -37,17 +40,12 @@ def add_plot_arguments(parser: argparse.ArgumentParser) -> None:
     * ``--egger-line`` [egger_line] — overlay Egger's regression line (funnel, radial).
     * ``--show-filled`` [show_filled] — add trim-and-fill studies and adjusted estimate.
     * ``--labels [NAMES]`` [labels] — name studies on the funnel: all, or a comma list.
-    * ``--tau2`` [tau2_method], ``--hksj`` [hksj] — random-effects options.
     """
-    parser.add_argument("file", metavar="FILE", help="project file, CSV/XLSX study table or .txt")
     parser.add_argument(
         "--kind", choices=KINDS, default="funnel", help="which figure (default funnel)"
     )
     parser.add_argument(
         "-o", "--output", required=True, metavar="OUT", help="output file: .png, .svg or .pdf"
-    )
-    parser.add_argument(
-        "--measure", choices=MEASURE_CHOICES, help="effect measure (overrides the file's)"
     )
     parser.add_argument(
         "--size",
@@ -86,14 +84,6 @@ def add_plot_arguments(parser: argparse.ArgumentParser) -> None:
         metavar="NAMES",
         help="name studies on the funnel: all (no value), or a comma-separated list",
     )
-    parser.add_argument(
-        "--tau2",
-        dest="tau2_method",
-        choices=("REML", "PM", "DL"),
-        default=None,
-        help="tau² estimator",
-    )
-    parser.add_argument("--hksj", action="store_true", help="Hartung-Knapp interval (modified)")
 
 
 def _fail(message: str) -> int:
@@ -147,10 +137,11 @@ def run_plot(args: argparse.Namespace) -> int:
         fig = build_figure(result, args)
     except FigureInputError as exc:
         return _fail(f"{args.file}: {exc}")
-    from .export import save_figure
+    from ..model.project_file import write_atomic
+    from .export import figure_bytes
 
     try:
-        save_figure(fig, out, fmt)
+        write_atomic(out, figure_bytes(fig, fmt))
     except OSError as exc:
         return _fail(f"-o {out}: cannot write the figure ({exc.strerror or exc}).")
     print(f"wrote {out}")
@@ -196,7 +187,11 @@ def build_figure(result, args: argparse.Namespace):
                 f"--colour-by {opts.colour_by}: no study has a {field} entry; fill in the "
                 f"{field} column or leave out --colour-by."
             )
-        return funnel_figure(inp, opts, size)
+        fig = funnel_figure(inp, opts, size)
+        from .flag_marks import flagged_points, mark_flagged  # rows to check
+
+        mark_flagged(fig.axes[0], flagged_points(result, opts.axis), size=size)
+        return fig
     if kind == "forest":
         from .forest import forest_figure
 

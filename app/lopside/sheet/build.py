@@ -187,6 +187,11 @@ def _glance(result, appraisal, st) -> list:
         if text:
             items.append(Paragraph(f"<b>{label}:</b> {layout.markup(text)}", st["box"]))
     items.append(Paragraph(f"<b>Caution.</b> {layout.markup(CAUTION)}", st["small"]))
+    from ..stats.diagnostics import HEADLINE, glance_text
+
+    flags = glance_text(getattr(result, "row_flags", None))
+    if flags:  # a mistyped row changes every reading above: say so before them
+        items.insert(0, Paragraph(f"<b>{HEADLINE}:</b> {layout.markup(flags)}", st["box"]))
     return [boxed(items, fill=layout.HEAD_FILL)]
 
 
@@ -237,6 +242,9 @@ def _page1(result, appraisal, st, date: str) -> list:
     out = _header(result, st, date)
     out += [_spacer(5)] + _glance(result, appraisal, st)
     out += _section(data_section(result), st)
+    from ..summary import row_flags_section  # rows that stand out (stats.diagnostics)
+
+    out += _section(row_flags_section(result), st)
     out += _section(reconciliation_section(result), st)
     out += _section(pooled_section(result), st)
     out += _section(heterogeneity_section(result), st)

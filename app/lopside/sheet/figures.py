@@ -75,6 +75,9 @@ def funnel_flowable(result, max_width: float, max_height: float):
     try:
         inp = funnel_input_from_result(result, opts)
         fig = funnel_figure(inp, opts, size="column")
+        from ..figures.flag_marks import flagged_points, mark_flagged  # rows to check
+
+        mark_flagged(fig.axes[0], flagged_points(result, opts.axis), size="column")
     except (FigureInputError, ValueError) as exc:
         raise FigureUnavailable(str(exc)) from exc
     return _to_flowable(fig, max_width, max_height)

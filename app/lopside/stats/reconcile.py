@@ -101,7 +101,7 @@ def reconcile(
     ratio: bool,
     published_model: str = "",
     loo=None,
-    flagged: tuple[tuple[int, str], ...] = (),
+    flagged: tuple[tuple, ...] = (),
 ) -> Reconciliation | NotComputable:
     """Compare pooled estimates with the published (estimate, lower, upper).
 
@@ -117,8 +117,9 @@ def reconcile(
         ``loo(model_key)`` returns a list of (row, label, leave-one-out estimate) for that
         model; used to find rows whose removal brings the estimate closest to the
         published one.
-    flagged : tuple of (row, label)
-        Rows the entry checks flagged; listed first when the result is not reproduced.
+    flagged : tuple of (row, label) or (row, label, why)
+        Rows the entry checks (or the row diagnostics, with their ``why``) flagged; listed
+        first when the result is not reproduced.
     """
     est, lo, hi = published
     if not all(math.isfinite(x) for x in published):
@@ -167,8 +168,8 @@ def reconcile(
         )
     suspicious: list[tuple[int, str, str]] = []
     if verdict != "agrees":
-        for row, label in flagged:
-            suspicious.append((row, label, "the entry checks flagged this row"))
+        for row, label, *why in flagged:
+            suspicious.append((row, label, why[0] if why else "the entry checks flagged this row"))
     if verdict != "agrees" and loo is not None:
         base = _rel(best.estimate, est, ratio)
         scored = []

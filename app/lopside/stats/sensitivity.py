@@ -55,7 +55,8 @@ def _labels(data: StudyData) -> tuple[str, ...]:
 class LeaveOneOutRow:
     """The pooled result without one study.
 
-    ``i2`` is in percent (NotComputable when one study remains).
+    ``i2`` is in percent (NotComputable when one study remains); ``q`` is Cochran's Q of
+    the remaining studies (the influence diagnostics read it).
     """
 
     omitted: str
@@ -64,6 +65,7 @@ class LeaveOneOutRow:
     random: PooledEstimate
     tau2: float
     i2: float | NotComputable
+    q: float = float("nan")
 
 
 @dataclass(frozen=True, slots=True)
@@ -130,6 +132,7 @@ def leave_one_out(
             random=random[i],
             tau2=random[i].tau2,
             i2=_i2_from_q(float(q[i]), k - 1),
+            q=float(q[i]),
         )
         for i in range(k)
     ]

@@ -26,6 +26,20 @@ def _mpl_config_dir() -> None:
     os.environ["MPLCONFIGDIR"] = str(d)
 
 
+def _set_icon(app) -> None:
+    """Our own icon (tools/make_icon.py draws it) on every window and the task bar."""
+    from PySide6.QtGui import QIcon
+
+    from ..paths import resources_dir
+
+    try:
+        png = resources_dir() / "lopside.png"
+    except (FileNotFoundError, OSError):
+        return
+    if png.is_file():
+        app.setWindowIcon(QIcon(str(png)))
+
+
 def make_application(argv: list[str] | None = None):
     """The QApplication with names, high-DPI policy and the bundled font (idempotent)."""
     from PySide6.QtCore import QCoreApplication, Qt
@@ -47,6 +61,7 @@ def make_application(argv: list[str] | None = None):
     from .fonts import FAMILY, register_fonts
 
     QCoreApplication.setApplicationVersion(__version__)
+    _set_icon(app)
     _mpl_config_dir()
     families = register_fonts()
     if FAMILY in families and not getattr(app, "_lopside_font_set", False):

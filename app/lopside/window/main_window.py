@@ -64,6 +64,7 @@ def _pooled_sections(result):
 
     out = [
         S.data_section(result),
+        S.row_flags_section(result),
         S.reconciliation_section(result),
         S.pooled_section(result),
         S.heterogeneity_section(result),

@@ -377,6 +377,9 @@ class FunnelPanel(FigurePanel):
         self.artists = draw_funnel(ax, inp, opts, size="page")
         self.axes = ax
         self._collect_points(result, inp)
+        from ..figures.flag_marks import flagged_points, mark_flagged  # rows to check
+
+        mark_flagged(ax, flagged_points(result, opts.axis), size="page")
         self._draw_highlight()
         return True
 

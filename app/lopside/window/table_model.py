@@ -112,6 +112,13 @@ def problems_by_row(result, studies: tuple[StudyRow, ...]) -> dict[int, list[Cel
             if i < len(studies) and getattr(d, "y", None) is None:
                 for msg in getattr(d, "problems", ()) or ():
                     add(CellProblem(i, "", "error", str(msg)))
+        # rows that pass the checks but stand out from the others (stats.diagnostics)
+        from ..stats.diagnostics import reason_text
+
+        for f in getattr(getattr(result, "row_flags", None), "flagged", ()) or ():
+            if 0 <= f.row < len(studies):
+                for r in f.reasons:
+                    add(CellProblem(f.row, r.field, "warning", reason_text(r)))
     for i, row in enumerate(studies):
         for field, text in row.unread:
             if any(p.field == field for p in out.get(i, ())):
