@@ -300,6 +300,52 @@ def test_begg_ties_match_scipy_tie_corrected_normal_approximation(seed):
     assert res.method_note == "normal approximation with tie correction"
 
 
+@pytest.mark.parametrize("rounding", [None, 1])
+@pytest.mark.parametrize("k", [65, 400, 3000])
+def test_begg_by_sorting_matches_scipy_and_the_pairwise_count(k, rounding):
+    # Above _BEGG_SORT_MIN studies S is counted by sorting (Knight 1966), not from all
+    # k(k-1)/2 pairs. Reference: scipy.stats.kendalltau(method="asymptotic") (tau-b and the
+    # tie-corrected p); and the pairwise path itself, which must give the same bits.
+    rng = np.random.default_rng(k)
+    se = rng.uniform(0.1, 0.6, k)
+    if rounding is not None:
+        se = np.round(se, rounding)  # ties in the variances
+    y = rng.normal(0, se)
+    y[3], se[3] = y[4], se[4]  # identical study results: a tie in t* too
+    data = StudyData.from_arrays("MD", y, se)
+    res = asy.begg(data)
+    ts, v = _begg_inputs(data)
+    ref = stats.kendalltau(ts, v, method="asymptotic")
+    assert res.statistic == pytest.approx(ref.statistic, abs=1e-12)
+    assert res.pvalue == pytest.approx(ref.pvalue, rel=1e-9)
+    fast = asy.begg_core(data.y, data.v)
+    saved = asy._BEGG_SORT_MIN
+    try:
+        asy._BEGG_SORT_MIN = 10**9  # force the pairwise count
+        pairwise = asy.begg_core(data.y, data.v)
+    finally:
+        asy._BEGG_SORT_MIN = saved
+    for name in ("statistic", "pvalue", "z", "status", "ties"):
+        assert np.array_equal(getattr(fast, name), getattr(pairwise, name), equal_nan=True)
+
+
+def test_begg_keeps_no_pair_cache_for_large_reviews():
+    # the pair layout is cached only for small k: no process-lifetime cache grows with k
+    asy._pairs_cached.cache_clear()
+    asy.begg_core(np.arange(2000.0), np.linspace(0.1, 1.0, 2000))
+    asy._pairs(asy._PAIRS_CACHE_MAX + 1)
+    assert asy._pairs_cached.cache_info().currsize == 0
+
+
+def test_count_inversions_by_definition():
+    # definition: pairs i < j with r[i] > r[j], counted directly
+    rng = np.random.default_rng(4)
+    for n in (0, 1, 2, 7, 33, 200):
+        r = rng.integers(0, 9, n)
+        brute = sum(1 for i in range(n) for j in range(i + 1, n) if r[i] > r[j])
+        assert asy._count_inversions(r) == brute
+
+
 def test_kendall_exact_distribution_by_enumeration():
     # Definition (common practice): under H0 all n! orderings are equally likely; D is the
     # number of inversions. Enumerate every permutation of 7 and compare the CDF.

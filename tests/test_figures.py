@@ -982,3 +982,27 @@ def test_plot_command_through_the_cli_entry_point(tmp_path):
     )
     assert proc.returncode == 0, proc.stderr
     assert out.read_bytes()[:4] == b"\x89PNG"
+
+
+def test_naming_all_of_thirty_studies_puts_no_name_on_another():
+    # "Name all" on a window-sized funnel: names set apart (with a leader line when far
+    # from their point), text boxes overlapping by no more than a pixel of font metrics
+    from matplotlib.text import Text
+
+    rng = np.random.default_rng(30)
+    se = np.linspace(0.08, 0.95, 30)
+    y = -0.3 - 0.4 * se + rng.normal(0, 0.08, 30)
+    labels = tuple(f"Invented trial {i + 1}" for i in range(30))
+    inp = FunnelInput("OR", y, se, labels=labels, null=0.0, pooled=float(np.mean(y)))
+    fig = funnel_figure(inp, FunnelOptions(labels="all"), "page")
+    texts = fig.lopside_artists["labels"]
+    assert sorted(t.get_text() for t in texts) == sorted(labels)
+    r = _renderer(fig)
+    boxes = [Text.get_window_extent(t, r).expanded(1.0, 1.0).padded(-1.0) for t in texts]
+    clashes = [
+        (texts[i].get_text(), texts[j].get_text())
+        for i, a in enumerate(boxes)
+        for j, b in enumerate(boxes[i + 1 :], i + 1)
+        if a.overlaps(b)
+    ]
+    assert clashes == []

@@ -132,3 +132,83 @@ def test_edge_cases():
     # equal SEs: cumulative keeps table order
     eq = StudyData.from_arrays("MD", [0.1, 0.5, 0.3], [0.2, 0.2, 0.2])
     assert [s.index for s in cumulative(eq).steps] == [0, 1, 2]
+
+
+# --------------------------------------------------------------------------------------
+# Many studies: leave-one-out from running sums, cumulative at chosen steps
+
+
+def _heterogeneous(k, tau2, seed):
+    rng = np.random.default_rng(seed)
+    se = rng.uniform(0.05, 0.6, k)
+    y = -0.2 + rng.normal(0, np.sqrt(se**2 + tau2))
+    return StudyData.from_arrays("OR", y, se, labels=tuple(f"S{i}" for i in range(k)))
+
+
+@pytest.mark.parametrize("method", ["DL", "PM", "REML"])
+@pytest.mark.parametrize("tau2", [0.0, 0.05, 1.0])
+def test_large_leave_one_out_equals_pooling_each_subset(monkeypatch, method, tau2):
+    # Reference: the k x k batched pooling (itself checked against the scalar functions
+    # on each subset in tests/test_pooling_batch.py), here forced below the threshold;
+    # plus the scalar random_effects on a few subsets directly.
+    import lopside.stats.sensitivity as sens
+
+    d = _heterogeneous(240, tau2, seed=int(tau2 * 100) + len(method))
+    usual = leave_one_out(d, tau2_method=method, hksj=True)
+    monkeypatch.setattr(sens, "LARGE_K", 100)
+    fast = leave_one_out(d, tau2_method=method, hksj=True)
+    assert usual.note == "" and "running sums" in fast.note
+    for a, b in zip(usual.rows, fast.rows):
+        assert b.omitted == a.omitted
+        for f in ("estimate", "se", "pvalue"):
+            assert getattr(b.fixed, f) == pytest.approx(getattr(a.fixed, f), rel=1e-12, abs=1e-14)
+            assert getattr(b.random, f) == pytest.approx(getattr(a.random, f), rel=1e-9, abs=1e-12)
+        # both stop when a step is below 1e-10 (absolute for tau² < 1): compare at 1e-9
+        assert b.tau2 == pytest.approx(a.tau2, rel=1e-8, abs=1e-9)
+        assert b.i2 == pytest.approx(a.i2, rel=1e-10, abs=1e-10)
+    for row in fast.rows[::60]:
+        keep = np.arange(d.k) != row.index
+        ref = random_effects(d.y[keep], d.se[keep] ** 2, method=method, hksj=True)
+        assert row.random.estimate == pytest.approx(ref.estimate, rel=1e-9, abs=1e-12)
+        assert row.tau2 == pytest.approx(ref.tau2, rel=1e-8, abs=1e-9)
+
+
+def test_large_leave_one_out_with_one_dominant_study(monkeypatch):
+    # one study with nearly all the weight: sums over the others are formed without
+    # subtracting it (no cancellation); checked against pooling the subset directly
+    import lopside.stats.sensitivity as sens
+
+    d = _heterogeneous(150, 0.02, seed=3)
+    se = d.se.copy()
+    se[7] = 1e-5
+    d = StudyData.from_arrays("OR", d.y, se, labels=d.labels)
+    monkeypatch.setattr(sens, "LARGE_K", 100)
+    fast = leave_one_out(d, tau2_method="REML")
+    keep = np.arange(d.k) != 7
+    ref = random_effects(d.y[keep], d.se[keep] ** 2, method="REML")
+    assert fast.rows[7].random.estimate == pytest.approx(ref.estimate, rel=1e-9)
+    assert fast.rows[7].tau2 == pytest.approx(ref.tau2, rel=1e-8)
+    ref_fe = fixed_effect(d.y[keep], d.se[keep] ** 2)
+    assert fast.rows[7].fixed.estimate == pytest.approx(ref_fe.estimate, rel=1e-12)
+
+
+def test_large_cumulative_is_shown_at_chosen_steps_with_the_same_numbers(monkeypatch):
+    # each shown step equals the same step of the full analysis; the result says it is thinned
+    import lopside.stats.sensitivity as sens
+
+    d = _heterogeneous(400, 0.05, seed=8)
+    full = cumulative(d)
+    monkeypatch.setattr(sens, "LARGE_K", 100)
+    monkeypatch.setattr(sens, "CUMULATIVE_MORE_STEPS", 40)
+    thin = cumulative(d)
+    assert full.note == "" and len(full.steps) == d.k
+    assert "not after every study" in thin.note
+    ks = [s.k for s in thin.steps]
+    assert ks[:50] == list(range(1, 51)) and ks[-1] == d.k and len(ks) < d.k
+    assert ks == sorted(set(ks))
+    for s in thin.steps:
+        ref = full.steps[s.k - 1]
+        assert s.added == ref.added and s.index == ref.index
+        assert s.random.estimate == pytest.approx(ref.random.estimate, rel=1e-12)
+        # blocks of other rows sum in another order: the last digit may differ
+        assert s.fixed.estimate == pytest.approx(ref.fixed.estimate, rel=1e-14)

@@ -82,6 +82,9 @@ class AnalysisResult:
     row_flags: Any = None
     fingerprint: str = ""
     notes: tuple[str, ...] = field(default_factory=tuple)
+    #: "full", or "core" while only the core stage is ready (effects, pooling,
+    #: heterogeneity, tests, trim and fill); the other fields then say CORE_PENDING
+    stage: str = "full"
 
     @property
     def k(self) -> int:
@@ -281,22 +284,69 @@ def _unreported_block(review: Review, data: StudyData, random, settings: Analysi
     )
 
 
+class AnalysisCancelled(Exception):
+    """Raised by :func:`analyse` when its ``progress`` callback returned False."""
+
+
+#: the stages :func:`analyse` reports to its ``progress`` callback, in order
+STAGES: tuple[str, ...] = (
+    "reading the study rows",
+    "pooling",
+    "small-study tests",
+    "trim and fill",
+    "leave one out",
+    "cumulative analysis",
+    "other adjustments",
+    "subgroups",
+    "power simulation",
+)
+
+
+def _stage(progress, name: str) -> None:
+    """Tell ``progress`` a stage starts; stop the analysis when it answers False."""
+    if progress is not None and progress(name, STAGES.index(name), len(STAGES)) is False:
+        raise AnalysisCancelled(name)
+
+
 def analyse(
     review: Review,
     settings: AnalysisSettings | None = None,
     *,
     with_power: bool = False,
     power_progress=None,
+    progress=None,
+    stage: str = "full",
+    core: AnalysisResult | None = None,
 ) -> AnalysisResult:
-    """Analyse a review: derive effects, pool, test, adjust; return one frozen result."""
+    """Analyse a review: derive effects, pool, test, adjust; return one frozen result.
+
+    ``progress(stage, index, total)``, if given, is called as each stage of
+    :data:`STAGES` starts; returning False cancels the analysis
+    (:class:`AnalysisCancelled` is raised).
+
+    ``stage="core"`` stops after effects, pooling, heterogeneity, the tests and trim and
+    fill (what the funnel and the first numbers need); the other results are
+    ``NotComputable(CORE_PENDING)`` and ``result.stage`` is "core". ``core``, a core
+    result of the same review and settings, lets the full stage reuse its objects.
+    """
     from .stats import pooling
 
     # one analysis asks for the tau^2 of the same studies many times: estimate each once
     with pooling.reuse_tau2():
-        return _analyse(review, settings, with_power=with_power, power_progress=power_progress)
+        return _analyse(
+            review,
+            settings,
+            with_power=with_power,
+            power_progress=power_progress,
+            progress=progress,
+            stage=stage,
+            core=core,
+        )
 
 
-def _analyse(review, settings, *, with_power, power_progress) -> AnalysisResult:
+def _analyse(
+    review, settings, *, with_power, power_progress, progress=None, stage="full", core=None
+) -> AnalysisResult:
     from .intake.checks import check_rows
     from .stats import adjust, applicability, asymmetry, binary, moderators, sensitivity
     from .stats import pooling as pl
@@ -305,87 +355,111 @@ def _analyse(review, settings, *, with_power, power_progress) -> AnalysisResult:
     from .stats.reconcile import reconcile
 
     settings = settings or AnalysisSettings()
+    extra_notes: list[str] = []
     measure = settings.measure or review.details.measure
     level = review.details.ci_level
     conf = 0.95  # pooled results are reported at 95 % whatever the paper's study CIs used
 
-    derived = derive_all(
-        review.studies,
-        measure,
-        ci_level=level,
-        ci_method=settings.ci_method,
-        smd_correction=settings.smd_correction,
-    )
-    problems = check_rows(review.studies, measure, level)
-    data, excluded = build_study_data(review, measure, derived)
-    y, v = data.y, data.v
-
-    fixed = _safe(pl.fixed_effect, y, v, confidence_level=conf)
-    by_method = {
-        m: _safe(pl.random_effects, y, v, method=m, confidence_level=conf) for m in pl.TAU2_METHODS
-    }
-    hksj_by_method = {
-        m: _safe(pl.random_effects, y, v, method=m, hksj=True, confidence_level=conf)
-        for m in pl.TAU2_METHODS
-    }
-    random = (hksj_by_method if settings.hksj else by_method)[settings.tau2_method]
-
-    if measure in BINARY_MEASURES and data.has_counts():
-        mh = _safe(
-            binary.mantel_haenszel, data.a, data.b, data.c, data.d, measure, confidence_level=conf
+    if core is not None:
+        # the full stage after a core stage of the same inputs: the same objects, so that
+        # views showing only core numbers (the funnel) need not redraw
+        derived, problems, data, excluded = core.derived, core.problems, core.data, core.excluded
+        y, v = data.y, data.v
+        fixed, random, by_method = core.fixed, core.random, core.random_by_method
+        hksj_by_method, mh, peto = core.random_hksj_by_method, core.mantel_haenszel, core.peto
+        het, recommendation, tests = core.heterogeneity, core.recommendation, core.tests
+        rules, trim_fill = core.applicability, core.trim_fill
+    else:
+        _stage(progress, "reading the study rows")
+        derived = derive_all(
+            review.studies,
+            measure,
+            ci_level=level,
+            ci_method=settings.ci_method,
+            smd_correction=settings.smd_correction,
         )
-    else:
-        mh = NotComputable("Mantel-Haenszel pooling needs 2x2 counts for every study")
-    if measure == "OR" and data.has_counts():
-        peto = _safe(binary.peto, data.a, data.b, data.c, data.d, confidence_level=conf)
-    else:
-        peto = NotComputable("Peto pooling needs 2x2 counts and the odds ratio")
+        problems = check_rows(review.studies, measure, level)
+        data, excluded = build_study_data(review, measure, derived)
+        y, v = data.y, data.v
 
-    het = _safe(pl.heterogeneity, y, v, tau2_method=settings.tau2_method, confidence_level=conf)
+        _stage(progress, "pooling")
+        fixed = _safe(pl.fixed_effect, y, v, confidence_level=conf)
+        by_method = {
+            m: _safe(pl.random_effects, y, v, method=m, confidence_level=conf)
+            for m in pl.TAU2_METHODS
+        }
+        hksj_by_method = {
+            m: _safe(pl.random_effects, y, v, method=m, hksj=True, confidence_level=conf)
+            for m in pl.TAU2_METHODS
+        }
+        random = (hksj_by_method if settings.hksj else by_method)[settings.tau2_method]
 
-    loo = _safe(sensitivity.leave_one_out, data, tau2_method=settings.tau2_method)
-    cumulative = _safe(sensitivity.cumulative, data, tau2_method=settings.tau2_method)
-    row_flags = _safe(flag_rows, data, loo)
+        if measure in BINARY_MEASURES and data.has_counts():
+            mh = _safe(
+                binary.mantel_haenszel,
+                data.a,
+                data.b,
+                data.c,
+                data.d,
+                measure,
+                confidence_level=conf,
+            )
+        else:
+            mh = NotComputable("Mantel-Haenszel pooling needs 2x2 counts for every study")
+        if measure == "OR" and data.has_counts():
+            peto = _safe(binary.peto, data.a, data.b, data.c, data.d, confidence_level=conf)
+        else:
+            peto = NotComputable("Peto pooling needs 2x2 counts and the odds ratio")
 
-    published = _published_on_scale(review, measure)
-    if published is None:
-        recon: Any = NotComputable("no published pooled result with its CI was entered")
-    else:
-        models: dict[str, Any] = {"FE-IV": fixed, "MH": mh, "Peto": peto}
-        models.update(by_method)
-        models.update({f"{m}+HKSJ": r for m, r in hksj_by_method.items()})
-        recon = _safe(
-            reconcile,
-            models,
-            published,
-            ratio=measure in RATIO_MEASURES,
-            published_model=review.details.published.model,
-            loo=lambda key: _leave_one_out_estimates(data, key, measure),
-            flagged=_flagged_rows(review, problems) + suspects(row_flags, problems),
+        het = _safe(pl.heterogeneity, y, v, tau2_method=settings.tau2_method, confidence_level=conf)
+
+        _stage(progress, "small-study tests")
+        tau2 = random.tau2 if isinstance(random, PooledEstimate) else 0.0
+        recommendation = _safe(applicability.recommend, data, tau2)
+        # the recommended test runs with the options it was recommended with (e.g. the arcsine
+        # test with random effects when tau^2 is large: Sterne et al. 2011)
+        options = {}
+        if recommendation and not isinstance(recommendation, NotComputable):
+            options[recommendation.key] = recommendation.kwargs()
+        tests = asymmetry.run_all(data, alpha=settings.test_alpha, options=options)
+        if isinstance(het, NotComputable):
+            rules = _safe(applicability.applicability, data, None, None)
+        else:
+            rules = _safe(applicability.applicability, data, het.i2, het.pvalue)
+
+        _stage(progress, "trim and fill")
+        trim_fill = _safe(
+            adjust.trim_and_fill,
+            data,
+            estimator=settings.trimfill_estimator,
+            side=settings.trimfill_side,
+            trim_model=settings.trimfill_trim_model,
+            fill_model=settings.trimfill_fill_model,
+            tau2_method=settings.tau2_method,
         )
 
-    tau2 = random.tau2 if isinstance(random, PooledEstimate) else 0.0
-    recommendation = _safe(applicability.recommend, data, tau2)
-    # the recommended test runs with the options it was recommended with (e.g. the arcsine
-    # test with random effects when tau^2 is large: Sterne et al. 2011)
-    options = {}
-    if recommendation and not isinstance(recommendation, NotComputable):
-        options[recommendation.key] = recommendation.kwargs()
-    tests = asymmetry.run_all(data, alpha=settings.test_alpha, options=options)
-    if isinstance(het, NotComputable):
-        rules = _safe(applicability.applicability, data, None, None)
-    else:
-        rules = _safe(applicability.applicability, data, het.i2, het.pvalue)
-
-    trim_fill = _safe(
-        adjust.trim_and_fill,
-        data,
-        estimator=settings.trimfill_estimator,
-        side=settings.trimfill_side,
-        trim_model=settings.trimfill_trim_model,
-        fill_model=settings.trimfill_fill_model,
-        tau2_method=settings.tau2_method,
-    )
+    if stage == "core":
+        return _core_result(
+            review,
+            settings,
+            measure,
+            conf,
+            derived,
+            problems,
+            data,
+            excluded,
+            fixed,
+            random,
+            by_method,
+            hksj_by_method,
+            mh,
+            peto,
+            het,
+            tests,
+            recommendation,
+            rules,
+            trim_fill,
+        )
     # Trim and fill depends on its choices (Peters et al. 2007): show the other usual ones.
     variants: dict[str, Any] = {}
     for est in ("L0", "R0"):
@@ -406,6 +480,28 @@ def _analyse(review, settings, *, with_power, power_progress) -> AnalysisResult:
                 fill_model=fill_m,
                 tau2_method=settings.tau2_method,
             )
+    _stage(progress, "leave one out")
+    loo = _safe(sensitivity.leave_one_out, data, tau2_method=settings.tau2_method)
+    _stage(progress, "cumulative analysis")
+    cumulative = _safe(sensitivity.cumulative, data, tau2_method=settings.tau2_method)
+    row_flags = _safe(flag_rows, data, loo)
+    published = _published_on_scale(review, measure)
+    if published is None:
+        recon: Any = NotComputable("no published pooled result with its CI was entered")
+    else:
+        models: dict[str, Any] = {"FE-IV": fixed, "MH": mh, "Peto": peto}
+        models.update(by_method)
+        models.update({f"{m}+HKSJ": r for m, r in hksj_by_method.items()})
+        recon = _safe(
+            reconcile,
+            models,
+            published,
+            ratio=measure in RATIO_MEASURES,
+            published_model=review.details.published.model,
+            loo=lambda key: _leave_one_out_estimates(data, key, measure),
+            flagged=_flagged_rows(review, problems) + suspects(row_flags, problems),
+        )
+    _stage(progress, "other adjustments")
     pet_peese = _safe(
         adjust.pet_peese, data, alpha=settings.petpeese_alpha, sided=settings.petpeese_sided
     )
@@ -415,6 +511,7 @@ def _analyse(review, settings, *, with_power, power_progress) -> AnalysisResult:
     sel_sens, sel_fixed = _selection_block(data, random, settings)
     missing = _unreported_block(review, data, random, settings)
 
+    _stage(progress, "subgroups")
     subgroups: dict[str, Any] = {}
     meta_reg: dict[str, Any] = {}
     for by in ("risk_of_bias", "subgroup"):
@@ -429,6 +526,7 @@ def _analyse(review, settings, *, with_power, power_progress) -> AnalysisResult:
     if with_power:
         from .stats.power import simulate_power
 
+        _stage(progress, "power simulation")
         power = _safe(
             simulate_power,
             data,
@@ -439,6 +537,11 @@ def _analyse(review, settings, *, with_power, power_progress) -> AnalysisResult:
             alpha=settings.test_alpha,
             progress=power_progress,
         )
+
+    # work thinned or done another way for a large review is said in the result (DESIGN 8)
+    notes = tuple(
+        n for n in (getattr(loo, "note", ""), getattr(cumulative, "note", ""), *extra_notes) if n
+    )
 
     return AnalysisResult(
         review=review,
@@ -459,7 +562,7 @@ def _analyse(review, settings, *, with_power, power_progress) -> AnalysisResult:
         reconciliation=recon,
         tests=tests,
         recommendation=recommendation,
-        applicability=tuple(rules) if not isinstance(rules, NotComputable) else (),
+        applicability=_rules_tuple(rules),
         trim_fill=trim_fill,
         trim_fill_variants=variants,
         pet_peese=pet_peese,
@@ -476,4 +579,77 @@ def _analyse(review, settings, *, with_power, power_progress) -> AnalysisResult:
         unreported_trials=missing,
         row_flags=row_flags,
         fingerprint=fingerprint(review, measure),
+        notes=notes,
+    )
+
+
+#: what a view shows for a number of the full stage while only the core stage is ready
+CORE_PENDING = "being updated (the full analysis follows in a moment)"
+
+
+def _rules_tuple(rules) -> tuple:
+    if isinstance(rules, NotComputable):
+        return ()
+    return tuple(rules)
+
+
+def _core_result(
+    review,
+    settings,
+    measure,
+    conf,
+    derived,
+    problems,
+    data,
+    excluded,
+    fixed,
+    random,
+    by_method,
+    hksj_by_method,
+    mh,
+    peto,
+    het,
+    tests,
+    recommendation,
+    rules,
+    trim_fill,
+) -> AnalysisResult:
+    """The core stage: what the first redraw needs; the rest says it is being updated."""
+    pending = NotComputable(CORE_PENDING)
+    return AnalysisResult(
+        review=review,
+        settings=settings,
+        measure=measure,
+        confidence_level=conf,
+        derived=tuple(derived),
+        problems=tuple(problems),
+        data=data,
+        excluded=excluded,
+        fixed=fixed,
+        random=random,
+        random_by_method=by_method,
+        random_hksj_by_method=hksj_by_method,
+        mantel_haenszel=mh,
+        peto=peto,
+        heterogeneity=het,
+        reconciliation=pending,
+        tests=tests,
+        recommendation=recommendation,
+        applicability=_rules_tuple(rules),
+        trim_fill=trim_fill,
+        trim_fill_variants={},
+        pet_peese=pending,
+        limit=pending,
+        selection=pending,
+        leave_one_out=pending,
+        cumulative=pending,
+        failsafe=pending,
+        subgroups={},
+        meta_regression={},
+        power=None,
+        selection_sensitivity=pending,
+        selection_fixed_weights=pending,
+        unreported_trials=pending if any(not r.reported for r in review.studies) else None,
+        fingerprint=fingerprint(review, measure),
+        stage="core",
     )

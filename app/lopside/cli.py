@@ -85,6 +85,11 @@ def add_analysis_arguments(p: argparse.ArgumentParser) -> None:
         help="trim and fill: side of the missing studies",
     )
     p.add_argument(
+        "--quiet",
+        action="store_true",
+        help="no progress line on stderr while a long analysis runs",
+    )
+    p.add_argument(
         "--fill-estimator",
         choices=("L0", "R0"),
         default=None,
@@ -131,6 +136,66 @@ def settings_from_args(args, base: AnalysisSettings) -> AnalysisSettings:
     return replace(base, **changes)
 
 
+#: a review this large shows its progress on stderr even when stderr is not a terminal
+PROGRESS_MIN_STUDIES = 1000
+#: on a terminal, the progress line appears once an analysis has run this long (seconds)
+PROGRESS_AFTER = 0.5
+
+
+class ConsoleProgress:
+    """The progress line of a long analysis on stderr (``--quiet`` turns it off).
+
+    On a terminal one line is rewritten in place once the analysis has run for
+    :data:`PROGRESS_AFTER` seconds; otherwise (a log file) one line per stage, only for
+    reviews of :data:`PROGRESS_MIN_STUDIES` studies or more, so that small runs stay
+    silent.
+    """
+
+    def __init__(self, k: int, stream=None) -> None:
+        import time
+
+        self.k = k
+        self.stream = stream or sys.stderr
+        self.tty = bool(getattr(self.stream, "isatty", lambda: False)())
+        self.start = time.monotonic()
+        self.shown = False
+        self.enabled = self.tty or k >= PROGRESS_MIN_STUDIES
+
+    def __call__(self, stage: str, index: int, total: int) -> bool:
+        import time
+
+        if not self.enabled:
+            return True
+        if self.tty and not self.shown and time.monotonic() - self.start < PROGRESS_AFTER:
+            return True
+        text = f"lopside: analysing {self.k:,} studies - {stage} ({index + 1}/{total})"
+        if self.tty:
+            self.stream.write("\r" + text.ljust(78)[:78])
+        else:
+            self.stream.write(text + "\n")
+        self.stream.flush()
+        self.shown = True
+        return True
+
+    def power(self, done: int, total: int) -> bool:
+        if self.enabled and self.tty:
+            self.stream.write(f"\rlopside: power simulation {done:,}/{total:,}".ljust(79))
+            self.stream.flush()
+            self.shown = True
+        return True
+
+    def done(self) -> None:
+        if self.shown and self.tty:
+            self.stream.write("\r" + " " * 79 + "\r")
+            self.stream.flush()
+
+
+def _progress_for(args, review) -> ConsoleProgress | None:
+    if getattr(args, "quiet", False):
+        return None
+    return ConsoleProgress(len(review.studies))
+
+
 def _fail(message: str) -> int:
     print(f"lopside: {message}", file=sys.stderr)
     return 2
@@ -170,14 +235,16 @@ def cmd_check(args) -> int:
         review, settings = _load(args)
     except INPUT_ERRORS as exc:
         return _fail(str(exc))
-    progress = None
-    if args.power and not args.json and sys.stderr.isatty():
-
-        def progress(done, total):
-            print(f"\rpower simulation {done}/{total}", end="", file=sys.stderr)
-            return True
-
-    result = analyse(review, settings, with_power=args.power, power_progress=progress)
+    progress = _progress_for(args, review)
+    result = analyse(
+        review,
+        settings,
+        with_power=args.power,
+        power_progress=progress.power if progress else None,
+        progress=progress,
+    )
+    if progress:
+        progress.done()
     # the whole text is made before the first byte goes out, so a failure leaves an empty
     # output rather than a cut-off one
     if args.json:
@@ -206,7 +273,10 @@ def cmd_sheet(args) -> int:
     from .analysis import analyse
     from .sheet import write_sheet
 
-    result = analyse(review, settings, with_power=args.power)
+    progress = _progress_for(args, review)
+    result = analyse(review, settings, with_power=args.power, progress=progress)
+    if progress:
+        progress.done()
     try:
         write_sheet(result, args.output, include_forest=args.include_forest)
     except OSError as exc:

@@ -17,22 +17,42 @@ import numpy as np
 from . import __version__
 from .stats.results import ConfidenceInterval, NotComputable, PooledEstimate
 
+#: per dataclass type: the names of the fields that plain() writes
+_FIELDS: dict[type, tuple[str, ...]] = {}
+
+
+def _field_names(cls: type) -> tuple[str, ...]:
+    names = _FIELDS.get(cls)
+    if names is None:
+        names = tuple(f.name for f in dataclasses.fields(cls) if not f.name.startswith("_"))
+        _FIELDS[cls] = names
+    return names
+
+
+def _plain_float(obj) -> float | None:
+    f = float(obj)
+    return f if math.isfinite(f) else None
+
 
 def plain(obj: Any) -> Any:
     """JSON-ready copy of a result: dataclasses to dicts, arrays to lists, NaN to None."""
+    t = type(obj)
+    # the common leaf types first (a large review has millions of them)
+    if t is float:
+        return obj if math.isfinite(obj) else None
+    if t is str or t is int or t is bool or obj is None:
+        return obj
     if isinstance(obj, NotComputable):
         return {"not_computable": obj.reason}
     if isinstance(obj, ConfidenceInterval):
         return {"low": plain(obj.low), "high": plain(obj.high)}
     if dataclasses.is_dataclass(obj) and not isinstance(obj, type):
         out = {}
-        for f in dataclasses.fields(obj):
-            if f.name.startswith("_"):
-                continue
-            value = getattr(obj, f.name)
+        for name in _field_names(t):
+            value = getattr(obj, name)
             if callable(value):
                 continue
-            out[f.name] = plain(value)
+            out[name] = plain(value)
         return out
     if isinstance(obj, dict):
         return {str(k): plain(v) for k, v in obj.items()}
@@ -43,13 +63,12 @@ def plain(obj: Any) -> Any:
     if isinstance(obj, np.ndarray):
         return [plain(v) for v in obj.tolist()]
     if isinstance(obj, (np.floating, float)):
-        f = float(obj)
-        return f if math.isfinite(f) else None
+        return _plain_float(obj)
     if isinstance(obj, (np.integer,)):
         return int(obj)
     if isinstance(obj, (np.bool_,)):
         return bool(obj)
-    if isinstance(obj, (str, int, bool)) or obj is None:
+    if isinstance(obj, (str, int, bool)):
         return obj
     if callable(obj):
         return None
@@ -402,6 +421,8 @@ def to_json(result) -> dict[str, Any]:
         "meta_regression": plain(result.meta_regression),
         "power": plain(result.power) if result.power is not None else None,
         "fingerprint_sha256": result.fingerprint,
+        # what was thinned or computed another way for a large review (never silent)
+        "notes": list(getattr(result, "notes", ())),
         "settings": result.settings.to_dict(),
     }
     from .appraise.claim import compare_claim

@@ -303,16 +303,21 @@ class Session:
                 return result
         return None
 
-    def analyse(self):
+    def analyse(self, *, allow_core: bool = False):
         """The analysis of the current review (cached; see the module docstring).
 
         The returned result always carries the current review (with its notes), and the
-        power simulation when one was run for exactly these inputs.
+        power simulation when one was run for exactly these inputs. With ``allow_core``,
+        a core-stage result of the current state (:meth:`analyse_core`) is returned while
+        the full one is not ready (``result.stage`` says which).
         """
         from .analysis import analyse
 
         key = self.analysis_key()
         result = self._lookup(key)
+        core = getattr(self, "_core", None)
+        if result is None and allow_core and core is not None and _same_key(core[0], key):
+            result = core[1]
         if result is None:
             result = analyse(self._review, self._settings)
             self._cache.insert(0, (key, result))
@@ -323,6 +328,18 @@ class Session:
         if result.review is not self._review:
             result = replace(result, review=self._review)
         return result
+
+    def analyse_core(self):
+        """The core stage of the current state (effects, pooling, tests, trim and fill),
+        kept until the full analysis of that state arrives."""
+        from .analysis import analyse
+
+        key = self.analysis_key()
+        core = getattr(self, "_core", None)
+        if core is None or not _same_key(core[0], key):
+            core = (key, analyse(self._review, self._settings, stage="core"))
+            self._core = core
+        return core[1]
 
     def has_analysis(self) -> bool:
         """True when :meth:`analyse` would return at once (the current state is cached)."""

@@ -1122,6 +1122,8 @@ def sensitivity_section(result) -> Section:
         "If the estimate drifts as less precise studies are added, small studies pull it "
         "(a sign of small-study effects).",
     )
+    # how a large review's leave-one-out and cumulative analysis were computed
+    notes += tuple(n for n in (getattr(loo, "note", ""), getattr(cum, "note", "")) if n)
     return Section("sensitivity", "Leave one out and cumulative analysis", tuple(rows), notes=notes)
 
 

@@ -65,7 +65,13 @@ def _pct(values, q):
     return values[min(len(values) - 1, int(round(q * (len(values) - 1))))]
 
 
-def edit_latency(k: int, n_edits: int, view: str, typo: bool = False) -> list[float]:
+#: size of the window's funnel canvas in the last latency run (for the bare comparison)
+CANVAS_PX = [640, 480]
+
+
+def edit_latency(
+    k: int, n_edits: int, view: str, typo: bool = False, staged: bool = False
+) -> list[float]:
     """Times of ``n_edits`` edits of row 1's estimate (ms).
 
     A typical edit keeps the estimate inside its printed CI; ``typo=True`` types values
@@ -91,6 +97,7 @@ def edit_latency(k: int, n_edits: int, view: str, typo: bool = False) -> list[fl
     app.processEvents()
     if view == "funnel":
         w.funnel.draw_now()
+        CANVAS_PX[:] = list(w.funnel.canvas.get_width_height())
     times = []
     row = w.session.review.studies[0]
     for i in range(n_edits + 3):
@@ -102,15 +109,66 @@ def edit_latency(k: int, n_edits: int, view: str, typo: bool = False) -> list[fl
         w.stack.push_edit(ed.SetCell(0, "estimate", value))
         w.session.break_merge()
         w._timer.stop()  # noqa: SLF001 - the debounce fires now instead of in 50 ms
-        w.update_views()
+        if staged:
+            # as the window runs it: the core stage drawn at once, the full stage in the
+            # worker (running while the funnel draws; waited for outside the timing)
+            w.refresh_soon()
+        else:
+            w.update_views()
         if view == "funnel":
             w.funnel.draw_now()
         app.processEvents()
         if i >= 3:  # the first edits warm caches (imports, font cache)
             times.append((time.perf_counter() - t0) * 1000)
+        if staged:
+            w.wait_for_analysis()
     w._closing_ok = True  # noqa: SLF001 - benchmark window, nothing to save
     w.close()
     app.processEvents()
+    return times
+
+
+def bare_funnel_ms(k: int, width_px: int, height_px: int, repeats: int) -> list[float]:
+    """A user's own matplotlib funnel, built and drawn on an Agg canvas (ms per figure).
+
+    The same size as the window's funnel canvas, with what the funnel shows: shaded
+    bands on both sides, sized markers, the null and pooled lines, the pseudo-confidence
+    limits, axis titles and a legend. Nothing of Lopside's is used.
+    """
+    import numpy as np
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+    from matplotlib.figure import Figure
+
+    rng = np.random.default_rng(k)
+    se = np.linspace(0.08, 0.98, k)
+    y = -0.1 - 0.5 * se + rng.normal(0, 0.1, k)
+    grid = np.linspace(0.0, 1.05, 160)
+    times = []
+    for i in range(repeats + 2):
+        y = y.copy()
+        y[0] *= 0.97 + 0.001 * i  # one value edited, as in the window benchmark
+        t0 = time.perf_counter()
+        fig = Figure(figsize=(width_px / 100, height_px / 100), dpi=100, layout="constrained")
+        FigureCanvasAgg(fig)
+        ax = fig.add_subplot()
+        for z, colour in ((1.645, "#d8ece8"), (1.96, "#b5dbd3"), (2.576, "#8cc6ba")):
+            ax.fill_betweenx(grid, z * grid, 3.0, color=colour, lw=0)
+            ax.fill_betweenx(grid, -3.0, -z * grid, color=colour, lw=0)
+        w = 1 / se**2
+        pooled = float((w * y).sum() / w.sum())
+        ax.scatter(y, se, s=20 + 200 * w / w.max(), c="#1f3b57", label="studies", zorder=3)
+        ax.axvline(0, color="black", lw=0.8, label="no effect")
+        ax.axvline(pooled, color="#c0392b", lw=1.2, label="pooled")
+        ax.plot(pooled - 1.96 * grid, grid, "--", color="grey", lw=0.8, label="95% limits")
+        ax.plot(pooled + 1.96 * grid, grid, "--", color="grey", lw=0.8)
+        ax.set_ylim(1.05, 0)
+        ax.set_xlim(-3, 3)
+        ax.set_xlabel("log odds ratio")
+        ax.set_ylabel("standard error")
+        fig.legend(loc="outside lower center", ncols=4)
+        fig.canvas.draw()
+        if i >= 2:
+            times.append((time.perf_counter() - t0) * 1000)
     return times
 
 
@@ -170,6 +228,9 @@ def main(argv=None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--repeats", type=int, default=5, help="cold starts per program")
     ap.add_argument("--edits", type=int, default=30, help="edits per latency run")
+    ap.add_argument(
+        "--ratio-only", action="store_true", help="only the funnel against the bare figure"
+    )
     args = ap.parse_args(argv)
     os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
     tmp = tempfile.mkdtemp(prefix="lopside-bench-")
@@ -180,10 +241,22 @@ def main(argv=None) -> int:
 
     print("\nEdit a cell -> analysis and visible view updated (ms; debounce excluded)")
     print(f"{'studies':>8} {'view':>7} {'median':>8} {'p90':>8} {'max':>8}")
-    for k in (30, 200):
+    for k in () if args.ratio_only else (30, 200):
         for view in ("funnel", "tests"):
             t = edit_latency(k, args.edits, view)
             print(f"{k:>8} {view:>7} {statistics.median(t):8.1f} {_pct(t, 0.9):8.1f} {max(t):8.1f}")
+    print("\nEdit -> funnel drawn (staged: core stage drawn, full stage in the worker),")
+    print("against a bare matplotlib funnel built and drawn on Agg")
+    print(f"{'studies':>8} {'window':>8} {'bare':>8} {'ratio':>7}   (medians, ms, interleaved)")
+    for k in (30, 200):
+        ours, bare = [], []
+        for _ in range(3):  # interleaved, so that machine load hits both alike
+            ours += edit_latency(k, max(5, args.edits // 3), "funnel", staged=True)
+            bare += bare_funnel_ms(k, CANVAS_PX[0], CANVAS_PX[1], max(5, args.edits // 3))
+        mo, mb = statistics.median(ours), statistics.median(bare)
+        print(f"{k:>8} {mo:8.1f} {mb:8.1f} {mo / mb:7.2f}")
+    if args.ratio_only:
+        return 0
     t = edit_latency(30, max(5, args.edits // 4), "tests", typo=True)
     print(
         f"{30:>8} {'tests':>7} {statistics.median(t):8.1f} {_pct(t, 0.9):8.1f} "

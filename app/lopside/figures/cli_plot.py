@@ -126,8 +126,12 @@ def run_plot(args: argparse.Namespace) -> int:
         settings = replace(settings, funnel_model=args.model)
 
     from ..analysis import analyse
+    from ..cli import _progress_for
 
-    result = analyse(review, settings)
+    progress = _progress_for(args, review)
+    result = analyse(review, settings, progress=progress)
+    if progress:
+        progress.done()
     if result.data.k == 0:
         return _fail(
             f"{args.file}: no study has a usable effect and standard error, so there is "

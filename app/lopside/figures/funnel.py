@@ -712,97 +712,97 @@ def _draw_bands(ax, inp, levels, zs, grid, se_grid, xlim, art) -> None:
     art["bands"] = polys
 
 
-def _label_bands(ax, inp, preset, zlist, names, grid, se_grid, xlim, obstacles):
-    """Write each band's name inside the band, parallel to its edges, clear of points.
+#: band names are written horizontally at this size at least (points), to be read at a
+#: glance in the window and on a page; where a band has no room for its name at that
+#: size, the names go to the key. The small "column" size for print keeps its 7-pt type.
+BAND_LABEL_MIN_PT = 8.0
 
-    Candidate spots run from near the wide end of the funnel upwards, on the emptier side
-    first. Returns the Text artists, or [] when some band has no spot where its name fits
-    (the caller then lists the bands in the key instead).
+
+def _band_label_pt(preset) -> float:
+    return max(BAND_LABEL_MIN_PT, preset.font * 0.9) if preset.font >= 8 else preset.font * 0.9
+
+
+def _label_bands(ax, inp, preset, zlist, names, grid, se_grid, xlim, obstacles):
+    """Write each band's name horizontally inside the band, clear of points.
+
+    The name's box must fit between the band's edges along its whole height (the edges
+    slant, so the narrower end decides). Candidate rows run from near the wide end of the
+    funnel upwards, on the emptier side first. Returns the Text artists, or [] when some
+    band has no spot where its name fits (the caller then lists the bands in the key).
     """
-    fs = preset.font * 0.72
+    fs = _band_label_pt(preset)
     null = inp.null
     x_lo, x_hi = xlim
     trans = ax.transData
     px_per_pt = ax.figure.dpi / 72.0
     h_px = fs * 1.25 * px_per_pt
-    frame = ax.get_window_extent() if ax.figure.canvas is not None else None
+    pad = 2.0 * px_per_pt
+    frame = ax.get_window_extent()
     fx0, fy0, fx1, fy1 = frame.x0, frame.y0, frame.x1, frame.y1
     obs = trans.transform(obstacles[:, :2]) if len(obstacles) else np.empty((0, 2))
     obs_r = obstacles[:, 2] * px_per_pt if len(obstacles) else np.empty(0)
     right = np.sum(obstacles[:, 0] > null) if len(obstacles) else 0
     left = np.sum(obstacles[:, 0] < null) if len(obstacles) else 0
     sides = (1.0, -1.0) if right <= left else (-1.0, 1.0)
-    m = len(grid)
-    fine = np.linspace(0, 1, 41)
-    gy = np.interp(fine, np.linspace(0, 1, m), grid)
-    gse = np.interp(fine, np.linspace(0, 1, m), se_grid)
-    bounds = [0.0, *zlist]
+    # each edge x = null + side z SE as a curve in display pixels (y increasing)
+    fine = np.linspace(0, 1, 81)
+    gy = np.interp(fine, np.linspace(0, 1, len(grid)), grid)
+    gse = np.interp(fine, np.linspace(0, 1, len(grid)), se_grid)
+
+    def edge_x(z: float, side: float, ys: np.ndarray) -> np.ndarray:
+        if z == math.inf:
+            lim = trans.transform((x_hi if side > 0 else x_lo, gy[0]))[0]
+            return np.full(ys.shape, lim)
+        pts = trans.transform(np.column_stack([null + side * z * gse, gy]))
+        order = np.argsort(pts[:, 1])
+        return np.interp(ys, pts[order, 1], pts[order, 0])
+
+    bounds = [0.0, *zlist, math.inf]
+    disp_y = trans.transform(np.column_stack([np.full(gy.size, null), gy]))[:, 1]
+    # candidate rows from the wide end of the funnel (largest SE) towards the narrow end
+    y_rows = disp_y[np.argsort(-gse, kind="stable")]
     specs = []
     for i, name in enumerate(names):
         length_px = text_width_pt(name, fs) * px_per_pt
         found = None
         for side in sides:
-            for t in (0.92, 0.86, 0.8, 0.72, 0.64, 0.56, 0.48):
-                j = int(round(t * (len(fine) - 1)))
-                yv, sev = gy[j], gse[j]
-                if i < len(zlist):
-                    z_in, z_out = bounds[i], zlist[i]
-                    x_in, x_out = null + side * z_in * sev, null + side * z_out * sev
-                    zm = 0.5 * (z_in + z_out)
+            for t in (0.06, 0.12, 0.18, 0.26, 0.34, 0.42, 0.5, 0.58):
+                cy = float(np.interp(t, np.linspace(0, 1, y_rows.size), y_rows))
+                ys = np.array([cy - h_px / 2, cy + h_px / 2])
+                if ys[0] < fy0 + 2 or ys[1] > fy1 - 2:
+                    continue
+                inner = edge_x(bounds[i], side, ys)
+                outer = edge_x(bounds[i + 1], side, ys)
+                if side > 0:
+                    lo, hi = float(inner.max()), float(outer.min())
                 else:
-                    x_in = null + side * zlist[-1] * sev
-                    x_out = x_hi if side > 0 else x_lo
-                    zm = zlist[-1]
-                xm = 0.5 * (x_in + x_out)
-                # screen direction of the line x = null + side*zm*SE near this point
-                j0, j1 = max(j - 1, 0), min(j + 1, len(fine) - 1)
-                a = trans.transform((null + side * zm * gse[j0], gy[j0]))
-                b = trans.transform((null + side * zm * gse[j1], gy[j1]))
-                d = b - a
-                if d[0] < 0:
-                    d = -d
-                norm = math.hypot(*d)
-                if norm == 0:
+                    lo, hi = float(outer.max()), float(inner.min())
+                lo, hi = max(lo, fx0 + 2), min(hi, fx1 - 2)
+                if hi - lo < length_px + 2 * pad:
                     continue
-                u = d / norm
-                if i == len(zlist):
-                    u = np.array([1.0, 0.0]) if abs(x_out - x_in) > 0 else u
-                ang = math.degrees(math.atan2(u[1], u[0]))
-                c = trans.transform((xm, yv))
-                pin, pout = trans.transform((x_in, yv)), trans.transform((x_out, yv))
-                across = abs(pout[0] - pin[0]) * abs(u[1] if i < len(zlist) else 1.0)
-                if i == len(zlist):
-                    if abs(pout[0] - pin[0]) < length_px * 1.15 + 4:
-                        continue
-                elif across < h_px * 1.3:
-                    continue
-                nrm = np.array([-u[1], u[0]])
-                corners = [
-                    c + sx * u * length_px / 2 + sy * nrm * h_px / 2
-                    for sx in (-1, 1)
-                    for sy in (-1, 1)
-                ]
-                if any(
-                    p[0] < fx0 + 2 or p[0] > fx1 - 2 or p[1] < fy0 + 2 or p[1] > fy1 - 2
-                    for p in corners
-                ):
-                    continue
-                if obs.size:
-                    rel = obs - c
-                    along = np.abs(rel @ u) - length_px / 2
-                    acr = np.abs(rel @ nrm) - h_px / 2
-                    dist = np.hypot(np.maximum(along, 0), np.maximum(acr, 0))
-                    if np.any(dist < obs_r + 1.5 * px_per_pt):
-                        continue
-                found = (xm, yv, name, ang)
-                break
+                # slide along the row, from the middle of the free width outwards
+                a, b = lo + pad + length_px / 2, hi - pad - length_px / 2
+                if i == len(zlist):  # the outer band is open: stay near its inner edge
+                    b = min(b, a + 2 * length_px)
+                xs = np.linspace(a, b, 9)
+                for cx in xs[np.argsort(np.abs(xs - 0.5 * (a + b)), kind="stable")]:
+                    box = (cx - length_px / 2, ys[0], cx + length_px / 2, ys[1])
+                    if obs.size:
+                        dx = np.maximum(np.maximum(box[0] - obs[:, 0], obs[:, 0] - box[2]), 0)
+                        dy = np.maximum(np.maximum(box[1] - obs[:, 1], obs[:, 1] - box[3]), 0)
+                        if np.any(np.hypot(dx, dy) < obs_r + 1.5 * px_per_pt):
+                            continue
+                    found = (*trans.inverted().transform((cx, cy)), name)
+                    break
+                if found:
+                    break
             if found:
                 break
         if found is None:
             return []
         specs.append(found)
     texts = []
-    for xm, yv, name, ang in specs:
+    for xm, yv, name in specs:
         texts.append(
             ax.text(
                 xm,
@@ -812,8 +812,7 @@ def _label_bands(ax, inp, preset, zlist, names, grid, se_grid, xlim, obstacles):
                 color=style.BAND_TEXT,
                 ha="center",
                 va="center",
-                rotation=ang,
-                rotation_mode="anchor",
+                rotation=0,
                 zorder=0.8,
             )
         )
@@ -849,6 +848,9 @@ def _place_labels(ax, pts, obstacles, radii, preset) -> list:
     frame = (fr.x0, fr.y0, fr.x1, fr.y1)
     texts = []
     order = sorted(range(len(pts)), key=lambda i: -pts[i][3])
+    # directions: the 8 compass points first, then the 8 between them
+    dirs = [(1, 0), (-1, 0), (1, 1), (1, -1), (-1, 1), (-1, -1), (0, 1), (0, -1)]
+    dirs += [(1, 0.5), (1, -0.5), (-1, 0.5), (-1, -0.5), (0.5, 1), (-0.5, 1), (0.5, -1), (-0.5, -1)]
     for i in order:
         x, v, lab, r = pts[i]
         px, py = trans.transform((x, v))
@@ -856,31 +858,48 @@ def _place_labels(ax, pts, obstacles, radii, preset) -> list:
         h = fs * 1.2 * ppt
         gap_pt = 0.6 * r + 2.5  # squares and triangles reach past the circle radius
         best = None
-        for ring in (1.0, 1.8, 2.8, 4.0):
-            for dx, dy in ((1, 0), (-1, 0), (1, 1), (1, -1), (-1, 1), (-1, -1), (0, 1), (0, -1)):
+        least = None  # (overlap area, candidate) when nothing is free
+        for ring in (1.0, 1.8, 2.8, 4.0, 5.5, 7.5, 10.0, 13.0, 17.0, 22.0, 28.0):
+            for dx, dy in dirs:
                 ox, oy = dx * gap_pt * ring, dy * gap_pt * ring
+                if ring > 1.0:  # far from the point: at least a name's height away
+                    ox, oy = ox + math.copysign(2.0, dx) * (dx != 0), oy
                 cx, cy = px + ox * ppt, py + oy * ppt
                 x0 = cx if dx > 0 else (cx - w if dx < 0 else cx - w / 2)
                 y0 = cy if dy > 0 else (cy - h if dy < 0 else cy - h / 2)
                 box = (x0, y0, x0 + w, y0 + h)
                 if box[0] < frame[0] or box[2] > frame[2] or box[1] < frame[1] or box[3] > frame[3]:
                     continue
-                if any(_overlap(box, o) for o in occ):
-                    continue
-                best = (ox, oy, dx, dy, box)
-                break
+                cand = (ox, oy, dx, dy, box, ring)
+                hit = sum(_overlap_area(box, o) for o in occ)
+                if hit == 0:
+                    best = cand
+                    break
+                if least is None or hit < least[0]:
+                    least = (hit, cand)
             if best:
                 break
-        if best is None:  # nowhere free: to the right anyway, still readable
+        if best is None:  # nowhere free: where it covers least, with its leader line
             best = (
-                gap_pt,
-                0.0,
-                1,
-                0,
-                (px + gap_pt * ppt, py - h / 2, px + gap_pt * ppt + w, py + h / 2),
+                least[1]
+                if least is not None
+                else (
+                    gap_pt,
+                    0.0,
+                    1,
+                    0,
+                    (px + gap_pt * ppt, py - h / 2, px + gap_pt * ppt + w, py + h / 2),
+                    1.0,
+                )
             )
-        ox, oy, dx, dy, box = best
+        ox, oy, dx, dy, box, ring = best
         occ.append(box)
+        # a name set away from its point is tied to it by a thin leader line
+        leader = (
+            dict(arrowstyle="-", color=style.MUTED, lw=0.5, shrinkA=0.0, shrinkB=0.5 * r + 1.0)
+            if ring > 1.8
+            else None
+        )
         t = ax.annotate(
             lab,
             (x, v),
@@ -891,11 +910,18 @@ def _place_labels(ax, pts, obstacles, radii, preset) -> list:
             fontsize=fs,
             color=style.INK,
             zorder=4,
+            arrowprops=leader,
         )
         inv = trans.inverted()
         t.lopside_box = inv.transform([(box[0], box[1]), (box[2], box[3])])
         texts.append(t)
     return texts
+
+
+def _overlap_area(a, b) -> float:
+    w = min(a[2], b[2]) - max(a[0], b[0])
+    h = min(a[3], b[3]) - max(a[1], b[1])
+    return w * h if w > 0 and h > 0 else 0.0
 
 
 def _overlap(a, b) -> bool:
@@ -934,7 +960,8 @@ def _legend(ax, opts: FunnelOptions, points, lines, bands, preset):
     items = points + lines + bands
     if not items:
         return None
-    fs = preset.font * 0.8
+    # the key names the bands when they do not fit on the plot: at least 8 pt, like them
+    fs = max(BAND_LABEL_MIN_PT, preset.font * 0.8) if preset.font >= 8 else preset.font * 0.8
     names = [n for _, n in items]
     if opts.legend == "inside":
         leg = ax.legend(

@@ -47,8 +47,10 @@ BAND_TEXT = "#1D4F49"
 FIXED = "#1F4E79"
 #: Pooled random-effects result and its prediction interval.
 RANDOM = "#B35C00"
-#: Trim-and-fill: imputed points' outline and the adjusted estimate line.
-TRIMFILL = "#D55E00"
+#: Trim-and-fill: imputed points' outline and the adjusted estimate line. A dark brown,
+#: not the vermilion of high risk of bias: the two stay apart (CIELAB distance >= 30)
+#: under simulated protanopia, deuteranopia and tritanopia (tools/palette_cvd.py).
+TRIMFILL = "#663311"
 #: Egger regression line.
 EGGER = "#8E4585"
 #: Limit meta-analysis estimate line.
@@ -77,7 +79,7 @@ RISK_OF_BIAS_STYLE: dict[str, tuple[str, str]] = {
     "low": ("#0072B2", "o"),
     "some concerns": ("#E69F00", "s"),
     "high": ("#D55E00", "^"),
-    "": ("#9AA5B1", "o"),
+    "": ("#9AA5B1", "p"),
 }
 RISK_OF_BIAS_NAMES: dict[str, str] = {
     "low": "low risk of bias",
@@ -93,8 +95,8 @@ RISK_OF_BIAS_NAMES: dict[str, str] = {
 STUDY_MARKER = "o"
 STUDY_EDGE = "#FFFFFF"
 STUDY_ALPHA = 0.88
-#: Imputed (trim-and-fill) studies: the same circle, hollow.
-FILLED_MARKER = "o"
+#: Imputed (trim-and-fill) studies: a hollow diamond (a shape no risk-of-bias level uses).
+FILLED_MARKER = "D"
 #: Excluded studies: a small cross.
 EXCLUDED_MARKER = "x"
 

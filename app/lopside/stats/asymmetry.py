@@ -463,9 +463,28 @@ def kendall_exact_cdf(n: int) -> np.ndarray:
     return cdf
 
 
-@lru_cache(maxsize=32)
+#: largest k whose pair layout is cached (a few hundred thousand pairs at most); larger
+#: single reviews go through :func:`_kendall_sorted`, which needs no pairs at all
+_PAIRS_CACHE_MAX = 400
+#: single reviews with more studies than this count S by sorting (O(k log k))
+_BEGG_SORT_MIN = 64
+
+
 def _pairs(k: int):
-    """Index pairs i < j of k entries, and the layout needed to count pairs per entry."""
+    """Index pairs i < j of k entries, and the layout needed to count pairs per entry.
+
+    Cached only for small k, so that no cache grows with the size of a review."""
+    if k <= _PAIRS_CACHE_MAX:
+        return _pairs_cached(k)
+    return _pairs_build(k)
+
+
+@lru_cache(maxsize=32)
+def _pairs_cached(k: int):
+    return _pairs_build(k)
+
+
+def _pairs_build(k: int):
     i0, i1 = np.triu_indices(k, 1)
     order1 = np.argsort(i1, kind="stable")
     starts0 = np.searchsorted(i0, np.arange(k - 1))  # i0 = 0..k-2 each own >= 1 pair
@@ -518,6 +537,82 @@ def _sum_of_others(x: np.ndarray) -> np.ndarray:
     return before + after
 
 
+def _tie_group_sums(x: np.ndarray) -> tuple[float, float, float]:
+    """Σ over groups of equal values of t(t-1), t(t-1)(2t+5) and t(t-1)(t-2).
+
+    The same integers as :func:`_tie_sums` forms from pairs, from the group sizes."""
+    _, counts = np.unique(x, return_counts=True)
+    t = counts[counts > 1].astype(float)
+    return (
+        float((t * (t - 1.0)).sum()),
+        float((t * (t - 1.0) * (2.0 * t + 5.0)).sum()),
+        float((t * (t - 1.0) * (t - 2.0)).sum()),
+    )
+
+
+def _count_inversions(r: np.ndarray) -> int:
+    """Pairs i < j with r[i] > r[j] (strictly), for integer ranks r: bottom-up merge levels.
+
+    At each level the entries form blocks of width 2w; within a block, every entry of the
+    right half is compared with the sorted left half by one vectorised search, so the
+    whole count costs O(k log² k) with no loop over entries.
+    """
+    n = r.size
+    if n < 2:
+        return 0
+    r = r.astype(np.int64)
+    span = int(r.max()) + 2
+    pos = np.arange(n)
+    total = 0
+    w = 1
+    while w < n:
+        block = pos // (2 * w)
+        right = (pos % (2 * w)) >= w
+        key = block * span + r
+        left_sorted = np.sort(key[~right])
+        rk = key[right]
+        rb = block[right]
+        # entries of the same block's left half that are greater than each right entry
+        end_of_left = np.searchsorted(left_sorted, (rb + 1) * span, side="left")
+        above = np.searchsorted(left_sorted, rk, side="right")
+        total += int((end_of_left - above).sum())
+        w *= 2
+    return total
+
+
+def _kendall_sorted(x: np.ndarray, y: np.ndarray):
+    """Kendall's S and the tie sums of x and y, by sorting instead of forming pairs.
+
+    S = n0 - (pairs tied in x) - (pairs tied in y) + (pairs tied in both) - 2 (discordant
+    pairs), with the discordant pairs counted as inversions of y after sorting by (x, y)
+    (Knight 1966). All counts are integers, so S and the tie sums are exactly those the
+    pairwise count gives.
+    """
+    n = x.size
+    n0 = n * (n - 1) // 2
+    order = np.lexsort((y, x))
+    xs, ys = x[order], y[order]
+    y_rank = np.unique(ys, return_inverse=True)[1].reshape(-1)
+    dis = _count_inversions(y_rank)
+    x_rank = np.unique(xs, return_inverse=True)[1].reshape(-1)
+    both = x_rank.astype(np.int64) * (int(y_rank.max()) + 1) + y_rank
+    xt = _tie_group_sums(xs)
+    yt = _tie_group_sums(ys)
+    bt = _tie_group_sums(both)
+    s = n0 - xt[0] / 2.0 - yt[0] / 2.0 + bt[0] / 2.0 - 2.0 * dis
+    return float(s), xt, yt
+
+
+def _begg_single_sorted(tstar: np.ndarray, vv: np.ndarray, ok: np.ndarray):
+    """(s, x tie sums, y tie sums) of one review, or None when the pairwise path must run."""
+    if tstar.ndim != 1 or tstar.size <= _BEGG_SORT_MIN:
+        return None
+    x, y = tstar[ok], vv[ok]
+    if not (np.all(np.isfinite(x)) and np.all(np.isfinite(y))):
+        return None
+    return _kendall_sorted(x, y)
+
+
 def begg_core(y, v, use=None, *, exact_max: int = BEGG_EXACT_MAX) -> TestArrays:
     """Begg & Mazumdar 1994 rank correlation test, batched.
 
@@ -549,15 +644,23 @@ def begg_core(y, v, use=None, *, exact_max: int = BEGG_EXACT_MAX) -> TestArrays:
             stable = (y - theta_other) / np.sqrt(v + 1.0 / w_other)
             tstar = np.where(heavy, stable, tstar)
     vv = np.where(ok, v, 0.0)
-    i0, i1 = _pairs(k)[:2]
-    pair_use = ok[..., i0] & ok[..., i1]
-    dt = np.sign(tstar[..., i0] - tstar[..., i1])
-    dv = np.sign(vv[..., i0] - vv[..., i1])
-    s = np.where(pair_use, dt * dv, 0.0).sum(axis=-1)
+    sorted_counts = _begg_single_sorted(tstar, vv, ok)
+    if sorted_counts is not None:
+        s, (xt0, xt1, xt2), (yt0, yt1, yt2) = (
+            np.float64(sorted_counts[0]),
+            tuple(np.float64(t) for t in sorted_counts[1]),
+            tuple(np.float64(t) for t in sorted_counts[2]),
+        )
+    else:
+        i0, i1 = _pairs(k)[:2]
+        pair_use = ok[..., i0] & ok[..., i1]
+        dt = np.sign(tstar[..., i0] - tstar[..., i1])
+        dv = np.sign(vv[..., i0] - vv[..., i1])
+        s = np.where(pair_use, dt * dv, 0.0).sum(axis=-1)
+        xt0, xt1, xt2 = _tie_sums(pair_use & (dt == 0), k)
+        yt0, yt1, yt2 = _tie_sums(pair_use & (dv == 0), k)
     n = k_used.astype(float)
     n0 = n * (n - 1.0) / 2.0
-    xt0, xt1, xt2 = _tie_sums(pair_use & (dt == 0), k)
-    yt0, yt1, yt2 = _tie_sums(pair_use & (dv == 0), k)
     with np.errstate(divide="ignore", invalid="ignore"):
         # tie-corrected variance of S (Kendall 1970; as in scipy.stats.kendalltau)
         var_s = (

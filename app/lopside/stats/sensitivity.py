@@ -21,6 +21,7 @@ from .pooling import (
     cochran_q_batch,
     fixed_effect,
     fixed_effect_batch,
+    leave_one_out_large,
     random_effects,
     random_effects_batch,
 )
@@ -33,6 +34,32 @@ FAIL_SAFE_CAUTION = (
     "would be lost rather than how large the effect is and how precisely it is known. It "
     "also ignores heterogeneity and the size of the studies."
 )
+
+
+#: above this many studies, leave-one-out runs from running sums warm-started at the
+#: full-data tau² and the cumulative analysis is shown at chosen steps (each result says so)
+LARGE_K = 1000
+#: steps of a thinned cumulative analysis: every one up to this many studies ...
+CUMULATIVE_EVERY_UP_TO = 50
+#: ... then about this many more, evenly spaced on a log scale, and the last
+CUMULATIVE_MORE_STEPS = 250
+
+
+def loo_large_note(k: int) -> str:
+    return (
+        f"With {k:,} studies (more than {LARGE_K:,}), each leave-one-out pooling was found "
+        "from running sums, the between-study variance by steps started from the all-study "
+        "value (without the search for a second maximum on a grid); the results agree with "
+        "pooling each subset on its own to about 1e-9."
+    )
+
+
+def cumulative_large_note(k: int, steps: int) -> str:
+    return (
+        f"With {k:,} studies (more than {LARGE_K:,}), the cumulative analysis is shown at "
+        f"{steps:,} steps (after each of the first {CUMULATIVE_EVERY_UP_TO} studies, then at "
+        "evenly spaced steps on a log scale, and with all studies), not after every study."
+    )
 
 
 def _i2_from_q(q: float, k: int) -> float | NotComputable:
@@ -76,6 +103,8 @@ class LeaveOneOutResult:
     tau2_method: str
     hksj: bool
     confidence_level: float = 0.95
+    #: how the rows were computed when that differs from pooling each subset on its own
+    note: str = ""
 
 
 def leave_one_out(
@@ -108,22 +137,40 @@ def leave_one_out(
     if k < 3:
         return NotComputable("leave-one-out needs at least three studies")
     labels = _labels(data)
-    # all k subsets pooled at once (row i leaves study i out); same numbers as pooling
-    # each subset on its own, see tests/test_pooling_batch.py
-    keep = ~np.eye(k, dtype=bool)
-    # rows carry no percent weights: nothing shows them, and at k = 3,000 they would be
-    # millions of numbers
-    fixed = fixed_effect_batch(y, v, keep, confidence_level=confidence_level, with_weights=False)
-    random = random_effects_batch(
-        y,
-        v,
-        keep,
-        method=tau2_method,
-        hksj=hksj,
-        confidence_level=confidence_level,
-        with_weights=False,
+    full_random = random_effects(
+        y, v, method=tau2_method, hksj=hksj, confidence_level=confidence_level
     )
-    q = cochran_q_batch(y, v, keep)
+    note = ""
+    if k > LARGE_K:
+        # O(k) memory: running sums and warm starts instead of a k x k mask
+        fixed, random, q = leave_one_out_large(
+            y,
+            v,
+            method=tau2_method,
+            hksj=hksj,
+            confidence_level=confidence_level,
+            tau2_full=getattr(full_random, "tau2", None),
+        )
+        note = loo_large_note(k)
+    else:
+        # all k subsets pooled at once (row i leaves study i out); same numbers as pooling
+        # each subset on its own, see tests/test_pooling_batch.py
+        keep = ~np.eye(k, dtype=bool)
+        # rows carry no percent weights: nothing shows them, and at k = 3,000 they would be
+        # millions of numbers
+        fixed = fixed_effect_batch(
+            y, v, keep, confidence_level=confidence_level, with_weights=False
+        )
+        random = random_effects_batch(
+            y,
+            v,
+            keep,
+            method=tau2_method,
+            hksj=hksj,
+            confidence_level=confidence_level,
+            with_weights=False,
+        )
+        q = cochran_q_batch(y, v, keep)
     rows = [
         LeaveOneOutRow(
             omitted=labels[i],
@@ -139,12 +186,11 @@ def leave_one_out(
     return LeaveOneOutResult(
         rows=tuple(rows),
         full_fixed=fixed_effect(y, v, confidence_level=confidence_level),
-        full_random=random_effects(
-            y, v, method=tau2_method, hksj=hksj, confidence_level=confidence_level
-        ),
+        full_random=full_random,
         tau2_method=tau2_method,
         hksj=hksj,
         confidence_level=confidence_level,
+        note=note,
     )
 
 
@@ -171,6 +217,8 @@ class CumulativeResult:
     tau2_method: str
     hksj: bool
     confidence_level: float = 0.95
+    #: set when the analysis is shown at chosen steps only (many studies)
+    note: str = ""
 
 
 def cumulative(
@@ -202,7 +250,8 @@ def cumulative(
     order = np.argsort(se, kind="mergesort")
     # row m - 1 holds the m most precise studies (a prefix in precision order)
     ys, vs = y[order], v[order]
-    prefix = np.tri(k, dtype=bool)
+    sizes = cumulative_steps(k)
+    prefix = np.arange(k)[None, :] < sizes[:, None]
     fixed = fixed_effect_batch(
         ys, vs, prefix, confidence_level=confidence_level, with_weights=False
     )
@@ -216,7 +265,7 @@ def cumulative(
         with_weights=False,
     )
     steps = []
-    for m in range(1, k + 1):
+    for row, m in enumerate(sizes.tolist()):
         j = int(order[m - 1])
         steps.append(
             CumulativeStep(
@@ -224,8 +273,8 @@ def cumulative(
                 index=j,
                 k=m,
                 se_added=float(se[j]),
-                fixed=fixed[m - 1],
-                random=random[m - 1],
+                fixed=fixed[row],
+                random=random[row],
             )
         )
     return CumulativeResult(
@@ -234,7 +283,19 @@ def cumulative(
         tau2_method=tau2_method,
         hksj=hksj,
         confidence_level=confidence_level,
+        note=cumulative_large_note(k, sizes.size) if sizes.size < k else "",
     )
+
+
+def cumulative_steps(k: int) -> np.ndarray:
+    """Numbers of studies at which the cumulative analysis is shown: every step up to
+    :data:`LARGE_K` studies; beyond, the first :data:`CUMULATIVE_EVERY_UP_TO`, then about
+    :data:`CUMULATIVE_MORE_STEPS` steps evenly spaced on a log scale, and k."""
+    if k <= LARGE_K:
+        return np.arange(1, k + 1)
+    tail = np.geomspace(CUMULATIVE_EVERY_UP_TO + 1, k, CUMULATIVE_MORE_STEPS)
+    picks = np.concatenate([np.arange(1, CUMULATIVE_EVERY_UP_TO + 1), np.rint(tail), [k]])
+    return np.unique(picks.astype(int))
 
 
 # --------------------------------------------------------------------------------------

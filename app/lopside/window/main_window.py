@@ -497,19 +497,47 @@ class MainWindow(QMainWindow):
         if self.session.has_analysis():
             self.update_views()
             return
-        if self.analysis_worker is not None and self.analysis_worker.isRunning():
+        if self.analysis_worker is not None and (
+            self.analysis_worker.isRunning() or getattr(self, "_worker_starting", False)
+        ):
             self._rerun = True
+            self.analysis_worker.cancel()  # its result would be stale: stop at its next stage
             return
         s = self.session
-        w = AnalysisWorker(s.review, s.settings, s.analysis_key(), self)
+        # staged: the core stage (effects, pooling, tests, trim and fill) is drawn at once;
+        # the full stage follows in the worker and is cancelled by the next edit
+        core = None
+        try:
+            core = s.analyse_core()
+        except Exception:  # noqa: BLE001 - the full stage (and update_views) reports it
+            core = None
+        self._awaiting_full = core is not None
+        if core is not None:
+            self.update_views()
+        w = AnalysisWorker(s.review, s.settings, s.analysis_key(), self, core=core)
         w.finished_with.connect(self._analysis_done)
         w.failed.connect(self._analysis_failed)
+        w.cancelled.connect(self._analysis_failed_or_cancelled)
+        w.progress.connect(self._analysis_progress)
         self.analysis_worker = w
         self._rerun = False
-        self.status_label.setText("Analysing\u2026")
-        w.start()
+        if core is None:
+            self.status_label.setText("Analysing\u2026")
+            w.start()
+        else:
+            # after the core stage's redraw (queued before this), so that the worker does
+            # not compete with drawing the funnel for the interpreter
+            self._worker_starting = True
+            QTimer.singleShot(0, self._start_worker)
+
+    def _start_worker(self) -> None:
+        self._worker_starting = False
+        w = self.analysis_worker
+        if w is not None and not w.isRunning() and not w.isFinished():
+            w.start()
 
     def _analysis_done(self, result, key) -> None:
+        self._awaiting_full = False
         current = self.session.remember_analysis(key, result)
         if self._rerun or not current:
             self._rerun = False
@@ -517,7 +545,16 @@ class MainWindow(QMainWindow):
             return
         self.update_views()
 
+    def _analysis_progress(self, stage: str, index: int, total: int) -> None:
+        if self.result is not None and getattr(self.result, "stage", "") == "core":
+            return  # the status already says the sensitivity analyses are being updated
+        self.status_label.setText(M.ANALYSIS_PROGRESS.format(stage=stage, n=index + 1, of=total))
+
+    def _analysis_failed_or_cancelled(self, key) -> None:
+        self._analysis_failed("", key)
+
     def _analysis_failed(self, message: str, key) -> None:
+        self._awaiting_full = False
         if self._rerun:
             self._rerun = False
             self.refresh_soon()
@@ -529,8 +566,10 @@ class MainWindow(QMainWindow):
         from PySide6.QtCore import QDeadlineTimer
 
         deadline = QDeadlineTimer(timeout_ms)
-        while self._timer.isActive() or (
-            self.analysis_worker is not None and self.analysis_worker.isRunning()
+        while (
+            self._timer.isActive()
+            or getattr(self, "_worker_starting", False)
+            or (self.analysis_worker is not None and self.analysis_worker.isRunning())
         ):
             if deadline.hasExpired():
                 break
@@ -543,7 +582,8 @@ class MainWindow(QMainWindow):
         """Analyse (cached) and refresh the visible views; the rest are marked stale."""
         self._timer.stop()
         try:
-            result = self.session.analyse()
+            # the core stage while the full one runs in the worker (the status bar says so)
+            result = self.session.analyse(allow_core=getattr(self, "_awaiting_full", False))
             self.analysis_error = ""
         except ModuleNotFoundError as exc:
             result = None
@@ -591,6 +631,8 @@ class MainWindow(QMainWindow):
             text = f"k = {r.k} \u00b7 random effects {pooled_text(r.random, r.measure)}"
         except (ImportError, AttributeError, TypeError):
             text = f"k = {r.k}"
+        if getattr(r, "stage", "full") == "core":
+            text += M.CORE_STAGE_SUFFIX
         self.status_label.setText(text)
 
     def _clean_changed(self, _clean: bool) -> None:

@@ -12,6 +12,9 @@ NOT_AVAILABLE = (
 )
 NO_ANALYSIS = "Enter at least two studies with an effect and its standard error to see this."
 ANALYSIS_FAILED = "The analysis could not be run: {error}"
+ANALYSIS_PROGRESS = "Analysing\u2026 {stage} ({n} of {of})"
+#: after the pooled result while only the core stage is shown
+CORE_STAGE_SUFFIX = " \u00b7 updating sensitivity analyses\u2026"
 STALE_POWER = "The review has changed since the power was simulated: run it again."
 POWER_NOT_RUN = "Not simulated yet for this review: press Simulate power."
 POWER_CANCELLED = "Power simulation cancelled."

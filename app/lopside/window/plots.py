@@ -372,6 +372,9 @@ class FunnelPanel(FigurePanel):
         opts = self.funnel_options(result)
         inp = adaptor(result, opts)
         self.figure.clear()
+        # the builder puts the key below the axes as a figure legend when the layout engine
+        # makes room for it: build under constrained layout, then fix the layout if known
+        self.figure.set_layout_engine("constrained")
         self._highlight = None
         ax = self.figure.add_subplot()
         self.artists = draw_funnel(ax, inp, opts, size="page")
@@ -381,7 +384,89 @@ class FunnelPanel(FigurePanel):
 
         mark_flagged(ax, flagged_points(result, opts.axis), size="page")
         self._draw_highlight()
+        self._use_fixed_layout()
         return True
+
+    # ---------------------------------------------------------------- fixed layout
+    #
+    # Constrained layout measures every tick label on every draw (about half of a funnel
+    # draw). The layout depends on the canvas size, the options and the texts around the
+    # axes, not on where the points lie: it is computed once for those and reused; a
+    # later draw whose tick labels no longer fit brings constrained layout back.
+
+    def _layout_key(self) -> tuple:
+        fig = self.figure
+        texts = []
+        for leg in fig.legends:
+            texts += [t.get_text() for t in leg.get_texts()]
+        for ax in fig.axes:
+            texts += [ax.get_xlabel(), ax.get_ylabel(), ax.get_title()]
+            leg = ax.get_legend()
+            if leg is not None:
+                texts += [t.get_text() for t in leg.get_texts()]
+        texts += [t.get_text() for t in fig.texts]
+        return (
+            tuple(self.canvas.get_width_height()),
+            float(fig.dpi),
+            tuple(sorted(self._opts_state.items())),
+            tuple(texts),
+            len(fig.axes),
+        )
+
+    def _use_fixed_layout(self) -> None:
+        key = self._layout_key()
+        saved = getattr(self, "_fixed_layout", None)
+        if saved is not None and saved[0] == key:
+            self.figure.set_layout_engine("none")
+            for ax, pos in zip(self.figure.axes, saved[1]):
+                ax.set_position(pos)
+            self._capture_key = None
+            self.layout_reused = True
+        else:
+            self._capture_key = key  # the next (constrained) draw gives the layout
+            self.layout_reused = False
+
+    def _after_draw(self, event) -> None:
+        fig = self.figure
+        if fig is None or not fig.axes:
+            return
+        engine = fig.get_layout_engine()
+        if type(engine).__name__ == "ConstrainedLayoutEngine":
+            if getattr(self, "_capture_key", None) is not None:
+                # the key at draw time: the canvas may have been resized since the build
+                self._fixed_layout = (
+                    self._layout_key(),
+                    [ax.get_position().frozen() for ax in fig.axes],
+                )
+                self._capture_key = None
+            return
+        if getattr(self, "layout_reused", False) and not self._fits(event.renderer):
+            # longer tick labels than when the layout was made: lay out afresh
+            self._fixed_layout = None
+            self.layout_reused = False
+            fig.set_layout_engine("constrained")
+            self._capture_key = self._layout_key()
+            self.canvas.draw_idle()
+
+    def _fits(self, renderer) -> bool:
+        """True when the tick labels of the axes lie inside the figure."""
+        w, h = self.canvas.get_width_height(physical=True)
+        for ax in self.figure.axes:
+            for axis in (ax.xaxis, ax.yaxis):
+                for tick in axis.get_ticklabels():
+                    if not tick.get_visible() or not tick.get_text():
+                        continue
+                    bb = tick.get_window_extent(renderer)
+                    if bb.x0 < -0.5 or bb.y0 < -0.5 or bb.x1 > w + 0.5 or bb.y1 > h + 0.5:
+                        return False
+        return True
+
+    def _on_resize(self, event) -> None:
+        # a new size needs a new layout: constrained for the next draw, captured after it
+        if self.figure is not None and getattr(self, "layout_reused", False):
+            self.figure.set_layout_engine("constrained")
+            self.layout_reused = False
+            self._capture_key = self._layout_key()
 
     def _collect_points(self, result, inp) -> None:
         """Marker positions (data coordinates) and the table row of each."""
@@ -443,6 +528,8 @@ class FunnelPanel(FigurePanel):
     def _connect_canvas(self) -> None:
         self.canvas.mpl_connect("motion_notify_event", self._on_move)
         self.canvas.mpl_connect("button_press_event", self._on_click)
+        self.canvas.mpl_connect("draw_event", self._after_draw)
+        self.canvas.mpl_connect("resize_event", self._on_resize)
 
     def _on_move(self, event) -> None:
         if event.inaxes is None or self.result is None:

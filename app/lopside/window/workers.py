@@ -14,22 +14,52 @@ from PySide6.QtCore import QThread, Signal
 
 
 class AnalysisWorker(QThread):
-    """Run ``analyse(review, settings)`` off the GUI thread (typing stays responsive)."""
+    """Run ``analyse(review, settings)`` off the GUI thread (typing stays responsive).
 
+    Signals
+    -------
+    progress(stage, index, total)
+        A stage of :data:`lopside.analysis.STAGES` starts.
+    finished_with(result, key)
+    failed(message, key)
+    cancelled(key)
+        :meth:`cancel` was called; the analysis stopped at the next stage.
+    """
+
+    progress = Signal(str, int, int)
     finished_with = Signal(object, object)
     failed = Signal(str, object)
+    cancelled = Signal(object)
 
-    def __init__(self, review, settings, key, parent=None) -> None:
+    def __init__(self, review, settings, key, parent=None, core=None) -> None:
         super().__init__(parent)
         self.review = review
         self.settings = settings
         self.key = key
+        self.core = core  # a core-stage result of the same inputs, reused by the full stage
+        self._cancel = threading.Event()
+
+    def cancel(self) -> None:
+        """Stop at the next stage (the user edited again; this result would be stale)."""
+        self._cancel.set()
+
+    def _progress(self, stage: str, index: int, total: int) -> bool:
+        if self._cancel.is_set():
+            return False
+        self.progress.emit(stage, int(index), int(total))
+        return True
 
     def run(self) -> None:
         try:
-            from ..analysis import analyse
+            from ..analysis import AnalysisCancelled, analyse
 
-            result = analyse(self.review, self.settings)
+            try:
+                result = analyse(
+                    self.review, self.settings, progress=self._progress, core=self.core
+                )
+            except AnalysisCancelled:
+                self.cancelled.emit(self.key)
+                return
         except ModuleNotFoundError as exc:
             self.failed.emit(f"missing part: {exc.name}", self.key)
             return

@@ -1,0 +1,97 @@
+"""Progress and cancel of a long analysis (the CLI's stderr line, the window's worker)."""
+
+from __future__ import annotations
+
+import io
+
+import pytest
+
+from lopside.analysis import STAGES, AnalysisCancelled, analyse
+from lopside.cli import PROGRESS_MIN_STUDIES, ConsoleProgress, main
+from lopside.cli_common import load_review_file
+from lopside.paths import sample_reviews_dir
+
+
+def _sample():
+    return load_review_file(str(sample_reviews_dir() / "delirium_vantoprine.lopside"), None)[0]
+
+
+def test_analyse_reports_every_stage_in_order():
+    seen = []
+    analyse(_sample(), progress=lambda stage, i, n: seen.append((stage, i, n)))
+    assert [s for s, _, _ in seen] == list(STAGES[:-1])  # no power simulation asked
+    assert [i for _, i, _ in seen] == list(range(len(STAGES) - 1))
+    assert {n for _, _, n in seen} == {len(STAGES)}
+
+
+def test_a_false_answer_cancels_the_analysis():
+    calls = []
+
+    def stop_at_leave_one_out(stage, i, n):
+        calls.append(stage)
+        return stage != "leave one out"
+
+    with pytest.raises(AnalysisCancelled):
+        analyse(_sample(), progress=stop_at_leave_one_out)
+    assert calls[-1] == "leave one out"  # nothing ran after the answer
+
+
+def test_console_progress_writes_lines_for_a_large_review_to_a_log():
+    out = io.StringIO()  # not a terminal: one line per stage, only for large reviews
+    p = ConsoleProgress(PROGRESS_MIN_STUDIES, stream=out)
+    assert p("pooling", 1, len(STAGES)) is True
+    assert (
+        out.getvalue() == f"lopside: analysing {PROGRESS_MIN_STUDIES:,} studies - pooling (2/9)\n"
+    )
+    small = io.StringIO()
+    ConsoleProgress(30, stream=small)("pooling", 1, len(STAGES))
+    assert small.getvalue() == ""
+
+
+def test_check_on_a_small_review_keeps_stderr_empty(capsys):
+    path = str(sample_reviews_dir() / "delirium_vantoprine.lopside")
+    assert main(["check", "--json", path]) == 0
+    assert capsys.readouterr().err == ""
+    assert main(["check", "--quiet", path]) == 0
+    assert capsys.readouterr().err == ""
+
+
+# --------------------------------------------------------------------------------------
+# Staged analysis: the core stage first, the full stage reusing it
+
+
+def test_core_stage_has_the_first_numbers_and_says_the_rest_is_pending():
+    from lopside.analysis import CORE_PENDING
+    from lopside.report import to_json
+    from lopside.stats.results import NotComputable
+
+    review = _sample()
+    full = analyse(review)
+    core = analyse(review, stage="core")
+    assert core.stage == "core" and full.stage == "full"
+    for name in ("fixed", "random", "heterogeneity", "trim_fill"):
+        assert to_json_part(getattr(core, name)) == to_json_part(getattr(full, name)), name
+    assert core.tests.keys() == full.tests.keys()
+    for name in ("leave_one_out", "cumulative", "selection", "limit", "pet_peese"):
+        value = getattr(core, name)
+        assert isinstance(value, NotComputable) and value.reason == CORE_PENDING, name
+    to_json(core)  # every output path can render a core result
+
+
+def test_full_stage_from_a_core_stage_equals_the_whole_analysis():
+    from lopside.report import to_json
+
+    review = _sample()
+    core = analyse(review, stage="core")
+    seen = []
+    full = analyse(review, core=core, progress=lambda s, i, n: seen.append(s))
+    assert full.fixed is core.fixed and full.data is core.data  # reused, not recomputed
+    assert "pooling" not in seen and "leave one out" in seen
+    whole = to_json(analyse(review))
+    assert to_json(full) == whole
+
+
+def to_json_part(x):
+    from lopside.report import plain
+
+    return plain(x)

@@ -1,0 +1,132 @@
+"""The analysis worker: progress by stage, cancelled by the next edit."""
+
+from __future__ import annotations
+
+import pytest
+
+pytest.importorskip("PySide6")
+
+from lopside.analysis import STAGES  # noqa: E402
+from lopside.cli_common import load_review_file  # noqa: E402
+from lopside.paths import sample_reviews_dir  # noqa: E402
+from lopside.settings import AnalysisSettings  # noqa: E402
+
+
+def _sample():
+    return load_review_file(str(sample_reviews_dir() / "delirium_vantoprine.lopside"), None)[0]
+
+
+def test_worker_reports_stages_then_the_result(qtbot, user_state):
+    from lopside.window.workers import AnalysisWorker
+
+    w = AnalysisWorker(_sample(), AnalysisSettings(), "key-1")
+    stages, done = [], []
+    w.progress.connect(lambda s, i, n: stages.append(s))
+    w.finished_with.connect(lambda r, key: done.append((r, key)))
+    with qtbot.waitSignal(w.finished_with, timeout=30000):
+        w.start()
+    w.wait()
+    assert stages == list(STAGES[:-1])
+    assert done[0][1] == "key-1" and done[0][0].k > 0
+
+
+def test_a_cancelled_worker_says_so_and_gives_no_result(qtbot, user_state):
+    from lopside.window.workers import AnalysisWorker
+
+    w = AnalysisWorker(_sample(), AnalysisSettings(), "key-2")
+    results, cancelled = [], []
+    w.finished_with.connect(lambda r, key: results.append(r))
+    w.cancelled.connect(cancelled.append)
+    w.cancel()  # the user edited before the worker got going
+    with qtbot.waitSignal(w.cancelled, timeout=30000):
+        w.start()
+    w.wait()
+    assert cancelled == ["key-2"] and results == []
+
+
+# --------------------------------------------------------------------------------------
+# Live redraw: the table repaints only what changed; the funnel reuses its layout
+
+
+def _window_with_sample(make_window):
+    w = make_window(_sample())
+    w.wait_for_analysis()
+    return w
+
+
+def test_table_emits_data_changed_only_for_cells_that_changed(make_window, qtbot):
+    from PySide6.QtCore import Qt
+
+    from lopside import edits as ed
+
+    w = _window_with_sample(make_window)
+    model = w.studies.model
+    spans = []
+    model.dataChanged.connect(
+        lambda a, b, roles=(): spans.append((a.row(), b.row(), a.column(), b.column()))
+    )
+    k = model.rowCount()
+    row = w.session.review.studies[2]
+    field = next(f for f in ("int_events", "estimate", "int_mean") if getattr(row, f) is not None)
+    value = getattr(row, field) + (1 if isinstance(getattr(row, field), int) else 0.01)
+    w.stack.push_edit(ed.SetCell(2, field, str(value)))
+    w.wait_for_analysis()
+    qtbot.waitUntil(lambda: w.result is not None and w.result.review is w.session.review)
+    assert spans, "the edited row must be repainted"
+    # only row 2 (its own edit, then its derived cells) was announced, never the whole table
+    assert all(lo == hi == 2 for lo, hi, _, _ in spans), spans
+    cells = sum((hi - lo + 1) * (c1 - c0 + 1) for lo, hi, c0, c1 in spans)
+    assert cells < k * model.columnCount()
+    # the shown derived value is the new analysis's
+    c = model.column_of("_y")
+    shown = model.data(model.index(2, c), Qt.DisplayRole)
+    assert float(shown) == pytest.approx(w.result.derived[2].y, rel=1e-3)
+
+
+def test_funnel_reuses_its_layout_after_an_edit_and_keeps_points_inside(make_window, qtbot):
+    from lopside import edits as ed
+
+    w = _window_with_sample(make_window)
+    w.views.setCurrentWidget(w.funnel)
+    w.funnel.draw_now()
+    w.funnel.draw_now()  # the first draw under constrained layout gives the layout
+    assert w.funnel._fixed_layout is not None
+    position = w.funnel.axes.get_position().bounds
+    row = w.session.review.studies[0]
+    field = next(f for f in ("int_events", "estimate", "int_mean") if getattr(row, f) is not None)
+    value = getattr(row, field) + (1 if isinstance(getattr(row, field), int) else 0.01)
+    w.stack.push_edit(ed.SetCell(0, field, str(value)))
+    w.wait_for_analysis()
+    w.update_views()
+    w.funnel.draw_now()
+    assert w.funnel.layout_reused
+    assert type(w.funnel.figure.get_layout_engine()).__name__ != "ConstrainedLayoutEngine"
+    assert w.funnel.axes.get_position().bounds == pytest.approx(position)
+    # the layout still holds every tick label inside the canvas
+    renderer = w.funnel.canvas.get_renderer()
+    assert w.funnel._fits(renderer)
+
+
+def test_an_edit_shows_the_core_stage_first_then_the_full_one(make_window, qtbot):
+    from lopside import edits as ed
+    from lopside.window import messages as M
+
+    w = _window_with_sample(make_window)
+    w.views.setCurrentWidget(w.funnel)
+    w.funnel.draw_now()
+    row = w.session.review.studies[1]
+    field = next(f for f in ("int_events", "estimate", "int_mean") if getattr(row, f) is not None)
+    value = getattr(row, field) + (1 if isinstance(getattr(row, field), int) else 0.01)
+    w.stack.push_edit(ed.SetCell(1, field, str(value)))
+    w._timer.stop()
+    w.refresh_soon()  # as the debounce does: core stage now, full stage in the worker
+    assert w.result is not None and w.result.stage == "core"
+    assert w.result.review is w.session.review
+    assert w.status_label.text().endswith(M.CORE_STAGE_SUFFIX)
+    core_data = w.result.data
+    drawn = w.funnel.draw_count
+    w.wait_for_analysis()
+    qtbot.waitUntil(lambda: w.result.stage == "full", timeout=30000)
+    assert w.result.data is core_data  # the full stage reused the core's objects ...
+    assert w.funnel.draw_count == drawn  # ... so the funnel was not drawn again
+    assert not w.status_label.text().endswith(M.CORE_STAGE_SUFFIX)
