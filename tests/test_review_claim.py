@@ -150,7 +150,12 @@ def test_window_details_form_and_causes_view(make_window, qtbot):
     claim = w.session.review.details.claim
     assert (claim.test, claim.k, claim.conclusion) == ("Egger's test", 12, "none found")
     qtbot.waitUntil(
-        lambda: w.result is not None and w.result.review is w.session.review, timeout=5000
+        lambda: (
+            w.result is not None
+            and w.result.review is w.session.review
+            and getattr(w.result, "stage", "full") == "full"
+        ),
+        timeout=10000,
     )
     w.views.setCurrentWidget(w.causes)
     w.causes.show_result(w.result)

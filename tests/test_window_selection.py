@@ -65,8 +65,8 @@ def test_adjust_view_shows_sentences_curve_and_a_typed_eta(make_window, qtbot, t
     w.adjust.eta_edit.editingFinished.emit()
     assert w.session.settings.selection_eta == 3.0
     _wait(w, qtbot)
-    w.update_views()
-    assert "η = 3" in w.adjust.plain_text()
+    # the full stage reaches the view shown (the staged window redraws it when it lands)
+    qtbot.waitUntil(lambda: "η = 3" in w.adjust.plain_text(), timeout=10000)
     c = w.result.selection_sensitivity.random.at(3.0)
     assert S.fmt_effect_ci(c.estimate, c.ci_low, c.ci_high, "OR") in w.adjust.plain_text()
 
