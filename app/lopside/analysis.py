@@ -378,7 +378,9 @@ def _analyse(
             ci_method=settings.ci_method,
             smd_correction=settings.smd_correction,
         )
-        problems = check_rows(review.studies, measure, level)
+        problems = check_rows(
+            review.studies, measure, level, places=review.intake.places(review.studies)
+        )
         data, excluded = build_study_data(review, measure, derived)
         y, v = data.y, data.v
 

@@ -10,9 +10,14 @@
     lopside panel FILE... -o OUT.pdf|.docx|.xlsx|.csv [--skip-bad]
     lopside slide FILE -o slide.pptx|.png [--outcome NAME]
 
-Exit status 0 on success, 2 on bad input (message on stderr naming the problem), 3 on an
-internal error. Output redirected to a file or a pipe is UTF-8; a console gets plain ASCII
-for what it cannot show (lopside.console decides, once, in main()).
+Options shared by check, sheet and plot for the input: --favours lower|higher,
+--decimal-comma / --decimal-point, --allow-unread.
+
+Exit status (see EXIT_* below and the README): 0 success; 2 bad input (message on
+stderr naming the problem); 3 internal error; 4 some of the input was not read (lines,
+cells or columns listed on stderr; nothing written) unless --allow-unread; 130 stopped.
+Output redirected to a file or a pipe is UTF-8; a console gets plain ASCII for what it
+cannot show (lopside.console decides, once, in main()).
 """
 
 from __future__ import annotations
@@ -29,6 +34,102 @@ from .model.review import MEASURES
 from .settings import AnalysisSettings
 
 SUBCOMMANDS = ("check", "sheet", "plot", "batch", "panel", "slide")
+
+#: Exit statuses of the headless commands (documented in the README).
+EXIT_OK = 0
+EXIT_BAD_INPUT = 2
+EXIT_INTERNAL = 3
+#: lines, cells or columns of a study table or pasted text were not read
+EXIT_UNREAD = 4
+
+
+def add_intake_arguments(p: argparse.ArgumentParser) -> None:
+    """How the input is read: direction of benefit, decimal mark, unread lines (issue 12)."""
+    p.add_argument(
+        "--favours",
+        choices=("lower", "higher"),
+        default=None,
+        help="which values favour the intervention (default: the file's, else lower)",
+    )
+    mark = p.add_mutually_exclusive_group()
+    mark.add_argument(
+        "--decimal-comma",
+        dest="decimal",
+        action="store_const",
+        const="comma",
+        help="numbers the file does not settle (1,105) use a decimal comma",
+    )
+    mark.add_argument(
+        "--decimal-point",
+        dest="decimal",
+        action="store_const",
+        const="point",
+        help="numbers the file does not settle (1,105) use a decimal point",
+    )
+    p.add_argument(
+        "--allow-unread",
+        action="store_true",
+        help=f"go on when lines, cells or columns were not read (else exit {EXIT_UNREAD})",
+    )
+
+
+class UnreadInput(Exception):
+    """Some of the input was not read and --allow-unread was not given."""
+
+
+def load_input(args):
+    """The review and settings for a headless command, with its input options applied.
+
+    Raises the input errors (exit 2) or :class:`UnreadInput` (exit 4) with a message.
+    """
+    from pathlib import Path
+
+    from .cli_common import (
+        InputError,
+        is_project,
+        load_pdf_review,
+        load_review_file,
+        unread_report,
+    )
+
+    page = getattr(args, "page", None)
+    measure = getattr(args, "measure", None)
+    decimal = getattr(args, "decimal", None)
+    favours = getattr(args, "favours", None)
+    if Path(args.file).suffix.lower() == ".pdf" and Path(args.file).is_file():
+
+        def pages_read(done: int, total: int) -> bool:
+            if total >= 20 and not getattr(args, "quiet", False):
+                end = "\n" if done == total else ""
+                print(f"\rreading PDF page {done}/{total}", end=end, file=sys.stderr)
+            return True
+
+        review, notes = load_pdf_review(
+            Path(args.file), measure, page, pages_read, decimal=decimal, favours=favours
+        )
+        # which page was read, other pages with rows, marks left out
+        for line in notes:
+            print(f"lopside: {line}", file=sys.stderr)
+        saved: dict = {}
+    else:
+        if page:
+            raise InputError(
+                f"--page {page}: pages are for PDF files only; {args.file} is not one."
+            )
+        review, saved = load_review_file(args.file, measure, decimal=decimal, favours=favours)
+    account = review.intake
+    # only the commands that offer --allow-unread stop on unread input (check, sheet, plot)
+    enforce = hasattr(args, "allow_unread") and not args.allow_unread
+    if account.study_looking() and not is_project(args.file) and enforce:
+        n = len(account.study_looking())
+        raise UnreadInput(
+            f"{account.source or args.file}: {n} part(s) of the input not read:\n"
+            f"{unread_report(account)}\n"
+            "Nothing was written. Fix them in the file, or add --allow-unread to go on "
+            "without them (they are then listed in the output)."
+        )
+    return review, settings_from_args(args, AnalysisSettings.from_dict(saved))
+
 
 #: What ``lopside --help`` says before the list of commands: every way to start Lopside.
 USAGE = (
@@ -49,9 +150,10 @@ ways to start:
                         its options"""
 EPILOG = """\
 Exit status: 0 done, 2 bad input (one message on stderr naming the file and what to do),
-3 internal error (nothing half-written). Output redirected to a file or a pipe is UTF-8
-without a byte-order mark; a console that cannot show a character (tau, sqrt, >=, -) gets
-it spelled in plain ASCII."""
+3 internal error (nothing half-written), 4 some lines, cells or columns of the input
+were not read (listed on stderr; add --allow-unread to go on). Output redirected to a
+file or a pipe is UTF-8 without a byte-order mark; a console that cannot show a character
+(tau, sqrt, >=, -) gets it spelled in plain ASCII."""
 
 
 def add_analysis_arguments(p: argparse.ArgumentParser) -> None:
@@ -201,30 +303,13 @@ def _fail(message: str) -> int:
     return 2
 
 
-def _load(args):
-    from pathlib import Path
+def _unread(exc: UnreadInput) -> int:
+    print(f"lopside: {exc}", file=sys.stderr)
+    return EXIT_UNREAD
 
-    from .cli_common import InputError, load_pdf_review, load_review_file
 
-    page = getattr(args, "page", None)
-    if Path(args.file).suffix.lower() == ".pdf" and Path(args.file).is_file():
-
-        def pages_read(done: int, total: int) -> bool:
-            if total >= 20 and not getattr(args, "quiet", False):
-                end = "\n" if done == total else ""
-                print(f"\rreading PDF page {done}/{total}", end=end, file=sys.stderr)
-            return True
-
-        review, notes = load_pdf_review(Path(args.file), args.measure, page, pages_read)
-        # which page was read, other pages with rows, marks left out, lines not read
-        for line in notes:
-            print(f"lopside: {line}", file=sys.stderr)
-        return review, settings_from_args(args, AnalysisSettings())
-    if page:
-        raise InputError(f"--page {page}: pages are for PDF files only; {args.file} is not one.")
-    review, saved = load_review_file(args.file, args.measure)
-    settings = settings_from_args(args, AnalysisSettings.from_dict(saved))
-    return review, settings
+#: the loader every command shares (batch, panel and slide call it too)
+_load = load_input
 
 
 def cmd_check(args) -> int:
@@ -232,9 +317,11 @@ def cmd_check(args) -> int:
     from .cli_common import INPUT_ERRORS
 
     try:
-        review, settings = _load(args)
+        review, settings = load_input(args)
     except INPUT_ERRORS as exc:
         return _fail(str(exc))
+    except UnreadInput as exc:
+        return _unread(exc)
     progress = _progress_for(args, review)
     result = analyse(
         review,
@@ -265,9 +352,11 @@ def cmd_sheet(args) -> int:
     from .cli_common import INPUT_ERRORS
 
     try:
-        review, settings = _load(args)
+        review, settings = load_input(args)
     except INPUT_ERRORS as exc:
         return _fail(str(exc))
+    except UnreadInput as exc:
+        return _unread(exc)
     if args.appraiser:
         review = review.with_details(appraiser=args.appraiser)
     from .analysis import analyse
@@ -501,6 +590,7 @@ def build_parser() -> argparse.ArgumentParser:
     )
     c = sub.add_parser("check", help="print the analysis summary")
     add_analysis_arguments(c)
+    add_intake_arguments(c)
     c.add_argument("--json", action="store_true", help="print the JSON object instead of text")
     c.add_argument(
         "--power",
@@ -510,6 +600,7 @@ def build_parser() -> argparse.ArgumentParser:
     c.set_defaults(func=cmd_check)
     s = sub.add_parser("sheet", help="write the appraisal sheet (PDF)")
     add_analysis_arguments(s)
+    add_intake_arguments(s)
     s.add_argument(
         "-o", "--output", required=True, metavar="OUT.pdf", help="where to write the sheet (PDF)"
     )
@@ -523,6 +614,7 @@ def build_parser() -> argparse.ArgumentParser:
     from .figures.cli_plot import add_plot_arguments, run_plot
 
     add_analysis_arguments(p)
+    add_intake_arguments(p)
     add_plot_arguments(p)
     p.set_defaults(func=run_plot)
     pn = sub.add_parser(
@@ -653,7 +745,7 @@ def main(argv: list[str] | None = None) -> int:
                 "Please report it with the file that caused it.",
                 file=sys.stderr,
             )
-            return 3
+            return EXIT_INTERNAL
     return window_main(argv)
 
 

@@ -1,14 +1,29 @@
-"""Open any file Lopside accepts: a project file, a CSV/XLSX study table, or pasted text."""
+"""Open any file Lopside accepts: a project file, a CSV/XLSX study table, or pasted text.
+
+Every import keeps an account (:class:`lopside.model.review.IntakeAccount`): what was not
+read, how the decimal mark, the measure and the direction of benefit were decided. A file
+whose decimal mark cannot be settled is refused with :class:`DecimalUndecided` naming
+the two readings, so that the caller asks (window) or names an option (CLI).
+"""
 
 from __future__ import annotations
 
 import stat
+from dataclasses import replace
 from pathlib import Path
 from typing import Any
 
 from .intake.errors import IntakeError
 from .model.project_file import SUFFIX, ProjectFileError, load
-from .model.review import MEASURES, Review, ReviewDetails, StudyRow
+from .model.review import (
+    MEASURE_NAMES,
+    MEASURES,
+    IntakeAccount,
+    NotRead,
+    Review,
+    ReviewDetails,
+    StudyRow,
+)
 
 ACCEPTED = (SUFFIX, ".json", ".csv", ".xlsx", ".txt", ".pdf")
 MAX_TEXT_BYTES = 50 * 2**20
@@ -16,6 +31,45 @@ MAX_TEXT_BYTES = 50 * 2**20
 
 class InputError(ValueError):
     """Bad input for a headless command; the message names the file and what to do."""
+
+
+class DecimalUndecided(InputError):
+    """Nothing in the file settles the decimal mark of some numbers ("1,105").
+
+    ``examples`` holds (place, text) pairs; :func:`two_readings` shows both readings.
+    """
+
+    def __init__(self, message: str, examples: tuple[tuple[str, str], ...]) -> None:
+        super().__init__(message)
+        self.examples = examples
+
+
+def two_readings(text: str) -> tuple[str, str]:
+    """``1,105`` read with a decimal point (thousands comma) and with a decimal comma."""
+    from .intake.numbers import parse_number
+
+    point = parse_number(text, "point")
+    comma = parse_number(text, "comma")
+    return (
+        f"{point.value:g}" if point.ok else "not a number",
+        f"{comma.value:g}" if comma.ok else "not a number",
+    )
+
+
+def _undecided_error(name: str, undecided, unit: str) -> DecimalUndecided:
+    examples = tuple((f"{unit} {n}", t) for n, t in undecided)
+    shown = []
+    for place, text in examples[:3]:
+        as_point, as_comma = two_readings(text)
+        shown.append(
+            f"'{text}' ({place}) is {as_point} with a decimal point, {as_comma} with a decimal comma"
+        )
+    more = f" and {len(examples) - 3} more" if len(examples) > 3 else ""
+    return DecimalUndecided(
+        f"{name}: nothing in the file settles the decimal mark: {'; '.join(shown)}{more}. "
+        "Say which it is with --decimal-comma or --decimal-point.",
+        examples,
+    )
 
 
 def guess_measure(rows: tuple[StudyRow, ...]) -> str | None:
@@ -27,18 +81,53 @@ def guess_measure(rows: tuple[StudyRow, ...]) -> str | None:
     return None
 
 
-def review_from_rows(rows, measure: str | None, name: str) -> Review:
-    m = measure or guess_measure(tuple(rows))
+#: how an assumed measure is described in the account
+MEASURE_ASSUMED = {
+    "OR": "not given: odds ratio assumed (events and totals in every row)",
+    "MD": "not given: mean difference assumed (means and SDs in every row)",
+}
+
+
+def review_from_rows(
+    rows, measure: str | None, name: str, *, hint: str | None = None, why: str = ""
+) -> Review:
+    """A review of ``rows``; the measure is the one given, else the file's, else guessed.
+
+    The details record how the measure was chosen (``details`` never guess silently).
+    """
+    if measure:
+        m, how = measure, "given"
+    elif hint:
+        m, how = hint, f"named in the file ({MEASURE_NAMES[hint]})"
+    else:
+        m = guess_measure(tuple(rows))
+        how = MEASURE_ASSUMED.get(m or "", "")
     if m is None:
+        looks = f" They look like: {why}." if why else ""
         raise InputError(
             f"{name}: the rows give effect estimates but the file does not say which measure "
-            f"they are. Add --measure with one of {', '.join(MEASURES)}."
+            f"they are.{looks} Add --measure with one of {', '.join(MEASURES)}."
         )
-    return Review(details=ReviewDetails(title=Path(name).stem, measure=m), studies=tuple(rows))
+    review = Review(details=ReviewDetails(title=Path(name).stem, measure=m), studies=tuple(rows))
+    return replace(review, intake=replace(review.intake, measure_how=how))
+
+
+def _with_favours(review: Review, favours: str | None, from_file: str = "") -> Review:
+    if favours:
+        return review.with_details(favours=favours, favours_source="option")
+    if from_file:
+        return review.with_details(favours=from_file, favours_source="table")
+    return review.with_details(favours="lower", favours_source="assumed")
 
 
 def load_pdf_review(
-    path: Path, measure: str | None = None, page: str | None = None, progress=None
+    path: Path,
+    measure: str | None = None,
+    page: str | None = None,
+    progress=None,
+    *,
+    decimal: str | None = None,
+    favours: str | None = None,
 ) -> tuple[Review, list[str]]:
     """Rows from a review's PDF: the page(s) ``page`` ('7', '7-8'), else the page with the
     most study rows. Returns the review and what to tell the user (which page was read,
@@ -53,38 +142,56 @@ def load_pdf_review(
         raise InputError(f"--page {page}: {exc}.") from exc
     doc = read_pdf(path, pages=wanted, progress=progress)
     pages, notes = choose_pages(doc, page)
-    got = rows_from_pages(doc, pages, measure)
+    got = rows_from_pages(doc, pages, measure, decimal=decimal)
     notes = notes + list(got.notes)
     paste = got.paste
     where = f"page {pages[0]}" if len(pages) == 1 else f"pages {pages[0]}-{pages[-1]}"
     if not paste.rows:
         raise InputError(f"{path.name}: no study rows could be read on {where}.\n{paste.account()}")
+    if paste.undecided and not decimal:
+        raise _undecided_error(path.name, paste.undecided, "line")
     prose = 0
+    not_read = []
     for r in paste.not_understood:
         if not any(ch.isdigit() for ch in r.text):
             prose += 1  # text without a number cannot be a study row (titles, prose)
             continue
-        notes.append(
-            f"{path.name}, page {got.line_pages[r.line_no - 1]}: line not read: "
-            f"{r.text.strip()[:80]} ({r.reason})"
-        )
+        # study-looking lines not read go into the account (stderr, output, exit 4)
+        where = f"page {got.line_pages[r.line_no - 1]}, line {r.line_no}"
+        kind = next((n.kind for n in paste.not_read() if n.where == f"line {r.line_no}"), "line")
+        not_read.append(NotRead(kind, where, r.text.strip(), r.reason))
     if prose:
         notes.append(f"{path.name}: {prose} line(s) of text without numbers passed over.")
-    review = review_from_rows(paste.rows, measure or paste.measure_hint, path.name)
+    review = review_from_rows(
+        paste.rows, measure, path.name, hint=paste.measure_hint, why=paste.measure_why
+    )
     review = review.with_details(
         title=f"{path.stem} ({where})", source_note=got.source_note(path.name)
     )
+    account = paste.intake_account(path.name, review.intake.measure_how)
+    review = replace(review, intake=replace(account, not_read=tuple(not_read)))
     if paste.published is not None:
         review = review.with_details(published=paste.published)
-    return review, notes
+    return _with_favours(review, favours), notes
 
 
-def load_review_file(path: str | Path, measure: str | None = None) -> tuple[Review, dict[str, Any]]:
+def load_review_file(
+    path: str | Path,
+    measure: str | None = None,
+    *,
+    decimal: str | None = None,
+    favours: str | None = None,
+) -> tuple[Review, dict[str, Any]]:
     """Read FILE into a review; ``measure`` overrides (or supplies) the measure.
 
+    ``decimal`` ("point"/"comma") settles numbers the file itself does not; ``favours``
+    ("lower"/"higher") sets the direction of benefit. The review carries the intake
+    account of what was read and decided (:attr:`Review.intake`).
+
     Raises :class:`InputError` (or the intake/project errors, which are ValueErrors) with a
-    message that names the file and, where it applies, the row and field. A PDF is read
-    from the page with the most study rows (:func:`load_pdf_review` says which).
+    message that names the file and, where it applies, the row and field;
+    :class:`DecimalUndecided` when the decimal mark is needed and not settled. A PDF is
+    read from the page with the most study rows (:func:`load_pdf_review` says which).
     """
     p = Path(path)
     if measure is not None and measure not in MEASURES:
@@ -103,12 +210,18 @@ def load_review_file(path: str | Path, measure: str | None = None) -> tuple[Revi
         review, settings = load(p)
         if measure:
             review = review.with_details(measure=measure)
+        if favours:
+            review = review.with_details(favours=favours, favours_source="option")
         return review, settings
     if suffix in (".csv", ".xlsx"):
         from .intake.table import read_table
 
-        table = read_table(p)
-        return review_from_rows(table.rows, measure, p.name), {}
+        table = read_table(p, measure, decimal)
+        if table.undecided and not decimal:
+            raise _undecided_error(p.name, table.undecided, "row")
+        review = review_from_rows(table.rows, measure, p.name, hint=table.measure_hint)
+        review = replace(review, intake=table.intake_account(review.intake.measure_how))
+        return _with_favours(review, favours, table.favours), {}
     if suffix == ".txt":
         from .intake.paste import read_pasted
 
@@ -116,18 +229,36 @@ def load_review_file(path: str | Path, measure: str | None = None) -> tuple[Revi
             text = p.read_text(encoding="utf-8-sig")
         except UnicodeDecodeError:
             text = p.read_text(encoding="cp1252", errors="replace")
-        pasted = read_pasted(text, measure)
+        pasted = read_pasted(text, measure, decimal)
         if not pasted.rows:
             raise InputError(f"{p.name}: no study rows could be read.\n{pasted.account()}")
-        review = review_from_rows(pasted.rows, measure or pasted.measure_hint, p.name)
+        if pasted.undecided and not decimal:
+            raise _undecided_error(p.name, pasted.undecided, "line")
+        review = review_from_rows(
+            pasted.rows,
+            measure,
+            p.name,
+            hint=pasted.measure_hint,
+            why=pasted.measure_why if pasted.measure_guess else "",
+        )
+        review = replace(review, intake=pasted.intake_account(p.name, review.intake.measure_how))
         if pasted.published is not None:
             review = review.with_details(published=pasted.published)
-        return review, {}
+        return _with_favours(review, favours), {}
     if suffix == ".pdf":
-        return load_pdf_review(p, measure)[0], {}
+        return load_pdf_review(p, measure, decimal=decimal, favours=favours)[0], {}
     raise InputError(
         f"{p.name}: Lopside opens {', '.join(ACCEPTED)} files; this one is '{suffix or 'none'}'."
     )
+
+
+def is_project(path: str | Path) -> bool:
+    return Path(path).suffix.lower() in (SUFFIX, ".json")
+
+
+def unread_report(account: IntakeAccount) -> str:
+    """The study-looking input that was not read, one per line, for stderr."""
+    return "\n".join(f"  {n.where}: {n.text}  ({n.reason})" for n in account.study_looking())
 
 
 INPUT_ERRORS = (InputError, IntakeError, ProjectFileError)

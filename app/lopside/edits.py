@@ -26,12 +26,14 @@ from typing import Any
 from .model.review import (
     CAUSES,
     DOMAIN_RATINGS,
+    FAVOURS_SOURCES,
     JUDGEMENTS,
     MEASURES,
     NUMERIC_FIELDS,
     RISK_OF_BIAS_LEVELS,
     TABLE_COLUMNS,
     CauseNote,
+    IntakeAccount,
     PublishedResult,
     Review,
     ReviewClaim,
@@ -147,6 +149,21 @@ class SetGeneralNotes:
     """The appraiser's general notes."""
 
     text: str
+
+
+@dataclass(frozen=True, slots=True)
+class SetFavours:
+    """Set the direction of benefit and where it came from (the account says so)."""
+
+    favours: str
+    source: str = "window"
+
+
+@dataclass(frozen=True, slots=True)
+class SetIntake:
+    """Replace the account of what was read on the way in (a paste adds to it)."""
+
+    account: IntakeAccount
 
 
 @dataclass(frozen=True, slots=True)
@@ -330,6 +347,8 @@ def _detail_value(field: str, value: Any) -> Any:
         raise EditError(f"'{value}' is not one of {', '.join(MEASURES)}.")
     if field == "favours" and value not in ("lower", "higher"):
         raise EditError("favours must be 'lower' or 'higher'.")
+    if field == "favours_source" and value not in FAVOURS_SOURCES:
+        raise EditError(f"'{value}' is not a source of the direction of benefit.")
     if field == "ci_level":
         if not isinstance(value, (int, float)) or not 50.0 < float(value) < 100.0:
             raise EditError("The CI level must be a percentage between 50 and 100.")
@@ -428,6 +447,18 @@ def apply(edit: Edit, review: Review) -> tuple[Review, Edit]:
         else:
             raise EditError(f"'{edit.field}' is not a review detail.")
         return replace(review, details=new_details), SetDetail(edit.field, old_value)
+    if isinstance(edit, SetFavours):
+        if edit.favours not in ("lower", "higher"):
+            raise EditError("favours must be 'lower' or 'higher'.")
+        if edit.source not in FAVOURS_SOURCES:
+            raise EditError(f"'{edit.source}' is not a source of the direction of benefit.")
+        d = review.details
+        new_details = replace(d, favours=edit.favours, favours_source=edit.source)
+        return replace(review, details=new_details), SetFavours(d.favours, d.favours_source)
+    if isinstance(edit, SetIntake):
+        if not isinstance(edit.account, IntakeAccount):
+            raise EditError("The intake account must be an IntakeAccount.")
+        return replace(review, intake=edit.account), SetIntake(review.intake)
     if isinstance(edit, SetCauseNote):
         if edit.key not in CAUSES:
             raise EditError(f"'{edit.key}' is not one of the explanations {', '.join(CAUSES)}.")
@@ -534,6 +565,10 @@ def change_of(edit: Edit) -> Change:
         return Change("move", (edit.src, edit.dst))
     if isinstance(edit, SetDetail):
         return Change("details", (), edit.field)
+    if isinstance(edit, SetIntake):
+        return Change("details", (), "intake")
+    if isinstance(edit, SetFavours):
+        return Change("details", (), "favours")
     if isinstance(edit, ReplaceStudies):
         return Change("studies")
     return Change("notes")
@@ -560,6 +595,10 @@ def describe(edit: Edit) -> str:
         return f"move row {edit.src + 1}"
     if isinstance(edit, SetExclude):
         return f"{'exclude' if edit.exclude else 'include'} row {edit.row + 1}"
+    if isinstance(edit, SetIntake):
+        return "record what was read"
+    if isinstance(edit, SetFavours):
+        return "change favours"
     if isinstance(edit, SetDetail):
         name = edit.field.replace("published.", "published ").replace("claim.", "review's ")
         return f"change {name.replace('_', ' ')}"

@@ -435,5 +435,28 @@ def to_json(result) -> dict[str, Any]:
     missing = unreported_json(result.unreported_trials)
     if missing is not None:
         out["unreported_trials"] = missing
+    out["intake"] = intake_json(result.review)
     out["not_computable"] = nc
     return out
+
+
+def intake_json(review) -> dict[str, Any]:
+    """What happened on the way in: unread input, decimal mark, measure, direction."""
+    from .summary import favours_text
+
+    a = review.intake
+    d = review.details
+    return {
+        "source": a.source,
+        "not_read": [
+            {"kind": n.kind, "where": n.where, "text": n.text, "reason": n.reason}
+            for n in a.not_read
+        ],
+        "decimal": {
+            "mark": a.decimal_mark or None,
+            "how": a.decimal_how or None,
+            "evidence": a.decimal_evidence or None,
+        },
+        "measure_how": a.measure_how,
+        "favours": {"value": d.favours, "source": d.favours_source, "text": favours_text(d)},
+    }

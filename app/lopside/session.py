@@ -236,16 +236,23 @@ class Session:
         """An empty review."""
         self.reset(Review(details=ReviewDetails()))
 
-    def open(self, path: str | Path, measure: str | None = None) -> None:
+    def open(
+        self, path: str | Path, measure: str | None = None, decimal: str | None = None
+    ) -> None:
         """Open a project file, or import a CSV/XLSX study table or a .txt of pasted rows.
 
-        Raises the intake/project-file errors (ValueErrors with a message for the user).
+        ``decimal`` ("point"/"comma") settles numbers the file does not. Raises the
+        intake/project-file errors (ValueErrors with a message for the user), among them
+        :class:`lopside.cli_common.DecimalUndecided` when the caller must ask.
         """
         from .cli_common import load_review_file
         from .model.project_file import SUFFIX
 
         p = Path(path)
-        review, saved = load_review_file(p, measure)
+        review, saved = load_review_file(p, measure, decimal=decimal)
+        if decimal and review.intake.decimal_how == "option":
+            # in the window the user was asked: the account says so
+            review = replace(review, intake=replace(review.intake, decimal_how="asked"))
         settings = AnalysisSettings.from_dict(saved)
         if p.suffix.lower() in (SUFFIX, ".json"):
             self.reset(review, settings, p)

@@ -323,13 +323,62 @@ def header_section(result, *, date: str = "") -> Section:
         ("Question", d.question or "(not stated)"),
         ("Outcome", d.outcome or "(not stated)"),
         ("Effect measure", measure),
-        ("Favours intervention", "lower values" if d.favours == "lower" else "higher values"),
+        ("Favours intervention", favours_text(d)),
         ("Appraiser", d.appraiser or "(not stated)"),
     ]
     if date:
         rows.append(("Date", date))
     notes = (d.source_note,) if d.source_note else ()
     return Section("header", "Review", tuple(rows), notes=notes)
+
+
+def favours_text(details) -> str:
+    """The direction of benefit and where it came from, in words (header of every output)."""
+    from .model.review import FAVOURS_SOURCES
+
+    text = f"{'higher' if details.favours == 'higher' else 'lower'} values favour the intervention"
+    source = getattr(details, "favours_source", "")
+    return f"{text} ({FAVOURS_SOURCES[source]})" if source in FAVOURS_SOURCES and source else text
+
+
+#: Most unread entries listed in a section (the JSON lists them all).
+NOT_READ_LIMIT = 20
+
+
+def not_read_label(account) -> str:
+    """A label such as "2 lines not read" or "1 column, 3 places not read"."""
+    words = {
+        "line": ("line", "lines"),
+        "text": ("text line", "text lines"),
+        "cells": ("place", "places"),
+        "column": ("column", "columns"),
+        "row": ("row", "rows"),
+    }
+    counts: dict[str, int] = {}
+    for n in account.not_read:
+        counts[n.kind] = counts.get(n.kind, 0) + 1
+    parts = [plural(c, *words.get(k, ("item", "items"))) for k, c in counts.items()]
+    return ", ".join(parts) + " not read"
+
+
+def intake_rows(review) -> list[tuple[str, str]]:
+    """The account of the input under the entered data (text, window, sheet alike)."""
+    a = getattr(review, "intake", None)
+    if a is None or a.is_empty():
+        return []
+    rows: list[tuple[str, str]] = []
+    if a.source:
+        rows.append(("Read from", a.source))
+    if a.measure_how:
+        rows.append(("Measure", a.measure_how))
+    if a.decimal_text():
+        rows.append(("Decimal mark", a.decimal_text()))
+    if a.not_read:
+        items = [f"{n.where}: {n.text} ({n.reason})" for n in a.not_read]
+        rows.append((not_read_label(a), "\n".join(_limit(items, NOT_READ_LIMIT))))
+    elif a.source:
+        rows.append(("Not read", "nothing: every line, cell and column was read"))
+    return rows
 
 
 def _route_counts(result) -> list[tuple[str, int]]:
@@ -378,6 +427,7 @@ def data_section(result) -> Section:
     n_rows = len(result.review.studies)
     rows: list[tuple[str, str]] = [
         ("Studies analysed", f"{k} of {plural(n_rows, 'row')} in the table"),
+        *intake_rows(result.review),
     ]
     ns = [float(x) for x in data.n if is_finite(x)] if data.n.size == k else []
     if ns:

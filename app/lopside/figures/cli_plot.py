@@ -97,7 +97,8 @@ def run_plot(args: argparse.Namespace) -> int:
     Returns
     -------
     int
-        0 on success, 2 on bad input (message on stderr).
+        0 on success, 2 on bad input (message on stderr), 4 when some of the input was
+        not read (see ``lopside.cli.EXIT_UNREAD``).
     """
     from dataclasses import replace
 
@@ -114,14 +115,18 @@ def run_plot(args: argparse.Namespace) -> int:
             f"-o {out}: the folder {out.parent} does not exist; create it or pick another."
         )
 
-    from ..cli import _load
+    from ..cli import EXIT_UNREAD, UnreadInput, load_input
     from ..cli_common import INPUT_ERRORS
 
     try:
-        # the same loading and analysis options as check and sheet (PDF pages included)
-        review, settings = _load(args)
+        # the same input and analysis options as check and sheet (PDF pages included)
+        review, settings = load_input(args)
     except INPUT_ERRORS as exc:
         return _fail(str(exc))
+    except UnreadInput as exc:
+        print(f"lopside: {exc}", file=sys.stderr)
+        return EXIT_UNREAD
+    # plus the funnel's centre line
     if getattr(args, "model", None):
         settings = replace(settings, funnel_model=args.model)
 

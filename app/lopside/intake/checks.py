@@ -62,9 +62,9 @@ class Problem:
 
 
 def _problem(
-    index: int, row: StudyRow, fld: str, severity: str, code: str, **fields: object
+    index: int, row: StudyRow, fld: str, severity: str, code: str, place: str = "", **fields: object
 ) -> Problem:
-    text = M.where(index, row.study, fld) + M.check_message(code, **fields)
+    text = M.where(index, row.study, fld, place) + M.check_message(code, **fields)
     return Problem(index, row.study, fld, severity, text, code)
 
 
@@ -178,6 +178,7 @@ def check_row(
     *,
     index: int = 0,
     printed: Mapping[str, str] | None = None,
+    place: str = "",
 ) -> tuple[Problem, ...]:
     """Check one study row.
 
@@ -195,6 +196,9 @@ def check_row(
     printed : mapping, optional
         Field -> number as printed (from the paste or table reader), so that the
         rounding tolerance follows the printed decimals.
+    place : str, optional
+        Where the row came from ("spreadsheet row 5", "pasted line 7"), named in the
+        messages beside the study's own row number.
 
     Returns
     -------
@@ -214,7 +218,7 @@ def check_row(
     ratio = measure in RATIO_MEASURES
 
     def add(fld: str, severity: str, code: str, **fields: object) -> None:
-        out.append(_problem(index, row, fld, severity, code, **fields))
+        out.append(_problem(index, row, fld, severity, code, place, **fields))
 
     # values that are not finite numbers (NaN, infinity, a stray type) are reported once
     # and then treated as missing by every other rule
@@ -295,6 +299,14 @@ def check_row(
                 total=fmt(f"{prefix}_total"),
             )
 
+    for prefix in ("int", "ctl"):
+        arm_n = getattr(row, f"{prefix}_n")
+        if arm_n is not None and 0 <= arm_n < 2:
+            add(f"{prefix}_n", ERROR, "arm_too_small", arm=_arm(prefix), value=fmt(f"{prefix}_n"))
+        tot = getattr(row, f"{prefix}_total")
+        if tot is not None and tot == 0:
+            add(f"{prefix}_total", ERROR, "total_zero", arm=_arm(prefix))
+
     if not row.reported:
         # a trial known to be missing: only its size is used (the missing-trial scenarios)
         if row.total_n() is None:
@@ -311,6 +323,11 @@ def check_row(
 
     # -- the estimate and its interval
     est, lo, hi = row.estimate, row.lower, row.upper
+    if measure == "RD":
+        for fld in ("estimate", "lower", "upper"):
+            v = getattr(row, fld)
+            if v is not None and abs(v) > 1.0:
+                add(fld, ERROR, "rd_over_one", value=fmt(fld))
     if ratio:
         for fld, what in (
             ("estimate", "estimate"),
@@ -349,7 +366,7 @@ def check_row(
                 upper=fmt("upper"),
             )
         elif not ratio or (est > 0 and lo > 0):
-            out.extend(_symmetry_problems(row, measure, index, pr))
+            out.extend(_symmetry_problems(row, measure, index, pr, place))
 
     # -- counts and means
     count_fields = ("int_events", "int_total", "ctl_events", "ctl_total")
@@ -467,7 +484,7 @@ def _routes(row: StudyRow, measure: str) -> tuple[str, ...]:
 
 
 def _symmetry_problems(
-    row: StudyRow, measure: str, index: int, pr: Mapping[str, str]
+    row: StudyRow, measure: str, index: int, pr: Mapping[str, str], place: str = ""
 ) -> list[Problem]:
     est, lo, hi = row.estimate, row.lower, row.upper
     assert est is not None and lo is not None and hi is not None
@@ -488,11 +505,11 @@ def _symmetry_problems(
     if measure in RATIO_MEASURES:
         if sym.log_ok is False:
             code = "ratio_linear_symmetric" if sym.linear_ok else "ratio_asymmetric"
-            return [_problem(index, row, "estimate", WARNING, code, **values)]
+            return [_problem(index, row, "estimate", WARNING, code, place, **values)]
         return []
     if not sym.linear_ok:
         code = "difference_log_symmetric" if sym.log_ok else "difference_asymmetric"
-        return [_problem(index, row, "estimate", WARNING, code, **values)]
+        return [_problem(index, row, "estimate", WARNING, code, place, **values)]
     return []
 
 
@@ -505,6 +522,7 @@ def check_rows(
     ci_level: float = 95.0,
     *,
     printed: Sequence[Mapping[str, str]] | None = None,
+    places: Sequence[str] | None = None,
 ) -> tuple[Problem, ...]:
     """Check every row, the review's CI level, and rows entered twice.
 
@@ -517,6 +535,8 @@ def check_rows(
         The review's CI level in percent.
     printed : sequence of mappings, optional
         For each row, field -> number as printed (same order as ``rows``).
+    places : sequence of str, optional
+        For each row, where it came from in the file ("spreadsheet row 5"; "" unknown).
 
     Returns
     -------
@@ -528,11 +548,12 @@ def check_rows(
     seen: dict[tuple, int] = {}
     for i, row in enumerate(rows):
         pr = printed[i] if printed is not None and i < len(printed) else None
-        out.extend(check_row(row, measure, ci_level, index=i, printed=pr))
+        place = places[i] if places is not None and i < len(places) else ""
+        out.extend(check_row(row, measure, ci_level, index=i, printed=pr, place=place))
         key = tuple(sorted((k, repr(v)) for k, v in row.to_dict().items()))
         if key in seen and (row.study or row.estimate is not None):
             other = seen[key]
-            text = M.where(i, row.study, "") + M.check_message("duplicate", other=other + 1)
+            text = M.where(i, row.study, "", place) + M.check_message("duplicate", other=other + 1)
             out.append(Problem(i, row.study, "", WARNING, text, "duplicate"))
         else:
             seen.setdefault(key, i)

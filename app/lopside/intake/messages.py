@@ -149,6 +149,17 @@ CHECKS: dict[str, str] = {
         "this row repeats row {other} exactly. Is the study entered twice? If so, delete one."
     ),
     "no_label": "the study has no label. Give it one (for example 'Smith 2004').",
+    "rd_over_one": (
+        "a risk difference of {value} is beyond -1 to 1: risk differences are proportions "
+        "(5 % is 0.05). If the paper printed percentages, enter them divided by 100."
+    ),
+    "arm_too_small": (
+        "the {arm} arm has {value} participant(s); a mean and SD need at least 2. Check the "
+        "number in the paper."
+    ),
+    "total_zero": (
+        "the {arm} total is 0, so the arm has no participants. Check the number in the paper."
+    ),
 }
 
 # -- pasted text (paste.py) -----------------------------------------------------------
@@ -171,6 +182,11 @@ NOT_UNDERSTOOD: dict[str, tuple[str, str]] = {
         "the line is {length:,} characters long; only the first {limit:,} are ever read, and a "
         "study row is much shorter",
         "Check that the line breaks were kept when copying, or paste fewer rows at a time.",
+    ),
+    "percent_values": (
+        "the estimate and its limits are printed as percentages ({numbers})",
+        "For a risk difference choose that measure (RD): 5% is then read as 0.05. For any "
+        "other measure, type the numbers without the % sign as the paper means them.",
     ),
     "no_numbers": (
         "there are no numbers on this line",
@@ -238,6 +254,11 @@ NOT_UNDERSTOOD: dict[str, tuple[str, str]] = {
 
 #: Notes in the account of a study line (joined with "; ").
 PASTE_NOTES: dict[str, str] = {
+    "percent_converted": "percentages read as proportions for the risk difference ({text})",
+    "summary_word_study": (
+        "read as a study although the label starts with '{word}': a summary line has that "
+        "word alone or followed by '(95% CI)'; check that this is a trial"
+    ),
     "weight": "weight {weight}% ignored",
     "weight_no_percent": "{value} read as a weight without a % sign (ignored)",
     "event_percent": "percentage {value}% in brackets ignored",
@@ -256,6 +277,7 @@ PASTE_NOTES: dict[str, str] = {
     ),
     "count_thousands": "'{text}' read as {value} (a count, so the comma separates thousands)",
     "ambiguous_decimal": "'{text}' read as {value} (decimal mark as elsewhere on the line)",
+    "ambiguous_chosen": "'{text}' read as {value} (decimal {mark}, as chosen)",
     "ambiguous_from_text": (
         "'{text}' read as {value} (nothing on the line shows the decimal mark; most other "
         "lines use decimal {mark}s)"
@@ -360,6 +382,53 @@ TABLE: dict[str, str] = {
     "note_cell": "row {row}, {field}: {note}",
     "note_quote_removed": "row {row}, {field}: the leading quote (added to stop formulas) removed",
     "note_year_suffix": "row {row}, year: '{text}' read as {year}",
+    "note_favours_line": "row {row}: the direction of benefit is given: {favours} values favour",
+    "comment_row": (
+        "a comment line above the column names; only '# favours: lower' or '# favours: "
+        "higher' is read there"
+    ),
+    "note_decimal_option": "numbers no cell settles are read with a decimal {mark}, as asked",
+    "note_percent": "row {row}, {field}: '{text}' read as {value} (a risk difference)",
+    "percent_cell": (
+        "'{text}' is a percentage; the text is kept. For a risk difference choose the measure "
+        "RD (5% is then read as 0.05); otherwise type the number without the % sign."
+    ),
+    "favours_value": "expected 'lower' or 'higher'",
+    "favours_mixed": (
+        "the direction of benefit differs between rows ({rows}). Give one value, 'lower' or "
+        "'higher', for the whole table."
+    ),
+    "not_used": "not read as a number (the text is kept in its cell)",
+    "extra_reason": "{count} cell(s) beyond the last column name",
+    "unknown_column_reason": (
+        "not a column of the study table ({count} cell(s) with data). Rename the column "
+        "(see the list of columns in the README) if it should be read."
+    ),
+}
+
+
+#: Why the paste preview assumes a measure (a suggestion the user confirms).
+MEASURE_WHY: dict[str, str] = {
+    "header": "the header line names it ({name})",
+    "counts": (
+        "every row gives events and totals per arm: the odds ratio is assumed; the risk "
+        "ratio or risk difference are as possible"
+    ),
+    "means": "every row gives means, SDs and numbers per arm: looks like a mean difference",
+    "none": "the rows give no interval to judge the measure by",
+    "negative": (
+        "no header; values at or below 0, which a ratio can never be: looks like a mean "
+        "difference (or a standardised one)"
+    ),
+    "linear": (
+        "no header; {n} of {k} intervals are symmetric on the plain scale, not the log scale: "
+        "looks like a mean difference"
+    ),
+    "log": (
+        "no header; {n} of {k} intervals are symmetric on the log scale: looks like a ratio "
+        "(odds ratio assumed; risk or hazard ratio as possible)"
+    ),
+    "positive": "no header; all values above 0: a ratio is assumed (odds ratio)",
 }
 
 
@@ -368,15 +437,18 @@ def check_message(key: str, **fields: object) -> str:
     return CHECKS[key].format(**fields)
 
 
-def where(row_index: int, study: str, field: str) -> str:
+def where(row_index: int, study: str, field: str, place: str = "") -> str:
     """The prefix naming the place of a problem: ``"Row 3 (Smith 2004), lower: "``.
 
-    Rows are counted from 1 for the user (``row_index`` is 0-based). A negative index
-    means the review's own settings; an empty field names the row as a whole.
+    Rows are counted from 1 for the user (``row_index`` is 0-based), as the window's
+    table numbers them; ``place`` adds where the row is in the file it came from
+    (``"Row 3 (Smith 2004; spreadsheet row 5), lower: "``). A negative index means the
+    review's own settings; an empty field names the row as a whole.
     """
     if row_index < 0:
         return f"Review settings, {field}: " if field else "Review settings: "
-    label = f" ({study})" if study else ""
+    inner = "; ".join(x for x in (study, place) if x)
+    label = f" ({inner})" if inner else ""
     if not field:
         return f"Row {row_index + 1}{label}: "
     return f"Row {row_index + 1}{label}, {field}: "

@@ -24,7 +24,7 @@ from __future__ import annotations
 import math
 import re
 import unicodedata
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 from lopside.intake import messages as M
 from lopside.intake.numbers import (
@@ -38,7 +38,13 @@ from lopside.intake.numbers import (
     read_digits,
     split_list,
 )
-from lopside.model.review import MEASURE_NAMES, PublishedResult, StudyRow
+from lopside.model.review import (
+    MEASURE_NAMES,
+    IntakeAccount,
+    NotRead,
+    PublishedResult,
+    StudyRow,
+)
 
 #: Lines longer than this are reported and not read (a forest-table row is ~40-200 chars).
 MAX_LINE_CHARS = 2000
@@ -163,6 +169,19 @@ _HET_RE = re.compile(
     r"(?:(heterogeneity)|(prediction interval)"
     r"|((?:tau|chi|i|h)(?:\^?2|-?squared?)?\s*[=:<>])|(q\s*[=:(])|(df\s*=))"
 )
+#: what may follow "Total (" on a summary line
+_SUMMARY_BRACKET_RE = re.compile(
+    r"(?:\d{2}(?:\.\d{1,2})?\s?%|ci\b|cl\b|fixed|random|common|m-h|mh\b|iv\b|peto"
+    r"|inverse|fe\b|re\b|model|95|99|90)"
+)
+#: a heterogeneity statistic with its value at the start of a line ("Tau² = 0.04")
+_HET_STAT_RE = re.compile(
+    r"(?:tau|chi|i|h|q)(?:\^?2|-?squared?)?\s*(?:\(\s*(?:df\s*=\s*)?\d+\s*\))?"
+    r"\s*[=:<>]\s*[-\u2212]?[0-9.]"
+)
+_HET_WORD_RE = re.compile(r"(?:heterogeneity|prediction interval|(?:tau|chi|i|h|q)\b)")
+_DECIMAL_RE = re.compile(r"\d[.,\u00b7]\d")
+_FRACTION_RE = re.compile(r"\d\s*/\s*\d")
 _TEST_RE = re.compile(r"(?:tests? (?:for|of)\b|overall effect\b)")
 _CAPTION_RE = re.compile(
     r"(?:favou?rs?\b|footnotes?\b|notes?:|figure\b|fig\.|analysis \d|comparison \d"
@@ -245,6 +264,17 @@ class PasteResult:
     measure_hint: str | None = None
     #: the pooled result from the last "Total" line, if it printed one
     published: PublishedResult | None = None
+    #: decimal mark the paste settled on ("point", "comma"; "" when nothing needed it)
+    decimal_mark: str = ""
+    #: how: "evidence" (a number such as 0,82), "option" (the caller said), "" (none)
+    decimal_how: str = ""
+    #: the number that settled it
+    decimal_evidence: str = ""
+    #: (line, number) read with nothing to settle the decimal mark ("1,105" as 1105)
+    undecided: tuple[tuple[int, str], ...] = ()
+    #: the measure the rows look like, and why (a suggestion for the user to confirm)
+    measure_guess: str | None = None
+    measure_why: str = ""
 
     @property
     def studies(self) -> tuple[LineReading, ...]:
@@ -257,6 +287,36 @@ class PasteResult:
     @property
     def not_understood(self) -> tuple[LineReading, ...]:
         return tuple(r for r in self.lines if r.status == "not understood")
+
+    def not_read(self) -> tuple[NotRead, ...]:
+        """Lines that were not read, for the review's intake account."""
+        no_numbers = M.not_understood("no_numbers")[0]
+        # a line with no numbers after its label is listed, but is not study-looking
+        return tuple(
+            NotRead(
+                "text" if r.reason == no_numbers else "line",
+                f"line {r.line_no}",
+                r.text.strip(),
+                r.reason,
+            )
+            for r in self.not_understood
+        )
+
+    def intake_account(self, source: str, measure_how: str = "") -> IntakeAccount:
+        """What this paste adds to a review's intake account."""
+        return IntakeAccount(
+            source=source,
+            not_read=self.not_read(),
+            decimal_mark=self.decimal_mark,
+            decimal_how=self.decimal_how,
+            decimal_evidence=self.decimal_evidence,
+            measure_how=measure_how,
+            rows_at=tuple(
+                (self.rows[r.row_index].study, f"{source} line {r.line_no}")
+                for r in self.studies
+                if r.row_index is not None
+            ),
+        )
 
     def printed(self, row_index: int) -> dict[str, str]:
         """The numbers of row ``row_index`` as printed (field -> text)."""
@@ -482,24 +542,71 @@ class _Prepared:
     kind: str = "study"  # "study" | "total" (a total line read for the published result)
 
 
+def _summary_shape(rest: str) -> bool:
+    """True when what follows a summary word has the shape of a summary line.
+
+    A summary line has the word alone as its label, or followed by "(95% CI)", "(fixed",
+    "(random", a colon, or its numbers straight away. A year or more words after it make
+    a study label ("TOTAL 2015", "Overall Survival Trial"): a trial acronym is not a
+    pooled result.
+    """
+    rest = rest.strip()
+    if not rest or rest[0] in ":=":
+        return True
+    if rest[0] in "([":
+        return bool(_SUMMARY_BRACKET_RE.match(rest[1:].lstrip()))
+    m = re.match(r"[-\u2212+]?[0-9.,\u00b7]+", rest)
+    if m:
+        return not _YEAR_RE.fullmatch(m.group(0))
+    return False
+
+
+def _summary_word(raw: str) -> str:
+    """The summary/caption word a study label starts with ("" for none), for the account."""
+    low = unicodedata.normalize("NFKC", raw).casefold().strip().lstrip("\u2022-*\u00b7 \t")
+    for rx in (_TOTAL_RE, _HET_WORD_RE, _TEST_RE, _CAPTION_RE):
+        m = rx.match(low)
+        if m:
+            return (
+                unicodedata.normalize("NFKC", raw)
+                .strip()
+                .lstrip("\u2022-*\u00b7 \t")[: m.end()]
+                .strip()
+            )
+    return ""
+
+
+def _looks_like_data(low: str) -> bool:
+    """An estimate with its interval, or events/totals: numbers a study line carries."""
+    return len(_DECIMAL_RE.findall(low)) >= 3 or len(_FRACTION_RE.findall(low)) >= 2
+
+
 def _skip_reason(raw: str) -> tuple[str, str] | None:
-    """Header, total, heterogeneity, caption or heading: (reason key, detail) or None."""
+    """Header, total, heterogeneity, caption or heading: (reason key, detail) or None.
+
+    Summary, heterogeneity, test and caption lines are recognised by their shape, never by
+    a leading word alone (issue 12): "TOTAL 2015 0.98 (0.86 to 1.11)" is a trial.
+    """
     low = unicodedata.normalize("NFKC", raw).casefold().strip()
     low = low.lstrip("\u2022-*\u00b7 \t")
     if not low:
         return None
     m = _TOTAL_RE.match(low)
-    if m:
+    if m and _summary_shape(low[m.end() :]):
         if m.group(1):
             return "subtotal", ""
         if m.group(2):
             return "total_events", ""
         return "total", ""
-    if _HET_RE.match(low) or "heterogeneity" in low:
+    if (
+        low.startswith(("heterogeneity", "prediction interval"))
+        or _HET_STAT_RE.match(low)
+        or ("heterogeneity" in low and not _looks_like_data(low))
+    ):
         return "heterogeneity", ""
-    if _TEST_RE.match(low) or "test for overall effect" in low:
+    if (_TEST_RE.match(low) or "test for overall effect" in low) and re.search(r"[=<>]", low):
         return "test", ""
-    if _CAPTION_RE.match(low):
+    if _CAPTION_RE.match(low) and not _looks_like_data(low):
         return "caption", ""
     m = _HEADING_RE.fullmatch(low)
     if m and re.search(r"[a-z]", m.group(2)) and not re.search(r"\d[.,\u00b7]\d|/", m.group(2)):
@@ -669,7 +776,11 @@ class _Ctx:
     subgroup: str | None = None
     subgroup_line: int = 0
     fallback_mark: str | None = None
+    #: True when the fallback mark is the user's choice (the decimal option)
+    mark_chosen: bool = False
     measure: str | None = None
+    #: ambiguous numbers ("1,105") read on the current line with nothing to settle them
+    undecided_now: list[str] = field(default_factory=list)
 
 
 def _fmt(v: float) -> str:
@@ -701,6 +812,12 @@ def _read_num(
         if d.ambiguous:
             if mark is None:
                 notes.append(M.paste_note("ambiguous_thousands", text=body, value=_fmt(value)))
+                if len(ctx_mark_used) > 1:
+                    ctx_mark_used[1].append(body)
+            elif ctx_mark_used[0] == "chosen":
+                notes.append(
+                    M.paste_note("ambiguous_chosen", text=body, value=_fmt(value), mark=mark)
+                )
             elif ctx_mark_used[0]:
                 notes.append(
                     M.paste_note("ambiguous_from_text", text=body, value=_fmt(value), mark=mark)
@@ -726,9 +843,16 @@ def _read_count(tok: _Tok, mark: str | None, notes: list[str], used: list[bool])
     return [_It("NUM", d.value, d.canonical, tok=tok)]
 
 
-def _to_items(toks: list[_Tok], mark: str | None, notes: list[str], from_text: bool) -> list[_It]:
+def _to_items(
+    toks: list[_Tok],
+    mark: str | None,
+    notes: list[str],
+    from_text: bool | str,
+    undecided: list[str] | None = None,
+) -> list[_It]:
     items: list[_It] = []
-    used = [from_text]
+    # used[0]: the mark came from other lines; used[1]: numbers read with no mark at all
+    used: list = [from_text, undecided if undecided is not None else []]
     junk_words: list[str] = []
     n = len(toks)
     k = 0
@@ -1011,11 +1135,13 @@ def _read_study(
     if prep.mark == "mixed":
         raise _Fail("mixed_marks", point=prep.mark_evidence, comma=prep.mark_counter)
     mark = prep.mark if prep.mark in (POINT, COMMA) else None
-    from_text = False
+    from_text: bool | str = False
     if mark is None and ctx.fallback_mark is not None:
         mark = ctx.fallback_mark
-        from_text = True
-    items = _to_items(tail, mark, notes, from_text)
+        # "chosen": the user said; True: the other lines of the paste settled it
+        from_text = "chosen" if ctx.mark_chosen else True
+    items = _to_items(tail, mark, notes, from_text, ctx.undecided_now)
+    items = _percent_values(items, ctx, notes)
     items = _groups(items, notes)
     items = _ranges(items)
 
@@ -1256,6 +1382,31 @@ def _read_study(
     return row, reading
 
 
+def _percent_values(items: list[_It], ctx: _Ctx, notes: list[str]) -> list[_It]:
+    """An estimate and limits printed as percentages ("5% (1% to 9%)").
+
+    Read as proportions for a risk difference (5% -> 0.05) and said so; refused for
+    any other measure, never stripped silently (issue 12).
+    """
+    pcts = [x for x in items if x.kind == "PCT"]
+    if len(pcts) < 3 or sum(1 for x in items if x.kind == "NUM") >= 3:
+        return items
+    if ctx.measure != "RD":
+        raise _Fail("percent_values", numbers=", ".join(f"{x.t}%" for x in pcts))
+    out = []
+    for x in items:
+        if x.kind == "PCT":
+            decimals = len(x.t.split(".")[1]) if "." in x.t else 0
+            text = f"{x.v / 100:.{decimals + 2}f}"
+            out.append(_It("NUM", float(text), text, tok=x.tok))
+        else:
+            out.append(x)
+    notes.append(
+        M.paste_note("percent_converted", text=", ".join(f"{x.t}% -> {x.v / 100:g}" for x in pcts))
+    )
+    return out
+
+
 class _Retry(Exception):
     """Read the line again with one more token in the label ("Trial 2")."""
 
@@ -1314,7 +1465,7 @@ def _not_understood(line_no: int, raw: str, key: str, **fields: object) -> LineR
     return LineReading(line_no, raw, "not understood", reason=reason, advice=advice)
 
 
-def read_pasted(text: str, measure: str | None = None) -> PasteResult:
+def read_pasted(text: str, measure: str | None = None, decimal: str | None = None) -> PasteResult:
     """Read study rows pasted from a forest-plot table.
 
     Parameters
@@ -1330,8 +1481,13 @@ def read_pasted(text: str, measure: str | None = None) -> PasteResult:
         marks are ignored and reported. Header, total, heterogeneity and test lines are
         skipped with the reason.
     measure : str, optional
-        The review's measure (one of MEASURES); used only to add notes to the account
-        (counts given for a hazard ratio, for instance).
+        The review's measure (one of MEASURES); used to add notes to the account
+        (counts given for a hazard ratio, for instance) and to read percentages
+        ("5% (1% to 9%)" is read as 0.05 for a risk difference, refused otherwise).
+    decimal : {"point", "comma"}, optional
+        The decimal mark the user chose, for numbers that nothing in the paste settles
+        (``1,105``). Without it such numbers are read with a thousands separator and
+        listed in :attr:`PasteResult.undecided`, so the caller can ask.
 
     Returns
     -------
@@ -1346,6 +1502,7 @@ def read_pasted(text: str, measure: str | None = None) -> PasteResult:
     # pass 1: classify and tokenise; collect the decimal marks the lines settle on
     staged: list[tuple[int, str, object]] = []
     marks = {POINT: 0, COMMA: 0}
+    evidence = {POINT: "", COMMA: ""}
     for idx, raw in enumerate(raw_lines, start=1):
         if not raw.strip():
             continue
@@ -1371,15 +1528,24 @@ def read_pasted(text: str, measure: str | None = None) -> PasteResult:
                 continue
             if prep.mark in marks:
                 marks[prep.mark] += 1
+                evidence[prep.mark] = evidence[prep.mark] or prep.mark_evidence
             staged.append((idx, raw, prep))
         except Exception as exc:  # noqa: BLE001 - the reader must never raise
             staged.append(
                 (idx, raw, _not_understood(idx, raw, "internal", error=type(exc).__name__))
             )
-    if marks[COMMA] > marks[POINT]:
+    decimal_how = ""
+    if decimal in (POINT, COMMA):
+        ctx.fallback_mark = decimal
+        ctx.mark_chosen = True
+        decimal_how = "option"
+    elif marks[COMMA] > marks[POINT]:
         ctx.fallback_mark = COMMA
+        decimal_how = "evidence"
     elif marks[POINT] > 0:
         ctx.fallback_mark = POINT
+        decimal_how = "evidence"
+    undecided: list[tuple[int, str]] = []
 
     # pass 2: read, in order (headers and headings carry context downwards)
     rows: list[StudyRow] = []
@@ -1433,17 +1599,74 @@ def read_pasted(text: str, measure: str | None = None) -> PasteResult:
             ctx.subgroup = None
             lines.append(LineReading(idx, raw, "skipped", reason=reason))
             continue
+        ctx.undecided_now = []
         try:
             row, reading = _read_with_retry(prep, ctx)
+            undecided += [(idx, t) for t in dict.fromkeys(ctx.undecided_now)]
         except _Fail as fail:
             lines.append(_not_understood(idx, raw, fail.key, **fail.fields))
             continue
         except Exception as exc:  # noqa: BLE001 - the reader must never raise
             lines.append(_not_understood(idx, raw, "internal", error=type(exc).__name__))
             continue
+        word = _summary_word(raw)
+        if word:
+            reading = _with_note(reading, M.paste_note("summary_word_study", word=word))
         rows.append(row)
         lines.append(_with_index(reading, len(rows) - 1))
-    return PasteResult(tuple(rows), tuple(lines), measure_hint, published)
+    mark = ctx.fallback_mark or ""
+    if undecided and not mark:
+        decimal_how = ""
+    guess, why = _guess_measure(rows, measure_hint)
+    return PasteResult(
+        tuple(rows),
+        tuple(lines),
+        measure_hint,
+        published,
+        decimal_mark=mark if (mark and (decimal_how or undecided)) else "",
+        decimal_how=decimal_how if mark else "",
+        decimal_evidence=evidence.get(mark, "") if decimal_how == "evidence" else "",
+        undecided=tuple(undecided),
+        measure_guess=guess,
+        measure_why=why,
+    )
+
+
+def _guess_measure(rows: list[StudyRow], hint: str | None) -> tuple[str | None, str]:
+    """The measure the pasted rows look like, and why in plain words (a suggestion)."""
+    if hint is not None:
+        return hint, M.MEASURE_WHY["header"].format(name=MEASURE_NAMES[hint])
+    if not rows:
+        return None, ""
+    if all(r.has_counts() for r in rows):
+        return "OR", M.MEASURE_WHY["counts"]
+    if all(r.has_means() for r in rows):
+        return "MD", M.MEASURE_WHY["means"]
+    ci = [r for r in rows if None not in (r.estimate, r.lower, r.upper)]
+    if not ci:
+        return None, M.MEASURE_WHY["none"]
+    if any(min(r.estimate, r.lower, r.upper) <= 0 for r in ci):  # type: ignore[type-var]
+        return "MD", M.MEASURE_WHY["negative"]
+    from lopside.intake.checks import symmetry
+
+    log_votes = lin_votes = 0
+    for r in ci:
+        sym = symmetry(r.estimate, r.lower, r.upper, "OR")  # type: ignore[arg-type]
+        if sym.log_ok and not sym.linear_ok:
+            log_votes += 1
+        elif sym.linear_ok and not sym.log_ok:
+            lin_votes += 1
+    if lin_votes > log_votes:
+        return "MD", M.MEASURE_WHY["linear"].format(n=lin_votes, k=len(ci))
+    if log_votes:
+        return "OR", M.MEASURE_WHY["log"].format(n=log_votes, k=len(ci))
+    return "OR", M.MEASURE_WHY["positive"]
+
+
+def _with_note(reading: LineReading, note: str) -> LineReading:
+    from dataclasses import replace
+
+    return replace(reading, account=f"{reading.account}; {note}")
 
 
 def _with_index(reading: LineReading, index: int) -> LineReading:

@@ -479,6 +479,7 @@ def rows_from_pages(
     measure: str | None = None,
     *,
     keep: Callable[[PdfLine], bool] | None = None,
+    decimal: str | None = None,
 ) -> PdfRows:
     """Read the lines of ``pages`` (in that order) as pasted text; ``keep`` filters lines
     (a region drawn on the page, unticked rows)."""
@@ -503,7 +504,7 @@ def rows_from_pages(
             notes.append(f"page {n}: the table is printed sideways; read along its lines.")
         if page.columns == 2:
             notes.append(f"page {n}: set in two columns; read one column after the other.")
-    paste = read_pasted("\n".join(line.text for line in lines), measure)
+    paste = read_pasted("\n".join(line.text for line in lines), measure, decimal)
     return PdfRows(
         paste=paste,
         pages=tuple(pages),

@@ -35,8 +35,14 @@ from pathlib import Path
 from lopside.intake import messages as M
 from lopside.intake.checks import ERROR, WARNING, Problem
 from lopside.intake.errors import IntakeError
-from lopside.intake.numbers import decide_decimal_mark, number_body, parse_number
-from lopside.model.review import NUMERIC_FIELDS, TABLE_COLUMNS, StudyRow
+from lopside.intake.numbers import decide_decimal_mark, number_body, parse_number, read_digits
+from lopside.model.review import (
+    NUMERIC_FIELDS,
+    TABLE_COLUMNS,
+    IntakeAccount,
+    NotRead,
+    StudyRow,
+)
 
 #: Limits that keep a hostile or mistaken file from exhausting memory or time.
 MAX_TABLE_BYTES = 50 * 1024 * 1024
@@ -90,6 +96,31 @@ class TableResult:
     unknown_columns: tuple[str, ...]
     printed: tuple[tuple[tuple[str, str], ...], ...]
     decimal_mark: str
+    #: what was not read (unused columns with data, extra cells, unreadable cells)
+    not_read: tuple[NotRead, ...] = ()
+    #: "evidence" (a cell such as 0,82 settled it), "option" (the caller chose) or ""
+    decimal_how: str = ""
+    decimal_evidence: str = ""
+    #: (spreadsheet row, text) of numbers nothing settled the decimal mark of ("1,105")
+    undecided: tuple[tuple[int, str], ...] = ()
+    #: "lower"/"higher" from a favours column or a "# favours: higher" line, else ""
+    favours: str = ""
+    #: a measure named by a column ("OR" for a column called "or"), else None
+    measure_hint: str | None = None
+
+    def intake_account(self, measure_how: str = "") -> IntakeAccount:
+        """What this table adds to a review's intake account."""
+        return IntakeAccount(
+            source=Path(self.path).name,
+            not_read=self.not_read,
+            decimal_mark=self.decimal_mark,
+            decimal_how=self.decimal_how if self.decimal_mark else "",
+            decimal_evidence=self.decimal_evidence,
+            measure_how=measure_how,
+            rows_at=tuple(
+                (r.study, f"spreadsheet row {n}") for r, n in zip(self.rows, self.row_numbers)
+            ),
+        )
 
     def printed_dicts(self) -> list[dict[str, str]]:
         """``printed`` as one dict per row (the form :func:`check_rows` takes)."""
@@ -436,7 +467,46 @@ def _is_blank(value: object) -> bool:
     return value is None or (isinstance(value, str) and not value.strip())
 
 
-def read_table(path: str | os.PathLike[str]) -> TableResult:
+#: Other names for the table's columns (normalised: lower case, "_" for spaces and dashes).
+COLUMN_ALIASES: dict[str, str] = {
+    "lower_ci": "lower",
+    "ci_lower": "lower",
+    "lower_limit": "lower",
+    "lcl": "lower",
+    "lci": "lower",
+    "lower_95%_ci": "lower",
+    "upper_ci": "upper",
+    "ci_upper": "upper",
+    "upper_limit": "upper",
+    "ucl": "upper",
+    "uci": "upper",
+    "upper_95%_ci": "upper",
+    "std_err": "se",
+    "standard_error": "se",
+}
+#: A column named after a measure holds the estimates (and names the measure).
+MEASURE_COLUMNS: dict[str, str] = {
+    "or": "OR",
+    "odds_ratio": "OR",
+    "rr": "RR",
+    "risk_ratio": "RR",
+    "hr": "HR",
+    "hazard_ratio": "HR",
+    "rd": "RD",
+    "risk_difference": "RD",
+    "md": "MD",
+    "mean_difference": "MD",
+    "smd": "SMD",
+}
+#: A column (or a first "# favours: higher" line) saying which direction favours the
+#: intervention; the same value on every row.
+FAVOURS_COLUMN = "favours"
+_FAVOURS_LINE = re.compile(r"#\s*favou?rs\s*[:=]?\s*(lower|higher)\b", re.IGNORECASE)
+
+
+def read_table(
+    path: str | os.PathLike[str], measure: str | None = None, decimal: str | None = None
+) -> TableResult:
     """Read a CSV or XLSX study table.
 
     Parameters
@@ -444,6 +514,13 @@ def read_table(path: str | os.PathLike[str]) -> TableResult:
     path : str or path-like
         A ``.csv``/``.tsv`` file (comma, semicolon or tab separated; UTF-8 with or
         without BOM, else Windows-1252/Latin-1) or an ``.xlsx`` workbook (first sheet).
+
+    measure : str, optional
+        The review's measure, for cells printed with a "%": for a risk difference
+        ``5%`` is read as 0.05; for any other measure such a cell is kept as unread
+        text with a message (a "%" is never stripped silently).
+    decimal : {"point", "comma"}, optional
+        The decimal mark the user chose, for numbers nothing in the file settles.
 
     Returns
     -------
@@ -465,27 +542,60 @@ def read_table(path: str | os.PathLike[str]) -> TableResult:
         sheet = _read_xlsx(p)
     else:
         raise IntakeError(M.table_message("unsupported", suffix=p.suffix or "(none)"), path=p)
-    return _rows_from_sheet(p, sheet)
+    return _rows_from_sheet(p, sheet, measure, decimal)
 
 
-def _rows_from_sheet(path: Path, sheet: _Sheet) -> TableResult:
+def _comment(cells: list[_Cell]) -> str | None:
+    """The text of a comment row ("# ..." in its first cell), else None."""
+    first = next((c.value for c in cells if not _is_blank(c.value)), None)
+    if isinstance(first, str) and first.strip().startswith("#"):
+        return ", ".join(str(c.value).strip() for c in cells if not _is_blank(c.value))
+    return None
+
+
+def _rows_from_sheet(
+    path: Path, sheet: _Sheet, measure: str | None = None, decimal: str | None = None
+) -> TableResult:
     notes = list(sheet.notes)
     grid = sheet.rows
-    header_at = next(
-        (i for i, (_, r) in enumerate(grid) if any(not _is_blank(c.value) for c in r)), None
-    )
+    favours = ""
+    not_read: list[NotRead] = []
+    header_at = None
+    for i, (number, r) in enumerate(grid):
+        if not any(not _is_blank(c.value) for c in r):
+            continue
+        text = _comment(r)
+        if text is None:
+            header_at = i
+            break
+        m = _FAVOURS_LINE.match(text)
+        if m:
+            favours = m.group(1).casefold()
+            notes.append(M.table_message("note_favours_line", row=number, favours=favours))
+        else:
+            not_read.append(NotRead("row", f"row {number}", text, M.table_message("comment_row")))
     if header_at is None:
         raise IntakeError(M.table_message("empty"), path=path)
     header_number, header = grid[header_at]
     known = set(TABLE_COLUMNS)
     columns: dict[int, str] = {}
     unknown: list[str] = []
+    unknown_at: dict[int, str] = {}
     first_at: dict[str, int] = {}
+    favours_col: int | None = None
+    measure_hint: str | None = None
     for col, cell in enumerate(header, start=1):
         given = "" if cell.value is None else str(cell.value)
         name = _normalise_name(given)
         if not name:
             continue
+        if name == FAVOURS_COLUMN:
+            favours_col = col
+            continue
+        if name in MEASURE_COLUMNS and "estimate" not in first_at:
+            measure_hint = measure_hint or MEASURE_COLUMNS[name]
+            name = "estimate"
+        name = COLUMN_ALIASES.get(name, name)
         if name in known:
             if name in first_at:
                 raise IntakeError(
@@ -502,6 +612,7 @@ def _rows_from_sheet(path: Path, sheet: _Sheet) -> TableResult:
                 notes.append(M.table_message("note_renamed_column", given=given.strip(), name=name))
         else:
             unknown.append(given.strip())
+            unknown_at[col] = given.strip()
     if not columns:
         raise IntakeError(
             M.table_message(
@@ -526,14 +637,21 @@ def _rows_from_sheet(path: Path, sheet: _Sheet) -> TableResult:
                     bodies.append(number_body(_unquote(v.strip())[0]))
     decision = decide_decimal_mark(bodies)
     mark: str | None = decision.settled
+    decimal_how = "evidence" if mark else ""
+    if mark is None and decimal in ("point", "comma"):
+        mark, decimal_how = decimal, "option"
+        notes.append(M.table_message("note_decimal_option", mark=mark))
     if decision.mark == "mixed":
         notes.append(
             M.table_message("note_decimal_mixed", point=decision.evidence, comma=decision.counter)
         )
-    elif mark is not None:
+    elif mark is not None and decimal_how == "evidence":
         notes.append(M.table_message("note_decimal", mark=mark, evidence=decision.evidence))
+    undecided: list[tuple[int, str]] = []
+    favours_seen: dict[str, int] = {}
 
     rows: list[StudyRow] = []
+    unknown_with_data: dict[str, list[str]] = {}
     numbers: list[int] = []
     printed_all: list[tuple[tuple[str, str], ...]] = []
     problems: list[Problem] = []
@@ -548,8 +666,45 @@ def _rows_from_sheet(path: Path, sheet: _Sheet) -> TableResult:
         row_problems: list[tuple[str, str, str]] = []  # (field, severity, message)
         for col, name in columns.items():
             cell = cells[col - 1] if col - 1 < len(cells) else _Cell(None)
-            _read_cell(cell, name, number, mark, values, unread, printed, row_problems, notes)
+            _read_cell(
+                cell, name, number, mark, values, unread, printed, row_problems, notes, measure
+            )
+            if mark is None and isinstance(cell.value, str) and name in NUMERIC_FIELDS:
+                body = number_body(_unquote(cell.value.strip())[0])
+                if read_digits(body).ambiguous:
+                    undecided.append((number, cell.value.strip()))
+        if favours_col is not None and favours_col - 1 < len(cells):
+            fv = cells[favours_col - 1].value
+            if not _is_blank(fv):
+                word = str(fv).strip().casefold()
+                if word in ("lower", "higher"):
+                    favours_seen.setdefault(word, number)
+                else:
+                    not_read.append(
+                        NotRead(
+                            "cells",
+                            f"row {number}, column 'favours'",
+                            str(fv),
+                            M.table_message("favours_value"),
+                        )
+                    )
+        for col, given in unknown_at.items():
+            if col - 1 < len(cells) and not _is_blank(cells[col - 1].value):
+                unknown_with_data.setdefault(given, []).append(str(cells[col - 1].value))
+        for fld, text in unread:
+            not_read.append(
+                NotRead("cells", f"row {number}, column '{fld}'", text, M.table_message("not_used"))
+            )
         extra = [c for c in cells[n_header:] if not _is_blank(c.value)]
+        if extra:
+            not_read.append(
+                NotRead(
+                    "cells",
+                    f"row {number}",
+                    ", ".join(str(c.value) for c in extra),
+                    M.table_message("extra_reason", count=len(extra)),
+                )
+            )
         unknown_data = [
             c
             for i, c in enumerate(cells[:n_header], start=1)
@@ -582,6 +737,35 @@ def _rows_from_sheet(path: Path, sheet: _Sheet) -> TableResult:
             problems.append(Problem(index, row.study, fld, severity, where + message, "table"))
     if blank_rows:
         notes.append(M.table_message("note_blank_rows", count=blank_rows))
+    for given, values_seen in unknown_with_data.items():
+        shown = ", ".join(values_seen[:3]) + (", ..." if len(values_seen) > 3 else "")
+        not_read.insert(
+            0,
+            NotRead(
+                "column",
+                f"column '{given}'",
+                shown,
+                M.table_message("unknown_column_reason", count=len(values_seen)),
+            ),
+        )
+    if len(favours_seen) > 1:
+        raise IntakeError(
+            M.table_message("favours_mixed", rows=", ".join(str(r) for r in favours_seen.values())),
+            path=path,
+            field=FAVOURS_COLUMN,
+        )
+    if favours_seen:
+        col_favours = next(iter(favours_seen))
+        if favours and favours != col_favours:
+            raise IntakeError(
+                M.table_message(
+                    "favours_mixed",
+                    rows=f"the '# favours' line and row {favours_seen[col_favours]}",
+                ),
+                path=path,
+                field=FAVOURS_COLUMN,
+            )
+        favours = col_favours
     return TableResult(
         str(path),
         sheet.kind,
@@ -593,6 +777,12 @@ def _rows_from_sheet(path: Path, sheet: _Sheet) -> TableResult:
         tuple(unknown),
         tuple(printed_all),
         mark or "",
+        tuple(not_read),
+        decimal_how if mark else "",
+        decision.evidence if decimal_how == "evidence" else "",
+        tuple(undecided),
+        favours,
+        measure_hint,
     )
 
 
@@ -606,6 +796,7 @@ def _read_cell(
     printed: list[tuple[str, str]],
     problems: list[tuple[str, str, str]],
     notes: list[str],
+    measure: str | None = None,
 ) -> None:
     value = cell.value
     if cell.formula is not None and value is None:
@@ -655,6 +846,22 @@ def _read_cell(
                 printed.append((name, f"{v:.{cell.decimals}f}"))
         elif isinstance(value, str):
             reading = parse_number(text, mark)
+            if reading.ok and reading.percent and name != "level":
+                # a "%" is a unit: converted where it has a meaning, refused elsewhere
+                if measure == "RD" and name in ("estimate", "lower", "upper"):
+                    decimals = reading.decimals or 0
+                    as_text = f"{reading.value / 100:.{decimals + 2}f}"
+                    values[name] = float(as_text)
+                    printed.append((name, as_text))
+                    notes.append(
+                        M.table_message(
+                            "note_percent", row=number, field=name, text=text, value=as_text
+                        )
+                    )
+                else:
+                    unread.append((name, text))
+                    problems.append((name, ERROR, M.table_message("percent_cell", text=text)))
+                return
             if reading.ok:
                 values[name] = reading.value
                 printed.append((name, reading.canonical))

@@ -9,6 +9,8 @@ Layout (version 1)::
                    ctl_label, appraiser, source_note,
                    published: {estimate, lower, upper, model}},
       "studies":  [{study, year, estimate, ... , exclude, unread: {field: text}}, ...],
+      "intake":   {source, not_read: [{kind, where, text, reason}], decimal_mark, ...},
+                                   # optional (model/intake_file.py)
       "notes":    {causes: {key: {judgement, notes}}, rating_override, rating_reason, general},
       "settings": {...}            # analysis settings, optional
     }
@@ -33,6 +35,12 @@ import tempfile
 from pathlib import Path
 from typing import Any
 
+from .intake_file import (
+    IntakeFileError,
+    favours_source_from,
+    intake_from_dict,
+    intake_to_dict,
+)
 from .review import (
     CAUSES,
     CLAIM_CONCLUSIONS,
@@ -109,6 +117,7 @@ def review_to_dict(review: Review, settings: dict[str, Any] | None = None) -> di
             "ctl_label": d.ctl_label,
             "appraiser": d.appraiser,
             "source_note": d.source_note,
+            "favours_source": d.favours_source,
             "published": {
                 "estimate": d.published.estimate,
                 "lower": d.published.lower,
@@ -133,6 +142,9 @@ def review_to_dict(review: Review, settings: dict[str, Any] | None = None) -> di
             "general": review.notes.general,
         },
     }
+    intake = intake_to_dict(review.intake)
+    if intake is not None:
+        doc["intake"] = intake
     if settings:
         doc["settings"] = settings
     return doc
@@ -471,6 +483,7 @@ def review_from_dict(doc: Any) -> tuple[Review, dict[str, Any]]:
         appraiser=_text(det.get("appraiser"), "details, appraiser"),
         source_note=_notes(det.get("source_note"), "details, source_note"),
         claim=claim,
+        favours_source=_intake_part(favours_source_from, det.get("favours_source")),
     )
     studies = doc.get("studies", [])
     if not isinstance(studies, list):
@@ -504,7 +517,15 @@ def review_from_dict(doc: Any) -> tuple[Review, dict[str, Any]]:
         general=_notes(notes_doc.get("general"), "notes, general"),
     )
     settings = _settings(doc.get("settings", {}) or {})
-    return Review(details=details, studies=rows, notes=notes), settings
+    intake = _intake_part(intake_from_dict, doc.get("intake"))
+    return Review(details=details, studies=rows, notes=notes, intake=intake), settings
+
+
+def _intake_part(read, value):
+    try:
+        return read(value)
+    except IntakeFileError as exc:
+        raise ProjectFileError(str(exc)) from None
 
 
 def loads(text: str) -> tuple[Review, dict[str, Any]]:

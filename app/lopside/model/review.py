@@ -226,6 +226,8 @@ class ReviewDetails:
     source_note: str = ""
     #: what the review said about small-study effects (compared with Lopside's reading)
     claim: ReviewClaim = field(default_factory=ReviewClaim)
+    #: where ``favours`` came from (one of FAVOURS_SOURCES; "" = not recorded, older files)
+    favours_source: str = ""
 
 
 #: The alternative explanations of funnel asymmetry, in the order we present them.
@@ -274,11 +276,128 @@ class AppraisalNotes:
         return replace(self, causes=tuple((c, d.get(c, CauseNote())) for c in CAUSES))
 
 
+#: Where the direction of benefit came from, and how the account says it.
+FAVOURS_SOURCES: dict[str, str] = {
+    "": "as saved in the review",
+    "assumed": "not given: assumed lower",
+    "option": "set on the command line with --favours",
+    "table": "given in the study table",
+    "window": "set in the review details",
+}
+
+
+@dataclass(frozen=True, slots=True)
+class NotRead:
+    """One piece of the user's input that did not reach the review, and why.
+
+    ``kind`` is ``"line"`` (a pasted line that looks like a study), ``"text"`` (a pasted
+    line with no numbers after its label: listed, but not study-looking), ``"cells"``
+    (cells of a table row), ``"column"`` (a column of a table) or ``"row"`` (a table row);
+    ``where`` names the place as the user sees it ("line 4", "row 7", "column 'or'").
+    """
+
+    kind: str
+    where: str
+    text: str
+    reason: str
+
+
+#: How a decimal-mark decision was reached.
+DECIMAL_HOW: tuple[str, ...] = ("", "evidence", "option", "asked", "none needed")
+
+
+@dataclass(frozen=True, slots=True)
+class IntakeAccount:
+    """What happened on the way in: what was not read, and what was decided.
+
+    Saved with the project, shown in the window's problems list, printed under the
+    entered data (text, JSON, sheet). An empty account means the review was typed in or
+    came from a file without one.
+    """
+
+    #: the file (or "pasted text") the rows came from; "" when typed in
+    source: str = ""
+    not_read: tuple[NotRead, ...] = ()
+    #: "point", "comma" or "" (no decimal number needed deciding)
+    decimal_mark: str = ""
+    #: how the mark was decided: one of DECIMAL_HOW
+    decimal_how: str = ""
+    #: a number that settled it ("0,82"), for the account
+    decimal_evidence: str = ""
+    #: how the measure was chosen ("named in the header", "--measure", ...)
+    measure_how: str = ""
+    #: (study label, place in the file) per row read: "spreadsheet row 5", "pasted line 7"
+    rows_at: tuple[tuple[str, str], ...] = ()
+
+    def places(self, studies: tuple[StudyRow, ...]) -> tuple[str, ...] | None:
+        """Where each study came from in its file, matched by label ("" when unknown).
+
+        Matching by label (only labels read once) keeps the places right after rows are
+        added, moved or deleted; a renamed or typed-in study simply has none.
+        """
+        if not self.rows_at:
+            return None
+        seen: dict[str, str] = {}
+        twice: set[str] = set()
+        for label, place in self.rows_at:
+            if label in seen:
+                twice.add(label)
+            seen[label] = place
+        return tuple("" if s.study in twice else seen.get(s.study, "") for s in studies)
+
+    def is_empty(self) -> bool:
+        return self == IntakeAccount()
+
+    def study_looking(self) -> tuple[NotRead, ...]:
+        """What was not read and may hold study data (stops the CLI unless allowed)."""
+        return tuple(n for n in self.not_read if n.kind != "text")
+
+    def plus(self, later: IntakeAccount) -> IntakeAccount:
+        """This account followed by a later import (a paste into the review)."""
+        if self.is_empty():
+            return later
+        if later.is_empty():
+            return self
+        tag = later.source or "later input"
+        added = tuple(replace(n, where=f"{tag}, {n.where}") for n in later.not_read)
+        sources = (
+            self.source
+            if later.source in self.source.split("; ")
+            else (f"{self.source}; {later.source}" if self.source else later.source)
+        )
+        decided = later if later.decimal_mark else self
+        return IntakeAccount(
+            source=sources,
+            not_read=self.not_read + added,
+            decimal_mark=decided.decimal_mark,
+            decimal_how=decided.decimal_how,
+            decimal_evidence=decided.decimal_evidence,
+            measure_how=later.measure_how or self.measure_how,
+            rows_at=self.rows_at + later.rows_at,
+        )
+
+    def decimal_text(self) -> str:
+        """The decimal decision in words, or "" when none was needed."""
+        if not self.decimal_mark:
+            return ""
+        name = "decimal comma" if self.decimal_mark == "comma" else "decimal point"
+        how = {
+            "evidence": f"from the numbers ('{self.decimal_evidence}')"
+            if self.decimal_evidence
+            else "from the numbers",
+            "option": "as the command line asked",
+            "asked": "as chosen by the user when asked",
+        }.get(self.decimal_how, "")
+        return f"{name}, {how}" if how else name
+
+
 @dataclass(frozen=True, slots=True)
 class Review:
     details: ReviewDetails = field(default_factory=ReviewDetails)
     studies: tuple[StudyRow, ...] = ()
     notes: AppraisalNotes = field(default_factory=AppraisalNotes)
+    #: what happened on the way in (unread lines, decimal decision); see IntakeAccount
+    intake: IntakeAccount = field(default_factory=IntakeAccount)
 
     @property
     def measure(self) -> str:

@@ -176,7 +176,7 @@ class DetailsForm(QScrollArea):
             w.editingFinished.connect(lambda f=field, w=w: self._number_done(f, w))
         self.measure.activated.connect(self._measure_done)
         self.favours.activated.connect(
-            lambda _i: self._push(ed.SetDetail("favours", self.favours.currentData()))
+            lambda _i: self._push(ed.SetFavours(self.favours.currentData(), "window"))
         )
         self.ci_level.editingFinished.connect(self._level_done)
         self.claim_conclusion.activated.connect(self._conclusion_done)

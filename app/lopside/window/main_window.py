@@ -132,6 +132,35 @@ def _ask_measure(window, name: str) -> str | None:
     return text.split(" ", 1)[0] if ok else None
 
 
+def _ask_decimal(window, name: str, examples) -> str | None:
+    """Ask once how numbers the file does not settle are read; two readings side by side."""
+    from ..cli_common import two_readings
+
+    rows = []
+    for place, text in examples[:4]:
+        as_point, as_comma = two_readings(text)
+        rows.append(
+            f"<tr><td>{place}</td><td>{text}</td><td>{as_point}</td><td>{as_comma}</td></tr>"
+        )
+    box = QMessageBox(window)
+    box.setWindowTitle("Decimal point or decimal comma?")
+    box.setTextFormat(Qt.RichText)
+    box.setText(
+        M.ASK_DECIMAL.format(name=name)
+        + "<table cellpadding='4'><tr><th>Where</th><th>Printed</th><th>Decimal point</th>"
+        "<th>Decimal comma</th></tr>" + "".join(rows) + "</table>"
+    )
+    point = box.addButton("Decimal &point", QMessageBox.AcceptRole)
+    comma = box.addButton("Decimal &comma", QMessageBox.AcceptRole)
+    box.addButton(QMessageBox.Cancel)
+    box.exec()
+    if box.clickedButton() is point:
+        return "point"
+    if box.clickedButton() is comma:
+        return "comma"
+    return None
+
+
 def _ask_open_sheet(window, path: str) -> bool:
     answer = QMessageBox.question(
         window,
@@ -172,6 +201,8 @@ class MainWindow(QMainWindow):
             lambda folder, title, filt: _ask_save_path(self, folder, title, filt)
         )
         self.ask_measure = ask_measure or (lambda name: _ask_measure(self, name))
+        #: asked when a file cannot settle its decimal mark (tests replace it)
+        self.ask_decimal = lambda name, examples: _ask_decimal(self, name, examples)
         self.ask_open_sheet = ask_open_sheet or (lambda path: _ask_open_sheet(self, path))
         self.open_url = open_url or QDesktopServices.openUrl
         self.result = None
@@ -654,7 +685,8 @@ class MainWindow(QMainWindow):
 
     def open_paste_dialog(self, text: str | None = None) -> PasteDialog:
         """Open the paste dialog (window-modal, not blocking) and return it."""
-        dlg = PasteDialog(self.session.review.measure, text or "", self)
+        review = self.session.review
+        dlg = PasteDialog(review.measure, text or "", self, empty=not review.studies)
         dlg.accepted.connect(lambda: self.insert_paste(dlg))
         dlg.setWindowModality(Qt.WindowModal)
         dlg.show()
@@ -675,6 +707,10 @@ class MainWindow(QMainWindow):
         pub = dlg.chosen_published()
         if pub is not None and not self.session.review.details.published.is_complete():
             edits.append(ed.SetDetail("published", pub))
+        account = dlg.account()
+        if account is not None:
+            # what was not read stays listed with the review (problems list, sheet)
+            edits.append(ed.SetIntake(self.session.review.intake.plus(account)))
         n = len(rows)
         ok = self.stack.push_many(f"paste {n} row{'s' if n != 1 else ''}", edits)
         self.studies.suggest_mode()
@@ -726,14 +762,23 @@ class MainWindow(QMainWindow):
 
         if ask and not self._maybe_save():
             return False
+        from ..cli_common import DecimalUndecided
+
         p = Path(path)
         if p.suffix.lower() == ".pdf":
             return self.open_pdf(p)
         measure = None
-        for _attempt in range(2):
+        decimal = None
+        for _attempt in range(3):
             try:
-                self.session.open(p, measure)
+                self.session.open(p, measure, decimal)
                 break
+            except DecimalUndecided as exc:
+                decimal = self.ask_decimal(p.name, exc.examples) if decimal is None else None
+                if decimal:
+                    continue
+                self._open_failed(p, exc)
+                return False
             except INPUT_ERRORS as exc:
                 if measure is None and "measure" in str(exc) and p.suffix.lower() != SUFFIX:
                     measure = self.ask_measure(p.name)

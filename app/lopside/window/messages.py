@@ -84,6 +84,24 @@ CLAIM_K_BAD = (
     "“{text}” is not a number of studies: type a whole number; it is not used until it is one."
 )
 CLAIM_UNREAD = "“{text}” is not a number; it is kept here and not used until it is one."
+ASK_DECIMAL = (
+    "<p>Nothing in <b>{name}</b> shows whether a comma in these numbers is a decimal mark or "
+    "separates thousands. Which does the paper use?</p>"
+)
+
+NOT_READ_TIP = (
+    "This part of the input was not read, so it is not in the table. Add the study by hand "
+    "(or fix the line and paste it again)."
+)
+
+PASTE_MEASURE_WHY = "Assumed because {why}. Change it if the paper says otherwise."
+PASTE_MEASURE_OTHER = "The rows look like a {guess} ({why}); check the measure."
+PASTE_MEASURE_REVIEW = "The review's measure; change it if the pasted rows use another."
+PASTE_MEASURE_CHANGES = "Adding the rows sets the review's measure to {name}."
+PASTE_DECIMAL = (
+    "Nothing in the pasted text shows whether the comma in '{text}' is a decimal mark or "
+    "separates thousands. Which does the paper use?"
+)
 
 PDF_TITLE = "Rows from {name}"
 PDF_HELP = (

@@ -1,4 +1,9 @@
-"""Paste rows from a paper: a preview of how each line was read, then one undoable insert."""
+"""Paste rows from a paper: a preview of how each line was read, then one undoable insert.
+
+The preview says which measure it assumes and why, with a chooser (the guess is a
+suggestion the user confirms), and asks once for the decimal mark when nothing in the
+paste settles it, showing both readings side by side (issue 12).
+"""
 
 from __future__ import annotations
 
@@ -6,19 +11,24 @@ from PySide6.QtCore import Qt, QTimer
 from PySide6.QtGui import QBrush, QColor
 from PySide6.QtWidgets import (
     QAbstractItemView,
+    QButtonGroup,
     QCheckBox,
+    QComboBox,
     QDialog,
     QDialogButtonBox,
+    QFrame,
+    QHBoxLayout,
     QHeaderView,
     QLabel,
     QPlainTextEdit,
+    QRadioButton,
     QSplitter,
     QTableWidget,
     QTableWidgetItem,
     QVBoxLayout,
 )
 
-from ..model.review import MEASURE_NAMES
+from ..model.review import MEASURE_NAMES, MEASURES
 from . import messages as M
 
 STATUS_COLOURS = {
@@ -35,16 +45,53 @@ class PasteDialog(QDialog):
     whether to also take the measure and published result the paste names.
     """
 
-    def __init__(self, measure: str, text: str = "", parent=None) -> None:
+    def __init__(self, measure: str, text: str = "", parent=None, *, empty: bool = True) -> None:
         super().__init__(parent)
         self.setWindowTitle(M.PASTE_TITLE)
+        #: the review's measure; ``empty`` says the review has no rows yet
         self.measure = measure
+        self.review_empty = empty
         self.reading = None
+        #: the decimal mark the user chose for numbers the paste does not settle
+        self.decimal: str | None = None
+        self._measure_touched = False
         self.resize(980, 600)
         lay = QVBoxLayout(self)
         help_ = QLabel(M.PASTE_HELP)
         help_.setWordWrap(True)
         lay.addWidget(help_)
+        mrow = QHBoxLayout()
+        mrow.addWidget(QLabel("&Measure of the pasted rows:"))
+        self.measure_box = QComboBox()
+        self.measure_box.setAccessibleName("Measure of the pasted rows")
+        for m in MEASURES:
+            self.measure_box.addItem(f"{MEASURE_NAMES[m]} ({m})", m)
+        self.measure_box.setCurrentIndex(MEASURES.index(measure) if measure in MEASURES else 0)
+        mrow.itemAt(0).widget().setBuddy(self.measure_box)
+        mrow.addWidget(self.measure_box)
+        self.measure_why = QLabel("")
+        self.measure_why.setWordWrap(True)
+        self.measure_why.setAccessibleName("Why this measure")
+        mrow.addWidget(self.measure_why, 1)
+        lay.addLayout(mrow)
+        self.measure_box.activated.connect(self._measure_chosen)
+        # the decimal question, shown only when the paste cannot settle the mark
+        self.decimal_frame = QFrame()
+        self.decimal_frame.setFrameShape(QFrame.StyledPanel)
+        dl = QHBoxLayout(self.decimal_frame)
+        self.decimal_question = QLabel("")
+        self.decimal_question.setWordWrap(True)
+        dl.addWidget(self.decimal_question, 1)
+        self.decimal_point = QRadioButton()
+        self.decimal_comma = QRadioButton()
+        self.decimal_group = QButtonGroup(self)
+        for b in (self.decimal_point, self.decimal_comma):
+            self.decimal_group.addButton(b)
+            dl.addWidget(b)
+        self.decimal_point.toggled.connect(lambda on: on and self._decimal_chosen("point"))
+        self.decimal_comma.toggled.connect(lambda on: on and self._decimal_chosen("comma"))
+        self.decimal_frame.setVisible(False)
+        lay.addWidget(self.decimal_frame)
         split = QSplitter(Qt.Vertical)
         self.text = QPlainTextEdit()
         self.text.setAccessibleName("Pasted rows")
@@ -69,12 +116,10 @@ class PasteDialog(QDialog):
         self.summary = QLabel(M.PASTE_NOTHING)
         self.summary.setWordWrap(True)
         lay.addWidget(self.summary)
-        self.take_measure = QCheckBox()
         self.take_published = QCheckBox()
-        for cb in (self.take_measure, self.take_published):
-            cb.setVisible(False)
-            cb.setChecked(True)
-            lay.addWidget(cb)
+        self.take_published.setVisible(False)
+        self.take_published.setChecked(True)
+        lay.addWidget(self.take_published)
         self.buttons = QDialogButtonBox(QDialogButtonBox.Ok | QDialogButtonBox.Cancel)
         self.ok_button = self.buttons.button(QDialogButtonBox.Ok)
         self.ok_button.setEnabled(False)
@@ -86,6 +131,7 @@ class PasteDialog(QDialog):
         self._timer.setInterval(120)
         self._timer.timeout.connect(self.read_now)
         self.text.textChanged.connect(self._timer.start)
+        self._decimal_example = ""
         if text:
             self.text.setPlainText(text)
             self.read_now()
@@ -95,8 +141,22 @@ class PasteDialog(QDialog):
         from ..intake.paste import read_pasted
 
         self._timer.stop()
-        r = read_pasted(self.text.toPlainText(), self.measure)
+        text = self.text.toPlainText()
+        m = self.measure_box.currentData()
+        r = read_pasted(text, m, self.decimal)
+        guess = r.measure_guess
+        if (
+            not self._measure_touched
+            and guess
+            and guess != m
+            and (r.measure_hint or self.review_empty)
+        ):
+            # a suggestion: the chooser moves to it, the user confirms or changes it
+            self.measure_box.setCurrentIndex(MEASURES.index(guess))
+            r = read_pasted(text, guess, self.decimal)
         self.reading = r
+        self._show_measure_why(r)
+        self._show_decimal_question(r)
         self.preview.setRowCount(len(r.lines))
         for i, line in enumerate(r.lines):
             if line.status == "study":
@@ -121,15 +181,8 @@ class PasteDialog(QDialog):
             if r.lines
             else M.PASTE_NOTHING
         )
-        self.ok_button.setEnabled(n > 0)
+        self.ok_button.setEnabled(n > 0 and not (r.undecided and self.decimal is None))
         self.ok_button.setText(f"&Add {n} stud{'y' if n == 1 else 'ies'}" if n else "&Add")
-        hint = r.measure_hint
-        self.take_measure.setVisible(bool(hint and hint != self.measure))
-        if hint:
-            self.take_measure.setText(
-                f"Set the review's measure to {MEASURE_NAMES.get(hint, hint)} ({hint}), "
-                "as the pasted header says"
-            )
         pub = r.published
         self.take_published.setVisible(pub is not None)
         if pub is not None:
@@ -138,14 +191,72 @@ class PasteDialog(QDialog):
                 f"{pub.estimate:g} ({pub.lower:g} to {pub.upper:g})"
             )
 
+    # ------------------------------------------------------------- measure and decimal
+
+    def _measure_chosen(self, _index: int) -> None:
+        self._measure_touched = True
+        self.read_now()
+
+    def _show_measure_why(self, r) -> None:
+        m = self.measure_box.currentData()
+        if r.measure_guess == m and r.measure_why:
+            text = M.PASTE_MEASURE_WHY.format(why=r.measure_why)
+        elif r.measure_guess and r.measure_why:
+            text = M.PASTE_MEASURE_OTHER.format(
+                guess=MEASURE_NAMES[r.measure_guess], why=r.measure_why
+            )
+        else:
+            text = M.PASTE_MEASURE_REVIEW
+        if m != self.measure and not self.review_empty:
+            text += " " + M.PASTE_MEASURE_CHANGES.format(name=MEASURE_NAMES[m])
+        self.measure_why.setText(text)
+
+    def _show_decimal_question(self, r) -> None:
+        show = bool(r.undecided) or self.decimal is not None
+        self.decimal_frame.setVisible(show)
+        if not show:
+            return
+        from ..cli_common import two_readings
+
+        example = r.undecided[0][1] if r.undecided else self._decimal_example
+        self._decimal_example = example
+        as_point, as_comma = two_readings(example)
+        self.decimal_question.setText(M.PASTE_DECIMAL.format(text=example))
+        self.decimal_point.setText(f"Decimal point: {example} = {as_point}")
+        self.decimal_comma.setText(f"Decimal comma: {example} = {as_comma}")
+
+    def _decimal_chosen(self, mark: str) -> None:
+        if self.decimal != mark:
+            self.decimal = mark
+            self.read_now()
+
     def rows(self):
         return self.reading.rows if self.reading is not None else ()
 
     def chosen_measure(self) -> str | None:
+        """The measure chosen in the dialog when it differs from the review's."""
+        m = self.measure_box.currentData()
+        return None if m == self.measure else m
+
+    def account(self):
+        """What the paste adds to the review's intake account."""
+        from dataclasses import replace
+
         r = self.reading
-        if r is None or not r.measure_hint or r.measure_hint == self.measure:
+        if r is None:
             return None
-        return r.measure_hint if self.take_measure.isChecked() else None
+        m = self.measure_box.currentData()
+        how = (
+            "chosen in the paste preview"
+            if self._measure_touched
+            else (
+                f"suggested by the paste preview ({r.measure_why})" if r.measure_guess == m else ""
+            )
+        )
+        account = r.intake_account("pasted text", how)
+        if self.decimal is not None and account.decimal_how == "option":
+            account = replace(account, decimal_how="asked")
+        return account
 
     def chosen_published(self):
         r = self.reading

@@ -24,6 +24,7 @@ from PySide6.QtWidgets import (
 from .. import edits as ed
 from ..model.review import RISK_OF_BIAS_LEVELS, StudyRow
 from ..session import Session
+from . import messages as M
 from .table_model import ENTRY_MODES, StudyTableModel
 
 #: column widths (px) that fit the table beside the views on a 1366-pixel screen
@@ -293,6 +294,13 @@ class StudyPanel(QWidget):
         probs = self.model.problems()
         studies = self.session.review.studies
         n = 0
+        # input that never became a row comes first: it is in no row to click on
+        for nr in self.session.review.intake.not_read:
+            item = QListWidgetItem(f"\u2716 Not read, {nr.where}: {nr.text}  ({nr.reason})")
+            item.setData(Qt.UserRole, None)
+            item.setToolTip(M.NOT_READ_TIP)
+            self.problems.addItem(item)
+            n += 1
         for r in sorted(probs):
             for p in probs[r]:
                 label = studies[r].study or f"Row {r + 1}"
@@ -311,6 +319,8 @@ class StudyPanel(QWidget):
         )
 
     def _go_to_problem(self, item: QListWidgetItem) -> None:
+        if item.data(Qt.UserRole) is None:
+            return  # a line that was not read: it has no row
         row, field = item.data(Qt.UserRole)
         col = self.model.column_of(field) if field else 0
         if field and col < 0:
