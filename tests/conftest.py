@@ -34,6 +34,7 @@ def user_state(tmp_path, monkeypatch):
     autosave = tmp_path / "autosave"
     monkeypatch.setenv("LOPSIDE_SETTINGS_DIR", str(settings))
     monkeypatch.setenv("LOPSIDE_AUTOSAVE_DIR", str(autosave))
+    monkeypatch.setenv("LOPSIDE_LOG_DIR", str(tmp_path / "logs"))
     real = _real_settings_file()
     before = real.stat().st_mtime_ns if real is not None and real.exists() else None
     yield {"settings": settings, "autosave": autosave}

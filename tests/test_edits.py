@@ -25,12 +25,21 @@ from lopside.model.review import (
     StudyRow,
 )
 
+# text that can be stored: lone surrogates and control characters are refused at entry
+# (test_text_that_cannot_be_stored_is_refused_naming_the_field below)
+_STORABLE = st.characters(blacklist_categories=("Cs", "Cc"), whitelist_characters="\t\n\r")
+
+
+def _storable(**kw):
+    return st.text(alphabet=_STORABLE, **kw)
+
+
 # ------------------------------------------------------------------ strategies
 
 _num = st.one_of(st.none(), st.floats(-1e6, 1e6, allow_nan=False, allow_infinity=False))
 _rows = st.builds(
     StudyRow,
-    study=st.text(max_size=12),
+    study=_storable(max_size=12),
     year=st.one_of(st.none(), st.integers(1950, 2030)),
     estimate=_num,
     lower=_num,
@@ -39,17 +48,17 @@ _rows = st.builds(
     int_events=_num,
     int_total=_num,
     risk_of_bias=st.sampled_from([None, "low", "some concerns", "high"]),
-    subgroup=st.one_of(st.none(), st.text(max_size=6)),
+    subgroup=st.one_of(st.none(), _storable(max_size=6)),
     exclude=st.booleans(),
 )
 _reviews = st.builds(
     Review,
-    details=st.builds(ReviewDetails, title=st.text(max_size=10)),
+    details=st.builds(ReviewDetails, title=_storable(max_size=10)),
     studies=st.lists(_rows, min_size=1, max_size=6).map(tuple),
 )
 # cell texts a user might type or paste, including non-numbers
 _texts = st.one_of(
-    st.text(max_size=10),
+    _storable(max_size=10),
     st.sampled_from(["0.8", "\u22120.35", "0,82", "12/140", "<0.001", "p=0.04", "yes", "2019"]),
 )
 
@@ -81,21 +90,21 @@ def review_and_edit(draw):
         value = {
             "measure": draw(st.sampled_from(["OR", "RR", "HR", "RD", "MD", "SMD"])),
             "favours": draw(st.sampled_from(["lower", "higher"])),
-        }.get(edit.field, draw(st.text(max_size=8)))
+        }.get(edit.field, draw(_storable(max_size=8)))
         edit = ed.SetDetail(edit.field, value)
     elif choice == 7:
         edit = ed.SetDetail("published.estimate", draw(_num))
     elif choice == 8:
         edit = ed.SetCauseNote(
             draw(st.sampled_from(CAUSES)),
-            CauseNote(draw(st.sampled_from(JUDGEMENTS)), draw(st.text(max_size=8))),
+            CauseNote(draw(st.sampled_from(JUDGEMENTS)), draw(_storable(max_size=8))),
         )
     elif choice == 9:
         edit = ed.SetRatingOverride(
-            draw(st.sampled_from(("",) + DOMAIN_RATINGS)), draw(st.text(max_size=8))
+            draw(st.sampled_from(("",) + DOMAIN_RATINGS)), draw(_storable(max_size=8))
         )
     elif choice == 10:
-        edit = ed.SetGeneralNotes(draw(st.text(max_size=8)))
+        edit = ed.SetGeneralNotes(draw(_storable(max_size=8)))
     else:
         edit = ed.SetRow(row, draw(_rows))
     return review, edit
@@ -261,3 +270,29 @@ def test_change_descriptions():
     assert ed.change_of(ed.DeleteRows((4, 1))) == ed.Change("remove", (1, 4))
     assert ed.change_of(ed.SetCell(1, "se", "0.1")).kind == "row"
     assert ed.describe(ed.PasteBlock(0, (StudyRow(),) * 3)) == "paste 3 rows"
+
+
+@pytest.mark.parametrize(
+    "edit, where",
+    [
+        (ed.SetDetail("title", "Invented \ud800 review"), "Title"),
+        (ed.SetCell(0, "study", "Trial\x07 A"), "Row 1, study"),
+        (ed.SetGeneralNotes("ok\x00"), "General notes"),
+        (ed.SetCauseNote("chance", CauseNote("possible", "\udc80")), "Notes on chance"),
+        (ed.PasteBlock(1, (StudyRow(study="x\ud83d"),)), "Row 2, study"),
+    ],
+)
+def test_text_that_cannot_be_stored_is_refused_naming_the_field(edit, where):
+    # issue 13 case 6: a lone surrogate got into the title and the review could then
+    # never be saved; now it is refused where it is typed, naming the field
+    review = Review(studies=(StudyRow(study="Invented A"),))
+    with pytest.raises(ed.EditError) as err:
+        ed.apply(edit, review)
+    assert str(err.value).startswith(where + ":")
+    assert "U+" in str(err.value)
+
+
+def test_tabs_and_line_breaks_in_notes_are_fine():
+    review = Review(studies=(StudyRow(study="Invented A"),))
+    new, _ = ed.apply(ed.SetGeneralNotes("line one\nline\ttwo\r\n"), review)
+    assert new.notes.general == "line one\nline\ttwo\r\n"

@@ -1006,3 +1006,41 @@ def test_naming_all_of_thirty_studies_puts_no_name_on_another():
         if a.overlaps(b)
     ]
     assert clashes == []
+
+
+# ------------------------------------------------------------------ issue 13 case 4
+
+
+@pytest.mark.parametrize("k", [0, 1])
+@pytest.mark.parametrize("kind", ["funnel", "forest", "cumulative", "radial"])
+def test_every_builder_handles_an_empty_or_one_study_review(kind, k):
+    """An empty (or one-study) review gives a figure or a FigureInputError with a reason.
+
+    The forest builder raised ZeroDivisionError (draw_rows, x range of zero width) for an
+    empty review; the window kept the previous review's forest on screen.
+    """
+    import argparse
+
+    from lopside.analysis import analyse
+    from lopside.figures.cli_plot import build_figure
+    from lopside.figures.common import FigureInputError
+    from lopside.model.review import Review, ReviewDetails, StudyRow
+    from lopside.settings import AnalysisSettings
+
+    rows = tuple(
+        StudyRow(study=f"Invented {i}", estimate=0.8, lower=0.6, upper=1.1) for i in range(k)
+    )
+    result = analyse(Review(details=ReviewDetails(measure="OR"), studies=rows), AnalysisSettings())
+    try:
+        fig = build_figure(result, argparse.Namespace(kind=kind, size="page"))
+    except FigureInputError as exc:
+        assert str(exc) and "\n" not in str(exc)
+    else:
+        assert fig.axes
+
+
+def test_draw_rows_with_only_the_null_line_does_not_divide_by_zero():
+    from lopside.figures.rows import Column, draw_rows
+
+    fig = draw_rows([], [Column("OR")], measure="OR", size="page", caption="", footer="")
+    assert fig is not None

@@ -2,7 +2,11 @@
 
 from __future__ import annotations
 
+import hashlib
 import json
+import os
+import random
+import stat
 
 import pytest
 
@@ -105,3 +109,117 @@ def test_failed_save_leaves_previous_file_untouched(tmp_path, monkeypatch):
         pf.save(_review().with_details(title="changed"), path)
     assert path.read_bytes() == before
     assert [p.name for p in tmp_path.iterdir()] == ["keep.lopside"]  # no temp file left behind
+
+
+# ------------------------------------------------------------------ issue 13: identity, integrity
+
+
+@pytest.mark.skipif(os.name != "posix", reason="POSIX file modes")
+def test_save_keeps_the_file_mode(tmp_path):
+    # issue 13 case 5: saving rewrote a shared 0644 file as 0600 (mkstemp's mode)
+    path = tmp_path / "shared.lopside"
+    pf.save(_review(), path)
+    os.chmod(path, 0o644)
+    pf.save(_review().with_details(title="again"), path)
+    assert stat.S_IMODE(path.stat().st_mode) == 0o644
+    os.chmod(path, 0o640)
+    pf.save(_review(), path)
+    assert stat.S_IMODE(path.stat().st_mode) == 0o640
+
+
+@pytest.mark.skipif(os.name != "posix", reason="POSIX file modes")
+def test_a_new_file_gets_the_usual_mode_not_0600(tmp_path):
+    path = tmp_path / "new.lopside"
+    pf.save(_review(), path)
+    umask = os.umask(0)
+    os.umask(umask)
+    assert stat.S_IMODE(path.stat().st_mode) == 0o666 & ~umask
+
+
+@pytest.mark.skipif(not hasattr(os, "symlink"), reason="needs symlinks")
+def test_save_through_a_symlink_replaces_the_target_and_keeps_the_link(tmp_path):
+    # issue 13 case 5: the link was replaced by a plain file and its target left stale
+    real_dir = tmp_path / "real"
+    real_dir.mkdir()
+    target = real_dir / "review.lopside"
+    pf.save(_review(), target)
+    link = tmp_path / "link.lopside"
+    link.symlink_to(target)
+    pf.save(_review().with_details(title="Saved through the link"), link)
+    assert link.is_symlink() and os.readlink(link) == str(target)
+    back, _ = pf.load(target)
+    assert back.details.title == "Saved through the link"
+    assert sorted(p.name for p in real_dir.iterdir()) == ["review.lopside"]  # no temp left
+
+
+def test_the_file_carries_a_checksum_of_its_canonical_json(tmp_path):
+    path = tmp_path / "sum.lopside"
+    pf.save(_review(), path)
+    doc = json.loads(path.read_text(encoding="utf-8"))
+    body = {k: v for k, v in doc.items() if k != "checksum"}
+    # recomputed here with hashlib and json directly (Python standard library)
+    canonical = json.dumps(body, sort_keys=True, ensure_ascii=False, separators=(",", ":"))
+    assert doc["checksum"] == "sha256:" + hashlib.sha256(canonical.encode("utf-8")).hexdigest()
+
+
+def test_random_byte_flips_never_load_silently(tmp_path):
+    # issue 13 case 7: nine random byte flips loaded silently with changed contents
+    path = tmp_path / "flip.lopside"
+    pf.save(_review(), path, settings={"tau2_method": "PM"})
+    good = path.read_bytes()
+    original = pf.load(path)
+    rng = random.Random(20261202)
+    silent = []
+    for trial in range(300):
+        data = bytearray(good)
+        for _ in range(rng.randint(1, 9)):
+            i = rng.randrange(len(data))
+            data[i] ^= 1 << rng.randrange(8)
+        path.write_bytes(bytes(data))
+        try:
+            loaded = pf.load(path)
+        except pf.ProjectFileError:
+            continue  # refused, or flagged as changed outside Lopside: never silent
+        if loaded != original:
+            silent.append(trial)
+    assert silent == []
+
+
+def test_a_changed_file_says_so_and_can_be_opened_anyway(tmp_path):
+    path = tmp_path / "edited.lopside"
+    pf.save(_review(), path)
+    text = path.read_text(encoding="utf-8").replace("Row two", "Row 2!")
+    path.write_text(text, encoding="utf-8")
+    with pytest.raises(pf.ChangedOutside) as err:
+        pf.load(path)
+    assert "edited.lopside" in str(err.value) and "changed outside Lopside" in str(err.value)
+    assert err.value.review.studies[1].study == "Row 2!"  # what the file says now
+    back, _ = pf.load(path, accept_changed=True)
+    assert back.studies[1].study == "Row 2!"
+
+
+def test_a_file_without_a_checksum_still_opens(tmp_path):
+    path = tmp_path / "old.lopside"
+    pf.save(_review(), path)
+    doc = json.loads(path.read_text(encoding="utf-8"))
+    del doc["checksum"]
+    path.write_text(json.dumps(doc), encoding="utf-8")
+    back, _ = pf.load(path)
+    assert back == _review()
+
+
+def test_whitespace_changes_do_not_count_as_changed(tmp_path):
+    path = tmp_path / "pretty.lopside"
+    pf.save(_review(), path)
+    doc = json.loads(path.read_text(encoding="utf-8"))
+    path.write_text(json.dumps(doc, indent=7), encoding="utf-8")
+    assert pf.load(path)[0] == _review()
+
+
+def test_a_lone_surrogate_in_a_file_is_refused_naming_the_field(tmp_path):
+    # issue 13 case 6: such a title loaded, and then the review could never be saved
+    path = tmp_path / "sur.lopside"
+    path.write_text('{"lopside_project": 1, "details": {"title": "a\\ud800b"}}', "utf-8")
+    with pytest.raises(pf.ProjectFileError) as err:
+        pf.load(path)
+    assert "sur.lopside: details, title: character 2 is a broken character" in str(err.value)

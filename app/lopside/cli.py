@@ -18,6 +18,8 @@ stderr naming the problem); 3 internal error; 4 some of the input was not read (
 cells or columns listed on stderr; nothing written) unless --allow-unread; 130 stopped.
 Output redirected to a file or a pipe is UTF-8; a console gets plain ASCII for what it
 cannot show (lopside.console decides, once, in main()).
+An output never replaces the input, must have its format's suffix, and replaces an
+existing file of another kind only with ``--force`` (:func:`lopside.fileio.check_output`).
 """
 
 from __future__ import annotations
@@ -116,7 +118,13 @@ def load_input(args):
             raise InputError(
                 f"--page {page}: pages are for PDF files only; {args.file} is not one."
             )
-        review, saved = load_review_file(args.file, measure, decimal=decimal, favours=favours)
+        review, saved = load_review_file(
+            args.file,
+            measure,
+            decimal=decimal,
+            favours=favours,
+            accept_changed=getattr(args, "accept_changed", False),
+        )
     account = review.intake
     # only the commands that offer --allow-unread stop on unread input (check, sheet, plot)
     enforce = hasattr(args, "allow_unread") and not args.allow_unread
@@ -185,6 +193,11 @@ def add_analysis_arguments(p: argparse.ArgumentParser) -> None:
         choices=("auto", "left", "right"),
         default=None,
         help="trim and fill: side of the missing studies",
+    )
+    p.add_argument(
+        "--accept-changed",
+        action="store_true",
+        help="read a project file even though it was changed outside Lopside",
     )
     p.add_argument(
         "--quiet",
@@ -348,9 +361,32 @@ def cmd_check(args) -> int:
     return 0
 
 
+def check_output_arg(args, kind: str):
+    """The checked ``-o`` path of ``args`` (see :func:`lopside.fileio.check_output`).
+
+    Raises OutputRefused with a one-line message; nothing is written.
+    """
+    from pathlib import Path
+
+    from .fileio import OutputRefused, check_output
+
+    out = check_output(args.output, kind, (args.file,), force=getattr(args, "force", False))
+    folder = out.parent
+    if str(folder) and not folder.is_dir():
+        raise OutputRefused(
+            f"-o {out}: the folder {folder} does not exist; create it or pick another."
+        )
+    return Path(out)
+
+
 def cmd_sheet(args) -> int:
     from .cli_common import INPUT_ERRORS
+    from .fileio import OutputLocked, OutputRefused
 
+    try:
+        out = check_output_arg(args, "pdf")
+    except OutputRefused as exc:
+        return _fail(str(exc))
     try:
         review, settings = load_input(args)
     except INPUT_ERRORS as exc:
@@ -367,10 +403,12 @@ def cmd_sheet(args) -> int:
     if progress:
         progress.done()
     try:
-        write_sheet(result, args.output, include_forest=args.include_forest)
+        write_sheet(result, out, include_forest=args.include_forest)
+    except OutputLocked as exc:
+        return _fail(f"-o {out}: {exc}")
     except OSError as exc:
-        return _fail(f"{args.output}: cannot write the sheet ({exc.strerror or exc}).")
-    print(f"wrote {args.output}")
+        return _fail(f"{out}: cannot write the sheet ({exc.strerror or exc}).")
+    print(f"wrote {out}")
     return 0
 
 
@@ -609,6 +647,11 @@ def build_parser() -> argparse.ArgumentParser:
         "--appraiser", default="", metavar="NAME", help="name printed on the sheet as appraiser"
     )
     s.add_argument("--power", action="store_true", help="include the power simulation")
+    s.add_argument(
+        "--force",
+        action="store_true",
+        help="replace an existing file at OUT even if it is not a PDF (never the input)",
+    )
     s.set_defaults(func=cmd_sheet)
     p = sub.add_parser("plot", help="draw one figure to PNG, SVG or PDF")
     from .figures.cli_plot import add_plot_arguments, run_plot

@@ -181,6 +181,7 @@ def load_review_file(
     *,
     decimal: str | None = None,
     favours: str | None = None,
+    accept_changed: bool = False,
 ) -> tuple[Review, dict[str, Any]]:
     """Read FILE into a review; ``measure`` overrides (or supplies) the measure.
 
@@ -207,7 +208,7 @@ def load_review_file(
     if suffix == ".txt" and info.st_size > MAX_TEXT_BYTES:
         raise InputError(f"{p.name}: the file is larger than pasted text can be (more than 50 MB).")
     if suffix in (SUFFIX, ".json"):
-        review, settings = load(p)
+        review, settings = load(p, accept_changed=accept_changed)
         if measure:
             review = review.with_details(measure=measure)
         if favours:

@@ -11,7 +11,9 @@ Design invariants
   ``StudyRow.unread`` (field -> text) and the typed field is cleared, so nothing typed is
   ever lost and the row check can say what is wrong.
 * An edit that does not fit the review (row out of range, unknown field) raises
-  :class:`EditError`; it never half-applies.
+  :class:`EditError`; it never half-applies. Text that could not be saved or printed (a
+  lone surrogate, a control character; :mod:`lopside.model.text`) is refused here, at
+  entry, with a message naming the field, so a save never fails on it later.
 * :func:`merge` says when two consecutive edits are one step for the user (typing in one
   cell, one notes box, one details field).
 * No Qt here.
@@ -40,6 +42,7 @@ from .model.review import (
     ReviewDetails,
     StudyRow,
 )
+from .model.text import text_problem
 
 
 class EditError(ValueError):
@@ -373,6 +376,7 @@ def apply(edit: Edit, review: Review) -> tuple[Review, Edit]:
     EditError
         When the edit does not fit the review (nothing is changed).
     """
+    _check_text(edit)
     studies = review.studies
     if isinstance(edit, SetCell):
         _check_row(review, edit.row)
@@ -482,6 +486,46 @@ def apply(edit: Edit, review: Review) -> tuple[Review, Edit]:
     if isinstance(edit, ReplaceStudies):
         return review.with_studies(edit.studies), ReplaceStudies(studies)
     raise EditError(f"Unknown edit {type(edit).__name__}.")
+
+
+_DETAIL_NAMES = {
+    "title": "Title",
+    "question": "Question",
+    "outcome": "Outcome",
+    "int_label": "Intervention label",
+    "ctl_label": "Control label",
+    "appraiser": "Appraiser",
+    "source_note": "Source note",
+    "published.model": "Published model",
+}
+
+
+def _refuse_text(where: str, text: Any, *, controls: bool = True) -> None:
+    if isinstance(text, str):
+        problem = text_problem(text, controls=controls)
+        if problem:
+            raise EditError(f"{where}: {problem}. Nothing was changed.")
+
+
+def _check_text(edit: Edit) -> None:
+    """Refuse text that could not be saved (see the module docstring)."""
+    if isinstance(edit, SetCell):
+        _refuse_text(f"Row {edit.row + 1}, {edit.field}", edit.text)
+    elif isinstance(edit, SetDetail):
+        _refuse_text(_DETAIL_NAMES.get(edit.field, edit.field), edit.value)
+    elif isinstance(edit, SetCauseNote):
+        _refuse_text(f"Notes on {edit.key}", edit.note.notes)
+    elif isinstance(edit, SetRatingOverride):
+        _refuse_text("Reason for your rating", edit.reason)
+    elif isinstance(edit, SetGeneralNotes):
+        _refuse_text("General notes", edit.text)
+    elif isinstance(edit, (AddRows, PasteBlock)):
+        # rows read from a paste or a file: only what cannot be saved at all is refused
+        for i, row in enumerate(edit.rows):
+            for f in ("study", "risk_of_bias", "subgroup"):
+                _refuse_text(f"Row {edit.at + i + 1}, {f}", getattr(row, f), controls=False)
+            for f, text in row.unread:
+                _refuse_text(f"Row {edit.at + i + 1}, {f}", text, controls=False)
 
 
 def _optional_number(value: Any) -> float | None:

@@ -75,6 +75,9 @@ class Session:
         self._power: tuple[tuple, Any] | None = None
         #: the file an imported review came from (CSV, XLSX, .txt); not saved over
         self.imported_from: Path | None = None
+        #: why the file on disk must not be saved over ("" when it may): a sample review,
+        #: a file changed outside Lopside. Save then needs a path; saving to one clears it.
+        self.read_only = ""
 
     # ---------------------------------------------------------------- state
 
@@ -214,6 +217,7 @@ class Session:
         *,
         dirty: bool = False,
         imported_from: str | Path | None = None,
+        read_only: str = "",
     ) -> None:
         """Start over on another review (New, Open, recovery). Clears the history."""
         change = ed.Change("reset")
@@ -222,6 +226,7 @@ class Session:
         self._settings = settings or AnalysisSettings()
         self._path = Path(path) if path else None
         self.imported_from = Path(imported_from) if imported_from else None
+        self.read_only = read_only
         self._undo.clear()
         self._redo.clear()
         self._state = next(_ids)
@@ -237,25 +242,35 @@ class Session:
         self.reset(Review(details=ReviewDetails()))
 
     def open(
-        self, path: str | Path, measure: str | None = None, decimal: str | None = None
+        self,
+        path: str | Path,
+        measure: str | None = None,
+        decimal: str | None = None,
+        *,
+        accept_changed: bool = False,
+        read_only: str = "",
     ) -> None:
         """Open a project file, or import a CSV/XLSX study table or a .txt of pasted rows.
 
-        ``decimal`` ("point"/"comma") settles numbers the file does not. Raises the
-        intake/project-file errors (ValueErrors with a message for the user), among them
-        :class:`lopside.cli_common.DecimalUndecided` when the caller must ask.
+        ``decimal`` ("point"/"comma") settles numbers the file does not. ``read_only`` (a
+        reason) keeps Save from writing over the file: a sample review, a file changed
+        outside Lopside (opened with ``accept_changed``).
+
+        Raises the intake/project-file errors (ValueErrors with a message for the user),
+        among them :class:`lopside.cli_common.DecimalUndecided` when the caller must ask
+        and ``project_file.ChangedOutside`` unless ``accept_changed``.
         """
         from .cli_common import load_review_file
         from .model.project_file import SUFFIX
 
         p = Path(path)
-        review, saved = load_review_file(p, measure, decimal=decimal)
+        review, saved = load_review_file(p, measure, decimal=decimal, accept_changed=accept_changed)
         if decimal and review.intake.decimal_how == "option":
             # in the window the user was asked: the account says so
             review = replace(review, intake=replace(review.intake, decimal_how="asked"))
         settings = AnalysisSettings.from_dict(saved)
         if p.suffix.lower() in (SUFFIX, ".json"):
-            self.reset(review, settings, p)
+            self.reset(review, settings, p, read_only=read_only)
         else:
             self.reset(review, settings, None, dirty=True, imported_from=p)
 
@@ -263,6 +278,8 @@ class Session:
         """Save atomically to ``path`` (or the current path); the session becomes clean."""
         from .model.project_file import SUFFIX, save
 
+        if not path and self.read_only:
+            raise ValueError(f"This review is {self.read_only}.")
         target = Path(path) if path else self._path
         if target is None:
             raise ValueError("No file name yet: choose where to save the review.")
@@ -271,6 +288,7 @@ class Session:
         save(self._review, target, self._settings.to_dict())
         self._path = target
         self.imported_from = None
+        self.read_only = ""
         self.mark_saved()
         return target
 

@@ -31,6 +31,7 @@ def add_plot_arguments(parser: argparse.ArgumentParser) -> None:
     Arguments (attribute names on the parsed namespace in brackets):
 
     * ``--kind`` [kind] — funnel (default), forest, cumulative or radial.
+    * ``--force`` [force] — replace an existing file at OUT that is not of its format.
     * ``-o/--output OUT`` [output] — required; the suffix .png, .svg or .pdf sets the format.
     * ``--size`` [size] — column (85 mm, default), page (180 mm) or slide (16:9).
     * ``--axis`` [axis] — funnel's vertical axis: se (default), precision, variance, size.
@@ -43,6 +44,11 @@ def add_plot_arguments(parser: argparse.ArgumentParser) -> None:
     """
     parser.add_argument(
         "--kind", choices=KINDS, default="funnel", help="which figure (default funnel)"
+    )
+    parser.add_argument(
+        "--force",
+        action="store_true",
+        help="replace an existing file at OUT of another kind (never the input)",
     )
     parser.add_argument(
         "-o", "--output", required=True, metavar="OUT", help="output file: .png, .svg or .pdf"
@@ -102,6 +108,7 @@ def run_plot(args: argparse.Namespace) -> int:
     """
     from dataclasses import replace
 
+    from ..fileio import OutputLocked, OutputRefused
     from .common import FigureInputError
     from .export import format_for
 
@@ -110,10 +117,12 @@ def run_plot(args: argparse.Namespace) -> int:
         fmt = format_for(out)
     except ValueError as exc:
         return _fail(f"-o {out}: {exc}.")
-    if out.parent and not out.parent.exists():
-        return _fail(
-            f"-o {out}: the folder {out.parent} does not exist; create it or pick another."
-        )
+    from ..cli import check_output_arg
+
+    try:
+        out = check_output_arg(args, fmt)
+    except OutputRefused as exc:
+        return _fail(str(exc))
 
     from ..cli import EXIT_UNREAD, UnreadInput, load_input
     from ..cli_common import INPUT_ERRORS
@@ -146,11 +155,13 @@ def run_plot(args: argparse.Namespace) -> int:
         fig = build_figure(result, args)
     except FigureInputError as exc:
         return _fail(f"{args.file}: {exc}")
-    from ..model.project_file import write_atomic
+    from ..fileio import write_atomic
     from .export import figure_bytes
 
-    try:
+    try:  # rendered first, then replaced atomically: never a half-written figure
         write_atomic(out, figure_bytes(fig, fmt))
+    except OutputLocked as exc:
+        return _fail(f"-o {out}: {exc}")
     except OSError as exc:
         return _fail(f"-o {out}: cannot write the figure ({exc.strerror or exc}).")
     print(f"wrote {out}")

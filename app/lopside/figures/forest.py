@@ -18,7 +18,7 @@ from dataclasses import dataclass
 from typing import TYPE_CHECKING
 
 from . import style
-from .common import format_effect, format_interval, is_ratio, measure_label
+from .common import FigureInputError, format_effect, format_interval, is_ratio, measure_label
 from .rows import Column, Row, draw_rows
 
 if TYPE_CHECKING:  # pragma: no cover
@@ -233,6 +233,10 @@ def forest_figure(
         ``fig.lopside_artists`` holds the axes, squares, diamonds, bars and text rows.
     """
     opts = opts or ForestOptions()
+    if not rows:
+        raise FigureInputError(
+            "the forest plot needs at least one study with an effect and its standard error"
+        )
     level = f"{opts.confidence_level * 100:g}% CI"
     abbrev = opts.measure.upper() if opts.measure else "Effect"
     sub_colour = style.RANDOM if "random" in pooled.subtotal_model.lower() else style.FIXED

@@ -153,6 +153,8 @@ def draw_rows(
     x_hi = min(max(highs), c_hi + reach)
     # ... but the null, every estimate and every pooled interval always stay in view
     x_lo, x_hi = min(x_lo, c_lo), max(x_hi, c_hi)
+    if not x_hi > x_lo:  # nothing but the null line (no study): a range of zero width
+        x_lo, x_hi = c_lo - span / 2, c_hi + span / 2
     pad = 0.05 * (x_hi - x_lo)
     x_lo, x_hi = x_lo - pad, x_hi + pad
     # do the "favours" words fit beside the null? If not, each gets its own line

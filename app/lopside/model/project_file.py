@@ -15,10 +15,23 @@ Layout (version 1)::
       "settings": {...}            # analysis settings, optional
     }
 
+The file carries ``"checksum": "sha256:<hex>"``: SHA-256 of the document without that key,
+as canonical JSON (keys sorted, no spaces, UTF-8, see :func:`canonical_bytes`). A file
+whose content no longer matches was changed outside Lopside (by hand, a sync tool, a
+damaged disk); loading it raises :class:`ChangedOutside`, which carries the review so
+that the window can offer to open it anyway, read-only until saved. A file without a
+checksum (written before it existed) opens as before.
+
 Loading validates everything (unknown version, wrong types, absurd sizes, settings that
 are not among the choices are refused with a :class:`ProjectFileError` naming the place).
-Saving is atomic: the document is written to a temporary file in the same folder, flushed
-and fsynced, then moved over the old file, so the previous file is never left half-written.
+Saving is atomic (:func:`lopside.fileio.write_atomic`): the document is written to a
+temporary file in the same folder, flushed and fsynced, then moved over the old file, so
+the previous file is never left half-written; the file keeps its mode and group, and a
+symlink keeps pointing at the replaced file.
+
+Text that cannot be stored (a lone surrogate, a control character other than tab and
+line breaks) is refused on load, naming the field; edits refuse it at entry
+(:mod:`lopside.model.text`), so a review on screen can always be saved.
 
 Saving never writes what loading would refuse: a number that is not finite is written as
 unread text in its field (so nothing typed is lost and the row check reports it), and a
@@ -27,14 +40,15 @@ review beyond the limits is refused *before* the old file is touched.
 
 from __future__ import annotations
 
+import hashlib
 import json
 import math
 import os
 import stat
-import tempfile
 from pathlib import Path
 from typing import Any
 
+from ..fileio import write_atomic
 from .intake_file import (
     IntakeFileError,
     favours_source_from,
@@ -56,6 +70,7 @@ from .review import (
     ReviewDetails,
     StudyRow,
 )
+from .text import text_problem
 
 FORMAT_KEY = "lopside_project"
 FORMAT_VERSION = 1
@@ -91,8 +106,36 @@ MAX_POWER_REPS = 1_000_000
 MAX_CUTPOINTS = 10
 
 
+CHECKSUM_KEY = "checksum"
+
+
 class ProjectFileError(ValueError):
     """A project file that cannot be read; the message says where and what to do."""
+
+
+class ChangedOutside(ProjectFileError):
+    """The file's content does not match its checksum: it was changed outside Lopside.
+
+    ``review`` and ``settings`` hold what the file says now (it passed every other check),
+    for a caller that asks the user and opens it anyway.
+    """
+
+    def __init__(self, message: str, review: Review, settings: dict[str, Any]) -> None:
+        super().__init__(message)
+        self.review = review
+        self.settings = settings
+
+
+def canonical_bytes(doc: dict[str, Any]) -> bytes:
+    """The document without its checksum as canonical JSON (sorted keys, no spaces)."""
+    body = {k: v for k, v in doc.items() if k != CHECKSUM_KEY}
+    return json.dumps(
+        body, sort_keys=True, ensure_ascii=False, separators=(",", ":"), allow_nan=False
+    ).encode("utf-8")
+
+
+def checksum_of(doc: dict[str, Any]) -> str:
+    return "sha256:" + hashlib.sha256(canonical_bytes(doc)).hexdigest()
 
 
 # --------------------------------------------------------------------------------------
@@ -192,11 +235,23 @@ def _render(doc: dict[str, Any]) -> str:
     return "{\n" + ",\n".join(parts) + "\n}\n"
 
 
+def _with_checksum(doc: dict[str, Any]) -> dict[str, Any]:
+    """The document with its checksum placed after the version keys (readable at the top)."""
+    out: dict[str, Any] = {}
+    for k, v in doc.items():
+        out[k] = v
+        if k == "saved_by":
+            out[CHECKSUM_KEY] = checksum_of(doc)
+    if CHECKSUM_KEY not in out:
+        out[CHECKSUM_KEY] = checksum_of(doc)
+    return out
+
+
 def dumps(review: Review, settings: dict[str, Any] | None = None) -> str:
     """The project as JSON text (numbers that are not finite kept as unread text)."""
     doc = review_to_dict(review, settings)
     _keep_non_finite_as_text(doc)
-    return _render(doc)
+    return _render(_with_checksum(doc))
 
 
 def save(review: Review, path: str | os.PathLike, settings: dict[str, Any] | None = None) -> None:
@@ -219,32 +274,7 @@ def save(review: Review, path: str | os.PathLike, settings: dict[str, Any] | Non
         raise ProjectFileError(
             f"Not saved, because the file could not be opened again: {exc}"
         ) from None
-    write_atomic(Path(path), _render(doc).encode("utf-8"))
-
-
-def write_atomic(path: Path, data: bytes) -> None:
-    folder = path.parent if str(path.parent) else Path(".")
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=folder)
-    try:
-        with os.fdopen(fd, "wb") as fh:
-            fh.write(data)
-            fh.flush()
-            os.fsync(fh.fileno())
-        os.replace(tmp, path)
-    except BaseException:
-        try:
-            os.unlink(tmp)
-        except OSError:
-            pass
-        raise
-    try:  # make the rename itself durable where the platform allows it
-        dfd = os.open(folder, os.O_RDONLY)
-        try:
-            os.fsync(dfd)
-        finally:
-            os.close(dfd)
-    except OSError:
-        pass
+    write_atomic(Path(path), _render(_with_checksum(doc)).encode("utf-8"))
 
 
 # --------------------------------------------------------------------------------------
@@ -279,6 +309,9 @@ def _text(v: Any, where: str, *, allow_none: bool = True, limit: int = MAX_TEXT)
         raise ProjectFileError(f"{where}: expected text, found {type(v).__name__}.")
     if len(v) > limit:
         raise ProjectFileError(f"{where}: text longer than {limit:,} characters.")
+    problem = text_problem(v, controls=False)
+    if problem:
+        raise ProjectFileError(f"{where}: {problem}; correct it in the file.")
     return v
 
 
@@ -528,7 +561,12 @@ def _intake_part(read, value):
         raise ProjectFileError(str(exc)) from None
 
 
-def loads(text: str) -> tuple[Review, dict[str, Any]]:
+def loads(text: str, *, accept_changed: bool = False) -> tuple[Review, dict[str, Any]]:
+    """Parse and validate project text.
+
+    Raises :class:`ChangedOutside` when the checksum does not match (unless
+    ``accept_changed``), after every other check passed.
+    """
     try:
         doc = json.loads(text)
     except json.JSONDecodeError as exc:
@@ -545,11 +583,27 @@ def loads(text: str) -> tuple[Review, dict[str, Any]]:
             "The project file is damaged or incomplete (a number in it has thousands of "
             "digits). Open the last good copy or the autosave."
         ) from None
-    return review_from_dict(doc)
+    review, settings = review_from_dict(doc)
+    if isinstance(doc, dict) and CHECKSUM_KEY in doc and not accept_changed:
+        stored = doc[CHECKSUM_KEY]
+        if not isinstance(stored, str) or stored != checksum_of(doc):
+            raise ChangedOutside(
+                "the file was changed outside Lopside since it was last saved (its content "
+                "no longer matches its checksum). Check it before relying on it; to use it "
+                "anyway, open it in the window (it stays read-only until saved) or add "
+                "--accept-changed.",
+                review,
+                settings,
+            )
+    return review, settings
 
 
-def load(path: str | os.PathLike) -> tuple[Review, dict[str, Any]]:
-    """Read and validate a project file; errors name the file and the place."""
+def load(path: str | os.PathLike, *, accept_changed: bool = False) -> tuple[Review, dict[str, Any]]:
+    """Read and validate a project file; errors name the file and the place.
+
+    Raises :class:`ChangedOutside` (a ProjectFileError) when the content does not match
+    its checksum, unless ``accept_changed``.
+    """
     p = Path(path)
     try:
         info = p.stat()
@@ -572,6 +626,8 @@ def load(path: str | os.PathLike) -> tuple[Review, dict[str, Any]]:
             f"{p.name}: not a Lopside project (byte {exc.start} is not UTF-8 text)."
         ) from None
     try:
-        return loads(text)
+        return loads(text, accept_changed=accept_changed)
+    except ChangedOutside as exc:
+        raise ChangedOutside(f"{p.name}: {exc}", exc.review, exc.settings) from None
     except ProjectFileError as exc:
         raise ProjectFileError(f"{p.name}: {exc}") from None

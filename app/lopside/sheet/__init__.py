@@ -68,13 +68,8 @@ def write_sheet(
         When the file cannot be written (the CLI reports it with the path).
     """
     pdf = sheet_bytes(result, include_forest=include_forest, date=date, timestamp=timestamp)
-    path = os.fspath(path)
-    folder = os.path.dirname(os.path.abspath(path))
-    tmp = os.path.join(folder, f".{os.path.basename(path)}.{os.getpid()}.tmp")
-    try:
-        with open(tmp, "wb") as fh:
-            fh.write(pdf)
-        os.replace(tmp, path)
-    finally:
-        if os.path.exists(tmp):
-            os.remove(tmp)
+    from ..fileio import write_atomic
+
+    # a temporary file beside it, then replace: a sheet open in a PDF viewer (locked on
+    # Windows) raises fileio.OutputLocked with a free name to offer instead
+    write_atomic(path, pdf)

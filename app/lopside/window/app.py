@@ -69,6 +69,11 @@ def make_application(argv: list[str] | None = None):
         font.setPointSizeF(max(app.font().pointSizeF(), 9.0))
         app.setFont(font)
         app._lopside_font_set = True  # noqa: SLF001 - a marker on our own app object
+    # never silent, no change without intent: see lopside.window.guards
+    from .guards import install_exception_hook, install_wheel_guard
+
+    install_wheel_guard(app)
+    install_exception_hook()
     return app
 
 

@@ -204,10 +204,24 @@ class CausesPanel(QScrollArea):
         )
         self.claim.setText(f"<table>{rows}</table>")
 
+    def show_message(self, text: str) -> None:
+        self._appraisal_for = None
+        self.appraisal = None
+        self.reading.setText(html.escape(text))
+        for ev in self.evidence.values():
+            ev.setText("\u2013")
+        self.suggested.setText("\u2013")
+
+    def reset(self) -> None:
+        """The review changed completely: no readings of the old one, back to the top."""
+        self.show_message(M.ANALYSING)
+        self.verticalScrollBar().setValue(0)
+        self.refresh_notes()
+
     def show_result(self, result) -> None:
         """Show the appraisal readings of ``result`` (re-read only when the data changed)."""
         if result is None:
-            self.reading.setText(html.escape(M.NO_ANALYSIS))
+            self.show_message(M.NO_ANALYSIS)
             return
         # the readings depend on the statistics, not on the notes: skip when only notes moved
         key = (result.data, result.settings, result.power, result.review.details)

@@ -9,14 +9,23 @@ Design invariants
   visible view redraws; the others catch up when they are shown.
 * Questions that would open a modal dialog (recover? save changes? which file?) go through
   the ``ask_*`` callables, which tests replace.
+* "The review changed completely" (New, Open, recovery) is the session's ``reset`` change;
+  :meth:`MainWindow.reset_views` is the one place that makes every view, the status bar
+  and the progress bars forget the previous review.
+* A view that fails says so in place of its content (and the error is reported with the
+  log file's path); it never keeps stale content. See :mod:`lopside.window.guards`.
+* Nothing the user made is changed without being asked: samples and files changed
+  outside Lopside open read-only (Save asks for a name), exports never write over the
+  review, a failed save is a dialog with "save elsewhere".
 """
 
 from __future__ import annotations
 
+import os
 from collections.abc import Callable
 from pathlib import Path
 
-from PySide6.QtCore import QByteArray, Qt, QTimer, QUrl, Signal
+from PySide6.QtCore import QByteArray, QPoint, Qt, QTimer, QUrl, Signal
 from PySide6.QtGui import QAction, QDesktopServices, QGuiApplication, QImage, QKeySequence
 from PySide6.QtWidgets import (
     QApplication,
@@ -30,13 +39,15 @@ from PySide6.QtWidgets import (
 )
 
 from .. import edits as ed
-from ..model.project_file import SUFFIX
+from ..fileio import OutputLocked, OutputRefused, check_output
+from ..model.project_file import SUFFIX, ChangedOutside
 from ..model.review import MEASURE_NAMES, MEASURES
 from ..session import Session
+from . import guards
 from . import messages as M
 from . import prefs as P
 from .adjust_panel import AdjustPanel
-from .autosave import Autosaver, Recoverable, find_recoverable
+from .autosave import Autosaver, Recoverable, as_choice, find_recoverable
 from .causes import CausesPanel
 from .details_form import DetailsForm
 from .paste_dialog import PasteDialog
@@ -91,16 +102,43 @@ def _tests_sections(result):
 # ------------------------------------------------------------------ default questions
 
 
-def _ask_recover(window, items: list[Recoverable]) -> Recoverable | None:
-    r = items[0]
+def _ask_recover(window, items: list[Recoverable]):
+    from .recovery import ask_recover
+
+    return ask_recover(window, items)
+
+
+def _ask_save_failed(window, name: str, error: str) -> bool:
+    """True when the user wants to save elsewhere."""
+    box = QMessageBox(QMessageBox.Warning, M.SAVE_FAILED_TITLE, "", parent=window)
+    box.setText(M.SAVE_FAILED_TEXT.format(name=name, error=error))
+    elsewhere = box.addButton(M.SAVE_ELSEWHERE, QMessageBox.AcceptRole)
+    box.addButton(QMessageBox.Cancel)
+    box.setDefaultButton(elsewhere)
+    box.exec()
+    return box.clickedButton() is elsewhere
+
+
+def _ask_open_changed(window, name: str) -> bool:
+    answer = QMessageBox.warning(
+        window,
+        M.CHANGED_OUTSIDE_TITLE,
+        M.CHANGED_OUTSIDE_TEXT.format(name=name),
+        QMessageBox.Open | QMessageBox.Cancel,
+        QMessageBox.Cancel,
+    )
+    return answer == QMessageBox.Open
+
+
+def _ask_locked(window, error: str, suggestion: str) -> bool:
     answer = QMessageBox.question(
         window,
-        M.RECOVER_TITLE,
-        M.RECOVER_TEXT.format(name=r.name, when=r.when()),
+        M.EXPORT_LOCKED_TITLE,
+        M.EXPORT_LOCKED_TEXT.format(error=error, suggestion=suggestion),
         QMessageBox.Yes | QMessageBox.No,
         QMessageBox.Yes,
     )
-    return r if answer == QMessageBox.Yes else None
+    return answer == QMessageBox.Yes
 
 
 def _ask_save_changes(window, name: str) -> str:
@@ -189,6 +227,9 @@ class MainWindow(QMainWindow):
         ask_save_path: Callable | None = None,
         ask_measure: Callable | None = None,
         ask_open_sheet: Callable | None = None,
+        ask_save_failed: Callable | None = None,
+        ask_open_changed: Callable | None = None,
+        ask_locked: Callable | None = None,
         open_url: Callable[[QUrl], object] | None = None,
     ) -> None:
         super().__init__()
@@ -204,7 +245,28 @@ class MainWindow(QMainWindow):
         #: asked when a file cannot settle its decimal mark (tests replace it)
         self.ask_decimal = lambda name, examples: _ask_decimal(self, name, examples)
         self.ask_open_sheet = ask_open_sheet or (lambda path: _ask_open_sheet(self, path))
+        self.ask_save_failed = ask_save_failed or (
+            lambda name, error: _ask_save_failed(self, name, error)
+        )
+        self.ask_open_changed = ask_open_changed or (lambda name: _ask_open_changed(self, name))
+        self.ask_locked = ask_locked or (lambda err, sug: _ask_locked(self, err, sug))
         self.open_url = open_url or QDesktopServices.openUrl
+        # the same questions for windows this one opens (restored autosaves)
+        self._window_kwargs = {
+            "prefs": self.prefs,
+            "autosave": autosave,
+            "ask_recover": ask_recover,
+            "ask_save_changes": ask_save_changes,
+            "ask_open_path": ask_open_path,
+            "ask_save_path": ask_save_path,
+            "ask_measure": ask_measure,
+            "ask_open_sheet": ask_open_sheet,
+            "ask_save_failed": ask_save_failed,
+            "ask_open_changed": ask_open_changed,
+            "ask_locked": ask_locked,
+            "open_url": open_url,
+        }
+        self.spawned: list[MainWindow] = []
         self.result = None
         self.analysis_error = ""
         self.sheet_worker: SheetWorker | None = None
@@ -215,6 +277,7 @@ class MainWindow(QMainWindow):
         self.setAcceptDrops(True)
         self.stack = EditStack(self.session, self)
         self.stack.cleanChanged.connect(self._clean_changed)
+        self.stack.refused.connect(lambda msg: self.say(msg, 15000))
 
         # left: studies and review details
         self.left = QTabWidget()
@@ -296,8 +359,15 @@ class MainWindow(QMainWindow):
         self._build_menus()
         self._restore_prefs()
         self.autosaver = Autosaver(self.session, parent=self) if autosave else None
+        if self.autosaver is not None:
+            self.autosaver.failed.connect(
+                lambda msg: self.say(M.AUTOSAVE_FAILED.format(error=msg), 0)
+            )
         self._update_title()
         self._set_tab_order()
+        # no change without intent: the wheel moves only a focused combo/spin box/slider
+        guards.install_wheel_guard()
+        guards.guard_tree(self)
 
     # ------------------------------------------------------------------ menus
 
@@ -411,7 +481,7 @@ class MainWindow(QMainWindow):
             a = self.samples_menu.addAction("(no sample reviews installed)")
             a.setEnabled(False)
         for p in samples:
-            self.samples_menu.addAction(p.name, lambda p=p: self.open_path(p, remember=False))
+            self.samples_menu.addAction(p.name, lambda p=p: self.open_sample(p))
 
     def _fill_recent(self) -> None:
         self.recent_menu.clear()
@@ -467,37 +537,93 @@ class MainWindow(QMainWindow):
         """After the window is shown: recover unsaved work, open ``path``, first analysis."""
         recovered = False
         if self.autosaver is not None:
-            items = find_recoverable(self.autosaver.folder)
-            if items:
-                chosen = self.ask_recover(items)
-                if chosen is not None:
-                    recovered = self.recover(chosen)
-                for r in items:
-                    r.discard()
+            recovered = self.offer_recovery(use_this_window=not path)
         if path and not recovered:
             self.open_path(path)
         elif self.session.review.studies and not recovered:
             self.studies.suggest_mode()
         self.update_views()
 
+    def offer_recovery(self, *, use_this_window: bool = True) -> bool:
+        """List every autosave left by windows that are gone; restore what the user picks.
+
+        The first restored review goes into this window (when ``use_this_window``), each
+        further one into a new window. Only what was restored or what the user chose to
+        discard is deleted; a recovery that fails keeps its autosave and says where.
+        Returns True when this window received a review.
+        """
+        own = (self.autosaver.stem,) if self.autosaver is not None else ()
+        items = find_recoverable(self.autosaver.folder if self.autosaver else None, own)
+        if not items:
+            return False
+        choice = as_choice(self.ask_recover(items), items)
+        here = False
+        for item in items:
+            if item in choice.discard:
+                item.discard()
+            elif item in choice.restore:
+                target = self if use_this_window and not here else self.spawn_window()
+                if target.recover(item):
+                    item.discard()  # the work now lives in the target's own autosave
+                    here = here or target is self
+                else:
+                    item.release()
+                    if target is not self:
+                        target._closing_ok = True
+                        target.close()
+            else:
+                item.release()  # decided later: offered again at the next start
+        return here
+
+    def spawn_window(self) -> MainWindow:
+        """A new window with the same questions (for a second restored review)."""
+        w = MainWindow(**self._window_kwargs)
+        w.resize(self.size())
+        w.move(self.pos() + QPoint(40 * (len(self.spawned) + 1), 40 * (len(self.spawned) + 1)))
+        w.show()
+        self.spawned.append(w)
+        return w
+
     def recover(self, item: Recoverable) -> bool:
         from ..model import project_file
         from ..settings import AnalysisSettings
 
+        changed = ""
         try:
-            review, saved = project_file.load(item.review_file)
-        except ValueError as exc:
-            self.say(M.OPEN_FAILED.format(name=item.review_file.name, error=exc))
+            try:
+                review, saved = project_file.load(item.review_file)
+            except project_file.ChangedOutside as exc:
+                # never silent: restored (it is all there is of that work), and said so
+                review, saved = exc.review, exc.settings
+                changed = " " + M.RECOVERED_CHANGED
+            settings = AnalysisSettings.from_dict(saved)
+        except (OSError, ValueError) as exc:
+            msg = M.RECOVER_FAILED.format(name=item.name, error=exc, path=item.review_file)
+            self.say(msg, 0)
+            self._warn(M.RECOVER_TITLE, msg)
             return False
-        self.session.reset(
-            review, AnalysisSettings.from_dict(saved), item.original or None, dirty=True
-        )
+        read_only = item.read_only
+        if item.original and _in_samples(os.path.dirname(item.original)):
+            read_only = read_only or M.READ_ONLY_SAMPLE
+        self.session.reset(review, settings, item.original or None, dirty=True, read_only=read_only)
         self.stack.reset()
         self.studies.suggest_mode()
-        self.say(M.RECOVERED.format(name=item.name))
-        if self.autosaver is not None:
-            self.autosaver.save_now()  # our own autosave now holds the recovered work
+        self.say(M.RECOVERED.format(name=item.name) + changed, 0 if changed else 6000)
+        if self.autosaver is not None and not self.autosaver.save_now():
+            # keep the old autosave: our own could not take the work over
+            msg = M.RECOVER_FAILED.format(
+                name=item.name, error=self.autosaver.last_error, path=item.review_file
+            )
+            self.say(msg, 0)
+            return False
+        self.update_views()
         return True
+
+    def _warn(self, title: str, text: str) -> None:
+        """A warning dialog after the current event (never in offscreen test runs)."""
+        if _headless():
+            return
+        QTimer.singleShot(0, lambda: QMessageBox.warning(self, title, text))
 
     # ------------------------------------------------------------------ session events
 
@@ -511,6 +637,7 @@ class MainWindow(QMainWindow):
             self.funnel.set_model(self.session.settings.funnel_model)
         if change.kind == "reset":
             self.funnel.set_model(self.session.settings.funnel_model)
+            self.reset_views()
         self._update_title()
         self._timer.start()
 
@@ -628,20 +755,59 @@ class MainWindow(QMainWindow):
             self._refresh_panel(self.views.currentWidget())
             return
         self.result = result
-        self.studies.show_result(result)
+        self._update_status()
+        try:
+            self.studies.show_result(result)
+        except Exception as exc:  # noqa: BLE001 - reported; the views still update
+            guards.report_exception(exc, "study table")
         self._stale = set(self.view_panels)
         self._refresh_panel(self.views.currentWidget())
-        self._update_status()
         self.analysed.emit(result)
+
+    def reset_views(self) -> None:
+        """The review changed completely (New, Open, recovery): forget the old one everywhere.
+
+        Every view drops what it showed (figures, texts, scroll positions, progress), the
+        status bar and the table's result go; the next analysis redraws from scratch.
+        """
+        self.result = None
+        self.analysis_error = ""
+        for panel in self.view_panels:
+            reset = getattr(panel, "reset", None)
+            try:
+                if reset is not None:
+                    reset()
+            except Exception as exc:  # noqa: BLE001 - reported; the others still reset
+                self._view_failed(panel, exc)
+        self._stale = set(self.view_panels)
+        try:
+            self.studies.show_result(None)
+        except Exception as exc:  # noqa: BLE001
+            guards.report_exception(exc, "study table")
+        self.status_label.setText(M.ANALYSING)
 
     def _refresh_panel(self, panel) -> None:
         if panel is None or panel not in self._stale:
             return
         self._stale.discard(panel)
-        if self.result is None and self.analysis_error and hasattr(panel, "show_message"):
-            panel.show_message(self.analysis_error)
-            return
-        panel.show_result(self.result)
+        try:
+            if self.result is None and self.analysis_error and hasattr(panel, "show_message"):
+                panel.show_message(self.analysis_error)
+                return
+            panel.show_result(self.result)
+        except Exception as exc:  # noqa: BLE001 - the view says so; reported with the log
+            self._view_failed(panel, exc)
+
+    def _view_failed(self, panel, exc: Exception) -> None:
+        name = panel.objectName() or type(panel).__name__
+        log = guards.report_exception(exc, f"the {name} view")
+        text = M.VIEW_FAILED.format(error=f"{type(exc).__name__}: {exc}", log=log or M.ERROR_NO_LOG)
+        show = getattr(panel, "show_message", None) or getattr(panel, "_show_message", None)
+        if show is not None:
+            try:
+                show(text)
+            except Exception:  # noqa: BLE001 - already reported
+                pass
 
     def _view_shown(self, _index: int) -> None:
         self._refresh_panel(self.views.currentWidget())
@@ -670,7 +836,10 @@ class MainWindow(QMainWindow):
         self._update_title()
 
     def _update_title(self) -> None:
-        self.setWindowTitle(f"{self.session.display_name()}[*] \u2013 Lopside")
+        name = self.session.display_name()
+        if self.session.read_only:
+            name = M.READ_ONLY_TITLE.format(name=name)
+        self.setWindowTitle(f"{name}[*] \u2013 Lopside")
         self.setWindowModified(self.session.dirty)
 
     def _point_clicked(self, row: int) -> None:
@@ -756,8 +925,18 @@ class MainWindow(QMainWindow):
         if path:
             self.open_path(path, ask=False)
 
-    def open_path(self, path, *, remember: bool = True, ask: bool = True) -> bool:
-        """Open a project or import a study table; errors are shown, never raised."""
+    def open_sample(self, path) -> bool:
+        """Open an invented sample read-only: Save asks for a place of the user's own."""
+        return self.open_path(path, remember=False, read_only=M.READ_ONLY_SAMPLE)
+
+    def open_path(
+        self, path, *, remember: bool = True, ask: bool = True, read_only: str = ""
+    ) -> bool:
+        """Open a project or import a study table; errors are shown, never raised.
+
+        A project changed outside Lopside is opened only when the user says so, and then
+        read-only (Save asks for a name).
+        """
         from ..cli_common import INPUT_ERRORS
 
         if ask and not self._maybe_save():
@@ -769,10 +948,20 @@ class MainWindow(QMainWindow):
             return self.open_pdf(p)
         measure = None
         decimal = None
-        for _attempt in range(3):
+        accept_changed = False
+        for _attempt in range(4):
             try:
-                self.session.open(p, measure, decimal)
+                self.session.open(
+                    p, measure, decimal, accept_changed=accept_changed, read_only=read_only
+                )
                 break
+            except ChangedOutside:
+                if accept_changed or not self.ask_open_changed(p.name):
+                    self.say(M.OPEN_FAILED.format(name=p.name, error=M.READ_ONLY_CHANGED))
+                    return False
+                accept_changed = True
+                read_only = read_only or M.READ_ONLY_CHANGED
+                continue
             except DecimalUndecided as exc:
                 decimal = self.ask_decimal(p.name, exc.examples) if decimal is None else None
                 if decimal:
@@ -793,9 +982,11 @@ class MainWindow(QMainWindow):
         self.studies.suggest_mode()
         if remember:
             self.prefs.add_recent(p)
-            self.prefs.set(P.LAST_FOLDER, str(p.resolve().parent))
+            # absolute, not resolved: a mapped drive (H:\) stays as the user chose it
+            self.prefs.set(P.LAST_FOLDER, os.path.dirname(os.path.abspath(p)))
+        self._update_title()
         self.update_views()
-        self.say(f"Opened {p.name}.")
+        self.say(f"Opened {p.name}." + (f" It is {read_only}." if read_only else ""))
         return True
 
     def open_pdf(self, p: Path):
@@ -863,30 +1054,62 @@ class MainWindow(QMainWindow):
 
     def save(self) -> bool:
         self.causes.flush()
-        if self.session.path is None:
+        if self.session.path is None or self.session.read_only:
             return self.save_as()
         return self._save_to(self.session.path)
 
     def save_as(self) -> bool:
         self.causes.flush()
         folder = self.prefs.last_folder()
+        if self.session.read_only or _in_samples(folder):
+            folder = self._own_folder()
+        name = self.session.path.name if self.session.path else None
         suggested = str(
-            Path(folder) / ((self.session.review.details.title or "review")[:60] + SUFFIX)
+            Path(folder) / (name or (self.session.review.details.title or "review")[:60] + SUFFIX)
         )
-        path = self.ask_save_path(suggested, "Save the review", f"Lopside project (*{SUFFIX})")
-        if not path:
-            return False
-        return self._save_to(Path(path))
+        while True:
+            path = self.ask_save_path(suggested, "Save the review", f"Lopside project (*{SUFFIX})")
+            if not path:
+                return False
+            if not Path(path).suffix:
+                path = str(Path(path).with_suffix(SUFFIX))
+            refused = ""
+            if _in_samples(os.path.dirname(os.path.abspath(path))):
+                refused = M.SAMPLE_FOLDER_REFUSED
+            else:
+                try:  # never over the CSV/XLSX/.txt it was imported from, never as a .csv
+                    check_output(path, "lopside", (self.session.imported_from,), force=True)
+                except OutputRefused as exc:
+                    refused = str(exc)
+            if not refused:
+                return self._save_to(Path(path))
+            self.say(refused, 15000)
+            self._warn(M.SAVE_FAILED_TITLE, refused)
+            if _headless():
+                return False
+            suggested = str(Path(self._own_folder()) / (Path(path).stem + SUFFIX))
+
+    def _own_folder(self) -> str:
+        folder = self.prefs.last_folder()
+        if _in_samples(folder):
+            from PySide6.QtCore import QStandardPaths
+
+            folder = QStandardPaths.writableLocation(QStandardPaths.DocumentsLocation)
+        return folder
 
     def _save_to(self, path: Path) -> bool:
         try:
             saved = self.session.save(path)
         except (OSError, ValueError) as exc:
-            self.say(M.SAVE_FAILED.format(name=Path(path).name, error=exc), 15000)
+            msg = M.SAVE_FAILED.format(name=Path(path).name, error=exc)
+            self.say(msg, 0)
+            # a dialog, not only a status message; "save elsewhere" keeps the work
+            if self.ask_save_failed(Path(path).name, str(exc)):
+                return self.save_as()
             return False
         self.stack.mark_clean()
         self.prefs.add_recent(saved)
-        self.prefs.set(P.LAST_FOLDER, str(saved.parent))
+        self.prefs.set(P.LAST_FOLDER, os.path.dirname(os.path.abspath(saved)))
         if self.autosaver is not None:
             self.autosaver.remove()
         self._update_title()
@@ -922,20 +1145,67 @@ class MainWindow(QMainWindow):
             return None
         if path is None:
             base = self.session.path.stem if self.session.path else "appraisal"
-            path = self.ask_save_path(
-                str(Path(self.prefs.last_folder()) / f"{base}-sheet.pdf"),
+            path = self._ask_export_path(
+                str(Path(self._own_folder()) / f"{base}-sheet.pdf"),
                 "Export the appraisal sheet",
                 "PDF (*.pdf)",
+                "pdf",
             )
             if not path:
                 return None
+        elif self._refuse_export(path, "pdf"):
+            return None
         w = SheetWorker(self.result, path, parent=self)
         w.finished_with.connect(self._sheet_done)
-        w.failed.connect(lambda msg: self.say(M.SHEET_FAILED.format(error=msg), 15000))
+        w.failed.connect(lambda msg: self._sheet_failed(w, msg))
         self.sheet_worker = w
         self.say("Writing the appraisal sheet\u2026", 0)
         w.start()
         return w
+
+    def _inputs(self) -> tuple:
+        return (self.session.path, self.session.imported_from)
+
+    def _refuse_export(self, path, kind: str) -> bool:
+        """True (and the user is told why) when ``path`` must not receive the export."""
+        try:
+            # the file dialog has already asked before replacing an existing file
+            check_output(path, kind, self._inputs(), force=True)
+        except OutputRefused as exc:
+            text = str(exc)
+            if "being read" in text:
+                text = M.EXPORT_IS_INPUT.format(name=Path(path).name)
+            self.say(text, 15000)
+            self._warn("Not exported", text)
+            return True
+        return False
+
+    def _ask_export_path(self, suggested: str, title: str, filt: str, kind: str) -> str:
+        """Ask for an export file; never the review's own file (asked again if chosen)."""
+        while True:
+            path = self.ask_save_path(suggested, title, filt)
+            if not path:
+                return ""
+            if kind != "figure" and not Path(path).suffix:
+                path = str(Path(path).with_suffix("." + kind))
+            k = Path(path).suffix.lower().lstrip(".") if kind == "figure" else kind
+            if k not in ("png", "svg", "pdf"):
+                return path  # the export itself says which suffixes it can write
+            if not self._refuse_export(path, k):
+                return path
+            if _headless():
+                return ""
+
+    def _sheet_failed(self, worker, message: str) -> None:
+        err = getattr(worker, "error", None)
+        if isinstance(err, OutputLocked):
+            # a PDF viewer holds the old sheet (Windows): offer a free name instead
+            if self.ask_locked(str(err), err.suggestion.name):
+                self.export_sheet(str(err.suggestion))
+                return
+            self.say(str(err), 0)
+            return
+        self.say(M.SHEET_FAILED.format(error=message), 0)
 
     def _sheet_done(self, path: str) -> None:
         self.say(M.SHEET_DONE.format(path=path))
@@ -957,18 +1227,21 @@ class MainWindow(QMainWindow):
         return funnel_figure(adaptor(self.result, opts), opts, size="page")
 
     def export_figure(self, path: str | None = None) -> bool:
-        from ..figures.export import save_figure
-
         panel = self._current_figure_panel()
         if self.result is None:
             return False
         if path is None:
-            path = self.ask_save_path(
-                str(Path(self.prefs.last_folder()) / f"{panel.objectName().lower()}.png"),
+            path = self._ask_export_path(
+                str(Path(self._own_folder()) / f"{panel.objectName().lower()}.png"),
                 "Export the figure",
                 "PNG image (*.png);;SVG drawing (*.svg);;PDF (*.pdf)",
+                "figure",
             )
             if not path:
+                return False
+        else:
+            kind = Path(path).suffix.lower().lstrip(".")
+            if kind in ("png", "svg", "pdf") and self._refuse_export(path, kind):
                 return False
         try:
             if panel is self.funnel:
@@ -979,7 +1252,10 @@ class MainWindow(QMainWindow):
                 fig = panel.figure
             if fig is None:
                 return False
-            save_figure(fig, path)
+            from ..figures.export import figure_bytes, format_for
+            from ..fileio import write_atomic
+
+            write_atomic(path, figure_bytes(fig, format_for(path)))
         except (OSError, ValueError) as exc:
             self.say(M.SHEET_FAILED.format(error=exc))
             return False
@@ -1063,3 +1339,18 @@ class MainWindow(QMainWindow):
 
 def _headless() -> bool:
     return QApplication.platformName() in ("offscreen", "minimal")
+
+
+def _in_samples(folder: str) -> bool:
+    """True when ``folder`` is (inside) the folder of the bundled sample reviews."""
+    from ..paths import sample_reviews
+
+    try:
+        samples = sample_reviews()
+    except OSError:
+        return False
+    if not samples or not folder:
+        return False
+    here = os.path.normcase(os.path.realpath(folder))
+    home = os.path.normcase(os.path.realpath(samples[0].parent))
+    return here == home or here.startswith(home + os.sep)

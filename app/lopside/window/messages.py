@@ -27,14 +27,16 @@ POWER_EXPLAIN = (
 UNSAVED_TITLE = "Unsaved changes"
 UNSAVED_TEXT = "“{name}” has changes that are not saved. Save them before closing?"
 RECOVER_TITLE = "Recover unsaved work"
-RECOVER_TEXT = (
-    "Lopside did not close normally last time. Unsaved work on “{name}” (autosaved {when}) "
-    "can be recovered. Recover it now?"
-)
 RECOVERED = "Recovered the autosaved work on “{name}”. Save it to keep it."
+RECOVERED_CHANGED = (
+    "Its autosave had been changed outside Lopside since it was written: check it before "
+    "relying on it."
+)
 OPEN_FAILED = "Could not open {name}: {error}"
 SAVE_FAILED = "Could not save {name}: {error}"
 SAVED = "Saved {name}."
+AUTOSAVE_FAILED = "Autosave failed: {error}. Save the review to keep your changes."
+ANALYSING = "Analysing\u2026"
 ASK_MEASURE = (
     "The rows in {name} give effect estimates but do not say which measure they are. "
     "Which measure did the paper use?"
@@ -126,3 +128,49 @@ PDF_STATUS = (
 PDF_FAILED = "The PDF could not be read ({error})."
 PDF_READING = "Reading the PDF's pages…"
 PDF_FROM = "{rows} rows from page(s) {pages} of {name} were added."
+
+# ---------------------------------------------------------------- never silent, never lost
+
+ERROR_TITLE = "Something went wrong"
+ERROR_TEXT = (
+    "Lopside met an unexpected error: {summary}\n\nYour review is still open (unsaved "
+    "work is autosaved). The report below was also written to {log}. Copy it and send it with a "
+    "few words on what you were doing."
+)
+ERROR_NO_LOG = "no log file (the log folder could not be written)"
+VIEW_FAILED = (
+    "This view could not be shown ({error}). The error report was written to {log}. "
+    "The other views and your review are not affected."
+)
+SAVE_FAILED_TITLE = "Not saved"
+SAVE_FAILED_TEXT = (
+    "“{name}” could not be saved: {error}\n\nYour work is still open (and autosaved). "
+    "Save it somewhere else?"
+)
+SAVE_ELSEWHERE = "Save &elsewhere\u2026"
+READ_ONLY_SAMPLE = "a sample review (invented): save it under a name of your own"
+READ_ONLY_CHANGED = "changed outside Lopside: read-only until you save it"
+READ_ONLY_TITLE = "{name} (read-only)"
+SAMPLE_FOLDER_REFUSED = (
+    "The sample reviews are part of Lopside and are not saved over; choose a folder of your own."
+)
+CHANGED_OUTSIDE_TITLE = "Changed outside Lopside"
+CHANGED_OUTSIDE_TEXT = (
+    "{name} was changed outside Lopside since it was last saved: its content no longer "
+    "matches the checksum Lopside wrote into it (edited by hand, a sync tool, or a damaged "
+    "disk).\n\nOpen it anyway? It opens read-only: Save asks for a name, so the file on "
+    "disk stays as it is until you choose."
+)
+EXPORT_IS_INPUT = "{name} is the review being appraised; choose another name for the export."
+EXPORT_LOCKED_TITLE = "File in use"
+EXPORT_LOCKED_TEXT = "{error}\n\nWrite the sheet to {suggestion} instead?"
+RECOVER_FAILED = (
+    "Could not recover “{name}”: {error}. The autosave is kept at {path}; it is offered "
+    "again at the next start."
+)
+RECOVER_INTRO = (
+    "Lopside did not close normally last time. The unsaved work below was autosaved. Tick "
+    "what to restore (each opens in its own window); nothing is deleted unless you choose "
+    "Discard."
+)
+RECOVER_DISCARD_CONFIRM = "Discard the ticked autosaves for good? This cannot be undone."

@@ -119,8 +119,18 @@ class FigurePanel(QWidget):
             self._show_message(M.NOT_AVAILABLE.format(part=exc.name))
             return
         except ValueError as exc:  # FigureInputError: nothing to plot, with the reason
-            self._show_message(str(exc))
+            text = str(exc)
+            self._show_message(text[:1].upper() + text[1:])
             self._last_key = key
+            return
+        except Exception as exc:  # noqa: BLE001 - say so in place of stale content
+            from .guards import report_exception
+
+            log = report_exception(exc, f"the {self.objectName()} view")
+            self._show_message(
+                M.VIEW_FAILED.format(error=f"{type(exc).__name__}: {exc}", log=log or "-")
+            )
+            self._last_key = None
             return
         if ok is False:
             return
@@ -139,6 +149,29 @@ class FigurePanel(QWidget):
     def _show_message(self, text: str) -> None:
         self.message.setText(text)
         self._stack.setCurrentWidget(self.message)
+
+    def show_message(self, text: str) -> None:
+        """Show ``text`` instead of the figure (until the next result)."""
+        self.result = None
+        self._last_key = None
+        self._pending = False
+        self._show_message(text)
+
+    def reset(self) -> None:
+        """The review changed completely: forget the figure and everything drawn on it.
+
+        The figure is cleared, so a panel that keeps artists between draws must build
+        them again on its next draw (``_last_key`` is None after this).
+        """
+        self.result = None
+        self._last_key = None
+        self._pending = False
+        self.artists = {}
+        if hasattr(self, "_points"):
+            self._points = []
+        if self.figure is not None:
+            self.figure.clear()
+        self._show_message(M.ANALYSING)
 
     def showing_figure(self) -> bool:
         return self.canvas is not None and self._stack.currentWidget() is self.canvas
@@ -619,6 +652,15 @@ class BuiltFigurePanel(FigurePanel):
         self.scroll.setAccessibleName(f"{self.objectName()} figure")
         self._stack.addWidget(self.scroll)
         self.canvas = self.scroll  # what showing_figure() looks for
+
+    def reset(self) -> None:
+        super().reset()
+        if self.canvas is not None:
+            old = self.scroll.takeWidget()
+            if old is not None:
+                old.deleteLater()
+            self.figure = None
+            self.figure_canvas = None
 
     def set_figure(self, fig) -> None:
         from matplotlib.backends.backend_qtagg import FigureCanvasQTAgg

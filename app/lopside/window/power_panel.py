@@ -118,6 +118,18 @@ class PowerPanel(QWidget):
             if self.worker is None or not self.worker.isRunning():
                 self.state.setText("")
 
+    def show_message(self, text: str) -> None:
+        self.sections.show_message(text)
+
+    def reset(self) -> None:
+        """The review changed completely: no progress, no state, no old result."""
+        if self.worker is not None and self.worker.isRunning():
+            self.worker.cancel()  # its result would be dropped anyway (another review)
+        self.bar.setRange(0, 100)
+        self.bar.setValue(0)
+        self.state.setText("")
+        self.sections.reset()
+
     def shutdown(self) -> None:
         """Stop a running simulation before the window closes."""
         if self.worker is not None and self.worker.isRunning():

@@ -66,7 +66,8 @@ class Prefs:
         return self.get_list(RECENT_FILES)
 
     def add_recent(self, path: str | os.PathLike) -> list[str]:
-        p = str(Path(path).resolve())
+        # absolute but not resolved: resolve() turns a mapped drive (H:\) into a UNC path
+        p = os.path.abspath(path)
         items = [x for x in self.recent_files() if x != p]
         items.insert(0, p)
         items = items[:MAX_RECENT]

@@ -121,6 +121,13 @@ class SectionsPanel(QWidget):
         self._shown_for = None
         self._set(f"<p class='na'>{html.escape(text)}</p>")
 
+    def reset(self) -> None:
+        """The review changed completely: empty, and back to the top."""
+        self._shown_for = None
+        self._set(f"<p>{html.escape(M.ANALYSING)}</p>")
+        self.browser.verticalScrollBar().setValue(0)
+        self.browser.horizontalScrollBar().setValue(0)
+
     def _set(self, body: str) -> None:
         if body == self.html:
             return

@@ -9,6 +9,7 @@ the session: ``mergeWith`` says yes exactly when the session merged the edit.
 
 from __future__ import annotations
 
+from PySide6.QtCore import Signal
 from PySide6.QtGui import QUndoCommand, QUndoStack
 
 from .. import edits as ed
@@ -52,7 +53,13 @@ class EditCommand(QUndoCommand):
 
 
 class EditStack(QUndoStack):
-    """The window's undo stack; ``push_edit`` is how every view changes the review."""
+    """The window's undo stack; ``push_edit`` is how every view changes the review.
+
+    ``refused(message)`` is emitted when an edit does not fit (nothing changed), so the
+    window can say why.
+    """
+
+    refused = Signal(str)
 
     def __init__(self, session: Session, parent=None) -> None:
         super().__init__(parent)
@@ -64,6 +71,8 @@ class EditStack(QUndoStack):
         cmd = EditCommand(self.session, edit)
         self.push(cmd)
         self.last_error = cmd.error
+        if cmd.error:
+            self.refused.emit(cmd.error)
         return not cmd.error
 
     def push_many(self, label: str, edits: list[ed.Edit]) -> bool:

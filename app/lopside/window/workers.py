@@ -127,6 +127,8 @@ class SheetWorker(QThread):
         self.result = result
         self.path = Path(path)
         self.include_forest = include_forest
+        #: the exception when writing failed (an OutputLocked offers another name)
+        self.error: Exception | None = None
 
     def run(self) -> None:
         try:
@@ -137,6 +139,7 @@ class SheetWorker(QThread):
             self.failed.emit(f"the sheet part ({exc.name}) is missing from this build")
             return
         except OSError as exc:
+            self.error = exc
             self.failed.emit(f"{self.path.name}: {exc.strerror or exc}")
             return
         except Exception as exc:  # noqa: BLE001 - reported to the user, never a crash
