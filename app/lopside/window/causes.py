@@ -208,6 +208,7 @@ class CausesPanel(QScrollArea):
         self._appraisal_for = None
         self.appraisal = None
         self.reading.setText(html.escape(text))
+        self.claim_box.setVisible(False)  # no result: no comparison with the review's claim
         for ev in self.evidence.values():
             ev.setText("\u2013")
         self.suggested.setText("\u2013")
