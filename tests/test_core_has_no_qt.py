@@ -24,6 +24,11 @@ CORE = [
     "lopside.appraise",
     "lopside.sheet",
     "lopside.summary",
+    "lopside.words.numbers",
+    "lopside.words.rows",
+    "lopside.words.sentences",
+    "lopside.assessment",
+    "lopside.contradictions",
 ]
 
 
@@ -44,6 +49,9 @@ def test_core_imports_without_qt():
         from lopside.cli_common import load_review_file
         review, _ = load_review_file(sample_reviews()[0])
         a.analyse(review)
+        from lopside.assessment import assess
+        from lopside.report import to_json
+        to_json(assess(review))
         assert not any(k.startswith('PySide6') for k in sys.modules)
         print('ok')
         """

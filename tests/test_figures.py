@@ -519,7 +519,10 @@ def test_forest_text_columns_are_aligned_and_labels_fit():
     fig = forest_figure(rows, pooled, ForestOptions("OR", size="column"))
     art = fig.lopside_artists
     r = _renderer(fig)
-    (x_est, w_est), (x_ci, _), (x_w, w_w) = art["layout"]["columns"]
+    cols = art["layout"]["columns"]
+    (x_est, w_est) = cols[0]
+    # at column width the weights may give way to the plot (the squares' area shows them)
+    assert len(cols) == 3 or art["layout"]["dropped"] == ["Weight"]
     dpi = fig.dpi
     est_right = []
     for texts in art["texts"]:

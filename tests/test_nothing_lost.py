@@ -318,7 +318,10 @@ def test_autosave_starts_soon_after_the_first_edit_while_typing_goes_on(make_win
     assert saver.timer.isActive()
     qtbot.wait(600)
     w.stack.push_edit(ed.SetCell(0, "study", "ab"))  # typing does not push it back
-    assert saver.timer.isActive() and saver.timer.remainingTime() <= 2000 - 400
+    # on a loaded machine the wait may outlast the timer: then the autosave is already done
+    assert saver.file.exists() or (
+        saver.timer.isActive() and saver.timer.remainingTime() <= 2000 - 400
+    )
     qtbot.waitUntil(saver.file.exists, timeout=5000)
 
 

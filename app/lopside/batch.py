@@ -221,13 +221,13 @@ def outcomes_of(review, path: Path) -> list[tuple[str, Any]]:
 
 
 def _analyse_outcome(file, outcome, review, settings, sha, options) -> dict[str, Any]:
-    from .analysis import analyse
-    from .appraise import appraise
+    from .assessment import assess
     from .outcome_row import outcome_row
 
     try:
-        result = analyse(review, settings)
-        appraisal = appraise(result)
+        # one assessment: the row and the sheet read the same numbers and reading
+        assessment = assess(review, settings)
+        result, appraisal = assessment.analysis, assessment.appraisal
         row = dict.fromkeys(BATCH_COLUMNS)
         row.update(outcome_row(result, appraisal, outcome))
     except Exception as exc:  # noqa: BLE001 - an analysis failure is a row, not a stop
@@ -251,7 +251,7 @@ def _analyse_outcome(file, outcome, review, settings, sha, options) -> dict[str,
         try:
             if os.path.abspath(target) == os.path.abspath(file):
                 raise OSError("the sheet would replace its own input")
-            write_sheet(result, target)
+            write_sheet(assessment, target)
         except OSError as exc:
             row["message"] = _one_line(
                 f"sheet not written: {target} ({getattr(exc, 'strerror', None) or exc})"

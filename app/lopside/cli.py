@@ -326,7 +326,7 @@ _load = load_input
 
 
 def cmd_check(args) -> int:
-    from .analysis import analyse
+    from .assessment import assess
     from .cli_common import INPUT_ERRORS
 
     try:
@@ -336,7 +336,8 @@ def cmd_check(args) -> int:
     except UnreadInput as exc:
         return _unread(exc)
     progress = _progress_for(args, review)
-    result = analyse(
+    # one assessment (numbers and reading) feeds the text and the JSON alike
+    assessment = assess(
         review,
         settings,
         with_power=args.power,
@@ -350,12 +351,12 @@ def cmd_check(args) -> int:
     if args.json:
         from .report import to_json
 
-        text = json.dumps(to_json(result), indent=2, ensure_ascii=False, allow_nan=False)
+        text = json.dumps(to_json(assessment), indent=2, ensure_ascii=False, allow_nan=False)
         text += "\n"
     else:
         from .summary import text_summary
 
-        text = text_summary(result)
+        text = text_summary(assessment)
     sys.stdout.write(text)
     sys.stdout.flush()
     return 0
@@ -395,15 +396,15 @@ def cmd_sheet(args) -> int:
         return _unread(exc)
     if args.appraiser:
         review = review.with_details(appraiser=args.appraiser)
-    from .analysis import analyse
+    from .assessment import assess
     from .sheet import write_sheet
 
     progress = _progress_for(args, review)
-    result = analyse(review, settings, with_power=args.power, progress=progress)
+    assessment = assess(review, settings, with_power=args.power, progress=progress)
     if progress:
         progress.done()
     try:
-        write_sheet(result, out, include_forest=args.include_forest)
+        write_sheet(assessment, out, include_forest=args.include_forest)
     except OutputLocked as exc:
         return _fail(f"-o {out}: {exc}")
     except OSError as exc:
@@ -524,7 +525,7 @@ def cmd_slide(args) -> int:
     from pathlib import Path
 
     from .analysis import analyse
-    from .appraise import appraise
+    from .assessment import assessment_of
     from .cli_common import INPUT_ERRORS
     from .panel.slide import write_slide
 
@@ -544,7 +545,7 @@ def cmd_slide(args) -> int:
         return _fail(f"{args.file}: has no outcome called '{args.outcome}' (it has '{name}').")
     result = analyse(review, settings)
     try:
-        write_slide(result, appraise(result), out, title=name)
+        write_slide(result, assessment_of(result).appraisal, out, title=name)
     except ValueError as exc:
         return _fail(f"{args.file}: {exc}.")
     except OSError as exc:

@@ -243,6 +243,89 @@ def unreported_json(res) -> dict[str, Any] | None:
     }
 
 
+#: How the intervals of I² and τ² are computed (the ``method`` of their JSON objects).
+I2_CI_METHOD = "Higgins & Thompson 2002 test-based interval for H, converted to I²"
+TAU2_CI_METHOD = "Q-profile (Viechtbauer 2007)"
+#: The two arcsine tests, each under its own key (``tests.arcsine`` is whichever ran).
+ARCSINE_VARIANTS = {
+    "arcsine_fixed": "fixed effect (Rücker et al. 2008, t test)",
+    "arcsine_random": "random effects (Thompson & Sharp 1999, z test)",
+}
+
+
+def _with_method(ci, method: str):
+    out = plain(ci)
+    if isinstance(out, dict):
+        out["method"] = method
+    return out
+
+
+def _begg_p_method(t) -> str:
+    note = (getattr(t, "method_note", "") or "").lower()
+    return "exact" if note.startswith("exact") else "normal approximation"
+
+
+def appraisal_json(assessment) -> dict[str, Any]:
+    """The reading: rating, whether the data allow one, and every evidence line.
+
+    ``evidence`` is exactly what the window's Causes view and the sheet's explanations
+    table show (same items, same order, same sentences); ``page_one`` is the sheet's
+    first-page box, line for line.
+    """
+    from .summary import glance_section
+
+    a = assessment.appraisal
+    r = a.rating
+    strongest = a.strongest_alternative
+    ss = a.small_study
+    adj = ss.adjustments
+    return {
+        "rating": r.suggested,
+        "assessable": bool(r.assessable),
+        "leaning": r.leaning,
+        "reasons": list(r.reasons),
+        "appraiser_rating": r.override or None,
+        "appraiser_reason": r.override_reason,
+        "final_rating": r.final,
+        "note": r.note,
+        "evidence": [e.to_dict() for e in a.evidence],
+        "causes": [
+            {
+                "cause": c.key,
+                "title": c.title,
+                "leaning": c.leaning,
+                "what_to_check": c.what_to_check,
+                "appraiser_judgement": c.judgement,
+                "appraiser_notes": c.notes,
+            }
+            for c in a.causes
+        ],
+        "strongest_alternative": None
+        if strongest is None
+        else {"cause": strongest[0].key, "title": strongest[0].title, **strongest[1].to_dict()},
+        "funnel": {
+            "contour_verdict": ss.contour.verdict,
+            "k0": ss.contour.k0,
+            "side": ss.contour.side,
+            "test": ss.test.key or None,
+            "test_p": _num(ss.test.pvalue),
+            "test_signal": ss.test.signal,
+            "adjustments": {
+                "methods": [n for n, _e in adj.estimates],
+                "estimates": [_num(e) for _n, e in adj.estimates],
+                "towards_null": adj.towards_null,
+                "away_from_null": adj.away,
+                "hardly_move": adj.little,
+                "crosses_null": adj.crosses_null,
+                "moves": adj.moves,
+            },
+            "lines": [{"label": lab, "text": t} for lab, t in ss.lines],
+        },
+        "page_one": [{"label": lab, "text": t} for lab, t in glance_section(assessment).rows],
+        "glossary": [{"term": t, "gloss": g} for t, g in a.glossary],
+    }
+
+
 def flagged_studies(result) -> list[dict[str, Any]]:
     """``flagged_studies``: each row worth checking, with every reason and its numbers.
 
@@ -290,7 +373,18 @@ def _influence(result) -> dict[str, Any] | None:
 
 
 def to_json(result) -> dict[str, Any]:
-    """The ``check --json`` object."""
+    """The ``check --json`` object.
+
+    Parameters
+    ----------
+    result : Assessment or AnalysisResult
+        An analysis alone is read through :func:`lopside.assessment.assessment_of`, so the
+        JSON always carries the same appraisal the sheet prints.
+    """
+    from .assessment import assessment_of
+
+    assessment = assessment_of(result)
+    result = assessment.analysis
     nc: dict[str, str] = {}
 
     def note(key: str, value):
@@ -335,8 +429,22 @@ def to_json(result) -> dict[str, Any]:
                 p=_num(t.pvalue),
             )
         elif key == "begg":
-            entry.update(tau=_num(t.statistic), z=_num(_get(t, "z")), p=_num(t.pvalue))
+            entry.update(
+                tau=_num(t.statistic),
+                z=_num(_get(t, "z")),
+                p=_num(t.pvalue),
+                p_method=_begg_p_method(t),
+            )
+        elif key == "arcsine":
+            random = "random" in (getattr(t, "name", "") or "").lower()
+            variant = "arcsine_random" if random else "arcsine_fixed"
+            entry["variant"] = variant
+            entry["variant_text"] = ARCSINE_VARIANTS[variant]
+            tests_out[variant] = entry
         tests_out[key] = entry
+    if "arcsine" in result.tests:
+        for variant in ARCSINE_VARIANTS:
+            tests_out.setdefault(variant, None)
     for key in ("egger", "begg", "harbord", "peters"):
         tests_out.setdefault(key, None)
     tf = note("trim_fill", result.trim_fill)
@@ -399,8 +507,10 @@ def to_json(result) -> dict[str, Any]:
             "i2": _num(het.i2),
             "tau2": _num(het.tau2),
             "h": _num(het.h),
-            "i2_ci": plain(het.i2_ci),
-            "tau2_ci": plain(het.tau2_ci),
+            "i2_ci": _with_method(het.i2_ci, I2_CI_METHOD),
+            "tau2_ci": _with_method(het.tau2_ci, TAU2_CI_METHOD),
+            "i2_ci_method": I2_CI_METHOD,
+            "tau2_ci_method": TAU2_CI_METHOD,
             "tau2_method": het.tau2_method,
         },
         "reconciliation": plain(result.reconciliation),
@@ -435,9 +545,47 @@ def to_json(result) -> dict[str, Any]:
     missing = unreported_json(result.unreported_trials)
     if missing is not None:
         out["unreported_trials"] = missing
+
+    out["trim_fill_range"] = _trim_fill_range_json(result)
+    out["published_heterogeneity"] = _published_het_json(result)
+    out["appraisal"] = appraisal_json(assessment)
     out["intake"] = intake_json(result.review)
     out["not_computable"] = nc
     return out
+
+
+def _trim_fill_range_json(result) -> dict[str, Any] | None:
+    from .words.sentences import trim_fill_range
+
+    rng = trim_fill_range(result)
+    if rng is None:
+        return None
+    return {
+        "settings": rng.n,
+        "k0_low": rng.k0_low,
+        "k0_high": rng.k0_high,
+        "estimate_low": _num(rng.est_low),
+        "estimate_high": _num(rng.est_high),
+        "intervals_including_null": rng.crosses,
+        "agree": rng.agree,
+        "sentence": rng.text,
+    }
+
+
+def _published_het_json(result) -> dict[str, Any] | None:
+    """The paper's I² (pasted heterogeneity line) against the rows' I², or None."""
+    from .words.sentences import HET_AGREE_POINTS, heterogeneity_reconciled
+
+    pub = result.review.details.published.i2
+    het = result.heterogeneity
+    if pub is None or isinstance(het, NotComputable) or _num(het.i2) is None:
+        return None
+    return {
+        "published_i2": _num(pub),
+        "computed_i2": _num(het.i2),
+        "agree": abs(pub - het.i2) <= HET_AGREE_POINTS,
+        "sentence": heterogeneity_reconciled(pub, het.i2),
+    }
 
 
 def intake_json(review) -> dict[str, Any]:

@@ -354,6 +354,17 @@ class Session:
             result = replace(result, review=self._review)
         return result
 
+    def assess(self):
+        """The assessment (analysis and its reading) of the current review.
+
+        The analysis comes from :meth:`analyse` (cached); the reading is computed once per
+        analysis by :func:`lopside.assessment.assessment_of`. Window, sheet and scripts read
+        this one object.
+        """
+        from .assessment import assessment_of
+
+        return assessment_of(self.analyse())
+
     def analyse_core(self):
         """The core stage of the current state (effects, pooling, tests, trim and fill),
         kept until the full analysis of that state arrives."""
@@ -408,7 +419,7 @@ class Session:
         from .sheet import write_sheet
 
         out = Path(path)
-        write_sheet(self.analyse(), out, include_forest=include_forest)
+        write_sheet(self.assess(), out, include_forest=include_forest)
         return out
 
 

@@ -18,7 +18,6 @@ This module imports no Qt and nothing heavy at import time.
 
 from __future__ import annotations
 
-import math
 import textwrap
 from dataclasses import dataclass
 from typing import Any
@@ -26,249 +25,47 @@ from typing import Any
 from .model.review import MEASURE_NAMES, RATIO_MEASURES
 from .stats.results import NotComputable, PooledEstimate
 
-MINUS = "\u2212"
-DASH = "\u2013"
-#: Shown where a value is absent (not a number the engine produced).
-MISSING = DASH
+# Number formatting and the small predicates live in the floor module lopside.words; they
+# are re-exported here so that code importing them from summary keeps working.
+from .words.numbers import (  # noqa: F401 - re-exported
+    DASH,
+    MINUS,
+    MISSING,
+    MODEL_NAMES,
+    SHORT_MEASURE,
+    _lower_first,
+    _minus,
+    fmt_ci,
+    fmt_df,
+    fmt_effect,
+    fmt_effect_ci,
+    fmt_int,
+    fmt_num,
+    fmt_p,
+    fmt_p_eq,
+    fmt_pct,
+    fmt_se,
+    fmt_share,
+    fmt_stat,
+    fmt_tau2,
+    is_finite,
+    is_ok,
+    measure_word,
+    model_name,
+    plural,
+    pooled_text,
+    why_not,
+)
+from .words.rows import _test_result_text, adjustment_rows, recommended_key  # noqa: F401
+from .words.sentences import (
+    heterogeneity_reconciled,
+    rule_detail,
+    spread_text,
+    trim_fill_range,
+)
+
 #: How many list items (problem rows, excluded studies) a section shows before "and N more".
 LIST_LIMIT = 6
-
-#: Plain names of the pooling models (keys used by the engine).
-MODEL_NAMES: dict[str, str] = {
-    "FE-IV": "Fixed effect (inverse variance)",
-    "MH": "Fixed effect (Mantel-Haenszel)",
-    "Peto": "Fixed effect (Peto)",
-    "DL": "Random effects, DerSimonian-Laird τ²",
-    "PM": "Random effects, Paule-Mandel τ²",
-    "REML": "Random effects, REML τ²",
-}
-SHORT_MEASURE: dict[str, str] = {
-    "OR": "odds ratio",
-    "RR": "risk ratio",
-    "HR": "hazard ratio",
-    "RD": "risk difference",
-    "MD": "mean difference",
-    "SMD": "SMD",
-}
-
-# --------------------------------------------------------------------------------------
-# Number formatting: the one place
-
-
-def is_finite(x: Any) -> bool:
-    if x is None or isinstance(x, bool):
-        return False
-    try:
-        return math.isfinite(float(x))
-    except (TypeError, ValueError):
-        return False
-
-
-def _minus(s: str) -> str:
-    """True minus sign; "-0.00" becomes "0.00" (it would read as a negative effect)."""
-    if s.startswith("-"):
-        body = s[1:]
-        try:
-            if float(body.replace(",", "")) == 0.0:
-                return body
-        except ValueError:
-            pass
-        return MINUS + body
-    return s
-
-
-def fmt_num(x: Any, digits: int = 2) -> str:
-    """A number with fixed decimals and a true minus sign; "–" when absent or not finite.
-
-    Parameters
-    ----------
-    x : float or None
-    digits : int
-        Decimals.
-
-    Returns
-    -------
-    str
-    """
-    if not is_finite(x):
-        return MISSING
-    return _minus(f"{float(x):.{digits}f}")
-
-
-def fmt_int(x: Any) -> str:
-    """A whole number with thousands separators ("1,820")."""
-    if not is_finite(x):
-        return MISSING
-    return _minus(f"{int(round(float(x))):,}")
-
-
-def fmt_effect(x: Any, measure: str, digits: int | None = None) -> str:
-    """An effect given on the analysis scale, printed on the natural scale.
-
-    Ratio measures (OR, RR, HR) are exponentiated and shown with 2 decimals (3 significant
-    digits below 0.1, no decimals from 100 up, so that tiny or huge ratios are not shown as
-    0.00 or 1234.57). Risk differences get 3 decimals, other measures 2.
-
-    Parameters
-    ----------
-    x : float or None
-        Value on the analysis scale (natural log for ratio measures).
-    measure : str
-        "OR", "RR", "HR", "RD", "MD" or "SMD".
-    digits : int, optional
-        Override the number of decimals.
-
-    Returns
-    -------
-    str
-    """
-    if not is_finite(x):
-        return MISSING
-    x = float(x)
-    if measure in RATIO_MEASURES:
-        try:
-            v = math.exp(x)
-        except OverflowError:
-            return "> 10^300"
-        if digits is not None:
-            return fmt_num(v, digits)
-        if v >= 100:
-            return fmt_int(v)
-        if v < 0.1:
-            return f"{v:.2g}" if v >= 1e-4 else f"{v:.1e}"
-        return fmt_num(v, 2)
-    if digits is None:
-        digits = 3 if measure == "RD" else 2
-    return fmt_num(x, digits)
-
-
-def fmt_ci(lo: Any, hi: Any, measure: str) -> str:
-    """An interval on the natural scale: "0.62 to 0.91" ("to" never clashes with a minus)."""
-    if not (is_finite(lo) and is_finite(hi)):
-        return MISSING
-    return f"{fmt_effect(lo, measure)} to {fmt_effect(hi, measure)}"
-
-
-def fmt_effect_ci(est: Any, lo: Any, hi: Any, measure: str) -> str:
-    """ "0.62 (0.50 to 0.77)"."""
-    if not is_finite(est):
-        return MISSING
-    if not (is_finite(lo) and is_finite(hi)):
-        return fmt_effect(est, measure)
-    return f"{fmt_effect(est, measure)} ({fmt_ci(lo, hi, measure)})"
-
-
-def fmt_p(p: Any) -> str:
-    """A p-value: 3 decimals, "< 0.001" below that, "–" when absent."""
-    if not is_finite(p):
-        return MISSING
-    p = float(p)
-    if p < 0.001:
-        return "< 0.001"
-    if p > 0.999:
-        return "> 0.999"
-    return f"{p:.3f}"
-
-
-def fmt_p_eq(p: Any) -> str:
-    """ "p = 0.034" or "p < 0.001" (for running text)."""
-    s = fmt_p(p)
-    if s[0] in "<>":
-        return f"p {s}"
-    return f"p = {s}"
-
-
-def fmt_pct(x: Any, digits: int = 0) -> str:
-    """A percentage given in percent units (I² = 45.2 -> "45%")."""
-    if not is_finite(x):
-        return MISSING
-    return f"{fmt_num(x, digits)}%"
-
-
-def fmt_share(x: Any, digits: int = 0) -> str:
-    """A proportion (0-1) as a percentage (0.42 -> "42%")."""
-    if not is_finite(x):
-        return MISSING
-    return fmt_pct(100.0 * float(x), digits)
-
-
-def fmt_tau2(x: Any) -> str:
-    """A between-study variance: 3 decimals, "0" when exactly zero, "< 0.001" when tiny."""
-    if not is_finite(x):
-        return MISSING
-    x = float(x)
-    if x == 0.0:
-        return "0"
-    if abs(x) < 0.001:
-        return "< 0.001"
-    if abs(x) >= 100:
-        return fmt_num(x, 0)
-    return fmt_num(x, 3)
-
-
-def fmt_se(x: Any) -> str:
-    """A standard error (analysis scale): 3 significant digits."""
-    if not is_finite(x):
-        return MISSING
-    x = float(x)
-    if x >= 100:
-        return fmt_num(x, 0)
-    if x < 0.001:
-        return _minus(f"{x:.2g}")
-    # three decimals below 1 so that a column of SEs lines up ("0.100 to 0.180")
-    return fmt_num(x, 3) if x < 1 else fmt_num(x, 2)
-
-
-def fmt_stat(x: Any, digits: int = 2) -> str:
-    """A test statistic (t, z, tau, Q)."""
-    return fmt_num(x, digits)
-
-
-def fmt_df(df: Any) -> str:
-    if not is_finite(df):
-        return MISSING
-    d = float(df)
-    return f"{int(d)}" if d == int(d) else fmt_num(d, 1)
-
-
-def plural(n: int, one: str, many: str | None = None) -> str:
-    """ "1 study", "3 studies"."""
-    return f"{n} {one if n == 1 else (many or one + 's')}"
-
-
-def measure_word(measure: str) -> str:
-    return SHORT_MEASURE.get(measure, measure)
-
-
-def is_ok(x: Any) -> bool:
-    """A usable engine result (not None, not NotComputable)."""
-    return x is not None and not isinstance(x, NotComputable)
-
-
-def why_not(x: Any, default: str = "not computed") -> str:
-    """The reason a result is missing, in words."""
-    if isinstance(x, NotComputable):
-        return x.reason
-    return default
-
-
-def pooled_text(p: PooledEstimate | Any, measure: str) -> str:
-    """ "0.62 (0.50 to 0.77)" for a pooled estimate, or the reason it is missing."""
-    if not isinstance(p, PooledEstimate):
-        return why_not(p)
-    return fmt_effect_ci(p.estimate, p.ci.low, p.ci.high, measure)
-
-
-def _lower_first(s: str) -> str:
-    return s[:1].lower() + s[1:]
-
-
-def model_name(key: str, hksj: bool = False) -> str:
-    base = MODEL_NAMES.get(key.removesuffix("+HKSJ"), key)
-    if hksj or key.endswith("+HKSJ"):
-        base += ", Hartung-Knapp interval"
-    return base
-
 
 # --------------------------------------------------------------------------------------
 # Sections
@@ -322,7 +119,7 @@ def header_section(result, *, date: str = "") -> Section:
         ("Review", d.title or "(untitled review)"),
         ("Question", d.question or "(not stated)"),
         ("Outcome", d.outcome or "(not stated)"),
-        ("Effect measure", measure),
+        ("Effect measure", measure + (f"; units: {d.units}" if d.units else "")),
         ("Favours intervention", favours_text(d)),
         ("Appraiser", d.appraiser or "(not stated)"),
     ]
@@ -438,7 +235,8 @@ def data_section(result) -> Section:
     ses = [float(x) for x in data.se if is_finite(x)]
     if ses:
         lo, hi = min(ses), max(ses)
-        ratio = f"; largest is {fmt_num(hi / lo, 1)} times the smallest" if lo > 0 else ""
+        spread = spread_text(lo, hi)
+        ratio = f"; {spread}" if spread else ""
         scale = " (log scale)" if result.measure in RATIO_MEASURES else ""
         rows.append(("Standard errors" + scale, f"{fmt_se(lo)} to {fmt_se(hi)}{ratio}"))
     routes = _route_counts(result)
@@ -490,11 +288,12 @@ def reconciliation_section(result) -> Section:
     m = result.measure
     rec = result.reconciliation
     pub = result.review.details.published
+    het_row = _published_heterogeneity_row(result)
     if not is_ok(rec):
         return Section(
             "reconciliation",
             "Check against the published result",
-            (("Published result", why_not(rec)),),
+            (("Published result", why_not(rec)),) + het_row,
             notes=(
                 "Enter the review's pooled estimate and CI to check that your rows reproduce it.",
             ),
@@ -514,7 +313,7 @@ def reconciliation_section(result) -> Section:
                 "Closest model",
                 f"{model_name(best.model)}: "
                 f"{fmt_effect_ci(best.estimate, best.ci_low, best.ci_high, m)}, "
-                f"largest difference {fmt_share(best.worst, 1)}",
+                f"largest difference (estimate or a CI limit) {fmt_share(best.worst, 1)}",
             )
         )
     verdict = {
@@ -528,7 +327,17 @@ def reconciliation_section(result) -> Section:
         rows.append(("Reading", rec.reading))
     for _row, label, why in rec.suspicious_rows:
         rows.append(("Re-check", f"{label}: {why}"))
+    rows.extend(het_row)
     return Section("reconciliation", "Check against the published result", tuple(rows))
+
+
+def _published_heterogeneity_row(result) -> tuple[tuple[str, str], ...]:
+    """The paper's I² (from a pasted heterogeneity line) against the rows' I²."""
+    pub_i2 = result.review.details.published.i2
+    het = result.heterogeneity
+    if pub_i2 is None or not is_ok(het):
+        return ()
+    return (("Heterogeneity", heterogeneity_reconciled(pub_i2, het.i2)),)
 
 
 def pooled_section(result) -> Section:
@@ -632,19 +441,6 @@ def heterogeneity_section(result) -> Section:
     return Section("heterogeneity", "Heterogeneity", rows, notes=notes)
 
 
-def _test_result_text(t) -> str:
-    if t.key == "begg" or t.tested == "tau":
-        return f"Kendall's τ = {fmt_stat(t.statistic)}"
-    if t.df is None:
-        return f"z = {fmt_stat(t.statistic)}"
-    return f"t = {fmt_stat(t.statistic)} ({fmt_df(t.df)} df)"
-
-
-def recommended_key(result) -> str | None:
-    rec = result.recommendation
-    return rec.key if is_ok(rec) else None
-
-
 def tests_section(result) -> Section:
     """All registered tests; the recommended one marked."""
     try:
@@ -719,7 +515,9 @@ tests_section.__test__ = False  # type: ignore[attr-defined]
 def applicability_section(result) -> Section:
     """When a test is worth reading (Ioannidis & Trikalinos 2007; Sterne et al. 2011)."""
     word = {True: "yes", False: "NO", None: "cannot tell"}
-    rows = tuple((r.title, word.get(r.met, str(r.met)), r.detail) for r in result.applicability)
+    rows = tuple(
+        (r.title, word.get(r.met, str(r.met)), rule_detail(r, result)) for r in result.applicability
+    )
     failed = [i for i, r in enumerate(result.applicability) if r.met is False]
     notes = (
         "Conditions for a meaningful test (Ioannidis & Trikalinos 2007; Sterne et al. 2011). "
@@ -734,66 +532,6 @@ def applicability_section(result) -> Section:
         emphasis=tuple(failed),
         widths=(2.2, 0.7, 4.0),
     )
-
-
-def adjustment_rows(result) -> list[tuple[str, Any, Any, Any, str]]:
-    """(method, estimate, low, high, note) on the analysis scale; estimate None if missing.
-
-    The single list the adjustments table and the appraisal's range both read.
-    """
-    out: list[tuple[str, Any, Any, Any, str]] = []
-    rnd = result.random
-    if isinstance(rnd, PooledEstimate):
-        out.append(
-            (
-                f"No adjustment ({_lower_first(model_name(rnd.model, rnd.hksj))})",
-                rnd.estimate,
-                rnd.ci.low,
-                rnd.ci.high,
-                "",
-            )
-        )
-    tf = result.trim_fill
-    if is_ok(tf):
-        adj = tf.adjusted
-        note = f"{plural(tf.k0, 'study', 'studies')} filled on the {tf.side}"
-        if not tf.converged:
-            note += "; did not settle"
-        out.append(
-            (
-                f"Trim and fill ({tf.estimator})",
-                adj.estimate if isinstance(adj, PooledEstimate) else None,
-                adj.ci.low if isinstance(adj, PooledEstimate) else None,
-                adj.ci.high if isinstance(adj, PooledEstimate) else None,
-                note,
-            )
-        )
-    else:
-        out.append(("Trim and fill", None, None, None, why_not(tf)))
-    pp = result.pet_peese
-    if is_ok(pp):
-        for name, c in (("PET", pp.pet), ("PEESE", pp.peese)):
-            chosen = " (reported by the PET-PEESE rule)" if pp.chosen == name else ""
-            out.append((name, c.estimate, c.ci.low, c.ci.high, chosen.strip(" ()")))
-    else:
-        out.append(("PET-PEESE", None, None, None, why_not(pp)))
-    lim = result.limit
-    if is_ok(lim):
-        out.append(("Limit meta-analysis", lim.estimate, lim.ci.low, lim.ci.high, lim.note))
-    else:
-        out.append(("Limit meta-analysis", None, None, None, why_not(lim)))
-    sel = result.selection
-    if is_ok(sel):
-        note = f"test of selection {fmt_p_eq(sel.lrt_pvalue)}"
-        if not sel.converged:
-            note += "; fit did not converge"
-        cuts = ", ".join(fmt_num(c, 3) for c in sel.cutpoints)
-        out.append(
-            (f"Selection model (cut at one-sided p {cuts})", sel.mu, sel.ci.low, sel.ci.high, note)
-        )
-    else:
-        out.append(("Selection model", None, None, None, why_not(sel)))
-    return out
 
 
 def adjustments_section(result) -> Section:
@@ -1177,6 +915,16 @@ def sensitivity_section(result) -> Section:
     return Section("sensitivity", "Leave one out and cumulative analysis", tuple(rows), notes=notes)
 
 
+#: below this many studies a test for funnel asymmetry has too little power to be read
+#: (Sterne et al. 2011, BMJ: at least 10 studies; the main test's conditions use the same)
+SMALL_SAMPLE_K = 10
+SMALL_SAMPLE_MARK = " \u2020"
+SMALL_SAMPLE_NOTE = (
+    "\u2020 Fewer than 10 studies in this group: Egger's test has little power and its "
+    "p value can mislead either way; read it as a hint at most (Sterne et al. 2011)."
+)
+
+
 def subgroups_section(result) -> Section | None:
     """Pooled results and Egger's slope within each level, with the meta-regression answer."""
     if not result.subgroups and not result.meta_regression:
@@ -1185,6 +933,7 @@ def subgroups_section(result) -> Section | None:
     rows: list[tuple[str, ...]] = []
     notes: list[str] = []
     names = {"risk_of_bias": "Risk of bias", "subgroup": "Subgroup"}
+    few_in_group = False
     for by, sg in result.subgroups.items():
         title = names.get(by, by)
         if not is_ok(sg):
@@ -1193,6 +942,9 @@ def subgroups_section(result) -> Section | None:
         for lv in sg.levels:
             eg = lv.egger
             eg_text = f"{fmt_p(eg.pvalue)}" if is_ok(eg) else "–"
+            if is_ok(eg) and lv.k < SMALL_SAMPLE_K:
+                eg_text += SMALL_SAMPLE_MARK
+                few_in_group = True
             rows.append(
                 (
                     f"{title}: {lv.level}",
@@ -1227,6 +979,8 @@ def subgroups_section(result) -> Section | None:
     notes.insert(
         0, "Egger p: Egger's test within the group; Difference: do the groups' effects differ?"
     )
+    if few_in_group:
+        notes.insert(1, SMALL_SAMPLE_NOTE)
     return Section(
         "subgroups",
         "Within subgroups",
@@ -1310,9 +1064,12 @@ def analysis_sections(result) -> tuple[Section, ...]:
         applicability_section(result),
         review_claim_section(result),
         adjustments_section(result),
-        selection_strength_section(result),
-        sensitivity_section(result),
     ]
+    tf = trim_fill_section(result)
+    if tf is not None:
+        out.append(tf)
+    out.append(selection_strength_section(result))
+    out.append(sensitivity_section(result))
     sg = subgroups_section(result)
     if sg is not None:
         out.append(sg)
@@ -1363,14 +1120,20 @@ def causes_section(appraisal) -> Section:
 def rating_section(appraisal) -> Section:
     """The suggested publication-bias rating, its reasons, and the appraiser's override."""
     r = appraisal.rating
-    rows = [("Suggested", r.suggested), ("Why", "\n".join(f"• {x}" for x in r.reasons))]
+    # reasons indented by two spaces are the lines under "Signals for publication bias:"
+    why = "\n".join(f"   – {x.strip()}" if x.startswith("  ") else f"• {x}" for x in r.reasons)
+    rows = [
+        ("Suggested", r.suggested),
+        ("Can the data support a rating?", "yes" if r.assessable else "no"),
+    ]
+    rows.append(("Why", why))
     if r.override:
         rows.append(("Appraiser's rating", r.override))
         rows.append(("Appraiser's reason", r.override_reason or "(no reason given)"))
     else:
         rows.append(("Appraiser's rating", "not recorded: confirm or override the suggestion"))
     # the rating that stands is the one a renderer should make stand out
-    final = 2 if r.override else 0
+    final = 3 if r.override else 0
     return Section(
         "rating",
         "Publication bias: suggested rating",
@@ -1384,14 +1147,160 @@ def appraisal_sections(appraisal) -> tuple[Section, ...]:
     return (small_study_section(appraisal), causes_section(appraisal), rating_section(appraisal))
 
 
-def all_sections(result, appraisal=None) -> tuple[Section, ...]:
-    """Every section in the order of the text summary."""
-    if appraisal is None:
-        from .appraise import appraise
+# --------------------------------------------------------------------------------------
+# Page one: the key messages (sheet page 1, the text's first block, JSON appraisal.page_one)
+#
+# Each line is one function (assessment) -> (label, text) or None (line left out). To add a
+# page-1 line, write such a function and append it to PAGE_ONE_LINES: the sheet, the text
+# and the JSON all pick it up, in that order.
 
-        appraisal = appraise(result)
+
+def _flagged_rows_line(assessment):
+    """Rows that stand out (stats.diagnostics): first, as a mistyped row changes every
+    reading after it."""
+    from .stats.diagnostics import HEADLINE, glance_text
+
+    text = glance_text(getattr(assessment.analysis, "row_flags", None))
+    return (HEADLINE, text) if text else None
+
+
+def _rating_line(assessment):
+    r = assessment.appraisal.rating
+    text = r.suggested
+    if not r.assessable:
+        text += " (" + r.reasons[0].removeprefix("The data cannot support a rating: ").rstrip(".")
+        text += "; signals point towards bias)" if r.leaning else ")"
+    if r.override:
+        text += f"; appraiser's rating: {r.override}"
+    else:
+        text += "; for the appraiser to confirm or override"
+    return ("Publication bias, suggested rating", text)
+
+
+def _funnel_line(assessment):
+    c = assessment.appraisal.small_study.contour
+    return ("Funnel", c.conclusion or c.text)
+
+
+def _test_line(assessment):
+    return ("Test", assessment.appraisal.small_study.test.text)
+
+
+def _power_line(assessment):
+    return ("Power of the test", assessment.appraisal.small_study.power_text)
+
+
+def _alternative_line(assessment):
+    best = assessment.appraisal.strongest_alternative
+    if best is None:
+        return (
+            "Strongest other explanation",
+            "None of the other explanations has support in this review's data; what the data "
+            "cannot show is listed with the explanations.",
+        )
+    cause, ev = best
+    return ("Strongest other explanation", f"{cause.title}: {ev.text}")
+
+
+def _adjusted_line(assessment):
+    return ("Adjusted estimates", assessment.appraisal.small_study.adjustments.text)
+
+
+def _trim_fill_line(assessment):
+    rng = trim_fill_range(assessment.analysis)
+    if rng is None or rng.n < 2 or rng.agree:
+        return None
+    return ("Trim and fill settings", rng.text)
+
+
+def _claim_line(assessment):
+    """The review's own claim about small-study effects, set beside this reading."""
+    sec = review_claim_section(assessment.analysis)
+    return None if sec is None else ("The review's own claim", sec.rows[-1][1])
+
+
+def _selection_needed_line(assessment):
+    """How strong selection would have to be (Mathur & VanderWeele 2020)."""
+    text = selection_sentence(assessment.analysis)
+    return None if not text else ("Selection needed", text)
+
+
+def _missing_trials_line(assessment):
+    text = missing_trials_sentence(assessment.analysis)
+    return None if not text else ("Trials never reported", text)
+
+
+PAGE_ONE_LINES = [
+    _flagged_rows_line,
+    _rating_line,
+    _funnel_line,
+    _test_line,
+    _power_line,
+    _alternative_line,
+    _adjusted_line,
+    _trim_fill_line,
+    _claim_line,
+    _selection_needed_line,
+    _missing_trials_line,
+]
+
+
+def glance_section(assessment) -> Section:
+    """The key messages: rating, funnel, test, power, strongest other explanation, range."""
+    from .assessment import assessment_of
+
+    assessment = assessment_of(assessment)
+    rows = []
+    for fn in PAGE_ONE_LINES:
+        line = fn(assessment)
+        if line is not None:
+            rows.append(line)
+    return Section("glance", "At a glance", tuple(rows))
+
+
+def trim_fill_section(result) -> Section | None:
+    """Trim and fill under each of its usual settings, the default marked (Peters et al. 2007)."""
+    rng = trim_fill_range(result)
+    if rng is None:
+        return None
+    m = result.measure
+    rows = tuple(
+        (
+            name + (" (default)" if default else ""),
+            str(k0),
+            fmt_effect(est, m),
+            fmt_ci(lo, hi, m),
+        )
+        for name, k0, est, lo, hi, default in rng.rows
+    )
+    emphasis = tuple(i for i, r in enumerate(rng.rows) if r[5])
+    return Section(
+        "trim_fill_settings",
+        "Trim and fill under each setting",
+        rows,
+        header=("Setting", "Filled", "Estimate", "95% CI"),
+        notes=(rng.text,),
+        emphasis=emphasis,
+        widths=(2.6, 0.7, 0.9, 1.5),
+    )
+
+
+def all_sections(result, appraisal=None) -> tuple[Section, ...]:
+    """Every section in the order of the text summary.
+
+    ``result`` may be an :class:`~lopside.assessment.Assessment` (preferred) or an
+    analysis, read through :func:`~lopside.assessment.assessment_of`; ``appraisal`` is
+    accepted for older callers and must be that analysis' appraisal.
+    """
+    from .assessment import assessment_of
+
+    assessment = assessment_of(result)
+    analysis = assessment.analysis
+    appraisal = appraisal or assessment.appraisal
     a = appraisal_sections(appraisal)
-    return (header_section(result),) + analysis_sections(result) + a
+    out = [header_section(analysis), glance_section(assessment)]
+    out += list(analysis_sections(analysis))
+    return tuple(out) + a
 
 
 # --------------------------------------------------------------------------------------
@@ -1489,7 +1398,7 @@ def text_summary(result, width: int = WIDTH) -> str:
 
     Parameters
     ----------
-    result : AnalysisResult
+    result : Assessment or AnalysisResult
     width : int
         Terminal columns to wrap to.
 
@@ -1499,10 +1408,13 @@ def text_summary(result, width: int = WIDTH) -> str:
         Text ending in a newline.
     """
     from . import CAUTION, __version__
+    from .assessment import assessment_of
 
+    assessment = assessment_of(result)
+    result = assessment.analysis
     title = f"Lopside {__version__}: small-study effects appraisal"
     out = [title, "=" * len(title), ""]
-    for sec in all_sections(result):
+    for sec in all_sections(assessment):
         out.append(render_text(sec, width))
         out.append("")
     out.append("Caution")

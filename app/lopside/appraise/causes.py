@@ -13,10 +13,11 @@ usual thresholds (p against the test threshold, I² against 25 % and 50 %).
 from __future__ import annotations
 
 import math
+from dataclasses import replace
 
 from ..model.review import CAUSE_TITLES, CAUSES
 from ..stats.results import PooledEstimate
-from ..summary import (
+from ..words.numbers import (
     fmt_ci,
     fmt_effect,
     fmt_num,
@@ -30,8 +31,15 @@ from ..summary import (
     pooled_text,
     why_not,
 )
+from ..words.sentences import (
+    HET_AGREE_POINTS,
+    heterogeneity_reconciled,
+    test_caution,
+    trim_fill_range,
+)
 from .glossary import Glossary
 from .model import CauseReading, Evidence, SmallStudyReading
+from .reading import CONTOUR_DIRECTION
 
 #: I² at or above which heterogeneity is called substantial (Ioannidis & Trikalinos 2007
 #: use 50 % as the limit for testing; Higgins et al. 2003 call 50 % moderate-to-high).
@@ -82,8 +90,13 @@ WHAT_TO_CHECK: dict[str, str] = {
 }
 
 
-def _ev(direction: str, text: str) -> Evidence:
-    return Evidence(direction, text)
+def _ev(direction: str, text: str, source: str = "", **numbers) -> Evidence:
+    """One evidence line; ``numbers`` are the unformatted values the sentence quotes."""
+    nums = tuple(
+        (k, (v if isinstance(v, int) else float(v)) if is_finite(v) else None)
+        for k, v in numbers.items()
+    )
+    return Evidence(direction, text, source, "", nums)
 
 
 def _alpha(result) -> float:
@@ -104,22 +117,20 @@ def _pooled_sign(result) -> float:
 def selection_evidence(result, ss: SmallStudyReading, g: Glossary) -> list[Evidence]:
     out: list[Evidence] = []
     c = ss.contour
-    verdict_dir = {
-        "non-significant": "for",
-        "significant": "against",
-        "mixed": "unclear",
-        "none filled": "against",
-        "not available": "unclear",
-    }
-    out.append(_ev(verdict_dir.get(c.verdict, "unclear"), c.conclusion or c.text))
+    out.append(
+        _ev(CONTOUR_DIRECTION.get(c.verdict, "unclear"), c.conclusion or c.text, "contour", k0=c.k0)
+    )
     t = ss.test
+    caution = test_caution(result.k)
     if t.computed:
         if t.signal and t.larger_in_small is not False:
             out.append(
                 _ev(
                     "for",
                     f"{t.name} finds the funnel lopsided ({fmt_p_eq(t.pvalue)}), as publication "
-                    "bias would, though other causes can too.",
+                    f"bias would, though other causes can too. {caution}",
+                    "test",
+                    p=t.pvalue,
                 )
             )
         elif t.signal:
@@ -128,21 +139,24 @@ def selection_evidence(result, ss: SmallStudyReading, g: Glossary) -> list[Evide
                     "against",
                     f"{t.name} finds small studies with smaller effects ({fmt_p_eq(t.pvalue)}): "
                     "the reverse of what selective publication of favourable results produces.",
+                    "test",
+                    p=t.pvalue,
                 )
             )
         else:
             out.append(
                 _ev(
                     "against",
-                    f"{t.name} finds no clear lean ({fmt_p_eq(t.pvalue)}); weak reassurance, as "
-                    "the test has little power.",
+                    f"{t.name} finds no clear lean ({fmt_p_eq(t.pvalue)}). {caution}",
+                    "test",
+                    p=t.pvalue,
                 )
             )
     else:
-        out.append(_ev("unclear", t.text))
+        out.append(_ev("unclear", t.text, "test"))
     a = ss.adjustments
+    m = result.measure
     if a.moves == "towards null":
-        m = result.measure
         rng = (
             f"{fmt_effect(a.low, m)} to {fmt_effect(a.high, m)}"
             if a.low != a.high
@@ -151,41 +165,39 @@ def selection_evidence(result, ss: SmallStudyReading, g: Glossary) -> list[Evide
         out.append(
             _ev(
                 "for",
-                f"Estimates adjusted for small-study effects move towards no effect ({rng}, "
-                f"against {fmt_effect(a.unadjusted, m)} unadjusted).",
+                f"{a.towards_null} of the {len(a.estimates)} adjusted estimates move towards no "
+                f"effect ({rng}, against {fmt_effect(a.unadjusted, m)} unadjusted).",
+                "adjustment",
+                towards=a.towards_null,
+                n=len(a.estimates),
             )
         )
     elif a.moves == "little":
-        out.append(_ev("against", "The adjusted estimates hardly differ from the unadjusted one."))
+        out.append(
+            _ev(
+                "against",
+                f"{a.little} of the {len(a.estimates)} adjusted estimates hardly differ from the "
+                "unadjusted one.",
+                "adjustment",
+                little=a.little,
+                n=len(a.estimates),
+            )
+        )
     elif a.moves in ("mixed", "away from null"):
         out.append(
-            _ev("unclear", "The adjustment methods disagree about the direction of any bias.")
+            _ev(
+                "unclear",
+                "The adjustment methods disagree about the direction of any bias.",
+                "adjustment",
+                n=len(a.estimates),
+            )
         )
-    sel = result.selection
-    if is_ok(sel) and is_finite(sel.lrt_pvalue):
-        w = sel.omega[1] if len(sel.omega) > 1 else None
-        wtxt = ""
-        if is_finite(w) and sel.lrt_pvalue < _alpha(result):
-            wtxt = (
-                f"; results with one-sided p above {fmt_num(sel.cutpoints[0], 3)} appear "
-                f"{fmt_num(w, 2)} times as likely to be published as those below it"
-            )
-        sm = g("selection model")
-        if sel.lrt_pvalue < _alpha(result):
-            out.append(
-                _ev(
-                    "for",
-                    f"The {sm} finds selection by significance ({fmt_p_eq(sel.lrt_pvalue)}{wtxt}).",
-                )
-            )
-        else:
-            out.append(
-                _ev(
-                    "unclear",
-                    f"The {sm} finds no clear selection by significance "
-                    f"({fmt_p_eq(sel.lrt_pvalue)}); its test is weak with few studies.",
-                )
-            )
+    sel_line = selection_model_evidence(result, g)
+    if sel_line is not None:
+        out.append(sel_line)
+    tf_line = trim_fill_variants_evidence(result)
+    if tf_line is not None:
+        out.append(tf_line)
     # issue 20: trials known to be missing, strength of selection needed, review's claim
     from .selection_items import selection_items
 
@@ -195,9 +207,72 @@ def selection_evidence(result, ss: SmallStudyReading, g: Glossary) -> list[Evide
             "unclear",
             "The numbers cannot show delayed publication, language or location bias, "
             "duplicate publication or selective outcome reporting.",
+            "not in the data",
         )
     )
     return out
+
+
+def selection_model_evidence(result, g: Glossary) -> Evidence | None:
+    """The selection model, read by the direction of its weights (Vevea & Hedges 1995).
+
+    The weight of the non-significant interval relative to the significant one says which
+    way any selection runs: below 1, non-significant results were less likely to be
+    published (the usual publication bias: "for"); above 1, more likely (selection against
+    significant results: "against" publication bias as usually meant).
+    """
+    sel = result.selection
+    if not (is_ok(sel) and is_finite(sel.lrt_pvalue)):
+        return None
+    alpha = _alpha(result)
+    w = sel.omega[1] if len(sel.omega) > 1 else None
+    sm = g("selection model")
+    p = sel.lrt_pvalue
+    caution = test_caution(result.k)
+    cut = fmt_num(sel.cutpoints[0], 3) if sel.cutpoints else ""
+    if p >= alpha or not is_finite(w):
+        return _ev(
+            "unclear",
+            f"The {sm} finds no clear selection by significance ({fmt_p_eq(p)}). {caution}",
+            "selection model",
+            p=p,
+            weight=w,
+        )
+    if w < 1:
+        rel = (
+            f"results with one-sided p above {cut} appear {fmt_num(w, 2)} times as likely to be "
+            "published as those below it"
+        )
+        return _ev(
+            "for",
+            f"The {sm} finds selection favouring significant results ({fmt_p_eq(p)}; {rel}). "
+            f"{caution}",
+            "selection model",
+            p=p,
+            weight=w,
+        )
+    rel = (
+        f"results with one-sided p above {cut} appear {fmt_num(w, 1)} times as likely to be "
+        "published as those below it"
+    )
+    return _ev(
+        "against",
+        f"The {sm} finds selection running the other way ({fmt_p_eq(p)}; {rel}): "
+        f"non-significant results were favoured, the reverse of publication bias. {caution}",
+        "selection model",
+        p=p,
+        weight=w,
+    )
+
+
+def trim_fill_variants_evidence(result) -> Evidence | None:
+    """Whether trim and fill's answer depends on its settings (Peters et al. 2007)."""
+    rng = trim_fill_range(result)
+    if rng is None or rng.n < 2:
+        return None
+    if rng.agree:
+        return None
+    return _ev("unclear", rng.text, "trim and fill", k0_low=rng.k0_low, k0_high=rng.k0_high)
 
 
 # --------------------------------------------------------------------------------------
@@ -241,10 +316,22 @@ def _se_slope_lines(mr, label: str, alpha: float, g: Glossary) -> list[Evidence]
         return []
     mreg = g("meta-regression")
     if not is_ok(mr):
-        return [_ev("unclear", f"A {mreg} with {label} could not be fitted: {why_not(mr)}.")]
+        return [
+            _ev(
+                "unclear",
+                f"A {mreg} with {label} could not be fitted: {why_not(mr)}.",
+                "meta-regression",
+            )
+        ]
     before, after = mr.se_without, mr.se_with
     if not (is_ok(before) and is_ok(after)):
-        return [_ev("unclear", f"{label.capitalize()} in a {mreg} with the SE: {mr.se_answer}")]
+        return [
+            _ev(
+                "unclear",
+                f"{label.capitalize()} in a {mreg} with the SE: {mr.se_answer}",
+                "meta-regression",
+            )
+        ]
     b, a = before.pvalue < alpha, after.pvalue < alpha
     kept = (
         after.estimate / before.estimate
@@ -264,7 +351,7 @@ def _se_slope_lines(mr, label: str, alpha: float, g: Glossary) -> list[Evidence]
     else:
         d, what = "unclear", "there is no clear slope to explain"
     few = " Few studies per covariate: unreliable." if mr.note else ""
-    return [_ev(d, f"With {label} in a {mreg}, {nums}: {what}.{few}")]
+    return [_ev(d, f"With {label} in a {mreg}, {nums}: {what}.{few}", "meta-regression")]
 
 
 def methods_evidence(result, ss: SmallStudyReading, g: Glossary) -> list[Evidence]:
@@ -278,6 +365,7 @@ def methods_evidence(result, ss: SmallStudyReading, g: Glossary) -> list[Evidenc
                 "unclear",
                 "No risk-of-bias ratings were entered, so the data here cannot show whether "
                 "smaller studies were less rigorous.",
+                "risk of bias",
             )
         )
         return out
@@ -286,6 +374,7 @@ def methods_evidence(result, ss: SmallStudyReading, g: Glossary) -> list[Evidenc
             _ev(
                 "unclear",
                 f"Risk of bias is recorded for {len(labels)} of {result.data.k} studies only.",
+                "risk of bias",
             )
         )
     levels = sorted(set(labels))
@@ -299,11 +388,18 @@ def methods_evidence(result, ss: SmallStudyReading, g: Glossary) -> list[Evidenc
                 f"Every rated study has the same risk of bias ({only}), so differences in "
                 "rigour cannot explain why small and large studies differ"
                 + ("." if d == "against" else " within this review; all share the same concerns."),
+                "risk of bias",
             )
         )
         return out
     if not is_ok(sg):
-        out.append(_ev("unclear", f"Risk-of-bias subgroups could not be analysed: {why_not(sg)}."))
+        out.append(
+            _ev(
+                "unclear",
+                f"Risk-of-bias subgroups could not be analysed: {why_not(sg)}.",
+                "risk of bias",
+            )
+        )
         return out
     lv = _level_map(sg)
     low = lv.get(ROB_LOW)
@@ -330,6 +426,8 @@ def methods_evidence(result, ss: SmallStudyReading, g: Glossary) -> list[Evidenc
                     d,
                     f"Studies {_rob_phrase(hi.level)} show {more} effect than those at low "
                     f"risk: {_est_k(hr, hi.k, m)} against {_est_k(lr, low.k, m)}{dtxt}.",
+                    "risk of bias",
+                    p=diff.pvalue if is_ok(diff) else None,
                 )
             )
     # the lean within levels
@@ -342,6 +440,7 @@ def methods_evidence(result, ss: SmallStudyReading, g: Glossary) -> list[Evidenc
                 _ev(
                     "unclear",
                     f"Too few low-risk studies ({low.k}) to test the lean among them alone.",
+                    "risk of bias",
                 )
             )
         elif p_low >= alpha and hi_sig:
@@ -351,6 +450,7 @@ def methods_evidence(result, ss: SmallStudyReading, g: Glossary) -> list[Evidenc
                     "The lean is confined to studies at higher risk of bias: Egger's slope "
                     + ", ".join(f"{lev} {fmt_p_eq(p)}" for lev, p in p_hi if p is not None)
                     + f"; low risk {fmt_p_eq(p_low)}.",
+                    "risk of bias",
                 )
             )
         elif p_low < alpha:
@@ -359,6 +459,7 @@ def methods_evidence(result, ss: SmallStudyReading, g: Glossary) -> list[Evidenc
                     "against",
                     f"The lean persists among studies at low risk of bias (Egger's slope "
                     f"{fmt_p_eq(p_low)}, {plural(low.k, 'study', 'studies')}).",
+                    "risk of bias",
                 )
             )
         else:
@@ -367,10 +468,13 @@ def methods_evidence(result, ss: SmallStudyReading, g: Glossary) -> list[Evidenc
                     "unclear",
                     f"No clear lean within any risk-of-bias level (low risk: Egger's slope "
                     f"{fmt_p_eq(p_low)}); subgroups are small, so this says little.",
+                    "risk of bias",
                 )
             )
     else:
-        out.append(_ev("unclear", "No study is rated at low risk of bias to compare with."))
+        out.append(
+            _ev("unclear", "No study is rated at low risk of bias to compare with.", "risk of bias")
+        )
     out.extend(
         _se_slope_lines(result.meta_regression.get("risk_of_bias"), "risk of bias", alpha, g)
     )
@@ -400,14 +504,35 @@ def heterogeneity_evidence(result, ss: SmallStudyReading, g: Glossary) -> list[E
                     f"Substantial heterogeneity: {nums}. Real differences between studies can "
                     "make a funnel lopsided, and they make the tests and trim and fill "
                     "unreliable (Terrin et al. 2003).",
+                    "heterogeneity",
+                    i2=het.i2,
                 )
             )
         elif het.i2 < I2_LOW:
-            out.append(_ev("against", f"Little heterogeneity: {nums}."))
+            out.append(_ev("against", f"Little heterogeneity: {nums}.", "heterogeneity", i2=het.i2))
         else:
-            out.append(_ev("unclear", f"Moderate heterogeneity: {nums}."))
+            out.append(
+                _ev("unclear", f"Moderate heterogeneity: {nums}.", "heterogeneity", i2=het.i2)
+            )
     else:
-        out.append(_ev("unclear", f"Heterogeneity could not be estimated: {why_not(het)}."))
+        out.append(
+            _ev(
+                "unclear", f"Heterogeneity could not be estimated: {why_not(het)}.", "heterogeneity"
+            )
+        )
+    pub_i2 = result.review.details.published.i2
+    if pub_i2 is not None and is_ok(het) and is_finite(het.i2):
+        agree = abs(pub_i2 - het.i2) <= HET_AGREE_POINTS
+        out.append(
+            _ev(
+                "unclear",
+                heterogeneity_reconciled(pub_i2, het.i2),
+                "published",
+                published_i2=pub_i2,
+                i2=het.i2,
+                agree=1 if agree else 0,
+            )
+        )
     labels = [x for x in result.data.subgroup if x]
     sg = result.subgroups.get("subgroup")
     if not labels:
@@ -416,23 +541,33 @@ def heterogeneity_evidence(result, ss: SmallStudyReading, g: Glossary) -> list[E
                 "unclear",
                 "No subgroup feature (population, dose, setting) was entered, so the data "
                 "cannot show whether small studies differ in kind.",
+                "subgroup",
             )
         )
         return out
     if sg is None:
         out.append(
-            _ev("unclear", "All studies share one subgroup label, so it cannot explain the lean.")
+            _ev(
+                "unclear",
+                "All studies share one subgroup label, so it cannot explain the lean.",
+                "subgroup",
+            )
         )
         return out
     if not is_ok(sg):
-        out.append(_ev("unclear", f"Subgroups could not be analysed: {why_not(sg)}."))
+        out.append(_ev("unclear", f"Subgroups could not be analysed: {why_not(sg)}.", "subgroup"))
         return out
     rt = sg.random_test
     if is_ok(rt):
         parts = ", ".join(f"{lv.level} {pooled_text(lv.random, m)}" for lv in sg.levels)
         if rt.pvalue < alpha:
             out.append(
-                _ev("for", f"Effects differ between subgroups ({fmt_p_eq(rt.pvalue)}): {parts}.")
+                _ev(
+                    "for",
+                    f"Effects differ between subgroups ({fmt_p_eq(rt.pvalue)}): {parts}.",
+                    "subgroup",
+                    p=rt.pvalue,
+                )
             )
         else:
             out.append(
@@ -440,6 +575,7 @@ def heterogeneity_evidence(result, ss: SmallStudyReading, g: Glossary) -> list[E
                     "unclear",
                     f"Effects do not clearly differ between subgroups ({fmt_p_eq(rt.pvalue)}): "
                     f"{parts}.",
+                    "subgroup",
                 )
             )
     overall_signal = bool(ss.test.signal)
@@ -449,7 +585,11 @@ def heterogeneity_evidence(result, ss: SmallStudyReading, g: Glossary) -> list[E
     ptxt = "; ".join(f"{lev} {fmt_p_eq(p)}" for lev, _k, p in known)
     if not known:
         out.append(
-            _ev("unclear", "The subgroups are too small to test the lean within each of them.")
+            _ev(
+                "unclear",
+                "The subgroups are too small to test the lean within each of them.",
+                "subgroup",
+            )
         )
     elif overall_signal and not lean_in and len(known) == len(ps):
         out.append(
@@ -457,6 +597,7 @@ def heterogeneity_evidence(result, ss: SmallStudyReading, g: Glossary) -> list[E
                 "for",
                 "Within each subgroup the asymmetry disappears (Egger's slope: "
                 f"{ptxt}): the subgroup feature may explain the lean rather than bias.",
+                "subgroup",
             )
         )
     elif overall_signal and not lean_in:
@@ -465,6 +606,7 @@ def heterogeneity_evidence(result, ss: SmallStudyReading, g: Glossary) -> list[E
                 "unclear",
                 f"No clear lean within the subgroups that could be tested ({ptxt}); others "
                 "were too small.",
+                "subgroup",
             )
         )
     elif lean_in:
@@ -473,10 +615,13 @@ def heterogeneity_evidence(result, ss: SmallStudyReading, g: Glossary) -> list[E
                 "against",
                 f"The lean persists within {', '.join(lean_in)} (Egger's slope: {ptxt}): the "
                 "subgroup feature does not explain it.",
+                "subgroup",
             )
         )
     else:
-        out.append(_ev("unclear", f"No clear lean overall or within subgroups ({ptxt})."))
+        out.append(
+            _ev("unclear", f"No clear lean overall or within subgroups ({ptxt}).", "subgroup")
+        )
     out.extend(_se_slope_lines(result.meta_regression.get("subgroup"), "the subgroup", alpha, g))
     return out
 
@@ -515,6 +660,7 @@ def artefact_evidence(result, ss: SmallStudyReading, g: Glossary) -> list[Eviden
                     "gives false alarms when effects are large or events few, because the "
                     "estimate and its SE are linked (Harbord et al. 2006; Peters et al. 2006). "
                     "Enter 2x2 counts to run the tests built for odds ratios.",
+                    "measure",
                 )
             )
         elif rkey == "egger":
@@ -523,6 +669,7 @@ def artefact_evidence(result, ss: SmallStudyReading, g: Glossary) -> list[Eviden
                     "unclear",
                     f"Only Egger's test could be run ({size}); without 2x2 counts the tests "
                     "built for odds ratios cannot check it.",
+                    "measure",
                 )
             )
         if p_egger is not None and specific:
@@ -536,6 +683,7 @@ def artefact_evidence(result, ss: SmallStudyReading, g: Glossary) -> list[Eviden
                         f"Egger's test signals ({fmt_p_eq(p_egger)}) but the tests that avoid "
                         f"the odds ratio's link to its SE do not ({sp}): the signal may be an "
                         "artefact" + (f" ({size})." if large else "."),
+                        "measure",
                     )
                 )
             elif p_egger < alpha and spec_sig:
@@ -544,6 +692,7 @@ def artefact_evidence(result, ss: SmallStudyReading, g: Glossary) -> list[Eviden
                         "against",
                         f"The tests built for odds ratios agree with Egger's ({sp}; Egger's "
                         f"{fmt_p_eq(p_egger)}).",
+                        "measure",
                     )
                 )
             elif large:
@@ -552,6 +701,7 @@ def artefact_evidence(result, ss: SmallStudyReading, g: Glossary) -> list[Eviden
                         "unclear",
                         f"A large effect ({size}); the tests built for odds ratios were used "
                         f"({sp}), which avoid Egger's false alarms.",
+                        "measure",
                     )
                 )
     elif m == "SMD":
@@ -563,6 +713,7 @@ def artefact_evidence(result, ss: SmallStudyReading, g: Glossary) -> list[Eviden
                     "The SE of an SMD contains the SMD itself, which can make the funnel lean "
                     "on its own; without group sizes the modified test (Pustejovsky & Rodgers "
                     "2019) cannot check it.",
+                    "measure",
                 )
             )
         elif p_egger is not None and p_egger < alpha and p_mod >= alpha:
@@ -572,6 +723,7 @@ def artefact_evidence(result, ss: SmallStudyReading, g: Glossary) -> list[Eviden
                     f"Egger's test signals ({fmt_p_eq(p_egger)}) but the version with a "
                     f"precision from group sizes does not ({fmt_p_eq(p_mod)}): the SMD's link "
                     "to its own SE may explain the signal (Pustejovsky & Rodgers 2019).",
+                    "measure",
                 )
             )
         else:
@@ -581,6 +733,7 @@ def artefact_evidence(result, ss: SmallStudyReading, g: Glossary) -> list[Eviden
                     f"The test with a precision from group sizes, which avoids the SMD's link "
                     f"to its SE, gives {fmt_p_eq(p_mod)}"
                     + (f" (Egger's {fmt_p_eq(p_egger)})." if p_egger is not None else "."),
+                    "measure",
                 )
             )
     elif m == "MD":
@@ -589,6 +742,7 @@ def artefact_evidence(result, ss: SmallStudyReading, g: Glossary) -> list[Eviden
                 "against",
                 "The SE of a mean difference does not depend on the difference itself, so the "
                 "funnel cannot lean from that link.",
+                "measure",
             )
         )
     else:
@@ -598,6 +752,7 @@ def artefact_evidence(result, ss: SmallStudyReading, g: Glossary) -> list[Eviden
                 "unclear",
                 f"How well asymmetry tests work for {what} has not been established (Sterne et "
                 "al. 2011): read the result as exploratory.",
+                "measure",
             )
         )
         if m == "RD":
@@ -606,6 +761,7 @@ def artefact_evidence(result, ss: SmallStudyReading, g: Glossary) -> list[Eviden
                     "unclear",
                     "Risk differences vary with the baseline risk, so a funnel of risk "
                     "differences can lean where one of ratios would not (Sterne & Egger 2001).",
+                    "measure",
                 )
             )
     t = ss.test
@@ -616,10 +772,13 @@ def artefact_evidence(result, ss: SmallStudyReading, g: Glossary) -> list[Eviden
                     "unclear",
                     f"The tests disagree: {t.n_signal} of {t.n_computed} signal a lean "
                     f"(tests often disagree; Lin et al. 2018). {t.others_text}.",
+                    "tests",
                 )
             )
         elif t.n_signal == t.n_computed:
-            out.append(_ev("against", f"All {t.n_computed} tests that could be run agree."))
+            out.append(
+                _ev("against", f"All {t.n_computed} tests that could be run agree.", "tests")
+            )
     pw = result.power
     if is_ok(pw) and is_finite(getattr(pw, "type1", None)):
         if pw.type1 > 1.5 * alpha:
@@ -629,6 +788,7 @@ def artefact_evidence(result, ss: SmallStudyReading, g: Glossary) -> list[Eviden
                     f"With these studies the test would give false alarms in "
                     f"{fmt_share(pw.type1, 1)} of unbiased reviews, more than the nominal "
                     f"{fmt_share(alpha)}.",
+                    "power",
                 )
             )
         else:
@@ -637,6 +797,7 @@ def artefact_evidence(result, ss: SmallStudyReading, g: Glossary) -> list[Eviden
                     "against",
                     f"With these studies the test's false-alarm rate is near nominal "
                     f"({fmt_share(pw.type1, 1)}).",
+                    "power",
                 )
             )
     return out
@@ -656,6 +817,8 @@ def chance_evidence(result, ss: SmallStudyReading, g: Glossary) -> list[Evidence
                 "for",
                 f"Only {plural(k, 'study', 'studies')}: with fewer than 10 the tests are "
                 "unreliable and a lopsided funnel easily arises by chance (Sterne et al. 2011).",
+                "study count",
+                k=k,
             )
         )
     else:
@@ -664,6 +827,8 @@ def chance_evidence(result, ss: SmallStudyReading, g: Glossary) -> list[Evidence
                 "against",
                 f"{plural(k, 'study', 'studies')}: enough for the tests to be read (at least 10 "
                 "advised; Sterne et al. 2011), though power stays low below about 20.",
+                "study count",
+                k=k,
             )
         )
     t = ss.test
@@ -673,6 +838,8 @@ def chance_evidence(result, ss: SmallStudyReading, g: Glossary) -> list[Evidence
                 _ev(
                     "against",
                     f"{t.name}: {fmt_p_eq(t.pvalue)} is hard to put down to chance alone.",
+                    "test",
+                    test_p=t.pvalue,
                 )
             )
         elif t.pvalue < 0.05:
@@ -681,6 +848,8 @@ def chance_evidence(result, ss: SmallStudyReading, g: Glossary) -> list[Evidence
                     "unclear",
                     f"{t.name}: {fmt_p_eq(t.pvalue)} could still arise by chance, the more so "
                     "as several tests were run.",
+                    "test",
+                    test_p=t.pvalue,
                 )
             )
         elif t.pvalue < alpha:
@@ -690,6 +859,8 @@ def chance_evidence(result, ss: SmallStudyReading, g: Glossary) -> list[Evidence
                     f"{t.name}: {fmt_p_eq(t.pvalue)} is close to the threshold "
                     f"({fmt_num(alpha, 2)}); a chance finding is plausible, the more so as "
                     "several tests were run.",
+                    "test",
+                    test_p=t.pvalue,
                 )
             )
         else:
@@ -698,6 +869,8 @@ def chance_evidence(result, ss: SmallStudyReading, g: Glossary) -> list[Evidence
                     "unclear",
                     f"{t.name} shows no clear lean ({fmt_p_eq(t.pvalue)}): there may be "
                     "nothing to explain, or the test missed it.",
+                    "test",
+                    test_p=t.pvalue,
                 )
             )
     pw = result.power
@@ -710,6 +883,7 @@ def chance_evidence(result, ss: SmallStudyReading, g: Glossary) -> list[Evidence
                     d,
                     f"The test's {pterm} for this review is only {fmt_share(pw.power)}: a "
                     "negative result says little, and a positive one deserves caution.",
+                    "power",
                 )
             )
         else:
@@ -717,6 +891,7 @@ def chance_evidence(result, ss: SmallStudyReading, g: Glossary) -> list[Evidence
                 _ev(
                     "against" if t.signal else "unclear",
                     f"The test's {pterm} for this review is {fmt_share(pw.power)}.",
+                    "power",
                 )
             )
     elif pw is None:
@@ -725,6 +900,7 @@ def chance_evidence(result, ss: SmallStudyReading, g: Glossary) -> list[Evidence
                 "unclear",
                 "Power was not simulated for this review (the power option shows how often "
                 "the test would detect bias here).",
+                "power",
             )
         )
     return out
@@ -744,7 +920,7 @@ def cause_readings(result, ss: SmallStudyReading, g: Glossary) -> tuple[CauseRea
     notes = result.review.notes
     out = []
     for key in CAUSES:
-        ev = tuple(_BUILDERS[key](result, ss, g))
+        ev = tuple(replace(e, cause=key) for e in _BUILDERS[key](result, ss, g))
         cn = notes.cause(key)
         out.append(
             CauseReading(

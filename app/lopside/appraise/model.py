@@ -7,6 +7,28 @@ from dataclasses import dataclass
 #: Directions an evidence line can point for its explanation.
 DIRECTIONS: tuple[str, ...] = ("for", "against", "unclear")
 
+#: Where an evidence line comes from (the ``source`` of :class:`Evidence`).
+SOURCES: tuple[str, ...] = (
+    "contour",  # trim and fill's imputed studies read on the contour-enhanced funnel
+    "test",  # the recommended asymmetry test
+    "tests",  # the registered tests taken together
+    "adjustment",  # the range of adjusted estimates
+    "trim and fill",  # trim and fill under its six settings
+    "selection model",
+    "risk of bias",  # subgroups by risk of bias
+    "subgroup",  # subgroups by the entered feature
+    "meta-regression",
+    "heterogeneity",
+    "published",  # the paper's own heterogeneity, reconciled
+    "measure",  # what the effect measure does to the funnel
+    "power",  # simulated power and false-alarm rate
+    "study count",
+    "not in the data",  # what the numbers cannot show
+    "unreported trials",  # trials known to exist that never reported (issue 20)
+    "selection strength",  # how strong selection would have to be (Mathur & VanderWeele)
+    "review's claim",  # what the review itself said about small-study effects
+)
+
 
 @dataclass(frozen=True, slots=True)
 class Evidence:
@@ -18,10 +40,35 @@ class Evidence:
         Whether the line supports the explanation, argues against it, or cannot tell.
     text : str
         The line in plain words, with its numbers.
+    source : str
+        One of :data:`SOURCES`.
+    cause : str
+        The explanation it bears on (one of :data:`lopside.model.review.CAUSES`).
+    numbers : tuple of (name, value)
+        The numbers the sentence quotes, unformatted (``p`` is a p-value compared with the
+        test threshold; effects are on the analysis scale).
     """
 
     direction: str
     text: str
+    source: str = ""
+    cause: str = ""
+    numbers: tuple[tuple[str, float | int | None], ...] = ()
+
+    def number(self, name: str, default=None):
+        for n, v in self.numbers:
+            if n == name:
+                return v
+        return default
+
+    def to_dict(self) -> dict:
+        return {
+            "cause": self.cause,
+            "source": self.source,
+            "direction": self.direction,
+            "numbers": dict(self.numbers),
+            "sentence": self.text,
+        }
 
 
 @dataclass(frozen=True, slots=True)
@@ -159,6 +206,10 @@ class AdjustmentRange:
     crosses_null: int
     moves: str
     text: str
+    #: estimates moved away from no effect, and those that hardly move (towards_null +
+    #: away + little = len(estimates) whenever there is an unadjusted estimate)
+    away: int = 0
+    little: int = 0
 
 
 @dataclass(frozen=True, slots=True)
@@ -189,6 +240,14 @@ class DomainRating:
         confirmed).
     note : str
         Where the words come from, and that this is a suggestion.
+    assessable : bool
+        False when the data cannot support a rating (too few studies, no test, no
+        significant study, or too little power); ``suggested`` then says so, and the
+        appraiser is still free to rate.
+    evidence : tuple of Evidence
+        Every evidence line that points "for" publication bias (all are in ``reasons``).
+    leaning : str
+        When not assessable: "towards bias" if signals point to bias, else "".
     """
 
     suggested: str
@@ -196,6 +255,9 @@ class DomainRating:
     override: str
     override_reason: str
     note: str
+    assessable: bool = True
+    evidence: tuple[Evidence, ...] = ()
+    leaning: str = ""
 
     @property
     def final(self) -> str:
@@ -222,3 +284,28 @@ class Appraisal:
             if c.key == key:
                 return c
         raise KeyError(key)
+
+    @property
+    def evidence(self) -> tuple[Evidence, ...]:
+        """Every evidence line of every explanation, in the order shown."""
+        return tuple(e for c in self.causes for e in c.evidence)
+
+    @property
+    def strongest_alternative(self) -> tuple[CauseReading, Evidence] | None:
+        """The explanation other than selection with the strongest line "for" it.
+
+        Lines with a p-value below the threshold rank first (smallest p first), then the
+        explanation with most lines "for". None when no other explanation has a line "for".
+        """
+        best = None
+        for c in self.causes:
+            if c.key == "selection":
+                continue
+            for e in c.evidence:
+                if e.direction != "for":
+                    continue
+                p = e.number("p")
+                rank = (0 if p is not None else 1, p if p is not None else 1.0, -c.count("for"))
+                if best is None or rank < best[0]:
+                    best = (rank, c, e)
+        return None if best is None else (best[1], best[2])

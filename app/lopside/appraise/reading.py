@@ -12,8 +12,7 @@ from typing import Any
 
 from ..model.review import RATIO_MEASURES
 from ..stats.results import PooledEstimate
-from ..summary import (
-    adjustment_rows,
+from ..words.numbers import (
     fmt_ci,
     fmt_effect,
     fmt_num,
@@ -24,6 +23,8 @@ from ..summary import (
     plural,
     why_not,
 )
+from ..words.rows import adjustment_rows
+from ..words.sentences import rule_detail, test_caution
 from .glossary import Glossary
 from .model import AdjustmentRange, ContourReading, TestReading
 
@@ -93,8 +94,19 @@ CONCLUSIONS: dict[str, str] = {
     ),
     "significant": (
         "The apparently missing studies would have been statistically significant "
-        "(p < 0.10), and such results are seldom left unpublished: causes other than "
-        "publication bias are more likely (Peters et al. 2008)."
+        "(p < 0.10) in favour of the intervention, and such results are seldom left "
+        "unpublished: causes other than publication bias are more likely (Peters et al. 2008)."
+    ),
+    "significant harm": (
+        "The apparently missing studies would have shown statistically significant harm "
+        "(p < 0.10). Results unfavourable to the intervention can be withheld even when "
+        "significant, so the contours cannot tell publication bias from other causes here "
+        "(Peters et al. 2008 read the contours assuming significance is what gets published)."
+    ),
+    "benefit side": (
+        "The apparently missing studies lie on the side favouring the intervention: "
+        "suppressed results would have been favourable ones, the reverse of the usual "
+        "mechanism of publication bias (withholding unfavourable results)."
     ),
     "mixed": (
         "Some apparently missing studies lie in the non-significant region and some would "
@@ -104,9 +116,38 @@ CONCLUSIONS: dict[str, str] = {
     "none filled": "Trim and fill finds no gap to fill on either side of the funnel.",
 }
 
+#: How each contour verdict bears on publication bias (the evidence line's direction).
+CONTOUR_DIRECTION: dict[str, str] = {
+    "non-significant": "for",
+    "significant": "against",
+    "significant harm": "unclear",
+    "benefit side": "against",
+    "mixed": "unclear",
+    "none filled": "against",
+    "not available": "unclear",
+}
+
+
+def benefit_side(result) -> str:
+    """The side of the funnel ("left" or "right") where results favour the intervention."""
+    return "left" if result.review.details.favours == "lower" else "right"
+
+
+def side_words(result, side: str) -> str:
+    """ "the left (the side favouring the intervention)"."""
+    if side not in ("left", "right"):
+        return "one side"
+    which = "favouring the intervention" if side == benefit_side(result) else "of harm"
+    return f"the {side} (the side {which})"
+
 
 def contour_reading(result, g: Glossary) -> ContourReading:
-    """Which significance region the trim-and-fill studies fall in (Peters et al. 2008)."""
+    """Which significance region the trim-and-fill studies fall in (Peters et al. 2008).
+
+    Direction-aware: studies imputed on the side favouring the intervention point away
+    from the usual mechanism (withholding unfavourable results), whatever their
+    significance; significant studies imputed on the harm side cannot be read either way.
+    """
     data = result.data
     observed = _count_regions(zip(data.y.tolist(), data.se.tolist()))
     tf = result.trim_fill
@@ -144,13 +185,26 @@ def contour_reading(result, g: Glossary) -> ContourReading:
         where = ("all " if n > 1 else "") + REGION_WORDS[present[0][0]]
     else:
         where = "; ".join(f"{c} {REGION_WORDS[r]}" for r, c in present)
-    if non_sig == n:
+    lower_good = result.review.details.favours == "lower"
+    sig_harm = sum(
+        1
+        for f in filled
+        if significance_region(f.y, f.se) not in (None, NON_SIGNIFICANT) and (f.y < 0) != lower_good
+    )
+    if tf.side == benefit_side(result):
+        verdict = "benefit side"
+    elif non_sig == n:
         verdict = "non-significant"
-    elif non_sig == 0:
+    elif non_sig == 0 and sig_harm == n:
+        verdict = "significant harm"
+    elif non_sig == 0 and sig_harm == 0:
         verdict = "significant"
     else:
         verdict = "mixed"
-    lead = f"On the {cef}, {tnf} imputes {plural(k0, 'study', 'studies')} on the {tf.side}"
+    lead = (
+        f"On the {cef}, {tnf} imputes {plural(k0, 'study', 'studies')} on "
+        f"{side_words(result, tf.side)}"
+    )
     # the conclusion names the non-significant region itself; other placements are spelt out
     lead += "." if verdict == "non-significant" else f", {where}."
     conclusion = CONCLUSIONS[verdict]
@@ -246,11 +300,8 @@ def test_reading(result, g: Glossary) -> TestReading:
             what = f"signals {sse}: smaller studies show larger effects"
         text = f"{name} {what} ({fmt_p_eq(t.pvalue)}, below {fmt_num(alpha, 2)})."
     else:
-        text = (
-            f"{name} shows no clear sign of {sse} ({fmt_p_eq(t.pvalue)}, not below "
-            f"{fmt_num(alpha, 2)}). This does not rule them out: these tests have little power."
-        )
-    text += expl
+        text = f"{name} shows no clear sign of {sse} ({fmt_p_eq(t.pvalue)}, not below {fmt_num(alpha, 2)})."
+    text += " " + test_caution(result.k) + expl
     return TestReading(
         rec.key,
         name,
@@ -280,11 +331,15 @@ def rules_reading(result) -> tuple[tuple[str, ...], str]:
     parts = []
     if failed:
         parts.append(
-            "Not met: " + "; ".join(f"{r.title.lower()} ({r.detail})" for r in failed) + "."
+            "Not met: "
+            + "; ".join(f"{r.title.lower()} ({rule_detail(r, result)})" for r in failed)
+            + "."
         )
     if unknown:
         parts.append(
-            "Cannot tell: " + "; ".join(f"{r.title.lower()} ({r.detail})" for r in unknown) + "."
+            "Cannot tell: "
+            + "; ".join(f"{r.title.lower()} ({rule_detail(r, result)})" for r in unknown)
+            + "."
         )
     parts.append("Read the tests and trim and fill with extra caution.")
     return tuple(r.rule for r in failed), " ".join(parts)
@@ -311,6 +366,13 @@ def power_reading(result, g: Glossary) -> str:
         parts.append(f"false alarms without bias: {fmt_share(pw.type1, 1)}")
     text = "; ".join(parts)
     return text[:1].upper() + text[1:] + "." if text else ""
+
+
+def _short_method(name: str) -> str:
+    """ "Trim and fill (L0)" -> "trim and fill"; PET-PEESE keeps the estimator it reports."""
+    if name.startswith("PET-PEESE"):
+        return "PET-PEESE, reporting " + name[name.index("(") + 1 : -1]
+    return name.split(" (")[0].lower()
 
 
 def adjustment_range(result, g: Glossary) -> AdjustmentRange:
@@ -369,14 +431,14 @@ def adjustment_range(result, g: Glossary) -> AdjustmentRange:
         moves = "away from null"
     else:
         moves = "mixed"
-    rng = (
-        f"from {fmt_effect(low, m)} to {fmt_effect(high, m)}"
-        if n > 1
-        else f"{fmt_effect(low, m)} ({picked[0][0]})"
-    )
-    text = f"Across {plural(n, 'method')} the adjusted estimate ranges {rng}"
-    if n == 1:
-        text = f"Only one adjustment could be run: {rng}"
+    names = "; ".join(_short_method(nm) for nm, _e in picked)
+    if n > 1:
+        text = (
+            f"The {n} adjusted estimates ({names}) range from {fmt_effect(low, m)} to "
+            f"{fmt_effect(high, m)}"
+        )
+    else:
+        text = f"Only one adjustment could be run ({names}): {fmt_effect(low, m)}"
     if unadj is not None:
         text += f", against {fmt_effect(unadj, m)} unadjusted"
         if isinstance(rnd, PooledEstimate):
@@ -386,20 +448,22 @@ def adjustment_range(result, g: Glossary) -> AdjustmentRange:
         null_word = "1" if m in RATIO_MEASURES else "0"
         parts = []
         if towards:
-            part = f"{towards} of {n} move it towards no effect ({null_word})"
+            part = f"{towards} {'moves' if towards == 1 else 'move'} it towards no effect ({null_word})"
             if crosses:
-                part += f", {crosses} beyond it"
+                part += " and beyond it" if towards == 1 else f", {crosses} of them beyond it"
             parts.append(part)
         if away:
-            parts.append(f"{away} of {n} move it away from no effect")
+            parts.append(f"{away} {'moves' if away == 1 else 'move'} it away from no effect")
         if little:
-            verb = "hardly moves it" if little == 1 else "hardly move it"
-            who = "all" if little == n else str(little)
-            parts.append(f"{who} {verb}")
-        joined = "; ".join(parts)
-        text += " " + joined[:1].upper() + joined[1:] + "."
+            parts.append(f"{little} {'hardly moves' if little == 1 else 'hardly move'} it")
+        if n > 1:
+            text += f" Of the {n}: " + "; ".join(parts) + "."
+        else:
+            text += " It " + parts[0].split(" ", 1)[1] + "."
     text += " A range of 'what if' answers, not a corrected estimate."
-    return AdjustmentRange(tuple(picked), low, high, unadj, towards, crosses, moves, text)
+    return AdjustmentRange(
+        tuple(picked), low, high, unadj, towards, crosses, moves, text, away=away, little=little
+    )
 
 
 def funnel_lines(contour, test, rules_text, power_text, adj) -> tuple[tuple[str, str], ...]:

@@ -15,6 +15,16 @@ from __future__ import annotations
 from .model import Evidence
 
 
+def _ev(direction: str, text: str, source: str, **numbers) -> Evidence:
+    from ..summary import is_finite
+
+    nums = tuple(
+        (k, (v if isinstance(v, int) else float(v)) if is_finite(v) else None)
+        for k, v in numbers.items()
+    )
+    return Evidence(direction, text, source, "", nums)
+
+
 def selection_items(result) -> list[Evidence]:
     from ..summary import is_ok, missing_trials_sentence, selection_sentence
     from .claim import compare_claim
@@ -24,20 +34,54 @@ def selection_items(result) -> list[Evidence]:
     if missing is not None:
         text = missing_trials_sentence(result)
         if is_ok(missing):
-            out.append(Evidence("for", text))
+            null = next((sc for sc in missing.scenarios if sc.assumed == "no effect"), None)
+            out.append(
+                _ev(
+                    "for",
+                    text,
+                    "unreported trials",
+                    count=missing.count,
+                    participants=missing.participants,
+                    estimate=None if null is None else null.pooled.estimate,
+                    unadjusted=missing.reported_estimate,
+                )
+            )
         else:
             n = sum(1 for r in result.review.studies if not r.reported)
             out.append(
-                Evidence(
+                _ev(
                     "for",
                     f"{n} trial{'s' if n != 1 else ''} known to exist never reported results "
                     "(their size is needed to say what they would change).",
+                    "unreported trials",
+                    count=n,
                 )
             )
     ss = getattr(result, "selection_sensitivity", None)
     if is_ok(ss) and is_ok(ss.random):
-        out.append(Evidence("unclear", selection_sentence(result)))
+        m = ss.random
+        wc = m.worst_case
+        out.append(
+            _ev(
+                "unclear",
+                selection_sentence(result),
+                "selection strength",
+                s_value=m.s_value,
+                s_value_ci=m.s_value_ci,
+                worst_case=wc.estimate if is_ok(wc) else None,
+                affirmative=ss.affirmative,
+            )
+        )
     c = compare_claim(result)
     if c is not None:
-        out.append(Evidence("unclear", f"The review's own claim: {c.verdict}"))
+        claim = result.review.details.claim
+        out.append(
+            _ev(
+                "unclear",
+                f"The review's own claim: {c.verdict}",
+                "review's claim",
+                k=claim.k,
+                p=claim.p,
+            )
+        )
     return out

@@ -140,7 +140,14 @@ def funnel_input_from_result(result: Any, options: FunnelOptions | None = None) 
         egger=egger,
         adjusted=adjusted,
         limit=limit,
+        units=_units(result),
     )
+
+
+def _units(result: Any) -> str:
+    """The review's optional outcome units ("" when not given)."""
+    details = getattr(getattr(result, "review", None), "details", None)
+    return str(getattr(details, "units", "") or "")
 
 
 def _summary(label: str, p: Any, weight: float = math.nan, k: int = 0) -> ForestSummary | None:
@@ -294,6 +301,7 @@ def forest_input_from_result(
             ctl_label=str(getattr(details, "ctl_label", "") or "control"),
             confidence_level=conf,
             weight_model=model_words(wsrc, wmodel) if _ok(wsrc) else "",
+            units=_units(result),
         )
     return rows, pooled, options
 
@@ -340,6 +348,7 @@ def cumulative_input_from_result(result: Any, model: str | None = None) -> Cumul
         favours=str(getattr(details, "favours", "lower") or "lower"),
         int_label=str(getattr(details, "int_label", "") or "intervention"),
         ctl_label=str(getattr(details, "ctl_label", "") or "control"),
+        units=_units(result),
     )
 
 

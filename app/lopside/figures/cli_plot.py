@@ -33,7 +33,8 @@ def add_plot_arguments(parser: argparse.ArgumentParser) -> None:
     * ``--kind`` [kind] — funnel (default), forest, cumulative or radial.
     * ``--force`` [force] — replace an existing file at OUT that is not of its format.
     * ``-o/--output OUT`` [output] — required; the suffix .png, .svg or .pdf sets the format.
-    * ``--size`` [size] — column (85 mm, default), page (180 mm) or slide (16:9).
+    * ``--size`` [size] — column (85 mm), page (180 mm) or slide (16:9); default column
+      for funnel and radial, page for forest and cumulative.
     * ``--axis`` [axis] — funnel's vertical axis: se (default), precision, variance, size.
     * ``--model`` [model] — fixed or random centre for the funnel (default: settings).
     * ``--colour-by`` [colour_by] — none (default), subgroup or risk_of_bias.
@@ -56,8 +57,9 @@ def add_plot_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument(
         "--size",
         choices=("column", "page", "slide"),
-        default="column",
-        help="figure size (default column)",
+        default=None,
+        help="figure size (default: column for funnel and radial, page for forest and "
+        "cumulative, whose study tables need the width)",
     )
     parser.add_argument(
         "--axis",
@@ -185,7 +187,7 @@ def build_figure(result, args: argparse.Namespace):
     from .common import FigureInputError
 
     kind = getattr(args, "kind", "funnel")
-    size = getattr(args, "size", "column")
+    size = getattr(args, "size", None) or default_size(getattr(args, "kind", "funnel"))
     if kind == "funnel":
         from .funnel import FunnelOptions, funnel_figure
 
@@ -236,6 +238,12 @@ def build_figure(result, args: argparse.Namespace):
             egger_line=bool(getattr(args, "egger_line", False)),
         )
     raise FigureInputError(f"unknown figure kind {kind!r}; use one of {', '.join(KINDS)}")
+
+
+def default_size(kind: str) -> str:
+    """The size a figure gets when none is asked for: a forest or cumulative plot is a
+    table with a plot beside it and needs the page width to show names and intervals."""
+    return "page" if kind in ("forest", "cumulative") else "column"
 
 
 def replace_size(opts, size: str):

@@ -40,10 +40,33 @@ def measure_label(measure: str) -> str:
     return MEASURE_LABELS.get((measure or "").upper(), measure or "Effect")
 
 
-def effect_axis_label(measure: str) -> str:
-    """Axis title for the effect axis, saying when the spacing is logarithmic."""
+def effect_axis_label(measure: str, units: str = "") -> str:
+    """Axis title for the effect axis, saying when the spacing is logarithmic.
+
+    ``units`` (the review's optional units, e.g. "mmHg" or "points on a 0-100 scale") is
+    printed for differences on the outcome's own scale (MD); ratios, risk differences and
+    standardised differences have no units, so it is left out for them.
+    """
     name = measure_label(measure)
-    return f"{name} (log spacing)" if is_ratio(measure) else name
+    if is_ratio(measure):
+        return f"{name} (log spacing)"
+    units = " ".join(str(units or "").split())
+    if units and (measure or "").upper() == "MD":
+        return f"{name} ({units})"
+    return name
+
+
+#: one line under a figure that says how to read it (plain words; no statistic)
+READ_CUMULATIVE = (
+    "How to read this: each row pools the studies listed so far, most precise first. "
+    "An estimate that drifts away from no effect as the smaller studies come in is the "
+    "small-study effect seen another way."
+)
+READ_RADIAL = (
+    "How to read this: each point is a study; more precise studies lie further right. "
+    "Without small-study effects the points scatter about the line through the origin, "
+    "most within the \u00b12 band; an Egger line that misses the origin means asymmetry."
+)
 
 
 # --------------------------------------------------------------------------------------
@@ -116,25 +139,30 @@ def _doubling(lo: float, hi: float) -> list[float]:
     return [2.0**k for k in ks]
 
 
-def _linear(lo: float, hi: float) -> list[float]:
+def _linear(lo: float, hi: float, nbins: int = 5) -> list[float]:
     from matplotlib.ticker import MaxNLocator
 
     a, b = math.exp(lo), math.exp(hi)
-    vals = MaxNLocator(nbins=5, steps=[1, 2, 2.5, 5, 10]).tick_values(a, b)
+    vals = MaxNLocator(nbins=nbins, steps=[1, 2, 2.5, 5, 10]).tick_values(a, b)
     return [float(v) for v in vals if v > 0 and a - 1e-12 <= v <= b + 1e-12]
 
 
-def ratio_ticks(lo: float, hi: float, max_ticks: int = _MAX_TICKS) -> list[float]:
+def ratio_ticks(lo: float, hi: float, max_ticks: int = _MAX_TICKS, fits=None) -> list[float]:
     """Natural-unit tick values for a log axis spanning ``[lo, hi]`` (log units).
 
     Tries, in order, the doubling ladder (…, 0.25, 0.5, 1, 2, 4, …), the 1-2-5 ladder,
     decades, and finally evenly spaced round values for a narrow range, taking the first
-    that gives between three and seven ticks.
+    that gives between three and seven ticks, whose labels do not run together (``fits``)
+    and that has ticks on both sides of 1 when the axis reaches well beyond 1 on both
+    sides.
 
     Parameters
     ----------
     lo, hi : float
         Axis limits on the log scale.
+    max_ticks : int
+    fits : callable, optional
+        ``fits(values) -> bool``: do these tick labels fit side by side on the axis?
 
     Returns
     -------
@@ -144,37 +172,82 @@ def ratio_ticks(lo: float, hi: float, max_ticks: int = _MAX_TICKS) -> list[float
     if not (math.isfinite(lo) and math.isfinite(hi)) or hi <= lo:
         return [1.0]
     span = hi - lo
+    max_ticks = max(max_ticks, _MIN_TICKS)
+    # the null is "well inside" when at least 8 % of the axis lies on each side of it
+    both = lo < -0.08 * span and hi > 0.08 * span
+
+    def good(c: list[float], n_min: int = _MIN_TICKS) -> bool:
+        if not n_min <= len(c) <= max_ticks:
+            return False
+        if both and not (any(v < 1.0 for v in c) and any(v > 1.0 for v in c)):
+            return False
+        return fits is None or fits(c)
+
     candidates: list[list[float]] = []
-    if span <= math.log(64):
-        candidates.append(_doubling(lo, hi))
+    doubling = _doubling(lo, hi)
+    if span <= math.log(64) and all(v >= 0.125 for v in doubling):
+        candidates.append(doubling)
     candidates.append(_ladder((1.0, 2.0, 5.0), lo, hi))
     candidates.append(_ladder((1.0,), lo, hi))
-    max_ticks = max(max_ticks, _MIN_TICKS)
     for c in candidates:
-        if _MIN_TICKS <= len(c) <= max_ticks:
+        if good(c):
             return c
-    for c in candidates[:2]:
-        if len(c) > max_ticks:
-            # thin a ladder that is too dense, keeping 1 (the null) when in range
-            step = math.ceil(len(c) / max_ticks)
+    # thin a ladder that is too dense, keeping 1 (the null) when in range
+    for c in candidates:
+        for step in range(2, len(c) + 1):
             anchor = c.index(1.0) if 1.0 in c else 0
             thinned = [v for i, v in enumerate(c) if (i - anchor) % step == 0]
-            if len(thinned) >= _MIN_TICKS:
+            if good(thinned):
                 return thinned
-    decades = _ladder((1.0,), lo, hi)
-    if len(decades) > max_ticks:
-        step = math.ceil(len(decades) / max_ticks)
-        # keep 1 (the null) among the ticks where it is in range
-        anchor = decades.index(1.0) if 1.0 in decades else 0
-        return [v for i, v in enumerate(decades) if (i - anchor) % step == 0]
+            if good(thinned, 2):
+                return thinned
     lin = _linear(lo, hi)
-    if len(lin) >= 2:
-        return lin
-    return candidates[0] or [math.exp((lo + hi) / 2)]
+    for nb in (5, 4, 3, 2):
+        lin = _linear(lo, hi, nb)
+        if len(lin) >= 2 and (fits is None or fits(lin)):
+            return lin
+    decades = candidates[-1]
+    return decades[:1] + decades[-1:] if len(decades) >= 2 else [math.exp((lo + hi) / 2)]
+
+
+def tick_fit_check(lo: float, hi: float, axis_pt: float, font_pt: float, natural: bool):
+    """A ``fits(values)`` test: adjacent tick labels keep a gap of at least one space.
+
+    ``natural`` means the values are natural units placed at their logs (ratio axes).
+    """
+
+    def fits(values) -> bool:
+        pos = [math.log(v) if natural else v for v in values]
+        if natural:
+            texts = [format_tick_value(v) for v in values]
+        else:
+            # matplotlib prints linear ticks with a common number of decimals ("−5.0")
+            decimals = max((len(f"{v:.6g}".partition(".")[2]) for v in values), default=0)
+            texts = [_plain(v, decimals) for v in values]
+        widths = [text_width_pt(t, font_pt) for t in texts]
+        for i in range(len(values) - 1):
+            gap = (pos[i + 1] - pos[i]) / (hi - lo) * axis_pt
+            if gap < (widths[i] + widths[i + 1]) / 2 + 0.6 * font_pt:
+                return False
+        return True
+
+    return fits
+
+
+def _plain(v: float, decimals: int = 0) -> str:
+    s = f"{v:.{decimals}f}"
+    return MINUS + s[1:] if s.startswith("-") else s
 
 
 def set_effect_axis(
-    ax: Axes, measure: str, lo: float, hi: float, which: str = "x", max_ticks: int = _MAX_TICKS
+    ax: Axes,
+    measure: str,
+    lo: float,
+    hi: float,
+    which: str = "x",
+    max_ticks: int = _MAX_TICKS,
+    axis_pt: float | None = None,
+    font_pt: float | None = None,
 ) -> list[float]:
     """Set limits and ticks of an effect axis; ratio measures get natural-unit labels.
 
@@ -186,6 +259,9 @@ def set_effect_axis(
         Limits on the analysis scale.
     which : {"x", "y"}
     max_ticks : int
+    axis_pt, font_pt : float, optional
+        Length of the axis and size of its tick labels in points; when given, ticks are
+        chosen so that their labels do not run together.
 
     Returns
     -------
@@ -196,16 +272,25 @@ def set_effect_axis(
 
     axis = ax.xaxis if which == "x" else ax.yaxis
     (ax.set_xlim if which == "x" else ax.set_ylim)(lo, hi)
+    check = axis_pt is not None and font_pt is not None and hi > lo
     if is_ratio(measure):
-        ticks = ratio_ticks(lo, hi, max_ticks)
+        fits = tick_fit_check(lo, hi, axis_pt, font_pt, True) if check else None
+        ticks = ratio_ticks(lo, hi, max_ticks, fits=fits)
         pos = [math.log(t) for t in ticks]
         axis.set_major_locator(FixedLocator(pos))
         axis.set_major_formatter(FuncFormatter(lambda v, _p: format_tick_value(math.exp(v))))
         axis.set_minor_locator(NullLocator())
         return pos
-    axis.set_major_locator(MaxNLocator(nbins=min(6, max_ticks), steps=[1, 2, 2.5, 5, 10]))
+    nbins = min(6, max_ticks)
+    while True:
+        loc = MaxNLocator(nbins=nbins, steps=[1, 2, 2.5, 5, 10])
+        vals = [float(t) for t in loc.tick_values(lo, hi) if lo <= t <= hi]
+        if not check or nbins <= 2 or tick_fit_check(lo, hi, axis_pt, font_pt, False)(vals):
+            break
+        nbins -= 1
+    axis.set_major_locator(loc)
     axis.set_minor_locator(NullLocator())
-    return [float(t) for t in axis.get_major_locator().tick_values(lo, hi) if lo <= t <= hi]
+    return vals
 
 
 # --------------------------------------------------------------------------------------

@@ -17,6 +17,8 @@ import numpy as np
 
 from . import style
 from .common import (
+    READ_CUMULATIVE,
+    READ_RADIAL,
     FigureInputError,
     format_effect,
     format_interval,
@@ -67,9 +69,13 @@ class CumulativeInput:
     favours: str = "lower"
     int_label: str = "intervention"
     ctl_label: str = "control"
+    #: the outcome's units, on the axis title of mean differences
+    units: str = ""
 
 
-def cumulative_figure(inp: CumulativeInput, size: str = "column") -> Figure:
+def cumulative_figure(
+    inp: CumulativeInput, size: str = "column", width: float | None = None
+) -> Figure:
     """Forest-like plot of the pooled estimate as studies are added in order of precision.
 
     A drift of the estimate as the less precise studies come in is the small-study effect
@@ -80,6 +86,8 @@ def cumulative_figure(inp: CumulativeInput, size: str = "column") -> Figure:
     ----------
     inp : CumulativeInput
     size : {"column", "page", "slide"}
+    width : float, optional
+        Lay out for this width (inches) instead of the size preset's.
 
     Returns
     -------
@@ -118,12 +126,15 @@ def cumulative_figure(inp: CumulativeInput, size: str = "column") -> Figure:
         measure=m,
         size=size,
         caption=" \u00b7 ".join(parts),
+        footer=READ_CUMULATIVE,
         label_header="Studies added",
         left_words=left,
         right_words=right,
         null=0.0,
         reference=last.estimate,
         reference_colour=style.MUTED,
+        width=width,
+        units=inp.units,
     )
 
 
@@ -248,15 +259,37 @@ def draw_radial(
     return art
 
 
-def radial_figure(inp: RadialInput, size: str = "column", *, egger_line: bool = False) -> Figure:
-    """A radial (Galbraith) plot as a new Figure; see :func:`draw_radial`."""
+def radial_figure(
+    inp: RadialInput,
+    size: str = "column",
+    *,
+    egger_line: bool = False,
+    width: float | None = None,
+    height: float | None = None,
+) -> Figure:
+    """A radial (Galbraith) plot as a new Figure; see :func:`draw_radial`.
+
+    A one-line "how to read this" caption goes under the plot. ``width``/``height``
+    (inches) lay the figure out for a window panel instead of the size preset.
+    """
     from matplotlib.figure import Figure
 
     preset = style.size_preset(size)
+    w = float(width) if width else preset.width
+    h = float(height) if height else preset.height
     with style.style_context(preset.font):
-        fig = Figure(figsize=(preset.width, preset.height), layout="constrained")
+        fig = Figure(figsize=(w, h), layout="constrained")
         ax = fig.add_subplot()
-        fig.lopside_artists = draw_radial(ax, inp, size=preset.name, egger_line=egger_line)
+        art = draw_radial(ax, inp, size=preset.name, egger_line=egger_line)
+        small = preset.font * 0.8
+        art["how_to_read"] = fig.supxlabel(
+            wrap_words(READ_RADIAL, w * 72.0 * 0.96, small),
+            x=0.01,
+            ha="left",
+            fontsize=small,
+            color=style.MUTED,
+        )
+        fig.lopside_artists = art
     return fig
 
 

@@ -100,6 +100,8 @@ class ForestOptions:
     show_fixed, show_random, show_prediction : bool
     caption : str
         Caption line; "" builds one from the measure and k.
+    width : float or None
+    units : str
     """
 
     measure: str = "OR"
@@ -113,6 +115,10 @@ class ForestOptions:
     show_random: bool = True
     show_prediction: bool = True
     caption: str = ""
+    #: lay out for this width (inches) instead of the size preset's (window panels)
+    width: float | None = None
+    #: the outcome's units, on the axis title of mean differences
+    units: str = ""
 
 
 def favours_words(favours: str, int_label: str, ctl_label: str) -> tuple[str, str]:
@@ -254,7 +260,11 @@ def forest_figure(
         ref_colour = style.INK
     fig = draw_rows(
         body,
-        [Column(abbrev), Column(level, "left"), Column("Weight")],
+        [
+            Column(abbrev),
+            Column(level, "left"),
+            Column("Weight", optional=True, dropped_note="weight: area of the square"),
+        ],
         measure=opts.measure,
         size=opts.size,
         caption=caption,
@@ -265,6 +275,8 @@ def forest_figure(
         null=0.0,
         reference=reference,
         reference_colour=ref_colour,
+        width=opts.width,
+        units=opts.units,
     )
     return fig
 

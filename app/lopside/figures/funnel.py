@@ -113,6 +113,8 @@ class FunnelInput:
     egger: tuple[float, float] | None = None
     adjusted: float | None = None
     limit: float | None = None
+    #: the outcome's units, for the axis title of mean differences ("" = none given)
+    units: str = ""
 
     @property
     def k(self) -> int:
@@ -384,7 +386,7 @@ def _draw(ax: Axes, inp: FunnelInput, opts: FunnelOptions, preset: style.SizePre
     # top; precision/size get (min, max).
     ax.set_ylim(bottom, top)
     ax.set_autoscale_on(False)
-    ax.set_xlabel(effect_axis_label(inp.measure))
+    ax.set_xlabel(effect_axis_label(inp.measure, inp.units))
     ax.set_ylabel(AXIS_TITLES[opts.axis])
     if opts.axis == "size":
         from matplotlib.ticker import LogLocator, NullFormatter, ScalarFormatter

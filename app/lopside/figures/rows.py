@@ -48,6 +48,10 @@ class Row:
 class Column:
     header: str
     align: str = "right"  # "left" or "right"
+    #: left out (with ``dropped_note`` added to the caption) when the plot would
+    #: otherwise get less than its minimum share of the width
+    optional: bool = False
+    dropped_note: str = ""
 
 
 def _row_height_pt(font: float) -> float:
@@ -68,8 +72,14 @@ def draw_rows(
     null: float = 0.0,
     reference: float | None = None,
     reference_colour: str = style.INK,
+    width: float | None = None,
+    units: str = "",
 ) -> Figure:
     """Build a row figure (see module docstring) and return it.
+
+    ``width`` (inches) lays the figure out for a given width instead of the size preset's
+    (a window panel passes its own); the font stays the preset's. ``units`` goes on the
+    effect axis title for mean differences.
 
     ``fig.lopside_artists`` holds "ax", "squares", "diamonds", "bars", "texts" (by row),
     "null", "layout" (column positions in inches) for tests.
@@ -82,7 +92,7 @@ def draw_rows(
     fs = preset.font
     fs_small = fs * 0.85
     row_pt = _row_height_pt(fs)
-    W = preset.width
+    W = float(width) if width else preset.width
     margin = 0.08
     gap_pt = fs * (0.7 if preset.name == "column" else 1.0)
 
@@ -97,7 +107,8 @@ def draw_rows(
         ]
         col_w.append(max(widths) / 72.0)
     numeric_w = sum(col_w) + gap_pt / 72.0 * (len(columns) + 1)
-    plot_min = {"column": 0.28, "page": 0.36, "slide": 0.40}.get(preset.name, 0.36) * W
+    # the plot keeps at least a third of the width: a forest plot is read by its picture
+    plot_min = (0.36 if W < 6.5 else 0.40) * W
     label_natural = (
         max(
             [text_width_pt(label_header, fs, "bold")]
@@ -117,7 +128,28 @@ def draw_rows(
     ]
     label_min = min(label_natural, max([6.6 * fs] + fixed_names) / 72.0, 0.3 * W)
     label_room = W - 2 * margin - numeric_w - plot_min
+    dropped = []
+    while label_room < min(label_natural, max(label_min, 0.2 * W)) and any(
+        c.optional for c in columns
+    ):
+        # too narrow for every column: an optional one (the weights, which the squares'
+        # area also shows) goes before the labels or the plot are squeezed
+        j = max(i for i, c in enumerate(columns) if c.optional)
+        dropped.append(columns[j])
+        columns = columns[:j] + columns[j + 1 :]
+        col_w = col_w[:j] + col_w[j + 1 :]
+        rows = [
+            r if len(r.cells) <= j else _replace(r, cells=r.cells[:j] + r.cells[j + 1 :])
+            for r in rows
+        ]
+        numeric_w = sum(col_w) + gap_pt / 72.0 * (len(columns) + 1)
+        label_room = W - 2 * margin - numeric_w - plot_min
+    notes = [c.dropped_note for c in dropped if c.dropped_note]
+    if notes:
+        caption = " \u00b7 ".join([caption, *notes]) if caption else " \u00b7 ".join(notes)
     label_w = max(min(label_natural, label_room), label_min)
+    # a label too long for its column goes onto two lines before anything is cut
+    rows = [_wrap_label(r, label_w * 72.0 - (fs if r.indent else 0.0), fs) for r in rows]
     x_label = margin
     xs = []
     x = x_label + label_w + gap_pt / 72.0
@@ -131,7 +163,10 @@ def draw_rows(
     body_rows = sum(r.height for r in rows)
     line_in = row_pt / 72.0
     caption = wrap_words(caption, (W - 2 * margin) * 72.0, fs_small, sep=" \u00b7 ")
-    footer = wrap_words(footer, (W - 2 * margin) * 72.0, fs_small, sep="  ")
+    footer = "\n".join(
+        wrap_words(line, (W - 2 * margin) * 72.0, fs_small)
+        for line in wrap_words(footer, (W - 2 * margin) * 72.0, fs_small, sep="  ").split("\n")
+    )
     caption_lines = caption.count("\n") + 1 if caption else 0
     top = 0.06 + caption_lines * fs_small * 1.35 / 72.0 + line_in * 1.2  # caption + header
     # tick marks and labels, the "favours" words, the axis title
@@ -181,9 +216,17 @@ def draw_rows(
         pad_rows = 0.12 / line_in
         ax.set_ylim(body_rows + pad_rows, 0.0)
 
-        # a tick label needs about four characters' room
-        max_ticks = int((plot_x1 - plot_x0) * 72.0 // (fs * 2.9))
-        set_effect_axis(ax, measure, x_lo, x_hi, "x", max_ticks=max(3, min(7, max_ticks)))
+        # ticks whose labels, as drawn, keep a space between them
+        set_effect_axis(
+            ax,
+            measure,
+            x_lo,
+            x_hi,
+            "x",
+            max_ticks=7,
+            axis_pt=(plot_x1 - plot_x0) * 72.0,
+            font_pt=fs * 0.9,
+        )
         ax.set_autoscale_on(False)
         ax.spines["left"].set_visible(False)
         ax.set_facecolor("none")  # let the zebra shading show through
@@ -205,6 +248,7 @@ def draw_rows(
                 "plot": (plot_x0, plot_x1),
                 "row_pt": row_pt,
                 "height": H,
+                "dropped": [c.header for c in dropped],
             },
         }
 
@@ -280,8 +324,10 @@ def draw_rows(
                 continue
             if r.label:
                 room = label_w * 72.0 - (fs if r.indent else 0.0)
+                if r.kind == "header":  # a group's name has its line to itself
+                    room = (plot_x0 - x_label) * 72.0
                 weight = "bold" if r.bold else "normal"
-                text = fit_label(r.label, room, fs, weight)
+                text = "\n".join(fit_label(x, room, fs, weight) for x in r.label.split("\n"))
                 row_texts.append(
                     fig.text(
                         x_label + (fs / 72.0 if r.indent else 0.0),
@@ -392,23 +438,37 @@ def draw_rows(
         right_room = (fig.dpi_scale_trans.transform((W - margin, 0))[0] - null_px) * 72.0 / fig.dpi
         lines_used = 1
         line_pt = fs_small * 1.25
+        sides = []
         for words, room, sign in ((left_words, left_room, -1), (right_words, right_room, 1)):
-            if not words or not (x_lo < null + sign * nudge < x_hi):
+            if not words:
                 continue
             txt = ("\u2190 " + words) if sign < 0 else (words + " \u2192")
-            ha = "right" if sign < 0 else "left"
-            if text_width_pt(txt, fs_small) <= room - 2:
-                t = _text(fig, null + sign * nudge, 0, txt, tr_words + off, fs_small, ha)
-            else:
-                # no room beside the null: a line of its own, against the figure edge
-                edge = margin if sign < 0 else W - margin
-                y_off = ScaledTranslation(0, words_y - line_pt / 72.0, fig.dpi_scale_trans)
+            beside = x_lo < null + sign * nudge < x_hi and text_width_pt(txt, fs_small) <= room - 2
+            sides.append((txt, sign, beside))
+        if all(beside for _t, _s, beside in sides):
+            for txt, sign, _b in sides:
+                ha = "right" if sign < 0 else "left"
+                fig.texts.append(
+                    _text(fig, null + sign * nudge, 0, txt, tr_words + off, fs_small, ha)
+                )
+        else:
+            # no room beside the null: each phrase goes to its own end of the plot (the
+            # left words at the left end, the right words at the right end), on one line
+            # when both fit, else the right-hand phrase on a second line
+            plot_pt = (plot_x1 - plot_x0) * 72.0
+            total = sum(text_width_pt(t, fs_small) for t, _s, _b in sides) + fs_small * 2
+            for txt, sign, _b in sides:
+                row = 1 if (sign > 0 and total > plot_pt and len(sides) == 2) else 0
+                lines_used = max(lines_used, row + 1)
+                y_off = ScaledTranslation(0, words_y - row * line_pt / 72.0, fig.dpi_scale_trans)
                 tr = blended_transform_factory(fig.dpi_scale_trans, ax.transAxes) + y_off
-                fit = fit_label(txt, (W - 2 * margin) * 72.0, fs_small)
+                # on a line of its own a phrase may run past the plot's other end
+                room_pt = (W - margin - plot_x0 if sign < 0 else plot_x1 - margin) * 72.0
+                fit = fit_label(txt, plot_pt if row == 0 and sign > 0 else room_pt, fs_small)
+                edge = plot_x0 if sign < 0 else plot_x1
                 t = _text(fig, edge, 0, fit, tr, fs_small, "left" if sign < 0 else "right")
-                lines_used = 2
-            fig.texts.append(t)
-        label = effect_axis_label(measure)
+                fig.texts.append(t)
+        label = effect_axis_label(measure, units)
         plot_pt = (plot_x1 - plot_x0) * 72.0
         loc = "center" if text_width_pt(label, fs) <= plot_pt else "right"
         ax.set_xlabel(label, fontsize=fs, labelpad=fs * 1.4 * lines_used + 1.0, loc=loc)
@@ -438,6 +498,37 @@ def _text(fig, x, y, s, transform, size, ha):
     t = Text(x, y, s, transform=transform, fontsize=size, color=style.MUTED, ha=ha, va="top")
     t.set_figure(fig)
     return t
+
+
+def _replace(r: Row, **kw) -> Row:
+    from dataclasses import replace
+
+    return replace(r, **kw)
+
+
+def _wrap_label(r: Row, room_pt: float, fs: float) -> Row:
+    """The row with its label on two lines (and a taller row) when it is too long for one."""
+    from dataclasses import replace
+
+    weight = "bold" if r.bold else "normal"
+    if not r.label or text_width_pt(r.label, fs, weight) <= room_pt or r.kind == "header":
+        return r
+    words = r.label.split()
+    if len(words) > 2 and len(words[0]) == 1 and not words[0].isalnum():
+        words = [f"{words[0]} {words[1]}", *words[2:]]  # "+ Name" stays together
+    if len(words) < 2:
+        return r
+    # the longest first line that fits; the rest (with the year) on the second
+    first = words[0]
+    for i in range(1, len(words)):
+        cand = " ".join(words[: i + 1])
+        if text_width_pt(cand, fs, weight) > room_pt:
+            break
+        first = cand
+    rest = r.label[len(first) :].strip()
+    if not rest:
+        return r
+    return replace(r, label=f"{first}\n{rest}", height=max(r.height, 1.75))
 
 
 def _bold_cells(r: Row) -> bool:

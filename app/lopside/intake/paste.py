@@ -24,7 +24,7 @@ from __future__ import annotations
 import math
 import re
 import unicodedata
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 from lopside.intake import messages as M
 from lopside.intake.numbers import (
@@ -1553,6 +1553,8 @@ def read_pasted(text: str, measure: str | None = None, decimal: str | None = Non
     measure_hint: str | None = None
     published: PublishedResult | None = None
     model_text = ""
+    published_i2: float | None = None
+    after_total = False  # the heterogeneity line that follows the overall total is the paper's
     for idx, raw, item in staged:
         if isinstance(item, LineReading):
             lines.append(item)
@@ -1579,6 +1581,14 @@ def read_pasted(text: str, measure: str | None = None, decimal: str | None = Non
                 reason += f"; rows below get subgroup '{ctx.subgroup}'"
             if key == "subtotal":
                 ctx.subgroup = None
+            if key == "heterogeneity" and after_total:
+                i2 = published_i2_of(raw)
+                if i2 is not None:
+                    published_i2 = i2
+                    reason += f"; I² {_fmt(i2)}% kept to check against your rows"
+            after_total = key == "total" or (
+                after_total and key in ("heterogeneity", "total_events")
+            )
             lines.append(LineReading(idx, raw, "skipped", reason=reason))
             continue
         prep = item
@@ -1597,8 +1607,10 @@ def read_pasted(text: str, measure: str | None = None, decimal: str | None = Non
             except Exception:  # noqa: BLE001 - a total we cannot read is still skipped
                 pass
             ctx.subgroup = None
+            after_total = True
             lines.append(LineReading(idx, raw, "skipped", reason=reason))
             continue
+        after_total = False
         ctx.undecided_now = []
         try:
             row, reading = _read_with_retry(prep, ctx)
@@ -1614,6 +1626,11 @@ def read_pasted(text: str, measure: str | None = None, decimal: str | None = Non
             reading = _with_note(reading, M.paste_note("summary_word_study", word=word))
         rows.append(row)
         lines.append(_with_index(reading, len(rows) - 1))
+    if published_i2 is not None:
+        if published is None:
+            published = PublishedResult(model=model_text, i2=published_i2)
+        else:
+            published = replace(published, i2=published_i2)
     mark = ctx.fallback_mark or ""
     if undecided and not mark:
         decimal_how = ""
@@ -1667,6 +1684,19 @@ def _with_note(reading: LineReading, note: str) -> LineReading:
     from dataclasses import replace
 
     return replace(reading, account=f"{reading.account}; {note}")
+
+
+_I2_RE = re.compile(r"\bi\s*(?:\u00b2|\^?2|-?squared)\s*[=:]\s*(\d{1,3}(?:[.,]\d+)?)\s*%")
+
+
+def published_i2_of(raw: str) -> float | None:
+    """I² as printed on a heterogeneity line ("...; I² = 37%"), in percent, or None."""
+    low = unicodedata.normalize("NFKC", raw).casefold()
+    m = _I2_RE.search(low)
+    if not m:
+        return None
+    v = float(m.group(1).replace(",", "."))
+    return v if 0.0 <= v <= 100.0 else None
 
 
 def _with_index(reading: LineReading, index: int) -> LineReading:

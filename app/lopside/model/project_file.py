@@ -6,7 +6,7 @@ Layout (version 1)::
       "lopside_project": 1,
       "saved_by": "Lopside 0.1.0",
       "details":  {title, question, outcome, measure, ci_level, favours, int_label,
-                   ctl_label, appraiser, source_note,
+                   ctl_label, appraiser, source_note, units (optional),
                    published: {estimate, lower, upper, model}},
       "studies":  [{study, year, estimate, ... , exclude, unread: {field: text}}, ...],
       "intake":   {source, not_read: [{kind, where, text, reason}], decimal_mark, ...},
@@ -161,11 +161,13 @@ def review_to_dict(review: Review, settings: dict[str, Any] | None = None) -> di
             "appraiser": d.appraiser,
             "source_note": d.source_note,
             "favours_source": d.favours_source,
+            "units": d.units,
             "published": {
                 "estimate": d.published.estimate,
                 "lower": d.published.lower,
                 "upper": d.published.upper,
                 "model": d.published.model,
+                "i2": d.published.i2,
             },
             "claim": {
                 "test": d.claim.test,
@@ -479,6 +481,7 @@ def review_from_dict(doc: Any) -> tuple[Review, dict[str, Any]]:
         lower=_number(pub.get("lower"), "details, published lower"),
         upper=_number(pub.get("upper"), "details, published upper"),
         model=_text(pub.get("model"), "details, published model"),
+        i2=_number(pub.get("i2"), "details, published I²"),
     )
     cl = det.get("claim", {}) or {}
     if not isinstance(cl, dict):
@@ -503,6 +506,8 @@ def review_from_dict(doc: Any) -> tuple[Review, dict[str, Any]]:
         k=None if claim_k is None else int(claim_k),
         conclusion=conclusion,
     )
+    if published.i2 is not None and not 0.0 <= published.i2 <= 100.0:
+        raise ProjectFileError("details, published I²: expected a percentage from 0 to 100.")
     details = ReviewDetails(
         title=_text(det.get("title"), "details, title"),
         question=_notes(det.get("question"), "details, question"),
@@ -517,6 +522,8 @@ def review_from_dict(doc: Any) -> tuple[Review, dict[str, Any]]:
         source_note=_notes(det.get("source_note"), "details, source_note"),
         claim=claim,
         favours_source=_intake_part(favours_source_from, det.get("favours_source")),
+        # added later: files without it (all older ones) read as "no units"
+        units=_text(det.get("units"), "details, units"),
     )
     studies = doc.get("studies", [])
     if not isinstance(studies, list):

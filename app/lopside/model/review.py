@@ -172,6 +172,8 @@ class PublishedResult:
     upper: float | None = None
     #: the model as printed, free text ("random effects", "Mantel-Haenszel fixed", ...)
     model: str = ""
+    #: I² as printed on the paper's heterogeneity line (percent), reconciled with the rows
+    i2: float | None = None
 
     def is_complete(self) -> bool:
         return None not in (self.estimate, self.lower, self.upper)
@@ -226,6 +228,9 @@ class ReviewDetails:
     source_note: str = ""
     #: what the review said about small-study effects (compared with Lopside's reading)
     claim: ReviewClaim = field(default_factory=ReviewClaim)
+    #: optional units of the outcome scale ("mmHg", "points on a 0-100 scale"), printed
+    #: on the effect axes and the sheet for mean differences
+    units: str = ""
     #: where ``favours`` came from (one of FAVOURS_SOURCES; "" = not recorded, older files)
     favours_source: str = ""
 

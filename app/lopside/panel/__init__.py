@@ -156,8 +156,7 @@ def check_names(inputs: Sequence[OutcomeInput]) -> None:
 
 def build_panel(title: str, inputs: Sequence[OutcomeInput], *, with_power: bool = False):
     """Analyse each outcome once and lay the rows side by side (see the module notes)."""
-    from ..analysis import analyse
-    from ..appraise import appraise
+    from ..assessment import assess
     from ..outcome_row import outcome_row
 
     check_names(inputs)
@@ -168,8 +167,8 @@ def build_panel(title: str, inputs: Sequence[OutcomeInput], *, with_power: bool 
             row.update(outcome=inp.name, status="skipped", reason=f"skipped: {inp.skipped}")
             summary.outcomes.append(PanelOutcome(inp.name, row))
             continue
-        result = analyse(inp.review, inp.settings, with_power=with_power)
-        appraisal = appraise(result)
+        assessment = assess(inp.review, inp.settings, with_power=with_power)
+        result, appraisal = assessment.analysis, assessment.appraisal
         row = outcome_row(result, appraisal, inp.name)
         if result.k == 0:
             reasons = [getattr(p, "message", str(p)) for p in result.problems][:2]

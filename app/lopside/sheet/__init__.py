@@ -23,8 +23,9 @@ def sheet_bytes(
 
     Parameters
     ----------
-    result : AnalysisResult
-        From :func:`lopside.analysis.analyse`.
+    result : Assessment or AnalysisResult
+        From :func:`lopside.assessment.assess` (an analysis alone is read through
+        :func:`lopside.assessment.assessment_of`).
     include_forest : bool
         Add the forest plot on its own page(s) after the three main pages.
     date : str or datetime.date, optional
@@ -54,7 +55,7 @@ def write_sheet(
 
     Parameters
     ----------
-    result : AnalysisResult
+    result : Assessment or AnalysisResult
     path : path-like
         Output PDF file.
     include_forest : bool

@@ -3,9 +3,11 @@
 Design invariants
 -----------------
 * Every word and number comes from :mod:`lopside.summary` (the same rows as the CLI text
-  and the window) and :mod:`lopside.appraise`; this module only lays them out.
-* The main sheet is always exactly three pages: page 1 the review, the data and the pooled
-  results; page 2 the funnel plot, tests and adjustments; page 3 the explanations side by
+  and the window), reading one :class:`lopside.assessment.Assessment` (the analysis and
+  its appraisal, computed once); this module only lays them out and never appraises.
+* The main sheet is always exactly three pages: page 1 the review, the key messages, the
+  data and the pooled results; page 2 the funnel plot, tests, adjustments (with trim and
+  fill under every setting) and leave-one-out; page 3 the explanations side by
   side, the suggested rating and the settings. Each page is a frame that shrinks its
   content only if it would overflow, so long labels or many problem rows never push the
   layout onto a fourth page. Lists are capped in :mod:`lopside.summary` so that shrinking
@@ -29,22 +31,23 @@ from ..summary import (
     applicability_section,
     causes_section,
     data_section,
-    fmt_num,
+    glance_section,
     header_section,
     heterogeneity_section,
-    missing_trials_sentence,
     pooled_section,
     rating_section,
     reconciliation_section,
     review_claim_section,
-    selection_sentence,
     selection_strength_brief,
     sensitivity_section,
     settings_section,
     small_study_section,
     subgroups_section,
     tests_section,
+    trim_fill_section,
 )
+from ..words.numbers import fmt_num
+from ..words.sentences import trim_fill_range
 from . import fonts, layout
 from .layout import FRAME_H, FRAME_W, boxed, para, section_table
 
@@ -154,44 +157,16 @@ def _section(sec, st, title: str | None = None, **kw) -> list:
     return out
 
 
-def _glance(result, appraisal, st) -> list:
-    """The key messages box on page 1."""
-    r = appraisal.rating
-    ss = appraisal.small_study
-    rating = f"<b>Publication bias, suggested rating:</b> {layout.markup(r.suggested)}"
-    if r.override:
-        rating += f"; <b>appraiser's rating:</b> {layout.markup(r.override)}"
-    else:
-        rating += " (for the appraiser to confirm or override, page 3)"
+def _glance(assessment, st) -> list:
+    """The key messages box on page 1: the rows of :func:`lopside.summary.glance_section`."""
     from reportlab.platypus import Paragraph
 
+    sec = glance_section(assessment)
     items = [
-        Paragraph(rating, st["box"]),
-        Paragraph(
-            f"<b>Funnel:</b> {layout.markup(ss.contour.conclusion or ss.contour.text)}", st["box"]
-        ),
-        Paragraph(f"<b>Test:</b> {layout.markup(ss.test.text)}", st["box"]),
-        Paragraph(
-            f"<b>Adjusted estimates:</b> {layout.markup(ss.adjustments.text.split(' Methods: ')[0])}",
-            st["box"],
-        ),
+        Paragraph(f"<b>{layout.markup(label)}:</b> {layout.markup(text)}", st["box"])
+        for label, text in sec.rows
     ]
-    # issue 20: how strong selection would have to be, trials known to be missing, and the
-    # review's own claim about small-study effects
-    claim = review_claim_section(result)
-    for label, text in (
-        ("The review's own claim", claim.rows[-1][1] if claim is not None else None),
-        ("Selection needed", selection_sentence(result)),
-        ("Trials never reported", missing_trials_sentence(result)),
-    ):
-        if text:
-            items.append(Paragraph(f"<b>{label}:</b> {layout.markup(text)}", st["box"]))
     items.append(Paragraph(f"<b>Caution.</b> {layout.markup(CAUTION)}", st["small"]))
-    from ..stats.diagnostics import HEADLINE, glance_text
-
-    flags = glance_text(getattr(result, "row_flags", None))
-    if flags:  # a mistyped row changes every reading above: say so before them
-        items.insert(0, Paragraph(f"<b>{HEADLINE}:</b> {layout.markup(flags)}", st["box"]))
     return [boxed(items, fill=layout.HEAD_FILL)]
 
 
@@ -238,9 +213,10 @@ def _header(result, st, date: str) -> list:
     return out
 
 
-def _page1(result, appraisal, st, date: str) -> list:
+def _page1(assessment, st, date: str) -> list:
+    result = assessment.analysis
     out = _header(result, st, date)
-    out += [_spacer(5)] + _glance(result, appraisal, st)
+    out += [_spacer(5)] + _glance(assessment, st)
     out += _section(data_section(result), st)
     from ..summary import row_flags_section  # rows that stand out (stats.diagnostics)
 
@@ -248,11 +224,6 @@ def _page1(result, appraisal, st, date: str) -> list:
     out += _section(reconciliation_section(result), st)
     out += _section(pooled_section(result), st)
     out += _section(heterogeneity_section(result), st)
-    sens = sensitivity_section(result)
-    # fail-safe N is not recommended (Cochrane Handbook 5.1, 10.4.4.3): the window and the
-    # text show it with its caution; the printed sheet leaves it out to keep its room
-    sens = replace(sens, rows=tuple(r for r in sens.rows if not r[0].startswith("Fail-safe")))
-    out += _section(sens, st, label_width=150)
     sg = subgroups_section(result)
     if sg is not None:
         out += _section(sg, st)
@@ -328,8 +299,23 @@ def _page2(result, appraisal, st) -> list:
     out = _funnel_block(result, appraisal, st)
     out += _section(tests_section(result), st)
     out += _section(applicability_section(result), st)
-    out += _section(adjustments_section(result), st)
+    adj = adjustments_section(result)
+    tf = trim_fill_section(result)
+    rng = trim_fill_range(result)
+    if tf is not None and rng is not None and rng.agree:
+        # the settings agree: one sentence (which setting gives the lowest and highest
+        # estimate) under the table is enough; the full table is printed when they disagree
+        adj = replace(adj, notes=adj.notes + (rng.text,))
+        tf = None
+    out += _section(adj, st)
+    if tf is not None:
+        out += _section(tf, st)
     out += _selection_block(result, st)
+    sens = sensitivity_section(result)
+    # fail-safe N is not recommended (Cochrane Handbook 5.1, 10.4.4.3): the window and the
+    # text show it with its caution; the printed sheet leaves it out to keep its room
+    sens = replace(sens, rows=tuple(r for r in sens.rows if not r[0].startswith("Fail-safe")))
+    out += _section(sens, st, label_width=150)
     # power is read out beside the funnel (simulated or not), so no separate block here
     return out
 
@@ -419,7 +405,9 @@ def build_sheet(
 
     Parameters
     ----------
-    result : AnalysisResult
+    result : Assessment or AnalysisResult
+        The assessment to print (an analysis alone is read through
+        :func:`lopside.assessment.assessment_of`: the sheet never appraises by itself).
     include_forest : bool
         Add the forest plot on its own page(s) after the three main pages.
     date : str or datetime.date, optional
@@ -428,7 +416,7 @@ def build_sheet(
         Write the creation date and a random document id into the PDF (off by default,
         so that the same analysis on the same date gives the same bytes).
     appraisal : Appraisal, optional
-        Readings to print; computed from ``result`` when not given.
+        Accepted for older callers; must be the appraisal of ``result``.
 
     Returns
     -------
@@ -437,18 +425,21 @@ def build_sheet(
     from reportlab.lib.pagesizes import A4
     from reportlab.platypus import PageBreak, SimpleDocTemplate
 
-    from ..appraise import appraise
+    from ..assessment import Assessment, assessment_of
 
+    assessment = assessment_of(result)
+    if appraisal is not None and appraisal is not assessment.appraisal:
+        assessment = Assessment(assessment.analysis, appraisal)
+    result = assessment.analysis
+    appraisal = assessment.appraisal
     fonts.register_fonts()
     st = layout.styles()
-    if appraisal is None:
-        appraisal = appraise(result)
     if date is None:
         date = _dt.date.today()
     date = date.isoformat() if isinstance(date, _dt.date) else str(date)
 
     pages = [
-        _frame_page(_page1(result, appraisal, st, date)),
+        _frame_page(_page1(assessment, st, date)),
         _frame_page(_page2(result, appraisal, st)),
         _frame_page(_page3(result, appraisal, st)),
     ]

@@ -150,7 +150,7 @@ def reconcile(
         verdict = "agrees"
         reading = (
             f"Your rows reproduce the published result: closest is {best.label} "
-            f"(largest difference {best.worst * 100:.1f} %)."
+            f"(largest difference, estimate or a CI limit, {best.worst * 100:.1f} %)."
         )
     elif best.worst <= NEAR_RELATIVE:
         verdict = "near"
@@ -183,7 +183,7 @@ def reconcile(
                     (
                         row,
                         label,
-                        f"without it the difference falls from {base * 100:.1f} % "
+                        f"without it the estimate's difference falls from {base * 100:.1f} % "
                         f"to {d * 100:.1f} %",
                     )
                 )

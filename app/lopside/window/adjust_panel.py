@@ -26,11 +26,12 @@ CURVE_DPI = 110
 def adjust_sections(result):
     from .. import summary as S
 
-    return [
-        S.adjustments_section(result),
-        S.selection_strength_section(result),
-        S.sensitivity_section(result),
-    ]
+    out = [S.adjustments_section(result)]
+    tf = S.trim_fill_section(result)  # every trim-and-fill setting beside the default
+    if tf is not None:
+        out.append(tf)
+    out += [S.selection_strength_section(result), S.sensitivity_section(result)]
+    return out
 
 
 class AdjustPanel(SectionsPanel):

@@ -1,6 +1,7 @@
 """The causes view: each alternative explanation with the evidence, a judgement and notes.
 
-The evidence and the suggested rating are the readings of :mod:`lopside.appraise`; the
+The evidence and the suggested rating are read from the one assessment of the result
+(:func:`lopside.assessment.assessment_of`, the object the sheet and the JSON read); the
 judgements, notes and override are the appraiser's, stored in the review as edits.
 """
 
@@ -224,6 +225,11 @@ class CausesPanel(QScrollArea):
         if result is None:
             self.show_message(M.NO_ANALYSIS)
             return
+        if getattr(result, "stage", "full") != "full":
+            # a partial analysis would give a partial reading that the full one may contradict
+            self.reading.setText(html.escape(M.READING_UPDATING))
+            self._appraisal_for = None
+            return
         # the readings depend on the statistics, not on the notes: skip when only notes moved
         key = (result.data, result.settings, result.power, result.review.details)
         if self._appraisal_for is not None and all(
@@ -231,7 +237,7 @@ class CausesPanel(QScrollArea):
         ):
             return
         try:
-            from ..appraise import appraise
+            from ..assessment import assessment_of
         except ImportError as exc:
             msg = M.NOT_AVAILABLE.format(part=getattr(exc, "name", "lopside.appraise"))
             self.reading.setText(html.escape(msg))
@@ -239,7 +245,8 @@ class CausesPanel(QScrollArea):
                 ev.setText("\u2013")
             self.suggested.setText(html.escape(msg))
             return
-        a = appraise(result)
+        # the one assessment of this result (the same object the sheet and the JSON read)
+        a = assessment_of(result).appraisal
         self.appraisal = a
         self._appraisal_for = key
         lines = "".join(
@@ -265,7 +272,19 @@ class CausesPanel(QScrollArea):
                 body += f"<br><i>Look for: {html.escape(c.what_to_check)}</i>"
             self.evidence[key].setText(body)
         r = a.rating
-        reasons = "".join(f"<li>{html.escape(x)}</li>" for x in r.reasons)
+        # reasons indented by two spaces are the signals listed under the line before them
+        items = []
+        for x in r.reasons:
+            if x.startswith("  ") and items:
+                items[-1][1].append(x.strip())
+            else:
+                items.append((x, []))
+        reasons = "".join(
+            f"<li>{html.escape(x)}"
+            + ("<ul>" + "".join(f"<li>{html.escape(s)}</li>" for s in sub) + "</ul>" if sub else "")
+            + "</li>"
+            for x, sub in items
+        )
         self.suggested.setText(
             f"<b>Suggested: {html.escape(r.suggested)}</b><ul style='margin:0'>{reasons}</ul>"
             f"<span style='color:#616E7C'>{html.escape(r.note)}</span>"

@@ -11,6 +11,7 @@ from PySide6.QtWidgets import (
     QHBoxLayout,
     QLabel,
     QLineEdit,
+    QPlainTextEdit,
     QScrollArea,
     QVBoxLayout,
 )
@@ -37,6 +38,45 @@ def measure_combo(parent=None) -> QComboBox:
     return box
 
 
+class LongTextEdit(QPlainTextEdit):
+    """A few wrapped lines for a long single-paragraph text (the review question).
+
+    It offers the small part of QLineEdit's API the form uses (``text``, ``setText``,
+    ``editingFinished``); Tab moves on, Enter finishes, and line breaks become spaces.
+    """
+
+    editingFinished = Signal()  # noqa: N815 - the Qt name the form expects
+
+    def __init__(self, lines: int = 3, parent=None) -> None:
+        super().__init__(parent)
+        self.setTabChangesFocus(True)
+        self.setLineWrapMode(QPlainTextEdit.WidgetWidth)
+        fm = self.fontMetrics()
+        self.setFixedHeight(int(fm.lineSpacing() * lines + 12))
+
+    def text(self) -> str:
+        return " ".join(self.toPlainText().split())
+
+    def setText(self, text: str) -> None:  # noqa: N802 - QLineEdit's name
+        self.setPlainText(text)
+        self.document().setModified(False)
+
+    def setCursorPosition(self, pos: int) -> None:  # noqa: N802 - QLineEdit's name
+        c = self.textCursor()
+        c.setPosition(pos)
+        self.setTextCursor(c)
+
+    def keyPressEvent(self, event) -> None:  # noqa: N802 - Qt API
+        if event.key() in (Qt.Key_Return, Qt.Key_Enter):
+            self.editingFinished.emit()
+            return
+        super().keyPressEvent(event)
+
+    def focusOutEvent(self, event) -> None:  # noqa: N802 - Qt API
+        super().focusOutEvent(event)
+        self.editingFinished.emit()
+
+
 class DetailsForm(QScrollArea):
     """Edits review details through ``push`` (SetDetail edits); refreshes from the session."""
 
@@ -56,7 +96,9 @@ class DetailsForm(QScrollArea):
         form = QFormLayout(about)
         form.setFieldGrowthPolicy(QFormLayout.AllNonFixedFieldsGrow)
         self.title = self._line("Title", "e.g. Vantoprine for delirium after surgery (invented)")
-        self.question = self._line("Question", "Population, intervention, comparison")
+        self.question = LongTextEdit(3)
+        self.question.setPlaceholderText("Population, intervention, comparison")
+        self.question.setAccessibleName("Question")
         self.outcome = self._line("Outcome", "e.g. delirium within 7 days")
         self.appraiser = self._line("Appraiser", "Your name (printed on the sheet)")
         form.addRow("&Title:", self.title)
@@ -81,13 +123,20 @@ class DetailsForm(QScrollArea):
         self.int_label = self._line("Intervention arm label", "intervention")
         self.ctl_label = self._line("Comparator arm label", "control")
         f2.addRow("&Measure:", self.measure)
+        self.units = self._line("Units of the outcome", "optional, e.g. mmHg (mean differences)")
+        self.units.setToolTip(
+            "The outcome's units, printed on the axes and the sheet for mean differences"
+        )
+        f2.addRow("U&nits:", self.units)
         f2.addRow("CI &level of the studies:", self.ci_level)
-        f2.addRow("&Favours:", self.favours)
+        f2.addRow("Favo&urs:", self.favours)
         arms = QHBoxLayout()
         arms.addWidget(self.int_label)
         arms.addWidget(QLabel("vs"))
         arms.addWidget(self.ctl_label)
-        f2.addRow("Arm labels:", arms)
+        arms_label = QLabel("&Arm labels:")
+        arms_label.setBuddy(self.int_label)
+        f2.addRow(arms_label, arms)
         outer.addWidget(scale)
 
         pub = QGroupBox("Published pooled result (as printed)")
@@ -103,10 +152,10 @@ class DetailsForm(QScrollArea):
         row.addWidget(QLabel("to"))
         row.addWidget(self.pub_upper)
         row.addWidget(QLabel(")"))
-        est_label = QLabel("&Estimate (CI):")
+        est_label = QLabel("Estimate (&CI):")
         est_label.setBuddy(self.pub_estimate)
         f3.addRow(est_label, row)
-        f3.addRow("Mo&del as printed:", self.pub_model)
+        f3.addRow("Model as pr&inted:", self.pub_model)
         self.pub_problem = QLabel()
         self.pub_problem.setWordWrap(True)
         self.pub_problem.setStyleSheet("color: #9B2C1F;")
@@ -155,6 +204,7 @@ class DetailsForm(QScrollArea):
             "question": self.question,
             "outcome": self.outcome,
             "appraiser": self.appraiser,
+            "units": self.units,
             "int_label": self.int_label,
             "ctl_label": self.ctl_label,
             "published.model": self.pub_model,

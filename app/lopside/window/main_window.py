@@ -50,9 +50,11 @@ from .adjust_panel import AdjustPanel
 from .autosave import Autosaver, Recoverable, as_choice, find_recoverable
 from .causes import CausesPanel
 from .details_form import DetailsForm
+from .errors import details, plain, show_error
 from .paste_dialog import PasteDialog
 from .plots import CompanionPanel, ForestPanel, FunnelPanel
 from .power_panel import PowerPanel
+from .screen_fit import keep_on_screen, place_window, screen_signature
 from .sections import SectionsPanel
 from .study_panel import StudyPanel
 from .undo import EditStack
@@ -91,9 +93,10 @@ def _tests_sections(result):
 
     out = [S.tests_section(result), S.applicability_section(result)]
     try:
-        from ..appraise import appraise
+        from ..assessment import assessment_of
 
-        out.insert(0, S.small_study_section(appraise(result)))
+        # the one reading of this result (shared with the Causes view, sheet and JSON)
+        out.insert(0, S.small_study_section(assessment_of(result).appraisal))
     except ImportError:
         pass
     return out
@@ -271,6 +274,7 @@ class MainWindow(QMainWindow):
         self.analysis_error = ""
         self.sheet_worker: SheetWorker | None = None
         self.last_message = ""
+        self.last_error: tuple[str, str, str] | None = None
         self._closing_ok = False
 
         self.setWindowTitle("Lopside")
@@ -368,6 +372,9 @@ class MainWindow(QMainWindow):
         # no change without intent: the wheel moves only a focused combo/spin box/slider
         guards.install_wheel_guard()
         guards.guard_tree(self)
+        from .focus import FocusTracker
+
+        self.focus_tracker = FocusTracker(self)
 
     # ------------------------------------------------------------------ menus
 
@@ -399,7 +406,7 @@ class MainWindow(QMainWindow):
         self.recent_menu.aboutToShow.connect(self._fill_recent)
         f.addSeparator()
         self.act_save = self._action("&Save", self.save, QKeySequence.Save)
-        self.act_save_as = self._action("Save &as\u2026", self.save_as, QKeySequence.SaveAs)
+        self.act_save_as = self._action("Sa&ve as\u2026", self.save_as, QKeySequence.SaveAs)
         f.addAction(self.act_save)
         f.addAction(self.act_save_as)
         f.addSeparator()
@@ -433,9 +440,9 @@ class MainWindow(QMainWindow):
             self._action("&Paste rows from a paper\u2026", self.open_paste_dialog, "Ctrl+Shift+V")
         )
         e.addAction(self._action("&Add a row", s.add_row, "Ctrl+Shift+N"))
-        e.addAction(self._action("D&uplicate rows", s.duplicate_rows, "Ctrl+D"))
+        e.addAction(self._action("Dupli&cate rows", s.duplicate_rows, "Ctrl+D"))
         e.addAction(self._action("&Delete rows", s.delete_rows, "Ctrl+Shift+Del"))
-        e.addAction(self._action("Move row &up", lambda: s.move_current(-1), "Ctrl+Shift+Up"))
+        e.addAction(self._action("Mo&ve row up", lambda: s.move_current(-1), "Ctrl+Shift+Up"))
         e.addAction(self._action("Move row do&wn", lambda: s.move_current(1), "Ctrl+Shift+Down"))
         e.addAction(self._action("&Leave out / bring back", s.toggle_exclude, "Ctrl+E"))
 
@@ -495,16 +502,14 @@ class MainWindow(QMainWindow):
     # ------------------------------------------------------------------ prefs
 
     def _restore_prefs(self) -> None:
-        geo = self.prefs.get_bytes(P.GEOMETRY)
-        if geo is not None:
-            self.restoreGeometry(geo)
-        else:
-            self.resize(1366, 740)
+        # a geometry saved on another screen or scale is not reused; any is clamped
+        placed = place_window(self, self.prefs.get_bytes(P.GEOMETRY), self.prefs.get_str(P.SCREEN))
         split = self.prefs.get_bytes(P.SPLITTER)
-        if split is not None:
+        if split is not None and placed != "default":
             self.split.restoreState(split)
         else:
-            self.split.setSizes([730, 636])
+            w = self.width()
+            self.split.setSizes([w * 57 // 100, w - w * 57 // 100])
         self.views.setCurrentIndex(
             max(0, min(self.prefs.get_int(P.VIEW_TAB, 0), self.views.count() - 1))
         )
@@ -521,6 +526,7 @@ class MainWindow(QMainWindow):
 
     def _save_prefs(self) -> None:
         self.prefs.set(P.GEOMETRY, self.saveGeometry())
+        self.prefs.set(P.SCREEN, screen_signature(self.screen()))
         self.prefs.set(P.SPLITTER, self.split.saveState())
         self.prefs.set(P.VIEW_TAB, self.views.currentIndex())
         self.prefs.set(P.ENTRY_MODE, self.studies.model.mode)
@@ -530,6 +536,14 @@ class MainWindow(QMainWindow):
     def _save_funnel_options(self) -> None:
         for k, v in self.funnel.option_state().items():
             self.prefs.set(P.FUNNEL_PREFIX + k, v)
+
+    def showEvent(self, event) -> None:  # noqa: N802 - Qt API
+        super().showEvent(event)
+        if not getattr(self, "_placed_once", False) and not _headless():
+            self._placed_once = True
+            # the window manager's real frame is known only now: pull a window that
+            # sticks out back in (headless platforms have no frame; place_window did it)
+            QTimer.singleShot(0, lambda: keep_on_screen(self))
 
     # ------------------------------------------------------------------ start-up
 
@@ -748,7 +762,8 @@ class MainWindow(QMainWindow):
             self.analysis_error = M.NOT_AVAILABLE.format(part=exc.name)
         except Exception as exc:  # noqa: BLE001 - shown to the user; the window stays up
             result = None
-            self.analysis_error = M.ANALYSIS_FAILED.format(error=f"{type(exc).__name__}: {exc}")
+            self.analysis_error = M.ANALYSIS_FAILED.format(error=plain(str(exc)))
+            self.last_error = (M.ANALYSIS_FAILED_TITLE, self.analysis_error, details(exc))
         if result is not None and result is self.result:
             # nothing changed since the last update (e.g. the debounce after a cached
             # state): only a view shown since then may need catching up
@@ -823,7 +838,7 @@ class MainWindow(QMainWindow):
             self.status_label.setText(self.analysis_error or M.NO_ANALYSIS)
             return
         try:
-            from ..summary import pooled_text
+            from ..words.numbers import pooled_text
 
             text = f"k = {r.k} \u00b7 random effects {pooled_text(r.random, r.measure)}"
         except (ImportError, AttributeError, TypeError):
@@ -1041,16 +1056,16 @@ class MainWindow(QMainWindow):
         paste.accepted.connect(added)
 
     def _open_failed(self, p: Path, exc: Exception) -> None:
-        msg = M.OPEN_FAILED.format(name=p.name, error=exc)
+        # plain words in the dialog; the file's path and the exception behind "Show details"
+        msg = M.OPEN_FAILED.format(name=p.name, error=plain(str(exc), p.name, str(p)))
         self.say(msg, 15000)
-        QTimer.singleShot(
-            0,
-            lambda: (
-                QMessageBox.warning(self, "Could not open", msg)
-                if self.isVisible() and not _headless()
-                else None
-            ),
-        )
+        self._error_dialog(M.OPEN_FAILED_TITLE, msg, details(exc, f"File: {p}"))
+
+    def _error_dialog(self, title: str, text: str, detail: str) -> None:
+        """Show an error box (not in headless runs); the last one is kept for tests."""
+        self.last_error = (title, text, detail)
+        if self.isVisible() and not _headless():
+            QTimer.singleShot(0, lambda: show_error(self, title, text, detail))
 
     def save(self) -> bool:
         self.causes.flush()
@@ -1101,7 +1116,9 @@ class MainWindow(QMainWindow):
         try:
             saved = self.session.save(path)
         except (OSError, ValueError) as exc:
-            msg = M.SAVE_FAILED.format(name=Path(path).name, error=exc)
+            msg = M.SAVE_FAILED.format(
+                name=Path(path).name, error=plain(str(exc), Path(path).name, str(path))
+            )
             self.say(msg, 0)
             # a dialog, not only a status message; "save elsewhere" keeps the work
             if self.ask_save_failed(Path(path).name, str(exc)):
@@ -1257,7 +1274,7 @@ class MainWindow(QMainWindow):
 
             write_atomic(path, figure_bytes(fig, format_for(path)))
         except (OSError, ValueError) as exc:
-            self.say(M.SHEET_FAILED.format(error=exc))
+            self.say(M.SHEET_FAILED.format(error=plain(str(exc), str(path))))
             return False
         self.say(M.EXPORTED_FIGURE.format(path=path))
         return True

@@ -32,8 +32,11 @@ RECOVERED_CHANGED = (
     "Its autosave had been changed outside Lopside since it was written: check it before "
     "relying on it."
 )
-OPEN_FAILED = "Could not open {name}: {error}"
-SAVE_FAILED = "Could not save {name}: {error}"
+OPEN_FAILED = "Could not open {name}. {error}"
+OPEN_FAILED_TITLE = "Could not open the file"
+SAVE_FAILED = "Could not save {name}. {error}"
+SAVE_FAILED_TITLE = "Could not save"
+ANALYSIS_FAILED_TITLE = "The analysis could not be run"
 SAVED = "Saved {name}."
 AUTOSAVE_FAILED = "Autosave failed: {error}. Save the review to keep your changes."
 ANALYSING = "Analysing\u2026"
@@ -49,6 +52,8 @@ CELL_UNREAD_HINT = {
     "reported": "no (a trial that never reported results) or leave it blank",
     "p": "a P value such as 0.03 or <0.001",
 }
+#: added to a row check's message when that problem also keeps the study out
+LEFT_OUT = "The study is left out of the analysis until this is fixed."
 DETAIL_UNREAD = "“{text}” is not a number; the published result is not used until it is one."
 
 PASTE_TITLE = "Paste rows from a paper"
@@ -128,6 +133,13 @@ PDF_STATUS = (
 PDF_FAILED = "The PDF could not be read ({error})."
 PDF_READING = "Reading the PDF's pages…"
 PDF_FROM = "{rows} rows from page(s) {pages} of {name} were added."
+
+#: The Causes view while only the core stage of the analysis is ready (the reading needs
+#: the sensitivity analyses, so it waits for the full stage rather than show a partial one).
+READING_UPDATING = (
+    "Updating the reading: the selection model and the other sensitivity analyses are "
+    "still running."
+)
 
 # ---------------------------------------------------------------- never silent, never lost
 

@@ -19,16 +19,17 @@ from PySide6.QtGui import QCursor
 from PySide6.QtWidgets import (
     QCheckBox,
     QComboBox,
-    QHBoxLayout,
     QLabel,
     QSizePolicy,
     QStackedLayout,
+    QStyle,
     QToolTip,
     QVBoxLayout,
     QWidget,
 )
 
 from . import messages as M
+from .flow import FlowLayout, labelled
 
 
 class FigurePanel(QWidget):
@@ -42,7 +43,8 @@ class FigurePanel(QWidget):
         self.setAccessibleName(name)
         self._outer = QVBoxLayout(self)
         self._outer.setContentsMargins(2, 2, 2, 2)
-        self.controls = QHBoxLayout()
+        # option controls wrap in a narrow panel instead of widening the window
+        self.controls = FlowLayout(h_spacing=8)
         self._outer.addLayout(self.controls)
         self._stack_host = QWidget()
         self._stack = QStackedLayout(self._stack_host)
@@ -266,19 +268,15 @@ class FunnelPanel(FigurePanel):
         for key, text in (("none", "No names"), ("selected", "Name selected"), ("all", "Name all")):
             self.labels_box.addItem(text, key)
         self.labels_box.setAccessibleName("Study names on the plot")
-        for lab, w in (("Axis:", self.axis_box), ("Centre:", self.model_box)):
-            ql = QLabel(lab)
-            ql.setBuddy(w)
-            row1.addWidget(ql)
-            row1.addWidget(w)
+        for lab, w in (("A&xis:", self.axis_box), ("Centre:", self.model_box)):
+            row1.addWidget(labelled(lab, w))
         row1.addWidget(self.colour_box)
         row1.addWidget(self.labels_box)
-        row1.addStretch(1)
-        row2 = QHBoxLayout()
-        self.contours_box = QCheckBox("&Significance bands")
-        self.egger_box = QCheckBox("&Egger line")
-        self.filled_box = QCheckBox("Filled st&udies")
-        self.adjusted_box = QCheckBox("Adjusted estimates")
+        row2 = row1
+        self.contours_box = QCheckBox("Significance &bands")
+        self.egger_box = QCheckBox("E&gger line")
+        self.filled_box = QCheckBox("Sho&w trim-and-fill studies")
+        self.adjusted_box = QCheckBox("Ad&justed estimates")
         for w, tip in (
             (self.contours_box, "Shade where a study would be significant at p < 0.10/0.05/0.01"),
             (self.egger_box, "Draw the Egger regression line"),
@@ -287,8 +285,6 @@ class FunnelPanel(FigurePanel):
         ):
             w.setToolTip(tip)
             row2.addWidget(w)
-        row2.addStretch(1)
-        self._outer.insertLayout(1, row2)
         self.hint = QLabel("Hover over a study to see it; click to select its row.")
         self.hint.setStyleSheet("color: #616E7C;")
         self._outer.addWidget(self.hint)
@@ -404,6 +400,13 @@ class FunnelPanel(FigurePanel):
 
         opts = self.funnel_options(result)
         inp = adaptor(result, opts)
+        c = self.canvas
+        # the builder lays out the key for the figure's width: make it the size the canvas
+        # has (or, when just created, the area it will fill), not the size it was made with
+        host = c if c.isVisible() else self._stack_host
+        if host.width() > 50 and host.height() > 50:
+            px = (c.devicePixelRatioF() or 1.0) / self.figure.dpi
+            self.figure.set_size_inches(host.width() * px, host.height() * px, forward=False)
         self.figure.clear()
         # the builder puts the key below the axes as a figure legend when the layout engine
         # makes room for it: build under constrained layout, then fix the layout if known
@@ -580,7 +583,7 @@ class FunnelPanel(FigurePanel):
         study = res.review.studies[row]
         d = res.derived[row]
         try:
-            from ..summary import fmt_effect, fmt_se
+            from ..words.numbers import fmt_effect, fmt_se
 
             eff = fmt_effect(d.y, res.measure)
             se = fmt_se(d.se)
@@ -634,12 +637,44 @@ class FunnelPanel(FigurePanel):
 # Forest and companions
 
 
-class BuiltFigurePanel(FigurePanel):
-    """A panel for builders that make their own Figure (forest, cumulative).
+#: logical pixels per inch at which the built figures are laid out for their panel
+SCREEN_DPI = 96.0
+#: a width change smaller than this (pixels) keeps the current layout (only rescaled)
+RELAYOUT_STEP = 24
 
-    The figure keeps the size the builder chose (it grows with the number of studies) and
-    scrolls inside the panel, so nothing is squeezed or cut off.
+
+class BuiltFigurePanel(FigurePanel):
+    """A panel for builders that make their own Figure (forest, cumulative, radial).
+
+    The builder lays the figure out for the panel's width (label and plot columns sized
+    from the text drawn); it grows in height with the number of studies and scrolls
+    vertically inside the panel, so nothing is squeezed or cut off. A resize of more
+    than ``RELAYOUT_STEP`` pixels lays it out again.
     """
+
+    def _area(self):
+        sa = getattr(self, "scroll", None)  # QWidget.scroll() until the area is made
+        return sa if hasattr(sa, "viewport") else None
+
+    def layout_px(self) -> int:
+        """The panel's usable width in pixels, in steps of RELAYOUT_STEP.
+
+        Measured on the scroll area less its frame and a vertical scroll bar, whether
+        or not the bar shows, so that the bar appearing does not change the layout.
+        """
+        sa = self._area()
+        bar = self.style().pixelMetric(QStyle.PM_ScrollBarExtent)
+        if sa is None or not sa.isVisible():  # not laid out yet: the panel's own width
+            avail = self.width() - 6 - bar - 8
+        else:
+            avail = sa.width() - 2 * sa.frameWidth() - bar - 8
+        return int(max(avail, 360) // RELAYOUT_STEP * RELAYOUT_STEP)
+
+    def layout_inches(self) -> tuple[float, float]:
+        """Width and height (inches) the builder should lay the figure out for."""
+        sa = self._area()
+        h = sa.height() - 2 * sa.frameWidth() - 8 if sa is not None else self.height() - 60
+        return self.layout_px() / SCREEN_DPI, max(h, 280) / SCREEN_DPI
 
     def ensure_canvas(self) -> None:
         if self.canvas is not None:
@@ -669,29 +704,45 @@ class BuiltFigurePanel(FigurePanel):
         if old is not None:
             old.deleteLater()
         self.figure = fig
+        # the size the builder laid out for; the canvas's resize events must not change it
+        self._fig_inches = tuple(float(v) for v in fig.get_size_inches())
+        # matplotlib's Qt canvas multiplies the figure's original dpi by the screen's
+        # pixel ratio (1.25 at 125 %); the original must be SCREEN_DPI, the dpi the
+        # canvas is sized for, or the figure is drawn larger than its widget and cut
+        fig.set_dpi(SCREEN_DPI)
+        fig._original_dpi = SCREEN_DPI  # noqa: SLF001 - read by matplotlib's canvas
         canvas = FigureCanvasQTAgg(fig)
         self.scroll.setWidget(canvas)
         self.figure_canvas = canvas
         self._fit()
 
     def _fit(self) -> None:
-        """Scale the figure to the panel's width (its proportions are the builder's)."""
+        """Show the figure at SCREEN_DPI: it was laid out for the panel's width."""
         c = getattr(self, "figure_canvas", None)
         if c is None or self.figure is None:
             return
-        w, h = self.figure.get_size_inches()
-        avail = max(self.scroll.viewport().width() - 8, 200)
-        # screen dpi between 60 and 110: narrower panels shrink the figure, not cut it
-        dpi = max(60.0, min(110.0, avail / w))
-        ratio = c.devicePixelRatioF() or 1.0
-        self.figure.set_dpi(dpi * ratio)
-        c.setFixedSize(int(w * dpi), int(h * dpi))
+        w, h = getattr(self, "_fig_inches", None) or self.figure.get_size_inches()
+        c.setFixedSize(round(w * SCREEN_DPI), round(h * SCREEN_DPI))
+        self.figure.set_size_inches(w, h, forward=False)
 
     def resizeEvent(self, event) -> None:  # noqa: N802 - Qt API
         super().resizeEvent(event)
         if getattr(self, "figure_canvas", None) is not None:
             self._fit()
             self.figure_canvas.draw_idle()
+            if self.result is not None and self.isVisible():
+                self._relayout_timer().start()
+
+    def _relayout_timer(self):
+        t = getattr(self, "_relayout", None)
+        if t is None:
+            from PySide6.QtCore import QTimer
+
+            t = self._relayout = QTimer(self)
+            t.setSingleShot(True)
+            t.setInterval(150)
+            t.timeout.connect(self.redraw)  # the key holds the width: same width, no work
+        return t
 
     def _request_draw(self) -> None:
         c = getattr(self, "figure_canvas", None)
@@ -716,10 +767,7 @@ class ForestPanel(BuiltFigurePanel):
         self.model_box.addItem("Random effects", "random")
         self.model_box.addItem("Fixed effect", "fixed")
         self.model_box.setAccessibleName("Pooled results shown on the forest plot")
-        lab = QLabel("&Pooled rows:")
-        lab.setBuddy(self.model_box)
-        self.controls.addWidget(lab)
-        self.controls.addWidget(self.model_box)
+        self.controls.addWidget(labelled("Summar&y rows:", self.model_box))
         self.controls.addStretch(1)
         self.model_box.currentIndexChanged.connect(lambda _i: self.redraw())
 
@@ -732,7 +780,9 @@ class ForestPanel(BuiltFigurePanel):
             d.favours,
             d.int_label,
             d.ctl_label,
+            d.units,
             self.model_box.currentData(),
+            self.layout_px(),
         )
 
     def build(self, result):
@@ -744,6 +794,7 @@ class ForestPanel(BuiltFigurePanel):
         opts = replace(
             opts,
             size="page",
+            width=self.layout_inches()[0],
             show_fixed=which in ("both", "fixed"),
             show_random=which in ("both", "random"),
         )
@@ -764,12 +815,9 @@ class CompanionPanel(BuiltFigurePanel):
         for key, text in self.KINDS:
             self.kind_box.addItem(text, key)
         self.kind_box.setAccessibleName("Companion plot")
-        lab = QLabel("&Plot:")
-        lab.setBuddy(self.kind_box)
-        self.egger_box = QCheckBox("Egger line")
+        self.egger_box = QCheckBox("E&gger line")
         self.egger_box.setToolTip("On the radial plot, draw the Egger regression line")
-        self.controls.addWidget(lab)
-        self.controls.addWidget(self.kind_box)
+        self.controls.addWidget(labelled("Plot &kind:", self.kind_box))
         self.controls.addWidget(self.egger_box)
         self.controls.addStretch(1)
         self.kind_box.currentIndexChanged.connect(lambda _i: self.redraw())
@@ -784,6 +832,8 @@ class CompanionPanel(BuiltFigurePanel):
             result.fixed,
             self.kind_box.currentData(),
             self.egger_box.isChecked(),
+            self.layout_px(),
+            result.review.details.units,
         )
 
     def build(self, result):
@@ -798,12 +848,15 @@ class CompanionPanel(BuiltFigurePanel):
                     getattr(result.cumulative, "reason", "")
                     or "The cumulative analysis could not be computed."
                 )
-            fig = cumulative_figure(inp, size="page")
+            fig = cumulative_figure(inp, size="page", width=self.layout_inches()[0])
         else:
+            w, h = self.layout_inches()
             fig = radial_figure(
                 adaptors.radial_input_from_result(result),
                 size="page",
                 egger_line=self.egger_box.isChecked(),
+                width=w,
+                height=min(h, w * 0.85),
             )
         self.set_figure(fig)
         return True

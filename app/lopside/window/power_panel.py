@@ -38,9 +38,9 @@ class PowerPanel(QWidget):
         explain.setWordWrap(True)
         lay.addWidget(explain)
         row = QHBoxLayout()
-        self.run_button = QPushButton("&Simulate power")
+        self.run_button = QPushButton("Simulate po&wer")
         self.run_button.setAccessibleName("Simulate the power of the recommended test")
-        self.cancel_button = QPushButton("&Cancel")
+        self.cancel_button = QPushButton("Cancel")
         self.cancel_button.setEnabled(False)
         self.bar = QProgressBar()
         self.bar.setAccessibleName("Power simulation progress")
@@ -103,7 +103,9 @@ class PowerPanel(QWidget):
 
     def _failed(self, message: str) -> None:
         self._reset_buttons()
-        self.state.setText(M.ANALYSIS_FAILED.format(error=message))
+        from .errors import plain
+
+        self.state.setText(M.ANALYSIS_FAILED.format(error=plain(message)))
 
     def _reset_buttons(self) -> None:
         self.run_button.setEnabled(True)

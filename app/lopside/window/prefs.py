@@ -15,6 +15,8 @@ from PySide6.QtCore import QByteArray, QSettings, QStandardPaths
 GEOMETRY = "window/geometry"
 WINDOW_STATE = "window/state"
 SPLITTER = "window/splitter"
+#: the screen and scale the geometry was saved on (see screen_fit.py)
+SCREEN = "window/screen"
 VIEW_TAB = "window/view_tab"
 RECENT_FILES = "files/recent"
 LAST_FOLDER = "files/last_folder"

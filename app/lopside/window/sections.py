@@ -9,6 +9,7 @@ from __future__ import annotations
 import html
 from collections.abc import Callable, Sequence
 
+from PySide6.QtGui import QTextOption
 from PySide6.QtWidgets import QLabel, QTextBrowser, QVBoxLayout, QWidget
 
 from . import messages as M
@@ -50,9 +51,13 @@ def section_html(section) -> str:
     """One summary Section as an HTML block (title, table, notes)."""
     out = [f"<h3>{html.escape(section.title)}</h3>"]
     if section.rows:
-        out.append("<table width='100%'>")
+        # 99 %: at 100 % Qt's table layout can overflow its view by a pixel and show a
+        # horizontal scroll bar for nothing
+        out.append("<table width='99%'>")
         if section.header:
-            out.append("<tr>" + "".join(f"<th>{_cell(h)}</th>" for h in section.header) + "</tr>")
+            out.append(
+                "<tr>" + "".join(f"<th nowrap>{_cell(h)}</th>" for h in section.header) + "</tr>"
+            )
         for i, row in enumerate(section.rows):
             cls = " class='em'" if i in section.emphasis else ""
             cells = list(row)
@@ -98,6 +103,9 @@ class SectionsPanel(QWidget):
         self.browser.setOpenExternalLinks(False)
         self.browser.setAccessibleName(name)
         self.browser.document().setDefaultStyleSheet(_CSS)
+        # break between words only: breaking inside them ("Studie / s") also left tables
+        # a pixel wider than the panel, so it scrolled sideways
+        self.browser.setWordWrapMode(QTextOption.WordWrap)
         lay.addWidget(self.browser)
         self._shown_for = None
         self.html = ""

@@ -2,18 +2,18 @@
 
 from __future__ import annotations
 
+import math
+
 from PySide6.QtCore import QItemSelectionModel, Qt, QTimer, Signal
 from PySide6.QtGui import QKeySequence
 from PySide6.QtWidgets import (
     QAbstractItemView,
     QComboBox,
-    QHBoxLayout,
     QHeaderView,
     QLabel,
     QLineEdit,
     QListWidget,
     QListWidgetItem,
-    QSplitter,
     QStyledItemDelegate,
     QTableView,
     QToolButton,
@@ -25,19 +25,30 @@ from .. import edits as ed
 from ..model.review import RISK_OF_BIAS_LEVELS, StudyRow
 from ..session import Session
 from . import messages as M
+from .flow import FlowLayout, labelled
 from .table_model import ENTRY_MODES, StudyTableModel
 
-#: column widths (px) that fit the table beside the views on a 1366-pixel screen
-COLUMN_WIDTHS = {
-    "study": 124,
-    "year": 46,
-    "risk_of_bias": 108,
-    "subgroup": 84,
-    "exclude": 44,
-    "reported": 64,
-    "_y": 64,
-    "_se": 60,
+#: (minimum, maximum) width in pixels of a column sized to its content; the columns
+#: named in ELASTIC give up width (down to their minimum, then elided in the middle with
+#: the full text as tooltip) so that the table fits its panel without scrolling sideways
+COLUMN_LIMITS = {
+    "study": (96, 260),
+    "year": (40, 56),
+    "risk_of_bias": (64, 118),
+    "subgroup": (56, 130),
+    "exclude": (34, 46),
+    "reported": (40, 72),
 }
+DEFAULT_LIMITS = (40, 84)
+ELASTIC = ("subgroup", "risk_of_bias", "study")
+#: most problems listed at once before the list scrolls
+PROBLEM_LINES = 4
+
+
+def _shrinkable(box: QComboBox, chars: int) -> None:
+    """Let a pick list be narrower than its longest item (it elides; the popup does not)."""
+    box.setSizeAdjustPolicy(QComboBox.AdjustToMinimumContentsLengthWithIcon)
+    box.setMinimumContentsLength(chars)
 
 
 def _typed_in(editor) -> bool:
@@ -92,6 +103,12 @@ class StudyTableView(QTableView):
 
     paste_requested = Signal()
     delete_cells_requested = Signal()
+    resized = Signal()
+
+    def resizeEvent(self, event) -> None:  # noqa: N802 - Qt API
+        super().resizeEvent(event)
+        if event.oldSize().width() != event.size().width():
+            self.resized.emit()
 
     def keyPressEvent(self, event) -> None:  # noqa: N802 - Qt API
         if event.matches(QKeySequence.Paste):
@@ -129,48 +146,44 @@ class StudyPanel(QWidget):
         lay = QVBoxLayout(self)
         lay.setContentsMargins(4, 4, 4, 4)
 
-        top = QHBoxLayout()
+        # the controls wrap onto a second line in a narrow panel instead of setting the
+        # window's minimum width (see flow.py)
+        top = FlowLayout(h_spacing=10)
         self.mode_box = QComboBox()
         for key, (text, _fields) in ENTRY_MODES.items():
             self.mode_box.addItem(text, key)
         self.mode_box.setAccessibleName("What you have for each study")
         self.mode_box.setToolTip("Show the columns for the data you have in hand")
-        lab = QLabel("&Data in hand:")
-        lab.setBuddy(self.mode_box)
-        top.addWidget(lab)
-        top.addWidget(self.mode_box)
+        _shrinkable(self.mode_box, 22)
+        top.addWidget(labelled("Data &in hand:", self.mode_box))
         from .details_form import measure_combo
 
         self.measure_box = measure_combo()
         self.measure_box.setToolTip("The effect measure of the review (also in Review details)")
-        mlab = QLabel("&Measure:")
-        mlab.setBuddy(self.measure_box)
-        top.addWidget(mlab)
-        top.addWidget(self.measure_box, 1)
+        _shrinkable(self.measure_box, 14)
+        top.addWidget(labelled("&Measure:", self.measure_box))
         lay.addLayout(top)
 
-        buttons = QHBoxLayout()
+        buttons = FlowLayout(h_spacing=4)
         self.buttons: dict[str, QToolButton] = {}
         for key, text, tip in (
-            ("add", "Add row", "Add an empty row below the current one (Ctrl+Shift+N)"),
-            ("duplicate", "Duplicate", "Copy the selected rows (Ctrl+D)"),
-            ("delete", "Delete rows", "Delete the selected rows (Ctrl+Shift+Del)"),
+            ("add", "&Add row", "Add an empty row below the current one (Ctrl+Shift+N)"),
+            ("duplicate", "D&uplicate", "Copy the selected rows (Ctrl+D)"),
+            ("delete", "Dele&te rows", "Delete the selected rows (Ctrl+Shift+Del)"),
             ("up", "Move up", "Move the current row up (Ctrl+Shift+Up)"),
             ("down", "Move down", "Move the current row down (Ctrl+Shift+Down)"),
-            ("exclude", "Leave out / bring back", "Leave the selected studies out (Ctrl+E)"),
-            ("paste", "Paste from paper\u2026", "Paste rows from a paper's forest table"),
+            ("exclude", "&Leave out / bring back", "Leave the selected studies out (Ctrl+E)"),
+            ("paste", "Paste from pape&r\u2026", "Paste rows from a paper's forest table"),
         ):
             b = QToolButton()
             b.setText(text)
             b.setToolTip(tip)
-            b.setAccessibleName(text)
+            b.setAccessibleName(text.replace("&", ""))
             b.setToolButtonStyle(Qt.ToolButtonTextOnly)
             buttons.addWidget(b)
             self.buttons[key] = b
-        buttons.addStretch(1)
         lay.addLayout(buttons)
 
-        split = QSplitter(Qt.Vertical)
         self.table = StudyTableView()
         self.table.setItemDelegate(KeepTypingDelegate(self.table))
         self.table.setModel(self.model)
@@ -184,27 +197,29 @@ class StudyPanel(QWidget):
         )
         self.table.setTabKeyNavigation(True)
         self.table.setAlternatingRowColors(False)
+        # long names lose their middle, not their year (the full text is the tooltip)
+        self.table.setTextElideMode(Qt.ElideMiddle)
+        self.table.setWordWrap(False)
+        self.table.setMinimumSize(200, 120)
         self.table.verticalHeader().setDefaultSectionSize(24)
         self.table.horizontalHeader().setSectionResizeMode(QHeaderView.Interactive)
         self.table.horizontalHeader().setStretchLastSection(False)
+        self.table.horizontalHeader().setMinimumSectionSize(28)
+        self.table.resized.connect(self.fit_columns)
+        self.table.verticalScrollBar().rangeChanged.connect(lambda *_a: self.fit_columns())
         rob = PickListDelegate(lambda: RISK_OF_BIAS_LEVELS, self.table)
         sub = PickListDelegate(self._subgroups, self.table)
         self._delegates = (rob, sub)
-        split.addWidget(self.table)
+        lay.addWidget(self.table, 1)
 
-        probs = QWidget()
-        pl = QVBoxLayout(probs)
-        pl.setContentsMargins(0, 0, 0, 0)
+        # one line when the table is clean; a short list (scrolling) when it is not
         self.problems_title = QLabel("Problems in the table")
-        pl.addWidget(self.problems_title)
+        lay.addWidget(self.problems_title)
         self.problems = QListWidget()
         self.problems.setAccessibleName("Problems in the study table")
         self.problems.setWordWrap(True)
-        pl.addWidget(self.problems)
-        split.addWidget(probs)
-        split.setSizes([420, 110])
-        split.setStretchFactor(0, 1)
-        lay.addWidget(split, 1)
+        self.problems.setVisible(False)
+        lay.addWidget(self.problems)
 
         self.mode_box.currentIndexChanged.connect(self._mode_picked)
         self.measure_box.activated.connect(
@@ -266,10 +281,46 @@ class StudyPanel(QWidget):
         self.fit_columns()
 
     def fit_columns(self) -> None:
+        """Size each column to its header and content, then fit them all to the panel.
+
+        Content is measured with the table's font; the elastic columns (names, subgroup,
+        risk of bias) shrink towards their minimum when the rest does not leave room.
+        """
         h = self.table.horizontalHeader()
-        for c, key in enumerate(self.model.columns):
-            width = COLUMN_WIDTHS.get(key, 60)
-            h.resizeSection(c, width)
+        fm = self.table.fontMetrics()
+        hfm = h.fontMetrics()
+        m = self.model
+        n_rows = m.rowCount()
+        want: list[int] = []
+        for c, key in enumerate(m.columns):
+            lo, hi = COLUMN_LIMITS.get(key, DEFAULT_LIMITS)
+            header = str(m.headerData(c, Qt.Horizontal) or "")
+            w = max(hfm.horizontalAdvance(part) for part in header.split("\n")) + 10
+            for r in range(n_rows):
+                text = m.data(m.index(r, c), Qt.DisplayRole)
+                if text:
+                    w = max(w, fm.horizontalAdvance(str(text)) + 10)
+            want.append(max(lo, min(hi, w)))
+        # a vertical scroll bar may come and go as rows are added: keep its room
+        avail = self.table.viewport().width() - 2
+        vbar = self.table.verticalScrollBar()
+        rows_h = n_rows * self.table.verticalHeader().defaultSectionSize()
+        if not vbar.isVisible() and rows_h > self.table.viewport().height():
+            avail -= vbar.sizeHint().width()  # about to appear
+        if avail > 50:
+            over = sum(want) - avail
+            cols = [(m.column_of(k), COLUMN_LIMITS[k][0]) for k in ELASTIC]
+            slack = {c: want[c] - lo for c, lo in cols if c >= 0 and want[c] > lo}
+            total = sum(slack.values())
+            # shrink only when that makes the table fit: if it must scroll sideways
+            # anyway (a narrow panel at 125 %), the names keep their full width
+            if 0 < over <= total:
+                # each elastic column gives in proportion to what it has above its minimum
+                share = min(1.0, over / total)
+                for c, extra in slack.items():
+                    want[c] -= min(extra, math.ceil(extra * share))
+        for c, w in enumerate(want):
+            h.resizeSection(c, w)
 
     def _subgroups(self):
         return sorted({r.subgroup for r in self.session.review.studies if r.subgroup})
@@ -311,12 +362,20 @@ class StudyPanel(QWidget):
                 # the row checks already name the row and field; other messages get both
                 text = p.message if p.message.startswith("Row ") else f"{where}: {p.message}"
                 item = QListWidgetItem(f"{mark} {text}")
+                if p.detail:
+                    item.setToolTip(p.detail)
                 item.setData(Qt.UserRole, (r, p.field))
                 self.problems.addItem(item)
                 n += 1
         self.problems_title.setText(
-            f"Problems in the table ({n})" if n else "Problems in the table: none found"
+            f"Problems in the table ({n}):" if n else "Problems in the table: none found"
         )
+        self.problems.setVisible(n > 0)
+        if n:
+            lines = min(n, PROBLEM_LINES)
+            row_h = self.problems.sizeHintForRow(0) if self.problems.count() else 20
+            self.problems.setFixedHeight(min(lines * max(row_h, 18) + 6, 6 + PROBLEM_LINES * 40))
+        self.fit_columns()
 
     def _go_to_problem(self, item: QListWidgetItem) -> None:
         if item.data(Qt.UserRole) is None:

@@ -77,12 +77,17 @@ EXCLUDED_TEXT = QColor("#7B8794")
 
 @dataclass(frozen=True, slots=True)
 class CellProblem:
-    """One problem shown on a cell (or on the whole row when ``field`` is empty)."""
+    """One problem shown on a cell (or on the whole row when ``field`` is empty).
+
+    ``detail`` holds messages about the same cause that were folded into this one (the
+    derivation's own account of why the row gives no effect); shown as a tooltip.
+    """
 
     row: int
     field: str
     severity: str  # "error" | "warning"
     message: str
+    detail: str = ""
 
 
 def _runs(rows: list[int]):
@@ -104,7 +109,11 @@ def problems_by_row(result, studies: tuple[StudyRow, ...]) -> dict[int, list[Cel
     """Gather what the analysis says about each row, plus text kept unread.
 
     The analysis (row checks and effect derivation) supplies the messages; this only
-    files them under their row and field for display.
+    files them under their row and field for display. When a row check has already named
+    what is wrong with a row, the derivation's messages for that row ("... not used",
+    "no entered route gives ...") say the same thing again from the other side: they are
+    folded into the check's message as one line saying the study is left out, with their
+    text kept as the detail, so one cause gives one message.
     """
     out: dict[int, list[CellProblem]] = {}
     seen: set[tuple[int, str, str]] = set()
@@ -115,6 +124,7 @@ def problems_by_row(result, studies: tuple[StudyRow, ...]) -> dict[int, list[Cel
             seen.add(key)
             out.setdefault(p.row, []).append(p)
 
+    derived_msgs: dict[int, list[str]] = {}
     if result is not None:
         for p in getattr(result, "problems", ()) or ():
             row = getattr(p, "row", None)
@@ -125,8 +135,7 @@ def problems_by_row(result, studies: tuple[StudyRow, ...]) -> dict[int, list[Cel
             add(CellProblem(row, getattr(p, "field", "") or "", sev, str(p.message)))
         for i, d in enumerate(getattr(result, "derived", ()) or ()):
             if i < len(studies) and getattr(d, "y", None) is None:
-                for msg in getattr(d, "problems", ()) or ():
-                    add(CellProblem(i, "", "error", str(msg)))
+                derived_msgs[i] = [str(m) for m in getattr(d, "problems", ()) or ()]
         # rows that pass the checks but stand out from the others (stats.diagnostics)
         from ..stats.diagnostics import reason_text
 
@@ -145,6 +154,19 @@ def problems_by_row(result, studies: tuple[StudyRow, ...]) -> dict[int, list[Cel
                     i, field, "error", M.CELL_UNREAD.format(text=text, what=what, hint=hint)
                 )
             )
+    for i, msgs in derived_msgs.items():
+        errors = [p for p in out.get(i, ()) if p.severity == "error"]
+        if errors:
+            # a row-level check ("nothing to analyse ...") already says the study is out;
+            # else the first cell error gets that consequence added
+            whole = [p for p in errors if not p.field]
+            first = whole[0] if whole else errors[0]
+            text = first.message if whole else f"{first.message} {M.LEFT_OUT}"
+            merged = CellProblem(first.row, first.field, first.severity, text, "\n".join(msgs))
+            out[i] = [merged if p is first else p for p in out[i]]
+        else:
+            for msg in msgs:
+                add(CellProblem(i, "", "error", msg))
     return out
 
 
@@ -418,6 +440,7 @@ class StudyTableModel(QAbstractTableModel):
 
     def _tooltip(self, r: int, key: str):
         lines = [p.message for p in self._cell_problems(r, key)]
+        lines += [p.detail for p in self._cell_problems(r, key) if p.detail]
         if key in DERIVED:
             d = self._derived(r)
             if d is not None and getattr(d, "route_text", ""):
