@@ -52,7 +52,7 @@ def claim_test_key(name: str) -> str | None:
 
 
 def _pct(x: float) -> str:
-    from ..summary import fmt_share
+    from ..words.numbers import fmt_share
 
     return fmt_share(x)
 
@@ -60,7 +60,7 @@ def _pct(x: float) -> str:
 def compare_claim(result) -> ClaimComparison | None:
     """None when the review details hold no claim."""
     from ..stats.asymmetry import REGISTRY
-    from ..summary import fmt_p_eq, fmt_stat
+    from ..words.numbers import fmt_p_eq, fmt_stat
 
     claim = result.review.details.claim
     if claim.is_empty():

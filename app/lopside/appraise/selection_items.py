@@ -16,7 +16,7 @@ from .model import Evidence
 
 
 def _ev(direction: str, text: str, source: str, **numbers) -> Evidence:
-    from ..summary import is_finite
+    from ..words.numbers import is_finite
 
     nums = tuple(
         (k, (v if isinstance(v, int) else float(v)) if is_finite(v) else None)
@@ -26,7 +26,8 @@ def _ev(direction: str, text: str, source: str, **numbers) -> Evidence:
 
 
 def selection_items(result) -> list[Evidence]:
-    from ..summary import is_ok, missing_trials_sentence, selection_sentence
+    from ..words.numbers import is_ok
+    from ..words.selection import missing_trials_sentence, selection_sentence
     from .claim import compare_claim
 
     out: list[Evidence] = []

@@ -310,7 +310,8 @@ def _page2(result, appraisal, st) -> list:
     out += _section(adj, st)
     if tf is not None:
         out += _section(tf, st)
-    out += _selection_block(result, st)
+    # the selection block (table and η curve) is left out here: page 2 now carries the
+    # sensitivity section too; page 1 keeps the sentence, the window and JSON the detail
     sens = sensitivity_section(result)
     # fail-safe N is not recommended (Cochrane Handbook 5.1, 10.4.4.3): the window and the
     # text show it with its caution; the printed sheet leaves it out to keep its room
