@@ -70,6 +70,13 @@ class AnalysisResult:
     #: trim and fill under other estimator/model choices, keyed "L0, trim FE, fill RE" etc.
     trim_fill_variants: dict[str, Any] = field(default_factory=dict)
     power: Any = None
+    #: how strong selection would have to be (Mathur & VanderWeele 2020)
+    selection_sensitivity: Any = None
+    #: adjusted estimates under a priori selection weights (Vevea & Woods 2005)
+    selection_fixed_weights: Any = None
+    #: trials known to be missing (reported = no): pooled estimate had they reported
+    #: (None when the table has no such row)
+    unreported_trials: Any = None
     #: rows worth checking against the paper (stats.diagnostics.RowFlags): implausible
     #: arms, outliers and influential studies, heterogeneity drivers, possible duplicates
     row_flags: Any = None
@@ -111,6 +118,9 @@ def fingerprint(review: Review, measure: str) -> str:
     return hashlib.sha256(payload.encode("ascii")).hexdigest()
 
 
+UNREPORTED_REASON = "never reported results: used only in the missing-trial scenarios"
+
+
 def _nan_array(values) -> np.ndarray:
     return np.array([np.nan if v is None else float(v) for v in values], dtype=float)
 
@@ -122,7 +132,9 @@ def build_study_data(review: Review, measure: str, derived) -> tuple[StudyData, 
     for i, (row, d) in enumerate(zip(review.studies, derived)):
         label = row.study or f"Row {i + 1}"
         usable = d.y is not None and d.se is not None and math.isfinite(d.y) and d.se > 0
-        if row.exclude:
+        if not row.reported:
+            excluded.append(ExcludedStudy(i, label, UNREPORTED_REASON))
+        elif row.exclude:
             excluded.append(
                 ExcludedStudy(
                     i,
@@ -221,6 +233,55 @@ def _safe(fn, *args, **kw):
             "could not be computed for these data (the numbers are too extreme or too few "
             "for reliable arithmetic)"
         )
+
+
+def _selection_block(data: StudyData, random, settings: AnalysisSettings):
+    """Sensitivity to selection and the fixed-weight selection models, both read off the
+    main random-effects estimate (its side defines "affirmative"; its τ² is held fixed)."""
+    from .stats.selection_fixed import fixed_weight_selection
+    from .stats.selection_sensitivity import DEFAULT_ETAS, selection_sensitivity
+
+    if not isinstance(random, PooledEstimate):
+        why = NotComputable("needs the random-effects pooled estimate, which is not available")
+        return why, why
+    etas = DEFAULT_ETAS
+    extra = settings.selection_eta
+    if extra is not None and math.isfinite(extra) and extra >= 1:
+        etas = (*DEFAULT_ETAS, float(extra))
+    sens = _safe(
+        selection_sensitivity,
+        data,
+        pooled_estimate=random.estimate,
+        tau2=random.tau2,
+        etas=etas,
+    )
+    fixed_w = _safe(fixed_weight_selection, data, pooled_estimate=random.estimate, tau2=random.tau2)
+    return sens, fixed_w
+
+
+def _unreported_block(review: Review, data: StudyData, random, settings: AnalysisSettings):
+    """Scenarios for the trials marked as never reported (None when there are none)."""
+    rows = [i for i, r in enumerate(review.studies) if not r.reported]
+    if not rows:
+        return None
+    from .stats.unreported import sizes_of, unreported_trials
+
+    with_size = [i for i in rows if sizes_of([review.studies[i]])]
+    if not with_size:
+        return NotComputable(
+            f"{len(rows)} trial(s) marked as never reported, but none has its size entered"
+        )
+    if not isinstance(random, PooledEstimate):
+        return NotComputable("needs the random-effects pooled estimate, which is not available")
+    return _safe(
+        unreported_trials,
+        data,
+        sizes_of([review.studies[i] for i in with_size]),
+        tuple(with_size),
+        random,
+        tau2_method=settings.tau2_method,
+        rows_without_size=tuple(i for i in rows if i not in with_size),
+    )
 
 
 class AnalysisCancelled(Exception):
@@ -449,6 +510,8 @@ def _analyse(
     limit = _safe(adjust.limit_meta_analysis, data, tau2_method=settings.tau2_method)
     selection = _safe(adjust.selection_model, data, cutpoints=settings.selection_cutpoints)
     failsafe = _safe(sensitivity.fail_safe_n, data, trivial=settings.orwin_trivial)
+    sel_sens, sel_fixed = _selection_block(data, random, settings)
+    missing = _unreported_block(review, data, random, settings)
 
     _stage(progress, "subgroups")
     subgroups: dict[str, Any] = {}
@@ -513,6 +576,9 @@ def _analyse(
         subgroups=subgroups,
         meta_regression=meta_reg,
         power=power,
+        selection_sensitivity=sel_sens,
+        selection_fixed_weights=sel_fixed,
+        unreported_trials=missing,
         row_flags=row_flags,
         fingerprint=fingerprint(review, measure),
         notes=notes,
@@ -583,6 +649,9 @@ def _core_result(
         subgroups={},
         meta_regression={},
         power=None,
+        selection_sensitivity=pending,
+        selection_fixed_weights=pending,
+        unreported_trials=pending if any(not r.reported for r in review.studies) else None,
         fingerprint=fingerprint(review, measure),
         stage="core",
     )

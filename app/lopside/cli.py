@@ -26,6 +26,7 @@ from __future__ import annotations
 
 import argparse
 import json
+import math
 import os
 import sys
 from dataclasses import replace
@@ -209,6 +210,26 @@ def add_analysis_arguments(p: argparse.ArgumentParser) -> None:
         default=None,
         help="trim and fill: estimator of the number missing",
     )
+    p.add_argument(
+        "--eta",
+        type=_eta,
+        default=None,
+        metavar="ETA",
+        help="one more selection ratio (at least 1) for the sensitivity to selection, "
+        "beside 1, 2, 5, 10, 20 and 50",
+    )
+
+
+def _eta(text: str) -> float:
+    try:
+        value = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a number") from None
+    if not (math.isfinite(value) and value >= 1):
+        raise argparse.ArgumentTypeError(
+            f"{text!r}: the selection ratio must be a number of at least 1"
+        )
+    return value
 
 
 def settings_from_args(args, base: AnalysisSettings) -> AnalysisSettings:
@@ -225,6 +246,8 @@ def settings_from_args(args, base: AnalysisSettings) -> AnalysisSettings:
         changes["trimfill_side"] = args.fill_side
     if getattr(args, "fill_estimator", None):
         changes["trimfill_estimator"] = args.fill_estimator
+    if getattr(args, "eta", None) is not None:
+        changes["selection_eta"] = args.eta
     return replace(base, **changes)
 
 

@@ -38,6 +38,7 @@ from .model.review import (
     IntakeAccount,
     PublishedResult,
     Review,
+    ReviewClaim,
     ReviewDetails,
     StudyRow,
 )
@@ -197,7 +198,8 @@ Edit = (
 _TRUE_WORDS = frozenset({"yes", "y", "true", "1", "x", "excluded", "exclude"})
 _FALSE_WORDS = frozenset({"no", "n", "false", "0", "", "included", "include"})
 _P_BOUNDS = (("<=", "<="), ("\u2264", "<="), ("<", "<"), (">", ">"))
-_DETAIL_FIELDS = frozenset(f.name for f in fields(ReviewDetails)) - {"published"}
+_DETAIL_FIELDS = frozenset(f.name for f in fields(ReviewDetails)) - {"published", "claim"}
+_CLAIM_FIELDS = frozenset(f.name for f in fields(ReviewClaim))
 _PUBLISHED_FIELDS = frozenset(f.name for f in fields(PublishedResult))
 
 
@@ -227,6 +229,8 @@ def cell_text(row: StudyRow, field: str) -> str:
         return getattr(row, field) or ""
     if field == "exclude":
         return "yes" if row.exclude else ""
+    if field == "reported":
+        return "" if row.reported else "no"
     if field in NUMERIC_FIELDS:
         return format_number(getattr(row, field))
     raise EditError(f"'{field}' is not a column of the study table.")
@@ -273,6 +277,13 @@ def set_cell(row: StudyRow, field: str, text: str) -> StudyRow:
                 if s.casefold() == level:
                     value = level
         return replace(row, **{field: value}, unread=clean)
+    if field == "reported":
+        low = s.casefold()
+        if not low or low in ("yes", "y", "true", "1", "reported"):
+            return replace(row, reported=True, unread=clean)
+        if low in ("no", "n", "false", "0", "not reported", "unreported", "missing"):
+            return replace(row, reported=False, unread=clean)
+        return replace(row, reported=True, unread=_with_unread(row, field, raw))
     if field == "exclude":
         low = s.casefold()
         if low in _TRUE_WORDS:
@@ -311,6 +322,27 @@ def set_cell(row: StudyRow, field: str, text: str) -> StudyRow:
     if field == "year":
         return replace(row, year=value, unread=clean)
     return replace(row, **{field: float(value)}, unread=clean)
+
+
+def _claim_value(name: str, value: Any) -> Any:
+    from .model.review import CLAIM_CONCLUSIONS
+
+    if name == "test":
+        return "" if value is None else str(value)
+    if name == "conclusion":
+        if value not in CLAIM_CONCLUSIONS:
+            raise EditError(
+                f"'{value}' is not one of {', '.join(c for c in CLAIM_CONCLUSIONS if c)}."
+            )
+        return value
+    number = _optional_number(value)
+    if name == "p" and number is not None and not 0.0 <= number <= 1.0:
+        raise EditError("The review's P value must be between 0 and 1.")
+    if name == "k" and number is not None:
+        if number != int(number) or number < 0:
+            raise EditError("The number of studies must be a whole number.")
+        return int(number)
+    return number
 
 
 def _detail_value(field: str, value: Any) -> Any:
@@ -401,6 +433,13 @@ def apply(edit: Edit, review: Review) -> tuple[Review, Edit]:
             old_value = getattr(d.published, name)
             value = edit.value if name == "model" else _optional_number(edit.value)
             new_details = replace(d, published=replace(d.published, **{name: value}))
+        elif edit.field.startswith("claim."):
+            name = edit.field.split(".", 1)[1]
+            if name not in _CLAIM_FIELDS:
+                raise EditError(f"'{edit.field}' is not a detail of the review's own claim.")
+            old_value = getattr(d.claim, name)
+            value = _claim_value(name, edit.value)
+            new_details = replace(d, claim=replace(d.claim, **{name: value}))
         elif edit.field == "published":
             if not isinstance(edit.value, PublishedResult):
                 raise EditError("The published result must be a PublishedResult.")
@@ -605,7 +644,8 @@ def describe(edit: Edit) -> str:
     if isinstance(edit, SetFavours):
         return "change favours"
     if isinstance(edit, SetDetail):
-        return f"change {edit.field.replace('published.', 'published ').replace('_', ' ')}"
+        name = edit.field.replace("published.", "published ").replace("claim.", "review's ")
+        return f"change {name.replace('_', ' ')}"
     if isinstance(edit, SetCauseNote):
         return f"notes on {edit.key}"
     if isinstance(edit, SetRatingOverride):

@@ -114,6 +114,135 @@ def _get(obj, *names, default=None):
     return default
 
 
+def _sensitivity_model(m) -> dict[str, Any]:
+    if isinstance(m, NotComputable) or m is None:
+        reason = getattr(m, "reason", "not run")
+        return {
+            "s_value": None,
+            "s_value_ci": None,
+            "worst_case": {"estimate": None, "ci_low": None, "ci_high": None, "reason": reason},
+            "by_eta": [],
+            "reason": reason,
+        }
+    wc = m.worst_case
+    if isinstance(wc, NotComputable):
+        worst = {"estimate": None, "ci_low": None, "ci_high": None, "reason": wc.reason}
+    else:
+        worst = {
+            "estimate": _num(wc.estimate),
+            "ci_low": _num(wc.ci_low),
+            "ci_high": _num(wc.ci_high),
+            "k": wc.k,
+        }
+        if wc.reason:
+            worst["reason"] = wc.reason
+    out: dict[str, Any] = {
+        "s_value": _num(m.s_value),
+        "s_value_ci": _num(m.s_value_ci),
+        "worst_case": worst,
+        "by_eta": [
+            {
+                "eta": c.eta,
+                "estimate": _num(c.estimate),
+                "ci_low": _num(c.ci_low),
+                "ci_high": _num(c.ci_high),
+                "se": _num(c.se),
+                **({"df": _num(c.df)} if c.df is not None else {}),
+            }
+            for c in m.by_eta
+        ],
+        "method": m.method,
+        "tau2": _num(m.tau2),
+    }
+    if m.s_value is None:
+        out["s_value_reason"] = m.s_value_reason
+    if m.s_value_ci is None:
+        out["s_value_ci_reason"] = m.s_value_ci_reason
+    return out
+
+
+def selection_sensitivity_json(res) -> dict[str, Any]:
+    """``selection_sensitivity`` of the JSON (issue 20): counts, then fixed and random."""
+    if isinstance(res, NotComputable) or res is None:
+        reason = getattr(res, "reason", "not run")
+        return {
+            "affirmative": None,
+            "nonaffirmative": None,
+            "reason": reason,
+            "fixed": _sensitivity_model(res),
+            "random": _sensitivity_model(res),
+        }
+    out = {
+        "affirmative": res.affirmative,
+        "nonaffirmative": res.nonaffirmative,
+        "affirmative_rows": [r + 1 for r in res.affirmative_rows],
+        "direction": res.direction,
+        "rule": res.direction_rule,
+        "source": "Mathur & VanderWeele 2020, JRSS C 69:1091",
+        "fixed": _sensitivity_model(res.fixed),
+        "random": _sensitivity_model(res.random),
+    }
+    if res.reason:
+        out["reason"] = res.reason
+    return out
+
+
+def fixed_weights_json(res) -> dict[str, Any] | None:
+    """Adjusted estimates under the a priori weight patterns (Vevea & Woods 2005)."""
+    if isinstance(res, NotComputable) or res is None:
+        return {"reason": getattr(res, "reason", "not run"), "patterns": []}
+    patterns = []
+    for name, e in res.by_pattern().items():
+        if isinstance(e, NotComputable):
+            patterns.append({"pattern": name, "estimate": None, "reason": e.reason})
+        else:
+            patterns.append(
+                {
+                    "pattern": name,
+                    "estimate": _num(e.estimate),
+                    "tau2": _num(e.tau2),
+                    "weights": list(e.weights),
+                }
+            )
+    return {
+        "unadjusted_ml": _num(res.unadjusted),
+        "unadjusted_tau2": _num(res.unadjusted_tau2),
+        "direction": res.direction,
+        "cutpoints_one_sided_p": list(res.cutpoints),
+        "provenance": res.provenance,
+        "source": "Vevea & Woods 2005, Psychol Methods 10:428",
+        "patterns": patterns,
+    }
+
+
+def unreported_json(res) -> dict[str, Any] | None:
+    """``unreported_trials`` (issue 20); None when no row is marked reported = no."""
+    if res is None:
+        return None
+    if isinstance(res, NotComputable):
+        return {"count": None, "participants": None, "scenarios": [], "reason": res.reason}
+    return {
+        "count": res.count,
+        "participants": _num(res.participants),
+        "rows": [r + 1 for r in res.rows],
+        "se": [_num(s) for s in res.se],
+        "rows_without_size": [r + 1 for r in res.rows_without_size],
+        "se_rule": res.se_rule,
+        "reported_estimate": _num(res.reported_estimate),
+        "scenarios": [
+            {
+                "assumed": s.assumed,
+                "assumed_estimate": _num(s.assumed_value),
+                "estimate": _num(s.pooled.estimate),
+                "ci_low": _num(s.pooled.ci.low),
+                "ci_high": _num(s.pooled.ci.high),
+                "tau2": _num(s.pooled.tau2),
+            }
+            for s in res.scenarios
+        ],
+    }
+
+
 #: How the intervals of I² and τ² are computed (the ``method`` of their JSON objects).
 I2_CI_METHOD = "Higgins & Thompson 2002 test-based interval for H, converted to I²"
 TAU2_CI_METHOD = "Q-profile (Viechtbauer 2007)"
@@ -393,6 +522,8 @@ def to_json(result) -> dict[str, Any]:
         "pet_peese": plain(result.pet_peese),
         "limit": plain(result.limit),
         "selection_model": plain(result.selection),
+        "selection_sensitivity": selection_sensitivity_json(result.selection_sensitivity),
+        "selection_fixed_weights": fixed_weights_json(result.selection_fixed_weights),
         "leave_one_out": plain(result.leave_one_out),
         "cumulative": plain(result.cumulative),
         "fail_safe_n": plain(result.failsafe),
@@ -404,6 +535,17 @@ def to_json(result) -> dict[str, Any]:
         "notes": list(getattr(result, "notes", ())),
         "settings": result.settings.to_dict(),
     }
+    from .appraise.claim import compare_claim
+
+    claim = result.review.details.claim
+    comparison = compare_claim(result)
+    out["review_claim"] = (
+        None if comparison is None else {**plain(claim), "comparison": plain(comparison)}
+    )
+    missing = unreported_json(result.unreported_trials)
+    if missing is not None:
+        out["unreported_trials"] = missing
+
     out["trim_fill_range"] = _trim_fill_range_json(result)
     out["published_heterogeneity"] = _published_het_json(result)
     out["appraisal"] = appraisal_json(assessment)

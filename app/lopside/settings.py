@@ -31,6 +31,9 @@ class AnalysisSettings:
         Level and sidedness of the PET test in the conditional PET-PEESE rule.
     selection_cutpoints : tuple of float
         One-sided p cut-points of the step-function selection model.
+    selection_eta : float or None
+        One more selection ratio η (≥ 1) for the sensitivity to selection, beside the
+        usual 1, 2, 5, 10, 20 and 50 (Mathur & VanderWeele 2020); None = none.
     orwin_trivial : float or None
         Trivial effect for Orwin's fail-safe N, on the analysis scale (None = not run).
     power_reps, power_seed, power_selection
@@ -51,6 +54,7 @@ class AnalysisSettings:
     petpeese_alpha: float = 0.10
     petpeese_sided: str = "two"
     selection_cutpoints: tuple[float, ...] = (0.025,)
+    selection_eta: float | None = None
     orwin_trivial: float | None = None
     power_reps: int = 10_000
     power_seed: int = 20261201
@@ -78,8 +82,10 @@ class AnalysisSettings:
                     value = tuple(float(x) for x in value)
                 elif f.name == "measure":
                     value = None if value is None else str(value)
-                elif f.name == "orwin_trivial":
+                elif f.name in ("orwin_trivial", "selection_eta"):
                     value = None if value is None else float(value)
+                    if f.name == "selection_eta" and value is not None and not value >= 1:
+                        continue
                 elif isinstance(default, bool):
                     if not isinstance(value, bool):
                         continue

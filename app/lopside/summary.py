@@ -562,6 +562,210 @@ def adjustments_section(result) -> Section:
     )
 
 
+from .words.selection import (  # noqa: E402 - the sentences live in words/
+    fmt_eta,
+    missing_trials_sentence,
+    selection_sentence,
+    short_reason,
+)
+
+
+def selection_strength_section(result) -> Section:
+    """Corrected estimates by η, S-values, worst case; fixed-weight patterns; missing trials."""
+    m = result.measure
+    rows: list[tuple[str, ...]] = []
+    notes: list[str] = []
+    ss = getattr(result, "selection_sensitivity", None)
+    if is_ok(ss):
+        fe, re_ = ss.fixed, ss.random
+        for c_re in re_.by_eta if is_ok(re_) else ():
+            c_fe = fe.at(c_re.eta) if is_ok(fe) else None
+            rows.append(
+                (
+                    f"η = {fmt_eta(c_re.eta)}" + (" (no selection)" if c_re.eta == 1 else ""),
+                    fmt_effect_ci(c_re.estimate, c_re.ci_low, c_re.ci_high, m),
+                    fmt_effect_ci(c_fe.estimate, c_fe.ci_low, c_fe.ci_high, m) if c_fe else "",
+                )
+            )
+
+        def s_text(model, attr):
+            if not is_ok(model):
+                return why_not(model)
+            v = getattr(model, attr)
+            if v is not None:
+                return fmt_eta(v)
+            # the short form in the table ("not attainable"); the sentence explains it
+            return short_reason(getattr(model, attr + "_reason"))
+
+        def worst(model):
+            if not is_ok(model):
+                return why_not(model)
+            wc = model.worst_case
+            if not is_ok(wc):
+                return why_not(wc)
+            return fmt_effect_ci(wc.estimate, wc.ci_low, wc.ci_high, m)
+
+        rows.append(
+            ("η that reaches no effect (S-value)", s_text(re_, "s_value"), s_text(fe, "s_value"))
+        )
+        rows.append(
+            (
+                "η at which the interval reaches it",
+                s_text(re_, "s_value_ci"),
+                s_text(fe, "s_value_ci"),
+            )
+        )
+        rows.append(("Worst case (studies not significant in its favour)", worst(re_), worst(fe)))
+        notes.append(
+            f"{plural(ss.affirmative, 'study is', 'studies are')} significant (two-sided p < "
+            f"0.05) on the side of the pooled effect, {ss.nonaffirmative} not. η is how many "
+            "times more likely such a result is to be published than the others; the "
+            "corrected estimate gives the others η times their weight (Mathur & "
+            "VanderWeele 2020). Random effects: τ² of the uncorrected model, robust "
+            "(sandwich) interval."
+        )
+        if ss.reason:
+            notes.append(ss.reason[0].upper() + ss.reason[1:] + ".")
+        else:
+            notes.append(selection_sentence(result))
+    elif ss is not None:
+        rows.append(("How strong selection would have to be", why_not(ss), ""))
+    fw = getattr(result, "selection_fixed_weights", None)
+    if is_ok(fw):
+        for name, e in fw.by_pattern().items():
+            label = f"Fixed weights: {name} selection"
+            if is_ok(e):
+                rows.append((label, fmt_effect(e.estimate, m), ""))
+            else:
+                rows.append((label, why_not(e), ""))
+        notes.append(
+            "Fixed-weight selection models (Vevea & Woods 2005) assume a set pattern of "
+            "publication chances by p-value and refit; the weights used are the paper's as "
+            "recalled from memory, not re-checked against it. Unadjusted maximum likelihood: "
+            f"{fmt_effect(fw.unadjusted, m)}."
+        )
+    elif fw is not None:
+        rows.append(("Fixed-weight selection models", why_not(fw), ""))
+    u = getattr(result, "unreported_trials", None)
+    if is_ok(u):
+        for sc in u.scenarios:
+            p = sc.pooled
+            what = "no effect" if sc.assumed == "no effect" else "the opposite effect"
+            rows.append(
+                (
+                    f"Missing trials had found {what}",
+                    fmt_effect_ci(p.estimate, p.ci.low, p.ci.high, m),
+                    "",
+                )
+            )
+        notes.append(
+            f"{missing_trials_sentence(result)} The SE of each missing trial comes from its "
+            f"size: {u.se_rule}."
+        )
+        if u.rows_without_size:
+            notes.append(
+                f"{plural(len(u.rows_without_size), 'trial')} marked as never reported "
+                "had no size and could not be used."
+            )
+    elif u is not None:
+        rows.append(("Trials known to be missing", why_not(u), ""))
+    return Section(
+        "selection_strength",
+        "How strong would selection have to be?",
+        tuple(rows),
+        header=("", "Random effects", "Fixed effect"),
+        notes=tuple(notes),
+        widths=(2.4, 1.6, 1.6),
+    )
+
+
+def selection_strength_brief(result) -> Section:
+    """The same content as :func:`selection_strength_section`, compact (the printed sheet):
+    random effects only, one row per kind of result."""
+    m = result.measure
+    rows: list[tuple[str, str]] = []
+    notes: list[str] = []
+    ss = getattr(result, "selection_sensitivity", None)
+    model = ss.random if is_ok(ss) else None
+    if is_ok(model):
+        etas = " / ".join(fmt_eta(c.eta) for c in model.by_eta)
+        ests = " / ".join(fmt_effect(c.estimate, m) for c in model.by_eta)
+        rows.append((f"Corrected, η = {etas}", ests))
+
+        def s_text(attr):
+            v = getattr(model, attr)
+            return fmt_eta(v) if v is not None else short_reason(getattr(model, attr + "_reason"))
+
+        rows.append(
+            ("No effect reached at η (estimate / CI)",
+             f"{s_text('s_value')} / {s_text('s_value_ci')}")
+        )  # fmt: skip
+        wc = model.worst_case
+        rows.append(
+            (
+                "Worst case",
+                fmt_effect_ci(wc.estimate, wc.ci_low, wc.ci_high, m) if is_ok(wc) else why_not(wc),
+            )
+        )
+        notes.append(
+            f"{ss.affirmative} of {ss.affirmative + ss.nonaffirmative} studies significant in "
+            "favour of the effect; worst case: the others alone. Random effects, robust "
+            "interval (Mathur & VanderWeele 2020)."
+        )
+    elif ss is not None:
+        rows.append(("How strong selection would have to be", why_not(model if ss else ss)))
+    fw = getattr(result, "selection_fixed_weights", None)
+    if is_ok(fw):
+        by = fw.by_pattern()
+        for tail in ("one-tailed", "two-tailed"):
+            vals = [by.get(f"{lvl} {tail}") for lvl in ("moderate", "severe")]
+            rows.append(
+                (
+                    f"Fixed weights, {tail} (moderate / severe)",
+                    " / ".join(fmt_effect(v.estimate, m) if is_ok(v) else MISSING for v in vals),
+                )
+            )
+        notes.append("Fixed weights: Vevea & Woods (2005) patterns, recalled from memory.")
+    u = getattr(result, "unreported_trials", None)
+    if is_ok(u):
+        for sc in u.scenarios:
+            p = sc.pooled
+            what = "no effect" if sc.assumed == "no effect" else "the opposite effect"
+            rows.append(
+                (
+                    f"Missing trials found {what}",
+                    fmt_effect_ci(p.estimate, p.ci.low, p.ci.high, m),
+                )
+            )
+        notes.append(f"SE of a missing trial from its size: {u.se_rule}.")
+    elif u is not None:
+        rows.append(("Trials known to be missing", why_not(u)))
+    return Section(
+        "selection_strength", "How strong would selection have to be?", tuple(rows),
+        notes=tuple(notes),
+    )  # fmt: skip
+
+
+def review_claim_section(result) -> Section | None:
+    """What the review said about small-study effects beside Lopside's reading (or None)."""
+    from .appraise.claim import compare_claim
+
+    c = compare_claim(result)
+    if c is None:
+        return None
+    rows = (
+        ("The review said", c.said),
+        ("Its test for these data", c.applicable),
+        ("Power here", c.power),
+        ("Lopside's reading", c.agreement),
+        ("Verdict", c.verdict),
+    )
+    return Section(
+        "review_claim", "What the review itself said about small-study effects", rows,
+        emphasis=(4,),
+    )  # fmt: skip
+
+
 def sensitivity_section(result) -> Section:
     """Leave-one-out range, cumulative drift by precision, fail-safe N (with its caution)."""
     m = result.measure
@@ -756,7 +960,7 @@ def settings_section(result, *, version: str = "") -> Section:
 
 def analysis_sections(result) -> tuple[Section, ...]:
     """The numeric sections in reading order (no appraisal readings)."""
-    out = [
+    out: list[Section | None] = [
         data_section(result),
         row_flags_section(result),
         reconciliation_section(result),
@@ -764,17 +968,19 @@ def analysis_sections(result) -> tuple[Section, ...]:
         heterogeneity_section(result),
         tests_section(result),
         applicability_section(result),
+        review_claim_section(result),
         adjustments_section(result),
     ]
     tf = trim_fill_section(result)
     if tf is not None:
         out.append(tf)
+    out.append(selection_strength_section(result))
     out.append(sensitivity_section(result))
     sg = subgroups_section(result)
     if sg is not None:
         out.append(sg)
     out.append(power_section(result))
-    return tuple(out)
+    return tuple(s for s in out if s is not None)
 
 
 # --------------------------------------------------------------------------------------
@@ -913,6 +1119,24 @@ def _trim_fill_line(assessment):
     return ("Trim and fill settings", rng.text)
 
 
+def _claim_line(assessment):
+    """The review's own claim about small-study effects, set beside this reading."""
+    sec = review_claim_section(assessment.analysis)
+    return None if sec is None else ("The review's own claim", sec.rows[-1][1])
+
+
+def _selection_needed_line(assessment):
+    """How strong selection would have to be (Mathur & VanderWeele 2020)."""
+    # the short form on page 1 (the worst case is in the window, the text and the JSON)
+    text = selection_sentence(assessment.analysis, brief=True)
+    return None if not text else ("Selection needed", text)
+
+
+def _missing_trials_line(assessment):
+    text = missing_trials_sentence(assessment.analysis)
+    return None if not text else ("Trials never reported", text)
+
+
 PAGE_ONE_LINES = [
     _flagged_rows_line,
     _rating_line,
@@ -922,6 +1146,9 @@ PAGE_ONE_LINES = [
     _alternative_line,
     _adjusted_line,
     _trim_fill_line,
+    _claim_line,
+    _selection_needed_line,
+    _missing_trials_line,
 ]
 
 

@@ -94,6 +94,34 @@ def test_bare_pooling(benchmark, keep, reviews, k):
     assert out.estimate == pytest.approx(result.random_by_method["REML"].estimate, rel=1e-12)
 
 
+def test_selection_block(benchmark, keep, reviews):
+    # issue 20: sensitivity to selection, the four fixed-weight selection models and the
+    # missing-trial scenarios (3 trials never reported), the part of analyse() they add;
+    # target <= 10 % of analyse() at 30 studies (ratio below)
+    from dataclasses import replace
+
+    from lopside.analysis import _selection_block, _unreported_block
+    from lopside.model.review import StudyRow
+
+    review, _ = reviews[30]
+    missing = tuple(
+        StudyRow(study=f"Invented registered {i}", n=200.0 + 50 * i, reported=False)
+        for i in range(3)
+    )
+    review = replace(review, studies=review.studies + missing)
+    result = analyse(review)
+
+    def block():
+        sens, fixed_w = _selection_block(result.data, result.random, result.settings)
+        return sens, fixed_w, _unreported_block(review, result.data, result.random, result.settings)
+
+    benchmark.group = "analyse k=30"
+    sens, fixed_w, unrep = benchmark.pedantic(block, rounds=30, iterations=1)
+    keep("selection-block-30")
+    assert sens.affirmative + sens.nonaffirmative == 30 and len(fixed_w.estimates) == 4
+    assert unrep.count == 3
+
+
 def _loo_by_subsets(y, v):
     """Leave-one-out the plain way (what the batch replaced): per subset the fixed-effect
     and REML random-effects pooling and Cochran's Q."""

@@ -198,6 +198,10 @@ def selection_evidence(result, ss: SmallStudyReading, g: Glossary) -> list[Evide
     tf_line = trim_fill_variants_evidence(result)
     if tf_line is not None:
         out.append(tf_line)
+    # issue 20: trials known to be missing, strength of selection needed, review's claim
+    from .selection_items import selection_items
+
+    out.extend(selection_items(result))
     out.append(
         _ev(
             "unclear",

@@ -24,6 +24,9 @@ SOURCES: tuple[str, ...] = (
     "power",  # simulated power and false-alarm rate
     "study count",
     "not in the data",  # what the numbers cannot show
+    "unreported trials",  # trials known to exist that never reported (issue 20)
+    "selection strength",  # how strong selection would have to be (Mathur & VanderWeele)
+    "review's claim",  # what the review itself said about small-study effects
 )
 
 

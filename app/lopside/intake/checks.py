@@ -307,6 +307,20 @@ def check_row(
         if tot is not None and tot == 0:
             add(f"{prefix}_total", ERROR, "total_zero", arm=_arm(prefix))
 
+    if not row.reported:
+        # a trial known to be missing: only its size is used (the missing-trial scenarios)
+        if row.total_n() is None:
+            add("n", ERROR, "unreported_no_size")
+        results = [
+            f
+            for f in ("estimate", "lower", "upper", "se", "p", "int_events", "ctl_events",
+                      "int_mean", "ctl_mean", "int_sd", "ctl_sd")
+            if getattr(row, f) is not None
+        ]  # fmt: skip
+        if results:
+            add(results[0], WARNING, "unreported_has_results", fields=", ".join(results))
+        return tuple(out)
+
     # -- the estimate and its interval
     est, lo, hi = row.estimate, row.lower, row.upper
     if measure == "RD":

@@ -17,6 +17,15 @@ CHECKS: dict[str, str] = {
     "not_finite": (
         "the value {value} is not a finite number. Enter the number printed in the paper."
     ),
+    "unreported_no_size": (
+        "this trial is marked as never reported, but its size is missing. Enter its number "
+        "of participants (n), or the totals of both arms, or mark it as reported."
+    ),
+    "unreported_has_results": (
+        "this trial is marked as never reported, yet results are entered ({fields}). They "
+        "are not used: an unreported trial enters only the missing-trial scenarios. Mark it "
+        "as reported if the results were published."
+    ),
     "no_route": (
         "there is nothing to analyse for this study. Enter an estimate with its CI, or an SE, "
         "or a P value, or counts, or means/SDs."

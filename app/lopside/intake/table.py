@@ -64,6 +64,9 @@ _XLSX_ERRORS = frozenset(
     {"#DIV/0!", "#N/A", "#NAME?", "#NULL!", "#NUM!", "#REF!", "#VALUE!", "#GETTING_DATA"}
 )
 _YES = frozenset({"yes", "y", "true", "1", "x", "excluded", "exclude"})
+#: words for the ``reported`` column (a trial that never reported its results is "no")
+_REPORTED_YES = frozenset({"yes", "y", "true", "1", "reported"})
+_REPORTED_NO = frozenset({"no", "n", "false", "0", "not reported", "unreported", "missing"})
 _NO = frozenset({"no", "n", "false", "0", "", "included", "include"})
 _YEAR_RE = re.compile(r"((?:1[89]|20)[0-9]{2})([a-z]?)")
 _MERGE_RE = re.compile(rb'<mergeCell ref="([A-Z]{1,3}[0-9]{1,7}:[A-Z]{1,3}[0-9]{1,7})"')
@@ -914,6 +917,24 @@ def _read_cell(
             ("year", ERROR, M.table_message("unread_cell", text=year_text, what="a year"))
         )
         return
+    if name == "reported":
+        if isinstance(value, bool):
+            values["reported"] = value
+            return
+        token = (text if isinstance(value, str) else str(value)).strip().casefold()
+        if isinstance(value, (int, float)) and float(value) in (0.0, 1.0):
+            values["reported"] = float(value) == 1.0
+        elif token in _REPORTED_YES:
+            values["reported"] = True
+        elif token in _REPORTED_NO:
+            values["reported"] = False
+        else:
+            shown = text if isinstance(value, str) else str(value)
+            unread.append(("reported", shown))
+            problems.append(
+                ("reported", ERROR, M.table_message("unread_cell", text=shown, what="yes or no"))
+            )
+        return
     if name == "exclude":
         if isinstance(value, bool):
             values["exclude"] = value
@@ -1012,6 +1033,8 @@ def write_table_csv(
                 out.append(str(value) if value is not None else _neutralise(unread.get("year", "")))
             elif name == "exclude":
                 out.append("yes" if value else _neutralise(unread.get("exclude", "")))
+            elif name == "reported":
+                out.append("no" if not value else _neutralise(unread.get("reported", "")))
             else:
                 out.append(_neutralise(value or ""))
         writer.writerow(out)

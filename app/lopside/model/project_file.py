@@ -57,6 +57,7 @@ from .intake_file import (
 )
 from .review import (
     CAUSES,
+    CLAIM_CONCLUSIONS,
     JUDGEMENTS,
     MEASURES,
     NUMERIC_FIELDS,
@@ -65,6 +66,7 @@ from .review import (
     CauseNote,
     PublishedResult,
     Review,
+    ReviewClaim,
     ReviewDetails,
     StudyRow,
 )
@@ -166,6 +168,13 @@ def review_to_dict(review: Review, settings: dict[str, Any] | None = None) -> di
                 "upper": d.published.upper,
                 "model": d.published.model,
                 "i2": d.published.i2,
+            },
+            "claim": {
+                "test": d.claim.test,
+                "statistic": d.claim.statistic,
+                "p": d.claim.p,
+                "k": d.claim.k,
+                "conclusion": d.claim.conclusion,
             },
         },
         "studies": [s.to_dict() for s in review.studies],
@@ -365,7 +374,17 @@ def _settings(doc: Any) -> dict[str, Any]:
 
 
 _STUDY_KEYS = frozenset(
-    {"study", "year", "p_bound", "risk_of_bias", "subgroup", "exclude", "unread", *NUMERIC_FIELDS}
+    {
+        "study",
+        "year",
+        "p_bound",
+        "risk_of_bias",
+        "subgroup",
+        "exclude",
+        "reported",
+        "unread",
+        *NUMERIC_FIELDS,
+    }  # fmt: skip
 )
 _TABLE_KEYS = frozenset(TABLE_COLUMNS)
 
@@ -403,6 +422,10 @@ def _study(obj: Any, i: int) -> StudyRow:
     if not isinstance(ex, bool):
         raise ProjectFileError(f"{where}, exclude: expected true or false.")
     kw["exclude"] = ex
+    rep = obj.get("reported", True)
+    if not isinstance(rep, bool):
+        raise ProjectFileError(f"{where}, reported: expected true or false.")
+    kw["reported"] = rep
     unread = obj.get("unread", {})
     if not isinstance(unread, dict):
         raise ProjectFileError(f"{where}, unread: expected an object of field: text.")
@@ -460,6 +483,29 @@ def review_from_dict(doc: Any) -> tuple[Review, dict[str, Any]]:
         model=_text(pub.get("model"), "details, published model"),
         i2=_number(pub.get("i2"), "details, published I²"),
     )
+    cl = det.get("claim", {}) or {}
+    if not isinstance(cl, dict):
+        raise ProjectFileError("details, claim: expected an object.")
+    conclusion = _text(cl.get("conclusion"), "details, claim conclusion")
+    if conclusion not in CLAIM_CONCLUSIONS:
+        raise ProjectFileError(
+            "details, claim conclusion: expected one of "
+            + ", ".join(repr(c) for c in CLAIM_CONCLUSIONS if c)
+            + " or nothing."
+        )
+    claim_k = _number(cl.get("k"), "details, claim k")
+    if claim_k is not None and (claim_k != int(claim_k) or claim_k < 0):
+        raise ProjectFileError("details, claim k: expected a whole number of studies.")
+    claim_p = _number(cl.get("p"), "details, claim p")
+    if claim_p is not None and not 0.0 <= claim_p <= 1.0:
+        raise ProjectFileError("details, claim p: expected a P value between 0 and 1.")
+    claim = ReviewClaim(
+        test=_text(cl.get("test"), "details, claim test"),
+        statistic=_number(cl.get("statistic"), "details, claim statistic"),
+        p=claim_p,
+        k=None if claim_k is None else int(claim_k),
+        conclusion=conclusion,
+    )
     if published.i2 is not None and not 0.0 <= published.i2 <= 100.0:
         raise ProjectFileError("details, published I²: expected a percentage from 0 to 100.")
     details = ReviewDetails(
@@ -474,6 +520,7 @@ def review_from_dict(doc: Any) -> tuple[Review, dict[str, Any]]:
         published=published,
         appraiser=_text(det.get("appraiser"), "details, appraiser"),
         source_note=_notes(det.get("source_note"), "details, source_note"),
+        claim=claim,
         favours_source=_intake_part(favours_source_from, det.get("favours_source")),
         # added later: files without it (all older ones) read as "no units"
         units=_text(det.get("units"), "details, units"),

@@ -67,6 +67,7 @@ TABLE_COLUMNS: tuple[str, ...] = (
     "risk_of_bias",
     "subgroup",
     "exclude",
+    "reported",
 )
 
 
@@ -103,6 +104,10 @@ class StudyRow:
     risk_of_bias: str | None = None
     subgroup: str | None = None
     exclude: bool = False
+    #: False for a trial known to exist (registered, presented, listed as ongoing) that
+    #: never reported results: only its size is entered, and it enters only the
+    #: missing-trial scenarios, never the main analysis
+    reported: bool = True
     #: field name -> text the user typed that could not be read (kept, never lost)
     unread: tuple[tuple[str, str], ...] = ()
 
@@ -152,6 +157,8 @@ class StudyRow:
                 continue
             if value is None or (f.name == "exclude" and value is False):
                 continue
+            if f.name == "reported" and value is True:
+                continue
             out[f.name] = value
         return out
 
@@ -170,6 +177,34 @@ class PublishedResult:
 
     def is_complete(self) -> bool:
         return None not in (self.estimate, self.lower, self.upper)
+
+
+#: What a review may have concluded about small-study effects ("" = not entered).
+CLAIM_CONCLUSIONS: tuple[str, ...] = ("", "none found", "found", "not assessed", "not reported")
+
+
+@dataclass(frozen=True, slots=True)
+class ReviewClaim:
+    """What the review itself reported about small-study effects (all optional).
+
+    ``test`` is the test as named in the paper ("Egger's test", "funnel plot inspection");
+    ``statistic`` and ``p`` as printed; ``k`` the number of studies it used;
+    ``conclusion`` one of :data:`CLAIM_CONCLUSIONS`.
+    """
+
+    test: str = ""
+    statistic: float | None = None
+    p: float | None = None
+    k: int | None = None
+    conclusion: str = ""
+
+    def is_empty(self) -> bool:
+        return (
+            not self.test
+            and self.statistic is None
+            and self.p is None
+            and (self.k is None and not self.conclusion)
+        )
 
 
 @dataclass(frozen=True, slots=True)
@@ -191,6 +226,8 @@ class ReviewDetails:
     appraiser: str = ""
     #: free text shown on screen and on the sheet; invented demo reviews say so here
     source_note: str = ""
+    #: what the review said about small-study effects (compared with Lopside's reading)
+    claim: ReviewClaim = field(default_factory=ReviewClaim)
     #: optional units of the outcome scale ("mmHg", "points on a 0-100 scale"), printed
     #: on the effect axes and the sheet for mean differences
     units: str = ""

@@ -37,6 +37,8 @@ from ..summary import (
     pooled_section,
     rating_section,
     reconciliation_section,
+    review_claim_section,
+    selection_strength_brief,
     sensitivity_section,
     settings_section,
     small_study_section,
@@ -262,6 +264,37 @@ def _funnel_block(result, appraisal, st) -> list:
     return [_h2("The funnel plot and what it shows", st), t]
 
 
+def _selection_block(result, st) -> list:
+    """How strong selection would have to be: the table beside the η curve."""
+    from reportlab.platypus import Table, TableStyle
+
+    from .figures import FigureUnavailable, selection_curve_flowable
+
+    sec = selection_strength_brief(result)
+    if not sec.rows:
+        return []
+    fig_w = 190.0
+    try:
+        fig = selection_curve_flowable(result, fig_w, 120.0)
+    except FigureUnavailable as exc:
+        fig = para(f"The selection curve could not be drawn: {exc}", st["muted"])
+    text_w = FRAME_W - fig_w - 8
+    table = section_table(sec, st, width=text_w, label_width=185)
+    t = Table([[table, fig]], colWidths=[text_w + 8, fig_w], hAlign="LEFT")
+    t.setStyle(
+        TableStyle(
+            [
+                ("VALIGN", (0, 0), (-1, -1), "TOP"),
+                ("FONTNAME", (0, 0), (-1, -1), fonts.REGULAR),
+                ("LEFTPADDING", (0, 0), (-1, -1), 0),
+                ("RIGHTPADDING", (0, 0), (-1, -1), 0),
+                ("TOPPADDING", (0, 0), (-1, -1), 0),
+            ]
+        )
+    )
+    return [_h2(sec.title, st), t]
+
+
 def _page2(result, appraisal, st) -> list:
     out = _funnel_block(result, appraisal, st)
     out += _section(tests_section(result), st)
@@ -277,6 +310,8 @@ def _page2(result, appraisal, st) -> list:
     out += _section(adj, st)
     if tf is not None:
         out += _section(tf, st)
+    # the selection block (table and η curve) is left out here: page 2 now carries the
+    # sensitivity section too; page 1 keeps the sentence, the window and JSON the detail
     sens = sensitivity_section(result)
     # fail-safe N is not recommended (Cochrane Handbook 5.1, 10.4.4.3): the window and the
     # text show it with its caution; the printed sheet leaves it out to keep its room
@@ -305,6 +340,9 @@ def _rating_for_print(sec, appraisal):
 
 def _page3(result, appraisal, st) -> list:
     out = _section(_causes_for_print(causes_section(appraisal)), st)
+    claim = review_claim_section(result)
+    if claim is not None:
+        out += _section(claim, st, label_width=118)
     out += _section(_rating_for_print(rating_section(appraisal), appraisal), st)
     out += _settings(result, st)
     return out

@@ -158,3 +158,18 @@ def _default_caption(opts, pooled, k: int) -> str:
     if make is None:  # pragma: no cover
         return f"{opts.measure} · k = {k}"
     return make(opts, pooled, k)
+
+
+def selection_curve_flowable(result, max_width: float, max_height: float):
+    """The corrected estimate against η (Mathur & VanderWeele 2020), or FigureUnavailable."""
+    from ..figures.common import FigureInputError
+    from ..figures.selection import selection_curve_figure, selection_curve_input_from_result
+
+    inp = selection_curve_input_from_result(result)
+    if inp is None:
+        raise FigureUnavailable("the sensitivity to selection was not computed")
+    try:
+        fig = selection_curve_figure(inp, size="column")
+    except (FigureInputError, ValueError) as exc:
+        raise FigureUnavailable(str(exc)) from exc
+    return _to_flowable(fig, max_width, max_height)

@@ -628,6 +628,13 @@ def derive(
         raise ValueError(f"ci_method must be one of {CI_METHODS}, not {ci_method!r}")
     if smd_correction not in SMD_CORRECTIONS:
         raise ValueError(f"smd_correction must be one of {SMD_CORRECTIONS}, not {smd_correction!r}")
+    if not getattr(row, "reported", True):
+        # a trial that never reported results: no effect to derive, and nothing missing
+        # (its size feeds the missing-trial scenarios; the row check covers its entry)
+        return Derived(
+            route_text="never reported: used only in the missing-trial scenarios",
+            notes=("never reported: only its size is used, in the missing-trial scenarios",),
+        )
     try:
         return _derive(row, measure, ci_level, ci_method, smd_correction)
     except Exception as exc:

@@ -57,6 +57,14 @@ class CausesPanel(QScrollArea):
         shows = QGroupBox("What the funnel shows")
         QVBoxLayout(shows).addWidget(self.reading)
         lay.addWidget(shows)
+        # the review's own claim about small-study effects beside Lopside's reading
+        self.claim = QLabel("")
+        self.claim.setWordWrap(True)
+        self.claim.setTextFormat(Qt.RichText)
+        self.claim_box = QGroupBox("What the review itself said")
+        QVBoxLayout(self.claim_box).addWidget(self.claim)
+        self.claim_box.setVisible(False)
+        lay.addWidget(self.claim_box)
         intro = QLabel(
             "A lopsided funnel has several possible explanations besides selective "
             "publication. For each, the evidence from this review is listed (+ for, "
@@ -183,10 +191,25 @@ class CausesPanel(QScrollArea):
             self.general.setPlainText(notes.general)
             self.general.blockSignals(False)
 
+    def _show_claim(self, result) -> None:
+        from ..summary import review_claim_section
+
+        sec = review_claim_section(result)
+        self.claim_box.setVisible(sec is not None)
+        if sec is None:
+            self.claim.setText("")
+            return
+        rows = "".join(
+            f"<tr><td><b>{html.escape(label)}</b>&nbsp;</td><td>{html.escape(text)}</td></tr>"
+            for label, text in sec.rows
+        )
+        self.claim.setText(f"<table>{rows}</table>")
+
     def show_message(self, text: str) -> None:
         self._appraisal_for = None
         self.appraisal = None
         self.reading.setText(html.escape(text))
+        self.claim_box.setVisible(False)  # no result: no comparison with the review's claim
         for ev in self.evidence.values():
             ev.setText("\u2013")
         self.suggested.setText("\u2013")
@@ -208,7 +231,7 @@ class CausesPanel(QScrollArea):
             self._appraisal_for = None
             return
         # the readings depend on the statistics, not on the notes: skip when only notes moved
-        key = (result.data, result.settings, result.power)
+        key = (result.data, result.settings, result.power, result.review.details)
         if self._appraisal_for is not None and all(
             a is b for a, b in zip(key, self._appraisal_for)
         ):
@@ -231,6 +254,7 @@ class CausesPanel(QScrollArea):
             for label, text in a.small_study.lines
         )
         self.reading.setText(f"<table>{lines}</table>")
+        self._show_claim(result)
         by_key = {c.key: c for c in a.causes}
         for key in CAUSES:
             c = by_key.get(key)

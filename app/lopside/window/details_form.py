@@ -17,7 +17,7 @@ from PySide6.QtWidgets import (
 )
 
 from .. import edits as ed
-from ..model.review import MEASURE_NAMES, MEASURES
+from ..model.review import CLAIM_CONCLUSIONS, MEASURE_NAMES, MEASURES
 from ..session import Session
 from . import messages as M
 from .sections import WrappingPage
@@ -162,6 +162,37 @@ class DetailsForm(QScrollArea):
         f3.addRow(self.pub_problem)
         outer.addWidget(pub)
 
+        said = QGroupBox("What the review said about small-study effects (optional)")
+        f4 = QFormLayout(said)
+        self.claim_test = self._line("Test the review used", "e.g. Egger's test")
+        self.claim_statistic = self._line("Its statistic", "as printed, e.g. 1.21")
+        self.claim_p = self._line("Its P value", "e.g. 0.23")
+        self.claim_k = self._line("Studies it used", "e.g. 12")
+        self.claim_conclusion = QComboBox()
+        self.claim_conclusion.setAccessibleName("The review's conclusion")
+        for value in CLAIM_CONCLUSIONS:
+            self.claim_conclusion.addItem(value or "(not entered)", value)
+        f4.addRow("Test used:", self.claim_test)
+        stat_row = QHBoxLayout()
+        stat_row.addWidget(self.claim_statistic)
+        p_label = QLabel("P:")
+        p_label.setBuddy(self.claim_p)
+        stat_row.addWidget(p_label)
+        stat_row.addWidget(self.claim_p)
+        k_label = QLabel("studies:")
+        k_label.setBuddy(self.claim_k)
+        stat_row.addWidget(k_label)
+        stat_row.addWidget(self.claim_k)
+        stat_label = QLabel("Statistic:")
+        stat_label.setBuddy(self.claim_statistic)
+        f4.addRow(stat_label, stat_row)
+        f4.addRow("Conclusion:", self.claim_conclusion)
+        self.claim_problem = QLabel()
+        self.claim_problem.setWordWrap(True)
+        self.claim_problem.setStyleSheet("color: #9B2C1F;")
+        f4.addRow(self.claim_problem)
+        outer.addWidget(said)
+
         self.source_note = QLabel()
         self.source_note.setWordWrap(True)
         self.source_note.setStyleSheet("color: #616E7C;")
@@ -177,11 +208,15 @@ class DetailsForm(QScrollArea):
             "int_label": self.int_label,
             "ctl_label": self.ctl_label,
             "published.model": self.pub_model,
+            "claim.test": self.claim_test,
         }
         self._numbers = {
             "published.estimate": self.pub_estimate,
             "published.lower": self.pub_lower,
             "published.upper": self.pub_upper,
+            "claim.statistic": self.claim_statistic,
+            "claim.p": self.claim_p,
+            "claim.k": self.claim_k,
         }
         #: the model value each number box last showed (see refresh)
         self._shown: dict[str, float | None] = {}
@@ -194,6 +229,7 @@ class DetailsForm(QScrollArea):
             lambda _i: self._push(ed.SetFavours(self.favours.currentData(), "window"))
         )
         self.ci_level.editingFinished.connect(self._level_done)
+        self.claim_conclusion.activated.connect(self._conclusion_done)
         self.refresh()
 
     def _line(self, name: str, placeholder: str) -> QLineEdit:
@@ -211,6 +247,8 @@ class DetailsForm(QScrollArea):
         d = self.session.review.details
         if field.startswith("published."):
             return getattr(d.published, field.split(".", 1)[1])
+        if field.startswith("claim."):
+            return getattr(d.claim, field.split(".", 1)[1])
         return getattr(d, field)
 
     def _text_done(self, field: str, w: QLineEdit) -> None:
@@ -222,6 +260,7 @@ class DetailsForm(QScrollArea):
         from ..intake.numbers import parse_number
 
         text = w.text().strip()
+        problem = self.claim_problem if field.startswith("claim.") else self.pub_problem
         if not text:
             value = None
         else:
@@ -229,18 +268,36 @@ class DetailsForm(QScrollArea):
             if not reading.ok:
                 # the text stays in the box (nothing typed is discarded) and is not used
                 w.setStyleSheet(_BAD_STYLE)
-                msg = M.DETAIL_UNREAD.format(text=text)
+                unread = M.CLAIM_UNREAD if field.startswith("claim.") else M.DETAIL_UNREAD
+                msg = unread.format(text=text)
                 w.setToolTip(msg)
-                self.pub_problem.setText(msg)
+                problem.setText(msg)
                 self.status.emit(msg)
                 return
             value = reading.value
+            bad = ""
+            if field == "claim.p" and not 0.0 <= value <= 1.0:
+                bad = M.CLAIM_P_BAD.format(text=text)
+            elif field == "claim.k" and (value != int(value) or value < 0):
+                bad = M.CLAIM_K_BAD.format(text=text)
+            if bad:
+                # kept in the box, said, not applied
+                w.setStyleSheet(_BAD_STYLE)
+                w.setToolTip(bad)
+                problem.setText(bad)
+                self.status.emit(bad)
+                return
         w.setStyleSheet("")
         w.setToolTip("")
-        self.pub_problem.setText("")
+        problem.setText("")
         if value != self._current(field):
             self._shown[field] = value
             self._push(ed.SetDetail(field, value))
+
+    def _conclusion_done(self, _index: int) -> None:
+        value = self.claim_conclusion.currentData()
+        if value != self.session.review.details.claim.conclusion:
+            self._push(ed.SetDetail("claim.conclusion", value))
 
     def _measure_done(self, _index: int) -> None:
         m = self.measure.currentData()
@@ -275,7 +332,12 @@ class DetailsForm(QScrollArea):
             w.setStyleSheet("")
             w.setToolTip("")
         self.pub_problem.setText("")
-        for box, value in ((self.measure, d.measure), (self.favours, d.favours)):
+        self.claim_problem.setText("")
+        for box, value in (
+            (self.measure, d.measure),
+            (self.favours, d.favours),
+            (self.claim_conclusion, d.claim.conclusion),
+        ):
             i = box.findData(value)
             if i >= 0 and box.currentIndex() != i:
                 box.blockSignals(True)

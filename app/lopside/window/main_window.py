@@ -46,6 +46,8 @@ from ..session import Session
 from . import guards
 from . import messages as M
 from . import prefs as P
+from .adjust_panel import AdjustPanel
+from .adjust_panel import adjust_sections as _adjust_sections  # noqa: F401 - tests read it
 from .autosave import Autosaver, Recoverable, as_choice, find_recoverable
 from .causes import CausesPanel
 from .details_form import DetailsForm
@@ -98,17 +100,6 @@ def _tests_sections(result):
         out.insert(0, S.small_study_section(assessment_of(result).appraisal))
     except ImportError:
         pass
-    return out
-
-
-def _adjust_sections(result):
-    from .. import summary as S
-
-    out = [S.adjustments_section(result)]
-    tf = S.trim_fill_section(result)  # every trim-and-fill setting beside the default
-    if tf is not None:
-        out.append(tf)
-    out.append(S.sensitivity_section(result))
     return out
 
 
@@ -310,7 +301,7 @@ class MainWindow(QMainWindow):
         self.companions = CompanionPanel()
         self.pooled = SectionsPanel("Pooled results", _pooled_sections)
         self.tests = SectionsPanel("Tests", _tests_sections)
-        self.adjust = SectionsPanel("Adjustments", _adjust_sections)
+        self.adjust = AdjustPanel(self.session)
         self.causes = CausesPanel(self.session, self.stack.push_edit)
         self.power = PowerPanel(self.session)
         self.view_panels = (

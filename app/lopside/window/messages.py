@@ -49,6 +49,7 @@ CELL_UNREAD = "“{text}” could not be read as {what}. It is kept here; type {
 CELL_UNREAD_HINT = {
     "year": "a four-digit year",
     "exclude": "yes or no",
+    "reported": "no (a trial that never reported results) or leave it blank",
     "p": "a P value such as 0.03 or <0.001",
 }
 #: added to a row check's message when that problem also keeps the study out
@@ -75,6 +76,21 @@ ABOUT_TEXT = (
     "<p>The sample reviews shipped with Lopside are invented for demonstration.</p>"
 )
 
+ETA_LABEL = "Your own selection ratio η:"
+ETA_TIP = (
+    "How many times more likely a result significant in favour of the effect is to be "
+    "published than any other (at least 1). The corrected estimate for it is added to the "
+    "table below, beside η = 1, 2, 5, 10, 20 and 50."
+)
+ETA_BAD = "“{text}” is not a selection ratio: type a number of at least 1 (or clear the field)."
+CURVE_FAILED = "The selection curve could not be drawn: {error}"
+CLAIM_P_BAD = (
+    "“{text}” is not a P value: type a number from 0 to 1; it is not used until it is one."
+)
+CLAIM_K_BAD = (
+    "“{text}” is not a number of studies: type a whole number; it is not used until it is one."
+)
+CLAIM_UNREAD = "“{text}” is not a number; it is kept here and not used until it is one."
 ASK_DECIMAL = (
     "<p>Nothing in <b>{name}</b> shows whether a comma in these numbers is a decimal mark or "
     "separates thousands. Which does the paper use?</p>"

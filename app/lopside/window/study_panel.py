@@ -37,6 +37,7 @@ COLUMN_LIMITS = {
     "risk_of_bias": (64, 118),
     "subgroup": (56, 130),
     "exclude": (34, 46),
+    "reported": (40, 72),
 }
 DEFAULT_LIMITS = (40, 84)
 ELASTIC = ("subgroup", "risk_of_bias", "study")

@@ -59,6 +59,7 @@ HEADERS: dict[str, str] = {
     "risk_of_bias": "Risk of\nbias",
     "subgroup": "Subgroup",
     "exclude": "Left\nout",
+    "reported": "Reported",
     "_y": "Effect\nused",
     "_se": "SE\nused",
 }
@@ -201,7 +202,9 @@ class StudyTableModel(QAbstractTableModel):
 
     def _rebuild_columns(self) -> None:
         fields = ENTRY_MODES[self._mode][1]
-        self._columns = ("study", "year", *fields, *DERIVED, "risk_of_bias", "subgroup", "exclude")
+        self._columns = (
+            "study", "year", *fields, *DERIVED, "risk_of_bias", "subgroup", "exclude", "reported",
+        )  # fmt: skip
 
     @property
     def columns(self) -> tuple[str, ...]:
@@ -348,6 +351,12 @@ class StudyTableModel(QAbstractTableModel):
             "_y": "The effect on the analysis scale, derived by Lopside (read only)",
             "_se": "The standard error Lopside derived for this study (read only)",
             "exclude": "Tick to leave the study out of the analysis; it stays in the table",
+            "reported": (
+                "Type 'no' for a trial known to exist (registered, presented, listed as "
+                "ongoing) that never reported results; enter only its size (Total N or the "
+                "arm totals). It stays out of the main analysis and feeds the missing-trial "
+                "scenarios on the Adjust view"
+            ),
             "level": "Confidence level of this study's interval, if not the review's",
             "p": "Two-sided P value; '<0.001' is read as a bound",
         }
