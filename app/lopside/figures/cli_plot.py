@@ -119,15 +119,15 @@ def run_plot(args: argparse.Namespace) -> int:
         fmt = format_for(out)
     except ValueError as exc:
         return _fail(f"-o {out}: {exc}.")
-    from ..cli import check_output_arg
+    from ..cli_options import check_output_arg
 
     try:
         out = check_output_arg(args, fmt)
     except OutputRefused as exc:
         return _fail(str(exc))
 
-    from ..cli import EXIT_UNREAD, UnreadInput, load_input
     from ..cli_common import INPUT_ERRORS
+    from ..cli_options import EXIT_UNREAD, UnreadInput, load_input
 
     try:
         # the same input and analysis options as check and sheet (PDF pages included)
@@ -142,7 +142,7 @@ def run_plot(args: argparse.Namespace) -> int:
         settings = replace(settings, funnel_model=args.model)
 
     from ..analysis import analyse
-    from ..cli import _progress_for
+    from ..cli_options import _progress_for
 
     progress = _progress_for(args, review)
     result = analyse(review, settings, progress=progress)
