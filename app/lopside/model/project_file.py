@@ -395,7 +395,9 @@ def _study(obj: Any, i: int) -> StudyRow:
         raise ProjectFileError(f"{where}: expected an object with the study's fields.")
     unknown = obj.keys() - _STUDY_KEYS
     if unknown:
-        raise ProjectFileError(f"{where}: unknown field(s) {', '.join(sorted(unknown))}.")
+        # names shown quoted (repr): a name holding a line break stays on one line
+        names = ", ".join(repr(str(k)) for k in sorted(unknown))[:200]
+        raise ProjectFileError(f"{where}: unknown field(s) {names}.")
     kw: dict[str, Any] = {}
     kw["study"] = _text(obj.get("study"), f"{where}, study")
     year = obj.get("year")
@@ -432,7 +434,8 @@ def _study(obj: Any, i: int) -> StudyRow:
     unknown = unread.keys() - _TABLE_KEYS
     if unknown:
         raise ProjectFileError(
-            f"{where}, unread: unknown field(s) {', '.join(sorted(unknown))[:200]}."
+            f"{where}, unread: unknown field(s) "
+            f"{', '.join(repr(str(k)) for k in sorted(unknown))[:200]}."
         )
     kw["unread"] = tuple(
         (str(k), _text(v, f"{where}, unread {k}", allow_none=False)) for k, v in unread.items()
