@@ -10,7 +10,7 @@ from __future__ import annotations
 import hashlib
 import json
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import Any
 
 import numpy as np
@@ -545,27 +545,33 @@ def _analyse(
         n for n in (getattr(loo, "note", ""), getattr(cumulative, "note", ""), *extra_notes) if n
     )
 
-    return AnalysisResult(
-        review=review,
-        settings=settings,
-        measure=measure,
-        confidence_level=conf,
-        derived=tuple(derived),
-        problems=tuple(problems),
-        data=data,
-        excluded=excluded,
-        fixed=fixed,
-        random=random,
-        random_by_method=by_method,
-        random_hksj_by_method=hksj_by_method,
-        mantel_haenszel=mh,
-        peto=peto,
-        heterogeneity=het,
+    # the full result is the core stage's (one construction of the shared fields) with the
+    # rest filled in
+    core_result = _core_result(
+        review,
+        settings,
+        measure,
+        conf,
+        derived,
+        problems,
+        data,
+        excluded,
+        fixed,
+        random,
+        by_method,
+        hksj_by_method,
+        mh,
+        peto,
+        het,
+        tests,
+        recommendation,
+        rules,
+        trim_fill,
+    )
+    return replace(
+        core_result,
+        stage="full",
         reconciliation=recon,
-        tests=tests,
-        recommendation=recommendation,
-        applicability=_rules_tuple(rules),
-        trim_fill=trim_fill,
         trim_fill_variants=variants,
         pet_peese=pet_peese,
         limit=limit,
@@ -580,7 +586,6 @@ def _analyse(
         selection_fixed_weights=sel_fixed,
         unreported_trials=missing,
         row_flags=row_flags,
-        fingerprint=fingerprint(review, measure),
         notes=notes,
     )
 

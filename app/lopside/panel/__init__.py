@@ -19,31 +19,14 @@ from typing import Any
 
 from ..outcome_row import OUTCOME_COLUMNS
 
-#: The panel's machine-readable columns (first sheet of the XLSX, the CSV), in order.
+#: The panel's machine-readable columns (first sheet of the XLSX, the CSV), in order: the
+#: outcome columns batch writes too (one list, lopside.outcome_row), without the
+#: trim-and-fill details, then the row's status and the data fingerprint.
 PANEL_COLUMNS: tuple[str, ...] = (
-    "outcome",
-    "measure",
-    "k",
-    "participants",
-    "estimate",
-    "ci_low",
-    "ci_high",
-    "i2",
-    "tau2",
-    "pi_low",
-    "pi_high",
-    "recommended_test",
-    "test_p",
-    "power",
-    "adjusted_low",
-    "adjusted_high",
-    "rating_suggested",
-    "rating_accepted",
-    "reason",
+    *(c for c in OUTCOME_COLUMNS if not c.startswith("trim_fill_") and c != "fingerprint"),
     "status",
     "fingerprint",
 )
-assert set(PANEL_COLUMNS) - {"status"} <= set(OUTCOME_COLUMNS)
 
 #: Columns of the second sheet: every study of every outcome (natural scale).
 STUDY_COLUMNS: tuple[str, ...] = (
