@@ -72,12 +72,16 @@ def printed_cells(row: dict[str, Any]) -> list[str]:
         if row.get("pi_low") is not None
         else ""
     )
-    test = (
-        f"{fmt_cell(row['recommended_test'], 'recommended_test')} "
-        f"(p {fmt_cell(row['test_p'], 'test_p')})"
-        if row.get("recommended_test")
-        else "none suits these data"
-    )
+    if not row.get("recommended_test"):
+        test = "none suits these data"
+    elif row.get("test_p") is None:
+        # recommended, but these data do not let it run (e.g. too few studies)
+        test = f"{fmt_cell(row['recommended_test'], 'recommended_test')}: could not be run"
+    else:
+        test = (
+            f"{fmt_cell(row['recommended_test'], 'recommended_test')} "
+            f"(p {fmt_cell(row['test_p'], 'test_p')})"
+        )
     adjusted = (
         f"{fmt_cell(row['adjusted_low'], 'x')} to {fmt_cell(row['adjusted_high'], 'x')}"
         if row.get("adjusted_low") is not None
