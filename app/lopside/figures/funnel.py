@@ -62,6 +62,7 @@ if TYPE_CHECKING:  # pragma: no cover
     from matplotlib.axes import Axes
     from matplotlib.figure import Figure
 
+
 @dataclass(frozen=True, slots=True, eq=False)
 class FunnelInput:
     """Everything a funnel plot shows, as plain values on the analysis scale.

@@ -52,8 +52,9 @@ from .autosave import Autosaver, Recoverable, as_choice, find_recoverable
 from .causes import CausesPanel
 from .details_form import DetailsForm
 from .errors import details, plain, show_error
+from .funnel_panel import FunnelPanel
 from .paste_dialog import PasteDialog
-from .plots import CompanionPanel, ForestPanel, FunnelPanel
+from .plots import CompanionPanel, ForestPanel
 from .power_panel import PowerPanel
 from .screen_fit import keep_on_screen, place_window, screen_signature
 from .sections import SectionsPanel
