@@ -130,3 +130,34 @@ def test_an_edit_shows_the_core_stage_first_then_the_full_one(make_window, qtbot
     assert w.result.data is core_data  # the full stage reused the core's objects ...
     assert w.funnel.draw_count == drawn  # ... so the funnel was not drawn again
     assert not w.status_label.text().endswith(M.CORE_STAGE_SUFFIX)
+
+
+def test_funnel_drawn_in_two_parts_matches_a_whole_draw(make_window, qtbot):
+    # the axes are drawn over a kept background of the rest of the figure (the key); the
+    # pixels must be those of one whole draw of the same figure (common practice for a
+    # blitting cache: compare with the uncached draw)
+    import numpy as np
+
+    from lopside import edits as ed
+
+    w = _window_with_sample(make_window)
+    w.views.setCurrentWidget(w.funnel)
+    w.funnel.draw_now()
+    row = w.session.review.studies[0]
+    field = next(f for f in ("int_events", "estimate", "int_mean") if getattr(row, f) is not None)
+    reused = []
+    for step in (1, 2, 3):
+        value = getattr(row, field) + (step if isinstance(getattr(row, field), int) else 0.01)
+        w.stack.push_edit(ed.SetCell(0, field, str(value)))
+        w.wait_for_analysis()
+        w.update_views()
+        w.funnel.draw_now()
+        canvas = w.funnel.canvas
+        assert w.funnel._background is not None
+        reused.append(w.funnel.background_reused)
+        parts = np.asarray(canvas.buffer_rgba()).copy()
+        canvas.draw()  # the whole figure in one go
+        whole = np.asarray(canvas.buffer_rgba()).copy()
+        assert parts.shape == whole.shape and np.array_equal(parts, whole)
+        w.funnel.draw_now()  # a new background for the next edit
+    assert any(reused), "an edit that keeps the key's words draws only the axes"

@@ -6,6 +6,7 @@ ratio axis is labelled in natural units by :func:`set_effect_axis`.
 
 from __future__ import annotations
 
+import functools
 import math
 from typing import TYPE_CHECKING
 
@@ -301,6 +302,11 @@ def text_width_pt(text: str, size: float, weight: str = "normal") -> float:
     """Width of ``text`` in points when set in DejaVu Sans at ``size`` points."""
     if not text:
         return 0.0
+    return _text_width_pt(str(text), float(size), weight)
+
+
+@functools.lru_cache(maxsize=2048)  # bounded: the same names are measured on every redraw
+def _text_width_pt(text: str, size: float, weight: str) -> float:
     from matplotlib.font_manager import FontProperties
 
     from .style import FONT_FAMILY

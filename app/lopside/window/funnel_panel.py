@@ -63,6 +63,10 @@ class FunnelPanel(FigurePanel):
         self._layout_in_use = None  # the layout key of the drawing on screen
         self._flag_artists: list = []
         self.layout_reused = False
+        self._draw_queued = False
+        self._splitting = False
+        self._background = None  # (key, the canvas without the axes) of the last draw
+        self.background_reused = False
         self._points: list[tuple[float, float, int]] = []  # data x, data y, table row
         self._highlight = None
         row1 = self.controls
@@ -310,6 +314,12 @@ class FunnelPanel(FigurePanel):
         )
 
     def _after_draw(self, event) -> None:
+        if self._splitting:
+            return  # the axes are drawn after the rest: checked in _paint
+        self._background = None  # a draw of the canvas's own (a resize): no background kept
+        self._check_fits(event.renderer)
+
+    def _check_fits(self, renderer) -> None:
         fig = self.figure
         if (
             fig is None
@@ -317,9 +327,63 @@ class FunnelPanel(FigurePanel):
             or type(fig.get_layout_engine()).__name__ != ("PlaceHolderLayoutEngine")
         ):
             return
-        if not self._fits(event.renderer):
+        if not self._fits(renderer):
             # longer tick labels than when the layout was made: lay out afresh
             self._relayout()
+
+    # ---------------------------------------------------------------- drawing on screen
+    #
+    # An edit changes what lies on the axes (and their tick labels), seldom the key below
+    # them: the canvas is drawn in two parts, everything but the axes (kept as a
+    # background while the key's words stay the same) and the axes drawn over it. The
+    # pixels are those of a whole draw: nothing of the axes overlaps the figure key.
+
+    def _request_draw(self) -> None:
+        if not self._draw_queued:
+            self._draw_queued = True
+            QTimer.singleShot(0, self._draw_if_queued)
+
+    def _draw_if_queued(self) -> None:
+        if self._draw_queued:
+            self._draw_queued = False
+            self._paint()
+
+    def draw_now(self) -> None:
+        """Render synchronously (benchmarks, exports, screenshots)."""
+        if self._pending:
+            self.redraw()
+        if self.canvas is not None:
+            self._draw_queued = False
+            self._paint()
+
+    def _background_key(self) -> tuple:
+        words = tuple(t.get_text() for leg in self.figure.legends for t in leg.get_texts())
+        return (words, self.canvas.get_width_height(physical=True), self.figure.dpi, id(self.axes))
+
+    def _paint(self) -> None:
+        c, fig, ax = self.canvas, self.figure, getattr(self, "axes", None)
+        if hasattr(c, "_draw_pending"):
+            c._draw_pending = False  # noqa: SLF001 - a queued draw_idle would draw it again
+        if ax is None or fig.axes != [ax] or not self.showing_figure():
+            c.draw()
+            return
+        key = self._background_key()
+        if self._background is None or self._background[0] != key:
+            self._splitting = True
+            ax.set_animated(True)  # the figure draws everything but the axes
+            try:
+                c.draw()
+            finally:
+                ax.set_animated(False)
+                self._splitting = False
+            self._background = (key, c.copy_from_bbox(fig.bbox))
+            self.background_reused = False
+        else:
+            c.restore_region(self._background[1])
+            self.background_reused = True
+        fig.draw_artist(ax)
+        c.update()
+        self._check_fits(c.get_renderer())
 
     def _relayout(self) -> None:
         self._fixed_layout = None
@@ -355,18 +419,24 @@ class FunnelPanel(FigurePanel):
         self._points = []
         ys = np.asarray(inp.y, dtype=float)
         rows = result.data.rows
+        # a marker's x is the study's effect (an exact copy): find the study it belongs to
+        by_x: dict[float, list[int]] = {}
+        for i, x in enumerate(ys.tolist()):
+            by_x.setdefault(x, []).append(i)
         for coll in self.artists.get("studies") or ():
             try:
                 offs = np.asarray(coll.get_offsets(), dtype=float)
             except AttributeError:
                 continue
-            for x, v in offs:
-                # a marker's x is the study's effect: find the study it belongs to
-                matches = np.flatnonzero(np.isclose(ys, x, rtol=0, atol=1e-12))
-                if matches.size:
-                    i = int(matches[0])
-                    if matches.size > 1:  # equal effects: tell them apart by the SE axis
-                        i = int(min(matches, key=lambda j: abs(self._vpos(inp, j) - v)))
+            for x, v in offs.tolist():
+                matches = by_x.get(x)
+                if not matches:
+                    near = np.flatnonzero(np.isclose(ys, x, rtol=0, atol=1e-12))
+                    matches = near.tolist()
+                if matches:
+                    i = matches[0]
+                    if len(matches) > 1:  # equal effects: tell them apart by the SE axis
+                        i = min(matches, key=lambda j: abs(self._vpos(inp, j) - v))
                     self._points.append((float(x), float(v), rows[i] if i < len(rows) else i))
 
     def _vpos(self, inp, j: int) -> float:
@@ -455,7 +525,7 @@ class FunnelPanel(FigurePanel):
             return
         if self.canvas is not None and self.showing_figure():
             self._draw_highlight()
-            self.canvas.draw_idle()
+            self._request_draw()
 
     def _draw_highlight(self) -> None:
         if getattr(self, "axes", None) is None:
