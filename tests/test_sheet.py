@@ -259,3 +259,37 @@ def test_write_sheet_writes_the_file(tmp_path, r14):
     assert data.startswith(b"%PDF")
     assert len(text_of(data)) == 3
     assert not [p for p in tmp_path.iterdir() if p.name != "sheet.pdf"]  # no temp file left
+
+
+def test_figures_are_drawn_as_vector_text_without_the_svg_detour(r14, monkeypatch):
+    # the funnel is drawn straight onto the page (lopside.sheet.vector): no SVG is written
+    # or parsed, no image is embedded, and its labels extract as text (pdfminer-style
+    # extraction by pypdf, an outside reader)
+    import io
+
+    import svglib.svglib
+
+    from lopside.figures import export
+
+    def refuse(*_a, **_k):
+        raise AssertionError("the sheet took the SVG path")
+
+    monkeypatch.setattr(svglib.svglib, "svg2rlg", refuse)
+    real = export.figure_bytes
+    monkeypatch.setattr(
+        export,
+        "figure_bytes",
+        lambda fig, fmt, **kw: refuse() if fmt == "svg" else real(fig, fmt, **kw),
+    )
+    pdf = sheet_bytes(r14, date=DATE)
+    page2 = flat(text_of(pdf)[1])
+    for words in (
+        "Standard error",
+        "Odds ratio (log spacing)",
+        "pooled (fixed effect)",
+        "p < 0.01",
+    ):
+        assert words in page2, words
+    reader = pypdf.PdfReader(io.BytesIO(pdf))
+    xobjects = reader.pages[1]["/Resources"].get("/XObject") or {}
+    assert not any(x.get_object()["/Subtype"] == "/Image" for x in xobjects.values())

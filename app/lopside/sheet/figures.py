@@ -1,9 +1,11 @@
 """The sheet's figures: the shared matplotlib builders, embedded as vector drawings.
 
-A figure is saved as SVG with its text kept as text, converted by svglib into a reportlab
-drawing whose text is set in the embedded DejaVu font, so labels stay searchable in the
-PDF. If svglib is missing or fails on a figure, a 300-dpi PNG is embedded instead.
-A figure that cannot be drawn for these data becomes a short message, never an error.
+A figure is drawn by matplotlib straight onto the sheet's reportlab canvas
+(:mod:`lopside.sheet.vector`), its text set in the embedded DejaVu font, so labels stay
+searchable in the PDF. A figure that renderer cannot draw is saved as SVG with its text
+kept as text and converted by svglib into a reportlab drawing; if svglib is missing or
+fails on it, a 300-dpi PNG is embedded instead. A figure that cannot be drawn for these
+data becomes a short message, never an error.
 """
 
 from __future__ import annotations
@@ -32,6 +34,13 @@ def _to_flowable(fig, max_width: float, max_height: float):
     w_pt = fig.get_figwidth() * 72.0
     h_pt = fig.get_figheight() * 72.0
     scale = min(1.0, max_width / w_pt, max_height / h_pt)
+    try:
+        from .vector import drawable, figure_flowable
+
+        if drawable(fig):
+            return figure_flowable(fig, scale)
+    except ImportError:  # pragma: no cover - matplotlib without its PDF/PS renderer base
+        pass
     try:
         from svglib.svglib import svg2rlg
 
