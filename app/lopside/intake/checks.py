@@ -20,8 +20,9 @@ Design invariants
 from __future__ import annotations
 
 import math
+import operator
 from collections.abc import Mapping, Sequence
-from dataclasses import dataclass, replace
+from dataclasses import dataclass, fields, replace
 
 from lopside.intake import messages as M
 from lopside.intake.numbers import count_decimals
@@ -545,16 +546,113 @@ def check_rows(
         that has an interval without a level of its own.
     """
     out: list[Problem] = []
-    seen: dict[tuple, int] = {}
+    clean = clean_count_rows(rows, measure)
+    twice = entered_twice(rows)
     for i, row in enumerate(rows):
-        pr = printed[i] if printed is not None and i < len(printed) else None
         place = places[i] if places is not None and i < len(places) else ""
-        out.extend(check_row(row, measure, ci_level, index=i, printed=pr, place=place))
-        key = tuple(sorted((k, repr(v)) for k, v in row.to_dict().items()))
-        if key in seen and (row.study or row.estimate is not None):
-            other = seen[key]
-            text = M.where(i, row.study, "", place) + M.check_message("duplicate", other=other + 1)
+        if not clean[i]:
+            pr = printed[i] if printed is not None and i < len(printed) else None
+            out.extend(check_row(row, measure, ci_level, index=i, printed=pr, place=place))
+        if i in twice:
+            text = M.where(i, row.study, "", place) + M.check_message(
+                "duplicate", other=twice[i] + 1
+            )
             out.append(Problem(i, row.study, "", WARNING, text, "duplicate"))
-        else:
-            seen.setdefault(key, i)
     return tuple(out)
+
+
+_ROW_FIELDS = tuple(f.name for f in fields(StudyRow))
+_COUNTS = ("int_events", "int_total", "ctl_events", "ctl_total")
+#: fields a row entered as 2x2 counts only leaves blank (``n`` is checked on its own)
+_BLANK = tuple(f for f in NUMERIC_FIELDS if f not in _COUNTS and f != "n")
+_PLAIN = {int, float}
+_blank = operator.attrgetter(*_BLANK)
+_counts_and_n = operator.attrgetter(*_COUNTS, "n")
+
+
+def _entry_key(row: StudyRow) -> tuple:
+    """What makes two rows the same entry: ``row.to_dict()`` as sorted (field, repr)."""
+    items = []
+    for name in _ROW_FIELDS:
+        value = getattr(row, name)
+        if name == "unread":
+            if value:
+                items.append(("unread", repr(dict(value))))
+            continue
+        if value is None or (name == "exclude" and value is False):
+            continue
+        if name == "reported" and value is True:
+            continue
+        items.append((name, repr(value)))
+    return tuple(sorted(items))
+
+
+def entered_twice(rows: Sequence[StudyRow]) -> dict[int, int]:
+    """Row -> the earlier row it repeats (same entry in every field; a row with neither a
+    label nor an estimate is never called a repeat)."""
+    # rows can be the same entry only if these few fields print the same: compare whole
+    # entries only within such groups
+    groups: dict[tuple, list[int]] = {}
+    for i, r in enumerate(rows):
+        quick = (r.study, repr(r.int_events), repr(r.estimate), repr(r.int_total))
+        groups.setdefault(quick, []).append(i)
+    out: dict[int, int] = {}
+    for members in groups.values():
+        if len(members) < 2:
+            continue
+        seen: dict[tuple, int] = {}
+        for i in members:
+            key = _entry_key(rows[i])
+            if key in seen and (rows[i].study or rows[i].estimate is not None):
+                out[i] = seen[key]
+            else:
+                seen.setdefault(key, i)
+    return out
+
+
+def clean_count_rows(rows: Sequence[StudyRow], measure: str) -> list[bool]:
+    """For each row, True when it is entered as 2x2 counts only and :func:`check_row`
+    would find nothing wrong with it (decided over arrays for all rows at once).
+
+    False means only "check this row one by one": a row with anything else entered, or
+    any value the arrays cannot vouch for, is left to :func:`check_row`.
+    """
+    flags = [False] * len(rows)
+    if measure not in BINARY_MEASURES:
+        return flags
+    idx, vals = [], []
+    for i, r in enumerate(rows):
+        if r.unread or not r.reported or not isinstance(r.study, str) or not r.study.strip():
+            continue
+        if any(getattr(r, f) is not None for f in _BLANK):
+            continue
+        v = [getattr(r, f) for f in _COUNTS] + [r.n]
+        if not all(type(x) in _PLAIN for x in v[:4]) or (
+            v[4] is not None and type(v[4]) not in _PLAIN
+        ):
+            continue
+        rob = r.risk_of_bias
+        if rob is not None and rob.strip().casefold() not in RISK_OF_BIAS_LEVELS:
+            continue
+        idx.append(i)
+        vals.append([math.nan if x is None else x for x in v])
+    if not idx:
+        return flags
+    import numpy as np
+
+    a = np.array(vals, dtype=float).reshape(-1, 5)
+    e1, t1, e0, t0, n = a.T
+    counts = a[:, :4]
+    with np.errstate(invalid="ignore"):
+        ok = np.isfinite(counts).all(axis=1) & (counts >= 0).all(axis=1)
+        ok &= (np.trunc(counts) == counts).all(axis=1)  # whole numbers
+        ok &= (e1 <= t1) & (e0 <= t0) & (t1 > 0) & (t0 > 0)
+        ok &= np.isnan(n) | (np.isfinite(n) & (n >= 0) & (np.trunc(n) == n))
+        if measure in ("OR", "RR"):
+            ok &= ~((e1 == 0) & (e0 == 0))  # no events in either arm
+            ok &= ~((e1 == t1) & (e0 == t0))  # every participant had the event
+    # a value typed as nan is not blank: it is reported (np.nan marks a blank n only)
+    for j in np.flatnonzero(ok).tolist():
+        if rows[idx[j]].n is None or math.isfinite(rows[idx[j]].n):
+            flags[idx[j]] = True
+    return flags
