@@ -83,9 +83,7 @@ def test_batch_derivation_is_the_one_row_derivation_bit_for_bit(measure, seed):
 @settings(max_examples=200, deadline=None)
 @given(
     st.lists(
-        st.tuples(
-            st.integers(0, 60), st.integers(0, 60), st.integers(0, 60), st.integers(0, 60)
-        ),
+        st.tuples(st.integers(0, 60), st.integers(0, 60), st.integers(0, 60), st.integers(0, 60)),
         min_size=1,
         max_size=12,
     ),
