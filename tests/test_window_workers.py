@@ -161,3 +161,24 @@ def test_funnel_drawn_in_two_parts_matches_a_whole_draw(make_window, qtbot):
         assert parts.shape == whole.shape and np.array_equal(parts, whole)
         w.funnel.draw_now()  # a new background for the next edit
     assert any(reused), "an edit that keeps the key's words draws only the axes"
+
+
+def test_funnel_with_ticks_beyond_its_limits_settles(make_window, qtbot):
+    # a mean-difference funnel whose tick locator also returns ticks outside the axis
+    # limits (not drawn): they must not count as overhanging labels, or the panel lays
+    # itself out again and again and shows a blank canvas
+    import numpy as np
+
+    review = load_review_file(str(sample_reviews_dir() / "knee_pain_walking.lopside"), None)[0]
+    w = make_window(review)
+    w.wait_for_analysis()
+    w.views.setCurrentWidget(w.funnel)
+    w.funnel.draw_now()
+    for _ in range(5):
+        qtbot.wait(20)
+    count = w.funnel.draw_count
+    for _ in range(5):
+        qtbot.wait(20)
+    assert w.funnel.draw_count == count
+    w.funnel.draw_now()
+    assert np.asarray(w.funnel.canvas.buffer_rgba())[..., :3].mean() < 250  # not blank

@@ -65,6 +65,7 @@ class FunnelPanel(FigurePanel):
         self.layout_reused = False
         self._draw_queued = False
         self._splitting = False
+        self._relaid_for = None  # the layout key last laid out afresh for a misfit
         self._background = None  # (key, the canvas without the axes) of the last draw
         self.background_reused = False
         self._points: list[tuple[float, float, int]] = []  # data x, data y, table row
@@ -327,9 +328,15 @@ class FunnelPanel(FigurePanel):
             or type(fig.get_layout_engine()).__name__ != ("PlaceHolderLayoutEngine")
         ):
             return
-        if not self._fits(renderer):
-            # longer tick labels than when the layout was made: lay out afresh
-            self._relayout()
+        if self._fits(renderer):
+            self._relaid_for = None
+        else:
+            # longer tick labels than when the layout was made: lay out afresh, once (a
+            # layout constrained layout has just made is kept even if a label overhangs)
+            key = self._layout_key()
+            if self._relaid_for != key:
+                self._relaid_for = key
+                self._relayout()
 
     # ---------------------------------------------------------------- drawing on screen
     #
@@ -393,14 +400,20 @@ class FunnelPanel(FigurePanel):
         QTimer.singleShot(0, self.redraw)
 
     def _fits(self, renderer) -> bool:
-        """True when the tick labels of the axes lie inside the figure."""
+        """True when the tick labels drawn (ticks inside the axis limits) lie inside the
+        figure."""
         w, h = self.canvas.get_width_height(physical=True)
         for ax in self.figure.axes:
             for axis in (ax.xaxis, ax.yaxis):
-                for tick in axis.get_ticklabels():
-                    if not tick.get_visible() or not tick.get_text():
+                lo, hi = sorted(axis.get_view_interval())
+                eps = 1e-9 * max(abs(lo), abs(hi), 1.0)
+                for tick in axis.get_major_ticks():
+                    if not lo - eps <= tick.get_loc() <= hi + eps:
+                        continue  # not drawn
+                    label = tick.label1
+                    if not label.get_visible() or not label.get_text():
                         continue
-                    bb = tick.get_window_extent(renderer)
+                    bb = label.get_window_extent(renderer)
                     if bb.x0 < -0.5 or bb.y0 < -0.5 or bb.x1 > w + 0.5 or bb.y1 > h + 0.5:
                         return False
         return True
