@@ -38,6 +38,7 @@ from lopside.intake.errors import IntakeError
 from lopside.intake.numbers import decide_decimal_mark, number_body, parse_number, read_digits
 from lopside.intake.table_cells import (
     FORMULA_STARTS,
+    _CellOut,
     _normalise_name,
     _read_cell,
     _unquote,
@@ -368,11 +369,10 @@ def _read_data_row(
     unread: list[tuple[str, str]] = []
     printed: list[tuple[str, str]] = []
     row_problems: list[tuple[str, str, str]] = []  # (field, severity, message)
+    cells_out = _CellOut(values, unread, printed, row_problems, out.notes)
     for col, name in columns.items():
         cell = cells[col - 1] if col - 1 < len(cells) else _Cell(None)
-        _read_cell(
-            cell, name, number, mark, values, unread, printed, row_problems, out.notes, measure
-        )
+        _read_cell(cell, name, number, mark, cells_out, measure)
         if mark is None and isinstance(cell.value, str) and name in NUMERIC_FIELDS:
             body = number_body(_unquote(cell.value.strip())[0])
             if read_digits(body).ambiguous:

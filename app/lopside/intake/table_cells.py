@@ -7,6 +7,7 @@ from __future__ import annotations
 
 import math
 import re
+from dataclasses import dataclass
 
 from lopside.intake import messages as M
 from lopside.intake.checks import ERROR
@@ -85,18 +86,23 @@ def _unquote(text: str) -> tuple[str, bool]:
     return text, False
 
 
+@dataclass(slots=True)
+class _CellOut:
+    """Where the cells of one row go: values by field, what could not be read (field,
+    text), numbers as printed, problems (field, severity, message) and notes for the file."""
+
+    values: dict[str, object]
+    unread: list[tuple[str, str]]
+    printed: list[tuple[str, str]]
+    problems: list[tuple[str, str, str]]
+    notes: list[str]
+
+
 def _read_cell(
-    cell: _Cell,
-    name: str,
-    number: int,
-    mark: str | None,
-    values: dict[str, object],
-    unread: list[tuple[str, str]],
-    printed: list[tuple[str, str]],
-    problems: list[tuple[str, str, str]],
-    notes: list[str],
-    measure: str | None = None,
+    cell: _Cell, name: str, number: int, mark: str | None, out: _CellOut, measure: str | None = None
 ) -> None:
+    """Read one cell of field ``name`` (spreadsheet row ``number``) into ``out``."""
+    values, unread, problems, notes = out.values, out.unread, out.problems, out.notes
     value = cell.value
     if cell.formula is not None and value is None:
         unread.append((name, cell.formula))
@@ -127,15 +133,13 @@ def _read_cell(
         text = ""
 
     if name in NUMERIC_FIELDS:
-        _read_number_cell(
-            cell, text, name, number, mark, measure, values, unread, printed, problems, notes
-        )
+        _read_number_cell(cell, text, name, number, mark, measure, out)
     elif name == "year":
-        _read_year_cell(value, text, number, values, unread, problems, notes)
+        _read_year_cell(value, text, number, out)
     elif name == "reported":
-        _read_yes_no_cell(name, value, text, _REPORTED_YES, _REPORTED_NO, values, unread, problems)
+        _read_yes_no_cell(name, value, text, _REPORTED_YES, _REPORTED_NO, out)
     elif name == "exclude":
-        _read_yes_no_cell(name, value, text, _YES, _NO, values, unread, problems)
+        _read_yes_no_cell(name, value, text, _YES, _NO, out)
     else:
         # text columns
         shown = text if isinstance(value, str) else _plain(value)
@@ -151,13 +155,11 @@ def _read_number_cell(
     number: int,
     mark: str | None,
     measure: str | None,
-    values: dict[str, object],
-    unread: list[tuple[str, str]],
-    printed: list[tuple[str, str]],
-    problems: list[tuple[str, str, str]],
-    notes: list[str],
+    out: _CellOut,
 ) -> None:
     """A numeric field: a spreadsheet number as it is, text read with the file's mark."""
+    values, unread, printed = out.values, out.unread, out.printed
+    problems, notes = out.problems, out.notes
     value = cell.value
     if isinstance(value, bool):
         unread.append((name, str(value)))
@@ -215,12 +217,10 @@ def _read_year_cell(
     value: object,
     text: str,
     number: int,
-    values: dict[str, object],
-    unread: list[tuple[str, str]],
-    problems: list[tuple[str, str, str]],
-    notes: list[str],
+    out: _CellOut,
 ) -> None:
     """The year: a whole number from 1800 to 2099, or "2004a" (the letter noted)."""
+    values, unread, problems, notes = out.values, out.unread, out.problems, out.notes
     if isinstance(value, bool):
         year_text = str(value)
     elif isinstance(value, (int, float)):
@@ -253,11 +253,10 @@ def _read_yes_no_cell(
     text: str,
     yes: frozenset[str],
     no: frozenset[str],
-    values: dict[str, object],
-    unread: list[tuple[str, str]],
-    problems: list[tuple[str, str, str]],
+    out: _CellOut,
 ) -> None:
     """A yes/no column (``reported``, ``exclude``): a boolean, 0 or 1, or one of the words."""
+    values, unread, problems = out.values, out.unread, out.problems
     if isinstance(value, bool):
         values[name] = value
         return

@@ -181,34 +181,29 @@ def _estimate_and_spread(items: list[_It], found: _Found, notes: list[str]) -> s
         printed.update(estimate=items[e].t, lower=lo_t, upper=hi_t)
         routes.append("ci")
     if se_item is not None:
-        si = items.index(se_item)
-        e = before(si) if found.est_idx is None else found.est_idx
-        if e is None:
-            raise _Fail("se_without_estimate")
-        if found.est_idx is None:
-            found.est_idx = e
-            values["estimate"] = items[e].v
-            printed["estimate"] = items[e].t
-        found.end_idx = max(found.end_idx, si + 1)
-        values["se"] = se_item.v
-        printed["se"] = se_item.t
-        routes.append("se")
+        _attach(items, found, se_item, "se", "se_without_estimate", before)
     p_bound = None
     if p_item is not None:
-        pi = items.index(p_item)
-        e = before(pi) if found.est_idx is None else found.est_idx
-        if e is None:
-            raise _Fail("p_without_estimate")
-        if found.est_idx is None:
-            found.est_idx = e
-            values["estimate"] = items[e].v
-            printed["estimate"] = items[e].t
-        found.end_idx = max(found.end_idx, pi + 1)
-        values["p"] = p_item.v
-        printed["p"] = p_item.t
+        _attach(items, found, p_item, "p", "p_without_estimate", before)
         p_bound = p_item.bound or None
-        routes.append("p")
     return p_bound
+
+
+def _attach(items: list[_It], found: _Found, it: _It, name: str, fail: str, before) -> None:
+    """An SE or P value (``name``) with its estimate: the one already found, else the
+    number just before it."""
+    idx = items.index(it)
+    e = before(idx) if found.est_idx is None else found.est_idx
+    if e is None:
+        raise _Fail(fail)
+    if found.est_idx is None:
+        found.est_idx = e
+        found.values["estimate"] = items[e].v
+        found.printed["estimate"] = items[e].t
+    found.end_idx = max(found.end_idx, idx + 1)
+    found.values[name] = it.v
+    found.printed[name] = it.t
+    found.routes.append(name)
 
 
 _DATA_KINDS = ("NUM", "FRAC", "SINGLE")
