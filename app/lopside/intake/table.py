@@ -58,13 +58,7 @@ from lopside.intake.table_files import (
     _read_xlsx,
     _Sheet,
 )
-from lopside.model.review import (
-    NUMERIC_FIELDS,
-    TABLE_COLUMNS,
-    IntakeAccount,
-    NotRead,
-    StudyRow,
-)
+from lopside.model.review import NUMERIC_FIELDS, TABLE_COLUMNS, IntakeAccount, NotRead, StudyRow
 
 _PLAIN_NUMBER = re.compile(r"-?[0-9]+(?:\.[0-9]+)?")
 

@@ -13,9 +13,7 @@ from lopside.intake import messages as M
 from lopside.intake.checks import ERROR
 from lopside.intake.numbers import parse_number
 from lopside.intake.table_files import _Cell, _is_blank
-from lopside.model.review import (
-    NUMERIC_FIELDS,
-)
+from lopside.model.review import NUMERIC_FIELDS
 
 #: Text that a spreadsheet would treat as a formula if written plainly (also after leading
 #: spaces; U+2212 is the minus sign some spreadsheets take for "-").

@@ -10,13 +10,7 @@ from lopside.appraise.causes.common import LARGE_OR, _alpha, _ev, _test_p
 from lopside.appraise.glossary import Glossary
 from lopside.appraise.model import Evidence, SmallStudyReading
 from lopside.stats.results import PooledEstimate
-from lopside.words.numbers import (
-    fmt_effect,
-    fmt_p_eq,
-    fmt_share,
-    is_finite,
-    is_ok,
-)
+from lopside.words.numbers import fmt_effect, fmt_p_eq, fmt_share, is_finite, is_ok
 
 
 def artefact_evidence(result, ss: SmallStudyReading, g: Glossary) -> list[Evidence]:

@@ -5,14 +5,7 @@ from __future__ import annotations
 from lopside.appraise.causes.common import LOW_POWER, STRONG_P, _alpha, _ev
 from lopside.appraise.glossary import Glossary
 from lopside.appraise.model import Evidence, SmallStudyReading
-from lopside.words.numbers import (
-    fmt_num,
-    fmt_p_eq,
-    fmt_share,
-    is_finite,
-    is_ok,
-    plural,
-)
+from lopside.words.numbers import fmt_num, fmt_p_eq, fmt_share, is_finite, is_ok, plural
 
 
 def chance_evidence(result, ss: SmallStudyReading, g: Glossary) -> list[Evidence]:

@@ -18,10 +18,7 @@ from lopside.words.numbers import (
     pooled_text,
     why_not,
 )
-from lopside.words.sentences import (
-    HET_AGREE_POINTS,
-    heterogeneity_reconciled,
-)
+from lopside.words.sentences import HET_AGREE_POINTS, heterogeneity_reconciled
 
 
 def heterogeneity_evidence(result, ss: SmallStudyReading, g: Glossary) -> list[Evidence]:

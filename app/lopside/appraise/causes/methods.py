@@ -20,12 +20,7 @@ from lopside.appraise.causes.common import (
 from lopside.appraise.glossary import Glossary
 from lopside.appraise.model import Evidence, SmallStudyReading
 from lopside.stats.results import PooledEstimate
-from lopside.words.numbers import (
-    fmt_p_eq,
-    is_ok,
-    plural,
-    why_not,
-)
+from lopside.words.numbers import fmt_p_eq, is_ok, plural, why_not
 
 
 def methods_evidence(result, ss: SmallStudyReading, g: Glossary) -> list[Evidence]:

@@ -8,17 +8,8 @@ from lopside.appraise.causes.common import _alpha, _ev
 from lopside.appraise.glossary import Glossary
 from lopside.appraise.model import Evidence, SmallStudyReading
 from lopside.appraise.reading import CONTOUR_DIRECTION
-from lopside.words.numbers import (
-    fmt_effect,
-    fmt_num,
-    fmt_p_eq,
-    is_finite,
-    is_ok,
-)
-from lopside.words.sentences import (
-    test_caution,
-    trim_fill_range,
-)
+from lopside.words.numbers import fmt_effect, fmt_num, fmt_p_eq, is_finite, is_ok
+from lopside.words.sentences import test_caution, trim_fill_range
 
 
 def selection_evidence(result, ss: SmallStudyReading, g: Glossary) -> list[Evidence]:
