@@ -20,17 +20,13 @@ MAX_FUNCTION_LINES = 120
 #: Modules still over the limit (path below app/ -> lines when listed). Being split by
 #: the engineers who own them; take a line off when its module is split.
 OVERSIZED_MODULES: dict[str, int] = {
-    "lopside/figures/funnel.py": 1081,  # layers (bands, limits, studies, labels, legend)
-    "lopside/stats/effects.py": 825,
     "lopside/summary.py": 1332,  # to report/ and words/ (HOUSE-PLAN part 4)
     "lopside/window/main_window.py": 1379,  # menus and actions apart from view wiring
-    "lopside/window/plots.py": 862,
 }
 
 #: Functions still over the limit ("path:qualified name" -> lines when listed).
 OVERSIZED_FUNCTIONS: dict[str, int] = {
     "lopside/analysis.py:_analyse": 244,
-    "lopside/figures/funnel.py:_draw": 335,
     "lopside/figures/rows.py:draw_rows": 426,
     "lopside/intake/checks.py:check_row": 288,
     "lopside/report.py:to_json": 180,
