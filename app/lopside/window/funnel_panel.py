@@ -22,6 +22,9 @@ from PySide6.QtWidgets import QCheckBox, QComboBox, QLabel, QToolTip
 from .flow import labelled
 from .plots import FigurePanel
 
+#: a resized canvas gets its new drawing once it has kept its size this long
+RESIZE_SETTLE_MS = 120
+
 FUNNEL_OPTION_KEYS = (
     "axis",
     "contours",
@@ -66,6 +69,7 @@ class FunnelPanel(FigurePanel):
         self._draw_queued = False
         self._splitting = False
         self._relaid_for = None  # the layout key last laid out afresh for a misfit
+        self._relayout_timer = None
         self._background = None  # (key, the canvas without the axes) of the last draw
         self.background_reused = False
         self._points: list[tuple[float, float, int]] = []  # data x, data y, table row
@@ -392,12 +396,17 @@ class FunnelPanel(FigurePanel):
         c.update()
         self._check_fits(c.get_renderer())
 
-    def _relayout(self) -> None:
+    def _relayout(self, delay_ms: int = 0) -> None:
+        """Forget the layout and draw afresh after ``delay_ms`` (a later call restarts it)."""
         self._fixed_layout = None
         self._layout_in_use = None
         self.layout_reused = False
         self._last_key = None
-        QTimer.singleShot(0, self.redraw)
+        if self._relayout_timer is None:
+            self._relayout_timer = QTimer(self)
+            self._relayout_timer.setSingleShot(True)
+            self._relayout_timer.timeout.connect(self.redraw)
+        self._relayout_timer.start(delay_ms)
 
     def _fits(self, renderer) -> bool:
         """True when the tick labels drawn (ticks inside the axis limits) lie inside the
@@ -421,9 +430,10 @@ class FunnelPanel(FigurePanel):
     def _on_resize(self, event) -> None:
         # a new size needs a new layout: constrained for the draw the resize asks for, and a
         # new drawing at the new fixed layout right after it
-        if self.figure is not None and self.figure.axes and self._layout_in_use is not None:
+        # (while a window edge is dragged, one new drawing when it rests)
+        if self.figure is not None and self.figure.axes and self.artists:
             self.figure.set_layout_engine("constrained")
-            self._relayout()
+            self._relayout(RESIZE_SETTLE_MS)
 
     def _collect_points(self, result, inp) -> None:
         """Marker positions (data coordinates) and the table row of each."""
