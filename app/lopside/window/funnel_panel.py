@@ -70,6 +70,7 @@ class FunnelPanel(FigurePanel):
         self._splitting = False
         self._relaid_for = None  # the layout key last laid out afresh for a misfit
         self._relayout_timer = None
+        self._draw_timer = None
         self._background = None  # (key, the canvas without the axes) of the last draw
         self.background_reused = False
         self._points: list[tuple[float, float, int]] = []  # data x, data y, table row
@@ -352,7 +353,13 @@ class FunnelPanel(FigurePanel):
     def _request_draw(self) -> None:
         if not self._draw_queued:
             self._draw_queued = True
-            QTimer.singleShot(0, self._draw_if_queued)
+            if self._draw_timer is None:
+                # a child timer: it goes with the panel (a queued draw never reaches a
+                # panel whose window has closed)
+                self._draw_timer = QTimer(self)
+                self._draw_timer.setSingleShot(True)
+                self._draw_timer.timeout.connect(self._draw_if_queued)
+            self._draw_timer.start(0)
 
     def _draw_if_queued(self) -> None:
         if self._draw_queued:
@@ -361,6 +368,9 @@ class FunnelPanel(FigurePanel):
 
     def draw_now(self) -> None:
         """Render synchronously (benchmarks, exports, screenshots)."""
+        if self._relayout_timer is not None and self._relayout_timer.isActive():
+            self._relayout_timer.stop()  # a new layout is due: make it now
+            self.redraw()
         if self._pending:
             self.redraw()
         if self.canvas is not None:
