@@ -203,24 +203,30 @@ def _outcome_inputs(args):
     """One outcome per table file (named by its stem), every outcome of a project."""
     from pathlib import Path
 
-    from .cli_common import INPUT_ERRORS
+    from .cli_common import INPUT_ERRORS, is_project, load_outcomes
     from .panel import OutcomeInput
+    from .settings import AnalysisSettings
 
     inputs = []
     for f in args.files:
         ns = argparse.Namespace(**{**vars(args), "file": f})
         try:
-            review, settings = _load(ns)
+            if is_project(f):
+                found = load_outcomes(f, args.measure, favours=args.favours)
+            else:  # tables, text and PDFs: with the account check of every command
+                review, settings = _load(ns)
+                found = [(Path(f).stem, review, settings)]
         except INPUT_ERRORS as exc:
             if not getattr(args, "skip_bad", False):
                 raise
             inputs.append(OutcomeInput(Path(f).stem, skipped=str(exc).splitlines()[0]))
             continue
-        if getattr(args, "favours", None):
-            review = review.with_details(favours=args.favours)
-        suffix = Path(f).suffix.lower()
-        name = (review.details.title or Path(f).stem) if suffix == ".lopside" else Path(f).stem
-        inputs.append(OutcomeInput(name, review, settings))
+        for name, review, settings in found:
+            if isinstance(settings, dict):
+                settings = AnalysisSettings.from_dict(settings)
+            if getattr(args, "favours", None):
+                review = review.with_details(favours=args.favours)
+            inputs.append(OutcomeInput(name, review, settings))
     return inputs
 
 
@@ -276,9 +282,7 @@ def cmd_slide(args) -> int:
         return _fail(str(exc))
     if args.favours:
         review = review.with_details(favours=args.favours)
-    name = review.details.title or Path(args.file).stem
-    if args.outcome and args.outcome.strip().casefold() != name.strip().casefold():
-        return _fail(f"{args.file}: has no outcome called '{args.outcome}' (it has '{name}').")
+    name = review.details.outcome or review.details.title or Path(args.file).stem
     result = analyse(review, settings)
     try:
         write_slide(result, assessment_of(result).appraisal, out, title=name)
@@ -424,7 +428,6 @@ def build_parser() -> argparse.ArgumentParser:
     sl = sub.add_parser("slide", help="one journal-club slide: funnel and reading (PPTX or PNG)")
     add_analysis_arguments(sl)
     sl.add_argument("-o", "--output", required=True, metavar="OUT", help=".pptx or .png")
-    sl.add_argument("--outcome", metavar="NAME", help="the outcome to show (by name)")
     sl.add_argument(
         "--favours", choices=("lower", "higher"), help="which values favour the intervention"
     )

@@ -102,6 +102,7 @@ def load_input(args):
             decimal=decimal,
             favours=favours,
             accept_changed=getattr(args, "accept_changed", False),
+            outcome=getattr(args, "outcome", None),
         )
     account = review.intake
     # only the commands that offer --allow-unread stop on unread input (check, sheet, plot)
@@ -146,6 +147,12 @@ def add_analysis_arguments(p: argparse.ArgumentParser) -> None:
         choices=("auto", "left", "right"),
         default=None,
         help="trim and fill: side of the missing studies",
+    )
+    p.add_argument(
+        "--outcome",
+        metavar="NAME",
+        default=None,
+        help="the outcome to appraise, in a project that holds several (by name)",
     )
     p.add_argument(
         "--accept-changed",
