@@ -45,11 +45,13 @@ from .cli_options import (  # noqa: F401 - re-exported: lopside.cli.X keeps work
     _progress_for,
     _unread,
     add_analysis_arguments,
+    add_force_argument,
     add_intake_arguments,
     check_output_arg,
     load_input,
     settings_from_args,
 )
+from .fileio import OutputRefused
 from .model.review import MEASURES
 
 SUBCOMMANDS = ("check", "sheet", "plot", "batch", "panel", "slide")
@@ -163,6 +165,11 @@ def cmd_batch(args) -> int:
         )
     if args.workers is not None and args.workers < 1:
         return _fail("--workers: give a whole number of 1 or more.")
+    if Path(args.output).suffix.lower() in (".csv", ".xlsx", ".parquet"):
+        try:  # an existing file of another kind (a study table...) needs --force
+            check_output_arg(args, ("results", "xlsx", "parquet"), files)
+        except OutputRefused as exc:
+            return _fail(str(exc))
     options = BatchOptions(
         measure=args.measure,
         favours=args.favours,
@@ -240,9 +247,10 @@ def cmd_panel(args) -> int:
     out = Path(args.output)
     if out.suffix.lower() not in FORMATS:
         return _fail(f"-o {out}: write the panel summary as .pdf, .docx, .xlsx or .csv.")
-    for f in args.files:
-        if Path(f).exists() and out.exists() and out.samefile(f):
-            return _fail(f"-o {out}: is also an input; write the summary to another file.")
+    try:
+        check_output_arg(args, ("pdf", "docx", "xlsx", "results"), args.files)
+    except OutputRefused as exc:
+        return _fail(str(exc))
     try:
         inputs = _outcome_inputs(args)
         summary = build_panel(args.title or "Panel summary", inputs, with_power=args.power)
@@ -274,8 +282,10 @@ def cmd_slide(args) -> int:
     out = Path(args.output)
     if out.suffix.lower() not in (".pptx", ".png"):
         return _fail(f"-o {out}: write the slide as .pptx or .png.")
-    if out.exists() and Path(args.file).exists() and out.samefile(args.file):
-        return _fail(f"-o {out}: is also the input; write the slide to another file.")
+    try:
+        check_output_arg(args, ("pptx", "png"))
+    except OutputRefused as exc:
+        return _fail(str(exc))
     try:
         review, settings = _load(args)
     except INPUT_ERRORS as exc:
@@ -388,11 +398,7 @@ def build_parser() -> argparse.ArgumentParser:
         "--appraiser", default="", metavar="NAME", help="name printed on the sheet as appraiser"
     )
     s.add_argument("--power", action="store_true", help="include the power simulation")
-    s.add_argument(
-        "--force",
-        action="store_true",
-        help="replace an existing file at OUT even if it is not a PDF (never the input)",
-    )
+    add_force_argument(s)
     s.set_defaults(func=cmd_sheet)
     p = sub.add_parser("plot", help="draw one figure to PNG, SVG or PDF")
     from .figures.cli_plot import add_plot_arguments, run_plot
@@ -424,6 +430,7 @@ def build_parser() -> argparse.ArgumentParser:
         action="store_true",
         help="list a file that cannot be read as skipped, instead of stopping",
     )
+    add_force_argument(pn)
     pn.set_defaults(func=cmd_panel, page=None)
     sl = sub.add_parser("slide", help="one journal-club slide: funnel and reading (PPTX or PNG)")
     add_analysis_arguments(sl)
@@ -431,9 +438,11 @@ def build_parser() -> argparse.ArgumentParser:
     sl.add_argument(
         "--favours", choices=("lower", "higher"), help="which values favour the intervention"
     )
+    add_force_argument(sl)
     sl.set_defaults(func=cmd_slide)
     b = sub.add_parser("batch", help="appraise many files at once (Dask), one row per outcome")
     add_batch_arguments(b)
+    add_force_argument(b)
     b.set_defaults(func=cmd_batch)
     return parser
 

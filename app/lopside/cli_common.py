@@ -15,7 +15,6 @@ from typing import Any
 
 from .intake.errors import IntakeError
 from .model.project_file import SUFFIX, ProjectFileError, load, load_workbook
-from .model.workbook import WorkbookError
 from .model.review import (
     MEASURE_NAMES,
     MEASURES,
@@ -25,6 +24,7 @@ from .model.review import (
     ReviewDetails,
     StudyRow,
 )
+from .model.workbook import WorkbookError
 
 ACCEPTED = (SUFFIX, ".json", ".csv", ".xlsx", ".txt", ".pdf")
 MAX_TEXT_BYTES = 50 * 2**20

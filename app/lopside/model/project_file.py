@@ -793,8 +793,6 @@ def load_workbook(path: str | os.PathLike, *, accept_changed: bool = False) -> W
     try:
         return loads_workbook(text, accept_changed=accept_changed)
     except ChangedOutside as exc:
-        raise ChangedOutside(
-            f"{p.name}: {exc}", exc.review, exc.settings, exc.workbook
-        ) from None
+        raise ChangedOutside(f"{p.name}: {exc}", exc.review, exc.settings, exc.workbook) from None
     except ProjectFileError as exc:
         raise ProjectFileError(f"{p.name}: {exc}") from None

@@ -113,7 +113,11 @@ class Workbook:
                 f"{where}: {len(hits)} outcomes are called '{name}'; rename one in the "
                 f"window (its outcomes: {listed})."
             )
-        raise WorkbookError(f"{where}: has no outcome called '{name}' (its outcomes: {listed}).")
+        near = [n for n in self.names if _key(name) in _key(n)]
+        hint = f" Did you mean '{near[0]}'?" if len(near) == 1 else ""
+        raise WorkbookError(
+            f"{where}: has no outcome called '{name}' (its outcomes: {listed}).{hint}"
+        )
 
     def free_name(self, base: str) -> str:
         """``base``, or ``base (2)``, ``base (3)``... : the first name not taken."""
