@@ -98,9 +98,7 @@ PROJECT_CASES = {
     ),
     # an error inside the second outcome of two names that outcome
     "second outcome bad": (
-        json.dumps(
-            {"lopside_project": 2, "outcomes": [{}, {"details": {"measure": "XYZ"}}]}
-        ),
+        json.dumps({"lopside_project": 2, "outcomes": [{}, {"details": {"measure": "XYZ"}}]}),
         "outcome 2, details, measure",
     ),
     "version 0": (_with(_set(("lopside_project",), 0)), "format version 0"),

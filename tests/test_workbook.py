@@ -319,3 +319,91 @@ def test_an_output_is_never_one_of_the_inputs(tmp_path, capsys):
     code, _, err = _run(capsys, "panel", copy, table, "--measure", "OR", "-o", table, "--force")
     assert code == 2 and "being read" in err
     assert table.read_text("utf-8").startswith("study,")
+
+
+# ------------------------------------------------------------------------ the session
+
+
+def _session_of(wb: Workbook, tmp_path) -> "Session":  # noqa: F821
+    from lopside.session import Session
+
+    path = tmp_path / "w.lopside"
+    pf.save_workbook(wb, path)
+    s = Session()
+    s.open(path)
+    return s
+
+
+def test_session_holds_every_outcome_and_saves_them_all(tmp_path):
+    from lopside import edits as ed
+
+    s = _session_of(_three(), tmp_path)
+    assert s.outcome_names == ("Mortality", "Pain", "Adverse events")
+    assert s.review.details.outcome == "Mortality" and s.settings.tau2_method == "PM"
+    s.select_outcome(2)
+    assert s.settings.hksj and not s.dirty  # choosing is not an edit
+    s.do(ed.SetCell(0, "study", "Edited in outcome 3"))
+    s.select_outcome(0)
+    s.do(ed.SetCell(0, "study", "Edited in outcome 1"))
+    target = s.save()
+    back = pf.load_workbook(target)
+    assert back.outcomes[2].review.studies[0].study == "Edited in outcome 3"
+    assert back.outcomes[0].review.studies[0].study == "Edited in outcome 1"
+    assert back.outcomes[1].review == _three().outcomes[1].review
+    from lopside.settings import AnalysisSettings
+
+    assert [AnalysisSettings.from_dict(o.settings) for o in back.outcomes] == [
+        AnalysisSettings.from_dict(o.settings) for o in _three().outcomes
+    ]
+
+
+def test_undo_selects_the_outcome_it_changes(tmp_path):
+    from lopside import edits as ed
+
+    s = _session_of(_three(), tmp_path)
+    s.select_outcome(1)
+    s.do(ed.SetCell(0, "study", "typed in Pain"))
+    s.select_outcome(0)
+    s.undo()  # the step was made on Pain: Pain is shown, then changed back
+    assert s.outcome_index == 1
+    assert s.review.studies[0].study == "Invented 0 2010"
+    s.redo()
+    assert s.review.studies[0].study == "typed in Pain"
+    assert not pf.load_workbook(s.path) == s.workbook and s.dirty
+
+
+def test_outcome_edits_undo_in_order(tmp_path):
+    import lopside.workbook_edits as wbe
+
+    s = _session_of(_three(), tmp_path)
+    original = s.workbook
+    s.do(wbe.AddOutcome(3, s.new_outcome_slot("Length of stay")))
+    assert s.outcome_names[-1] == "Length of stay" and s.outcome_index == 3
+    s.do(wbe.MoveOutcome(3, 0))
+    s.do(wbe.RenameOutcome(1, "Death"))
+    s.do(wbe.AddOutcome(2, s.duplicate_slot(1)))
+    assert s.outcome_names == ("Length of stay", "Death", "Death (copy)", "Pain", "Adverse events")
+    s.select_outcome(4)
+    s.do(wbe.DeleteOutcome(4))  # the current outcome: its neighbour is shown
+    assert s.outcome_index == 3 and len(s.outcome_names) == 4
+    with pytest.raises(WorkbookError, match="already called"):
+        s.do(wbe.RenameOutcome(0, "pain"))
+    for _ in range(5):
+        assert s.undo() is not None
+    assert s.workbook == original and not s.dirty
+
+
+def test_review_level_details_change_every_outcome_and_undo_together(tmp_path):
+    from lopside import edits as ed
+
+    s = _session_of(_three(), tmp_path)
+    s.select_outcome(1)
+    s.do(ed.SetDetail("title", "A better title"))
+    assert {r.details.title for r, _ in s.outcome_reviews()} == {"A better title"}
+    s.do(ed.SetDetail("measure", "RR"))  # an outcome's own detail: this outcome only
+    assert [r.details.measure for r, _ in s.outcome_reviews()] == ["OR", "RR", "OR"]
+    s.undo()
+    s.undo()
+    assert {r.details.title for r, _ in s.outcome_reviews()} == {"Invented review"}
+    with pytest.raises(ed.EditError):
+        s.do(ed.SetDetail("title", "bad\x00title"))

@@ -606,12 +606,13 @@ class MainWindow(QMainWindow):
         changed = ""
         try:
             try:
-                review, saved = project_file.load(item.review_file)
+                book = project_file.load_workbook(item.review_file)
             except project_file.ChangedOutside as exc:
                 # never silent: restored (it is all there is of that work), and said so
-                review, saved = exc.review, exc.settings
+                book = exc.workbook
                 changed = " " + M.RECOVERED_CHANGED
-            settings = AnalysisSettings.from_dict(saved)
+            review = book.outcomes[0].review
+            settings = AnalysisSettings.from_dict(book.outcomes[0].settings)
         except (OSError, ValueError) as exc:
             msg = M.RECOVER_FAILED.format(name=item.name, error=exc, path=item.review_file)
             self.say(msg, 0)
@@ -620,7 +621,9 @@ class MainWindow(QMainWindow):
         read_only = item.read_only
         if item.original and _in_samples(os.path.dirname(item.original)):
             read_only = read_only or M.READ_ONLY_SAMPLE
-        self.session.reset(review, settings, item.original or None, dirty=True, read_only=read_only)
+        self.session.reset(
+            review, settings, item.original or None, dirty=True, read_only=read_only, workbook=book
+        )
         self.stack.reset()
         self.studies.suggest_mode()
         self.say(M.RECOVERED.format(name=item.name) + changed, 0 if changed else 6000)
