@@ -324,7 +324,7 @@ def test_an_output_is_never_one_of_the_inputs(tmp_path, capsys):
 # ------------------------------------------------------------------------ the session
 
 
-def _session_of(wb: Workbook, tmp_path) -> "Session":  # noqa: F821
+def _session_of(wb: Workbook, tmp_path):
     from lopside.session import Session
 
     path = tmp_path / "w.lopside"
