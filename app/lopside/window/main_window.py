@@ -36,6 +36,8 @@ from PySide6.QtWidgets import (
     QMessageBox,
     QSplitter,
     QTabWidget,
+    QVBoxLayout,
+    QWidget,
 )
 
 from .. import edits as ed
@@ -52,6 +54,8 @@ from .autosave import Autosaver, Recoverable, as_choice, find_recoverable
 from .causes import CausesPanel
 from .details_form import DetailsForm
 from .errors import details, plain, show_error
+from .outcomes import OutcomeBar
+from .panel_view import PanelSummaryPanel
 from .paste_dialog import PasteDialog
 from .plots import CompanionPanel, ForestPanel, FunnelPanel
 from .power_panel import PowerPanel
@@ -291,6 +295,14 @@ class MainWindow(QMainWindow):
         self.details = DetailsForm(self.session, self.stack.push_edit)
         self.left.addTab(self.studies, "&Studies")
         self.left.addTab(self.details, "Review &details")
+        # above them: which outcome of the review they show
+        self.outcomes = OutcomeBar(self.session, self.stack.push_edit)
+        left_box = QWidget()
+        left_lay = QVBoxLayout(left_box)
+        left_lay.setContentsMargins(0, 0, 0, 0)
+        left_lay.setSpacing(2)
+        left_lay.addWidget(self.outcomes)
+        left_lay.addWidget(self.left, 1)
 
         # right: live views
         self.views = QTabWidget()
@@ -304,6 +316,7 @@ class MainWindow(QMainWindow):
         self.adjust = AdjustPanel(self.session)
         self.causes = CausesPanel(self.session, self.stack.push_edit)
         self.power = PowerPanel(self.session)
+        self.panel_view = PanelSummaryPanel(self.session)
         self.view_panels = (
             self.funnel,
             self.forest,
@@ -313,6 +326,7 @@ class MainWindow(QMainWindow):
             self.adjust,
             self.causes,
             self.power,
+            self.panel_view,
         )
         for panel, title in zip(
             self.view_panels,
@@ -325,13 +339,14 @@ class MainWindow(QMainWindow):
                 "Adjust",
                 "Causes",
                 "Power",
+                "Panel",
             ),
         ):
             self.views.addTab(panel, title)
         self._stale: set = set(self.view_panels)
 
         self.split = QSplitter(Qt.Horizontal)
-        self.split.addWidget(self.left)
+        self.split.addWidget(left_box)
         self.split.addWidget(self.views)
         self.split.setStretchFactor(0, 5)
         self.split.setStretchFactor(1, 6)
@@ -360,6 +375,11 @@ class MainWindow(QMainWindow):
         self.studies.mode_changed.connect(lambda m: self.prefs.set(P.ENTRY_MODE, m))
         self.details.status.connect(self.say)
         self.power.power_done.connect(lambda _p: self.update_views())
+        self.outcomes.status.connect(self.say)
+        self.panel_view.open_outcome.connect(self.open_outcome)
+        self.panel_view.export_requested.connect(
+            lambda what: self.export_panel() if what == "panel" else self.export_slide()
+        )
 
         self._build_menus()
         self._restore_prefs()
@@ -423,7 +443,18 @@ class MainWindow(QMainWindow):
         self.act_print = self._action(
             "&Print the funnel plot\u2026", self.print_funnel, QKeySequence.Print
         )
-        for a in (self.act_sheet, self.act_figure, self.act_copy_funnel, self.act_print):
+        self.act_panel = self._action(
+            "Export the pa&nel summary of all outcomes\u2026", self.export_panel
+        )
+        self.act_slide = self._action("Export a &journal-club slide\u2026", self.export_slide)
+        for a in (
+            self.act_sheet,
+            self.act_figure,
+            self.act_copy_funnel,
+            self.act_print,
+            self.act_panel,
+            self.act_slide,
+        ):
             f.addAction(a)
         f.addSeparator()
         f.addAction(self._action("&Quit", self.close, QKeySequence.Quit))
@@ -446,6 +477,8 @@ class MainWindow(QMainWindow):
         e.addAction(self._action("Mo&ve row up", lambda: s.move_current(-1), "Ctrl+Shift+Up"))
         e.addAction(self._action("Move row do&wn", lambda: s.move_current(1), "Ctrl+Shift+Down"))
         e.addAction(self._action("&Leave out / bring back", s.toggle_exclude, "Ctrl+E"))
+
+        mb.addMenu(self.outcomes.menu)
 
         v = mb.addMenu("&View")
         v.addAction(self._action("The &study table", lambda: self._show_left(0), "Ctrl+Shift+T"))
@@ -646,6 +679,9 @@ class MainWindow(QMainWindow):
     # ------------------------------------------------------------------ session events
 
     def _session_changed(self, change: ed.Change) -> None:
+        self._stale.add(self.panel_view)  # any outcome may have changed
+        if change.kind == "outcomes":
+            self._refresh_panel(self.views.currentWidget())
         if change.kind in ("details", "reset"):
             self.details.refresh()
             self.studies.refresh_measure()
@@ -1188,6 +1224,23 @@ class MainWindow(QMainWindow):
         self.say("Writing the appraisal sheet\u2026", 0)
         w.start()
         return w
+
+    def open_outcome(self, index: int) -> None:
+        """Show outcome ``index`` (a click in the Panel view): its funnel."""
+        self.session.select_outcome(index)
+        self._show_view(self.view_panels.index(self.funnel))
+
+    def export_panel(self, path: str | None = None):
+        """Write the panel summary of every outcome (see window/exports.py)."""
+        from .exports import export_panel
+
+        return export_panel(self, path)
+
+    def export_slide(self, path: str | None = None):
+        """One journal-club slide of the outcome shown (see window/exports.py)."""
+        from .exports import export_slide
+
+        return export_slide(self, path)
 
     def _inputs(self) -> tuple:
         return (self.session.path, self.session.imported_from)
