@@ -252,6 +252,10 @@ class Session:
             # a review-level detail: checked as the detail it is, set in every outcome
             checked, _ = ed.apply(edit, self._review)
             edit = wbe.SetShared(edit.field, getattr(checked.details, edit.field))
+        elif isinstance(edit, ed.SetDetail) and edit.field == "outcome" and len(self._slots) > 1:
+            # the outcome's name: unique in the workbook (refused when taken or empty)
+            checked, _ = ed.apply(edit, self._review)
+            edit = wbe.RenameOutcome(self._at, checked.details.outcome)
         slot = None if isinstance(edit, wbe.WORKBOOK_EDITS) else self._slots[self._at].id
         last = self._undo[-1] if self._undo else None
         merged_edit = None

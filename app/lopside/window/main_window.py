@@ -444,7 +444,7 @@ class MainWindow(QMainWindow):
             "&Print the funnel plot\u2026", self.print_funnel, QKeySequence.Print
         )
         self.act_panel = self._action(
-            "Export the pa&nel summary of all outcomes\u2026", self.export_panel
+            "Export the panel s&ummary of all outcomes\u2026", self.export_panel
         )
         self.act_slide = self._action("Export a &journal-club slide\u2026", self.export_slide)
         for a in (

@@ -57,7 +57,7 @@ class OutcomeBar(QWidget):
         self.ask_name = ask_name or (lambda t, lab, text: _ask_name(self, t, lab, text))
         lay = QHBoxLayout(self)
         lay.setContentsMargins(0, 0, 0, 0)
-        label = QLabel("O&utcome:")
+        label = QLabel("Outcome:")
         self.chooser = QComboBox()
         self.chooser.setAccessibleName("Outcome shown")
         self.chooser.setToolTip(M.OUTCOME_TIP)

@@ -68,7 +68,7 @@ class PanelWorker(QThread):
 
 
 def _people(row) -> str:
-    """"18 studies · 13,839 people" (or "–" for an outcome not analysed)."""
+    """ "18 studies · 13,839 people" (or "–" for an outcome not analysed)."""
     if row.get("status") != "ok":
         return "–"
     from ..panel import fmt_cell
@@ -133,7 +133,7 @@ class PanelSummaryPanel(QWidget):
         lay.addWidget(self.table, 1)
         row = QHBoxLayout()
         self.export_button = QPushButton("E&xport the panel summary\u2026")
-        self.slide_button = QPushButton("Journal-club s&lide of this outcome\u2026")
+        self.slide_button = QPushButton("&Journal-club slide of this outcome\u2026")
         row.addWidget(self.export_button)
         row.addWidget(self.slide_button)
         row.addStretch(1)
@@ -180,6 +180,10 @@ class PanelSummaryPanel(QWidget):
         w.start()
 
     def reset(self) -> None:
+        """Forget the rows, unless they are still those of this workbook (another outcome
+        was chosen: the panel's rows do not depend on which one is shown)."""
+        if self._key is not None and self._key == self._inputs_key():
+            return
         self._key = None
         self.summary = None
         self.table.setRowCount(0)
