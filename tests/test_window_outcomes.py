@@ -136,3 +136,20 @@ def test_autosave_keeps_every_outcome(book_window):
     w.outcomes.add()
     assert w.autosaver is not None and w.autosaver.save_now()
     assert len(pf.load_workbook(w.autosaver.file)) == 6
+
+
+def test_outcomes_added_from_files_are_one_undo_step(book_window, tmp_path):
+    w, _ = book_window
+    table = tmp_path / "length_of_stay.csv"
+    table.write_text("study,md,lower,upper\nA 2001,-1.2,-2.0,-0.4\nB 2003,-0.6,-1.5,0.3\n", "utf-8")
+    assert w.add_outcomes_from_file(table)
+    assert w.session.outcome_names[-1] == "length_of_stay"
+    assert w.session.review.measure == "MD" and len(w.session.review.studies) == 2
+    # a whole workbook: each of its outcomes, names kept unique
+    assert w.add_outcomes_from_file(WORKBOOK)
+    names = w.session.outcome_names
+    assert len(names) == 11 and names[6] == "All-cause mortality at 90 days (2)"
+    w.stack.undo()
+    assert len(w.session.outcome_names) == 6
+    assert not w.add_outcomes_from_file(tmp_path / "review.pdf")
+    assert "Paste rows from a paper" in w.last_message

@@ -188,47 +188,14 @@ class FileActions:
         A project changed outside Lopside is opened only when the user says so, and then
         read-only (Save asks for a name).
         """
-        from ..cli_common import INPUT_ERRORS
-
         if ask and not self._maybe_save():
             return False
-        from ..cli_common import DecimalUndecided
-
         p = Path(path)
         if p.suffix.lower() == ".pdf":
             return self.open_pdf(p)
-        measure = None
-        decimal = None
-        accept_changed = False
-        for _attempt in range(4):
-            try:
-                self.session.open(
-                    p, measure, decimal, accept_changed=accept_changed, read_only=read_only
-                )
-                break
-            except ChangedOutside:
-                if accept_changed or not self.ask_open_changed(p.name):
-                    self.say(M.OPEN_FAILED.format(name=p.name, error=M.READ_ONLY_CHANGED))
-                    return False
-                accept_changed = True
-                read_only = read_only or M.READ_ONLY_CHANGED
-                continue
-            except DecimalUndecided as exc:
-                decimal = self.ask_decimal(p.name, exc.examples) if decimal is None else None
-                if decimal:
-                    continue
-                self._open_failed(p, exc)
-                return False
-            except INPUT_ERRORS as exc:
-                if measure is None and "measure" in str(exc) and p.suffix.lower() != SUFFIX:
-                    measure = self.ask_measure(p.name)
-                    if measure:
-                        continue
-                self._open_failed(p, exc)
-                return False
-            except (OSError, ValueError) as exc:
-                self._open_failed(p, exc)
-                return False
+        read_only = self._read_into(self.session, p, read_only)
+        if read_only is None:
+            return False
         self.stack.reset()
         self.studies.suggest_mode()
         if remember:
@@ -238,6 +205,75 @@ class FileActions:
         self._update_title()
         self.update_views()
         self.say(f"Opened {p.name}." + (f" It is {read_only}." if read_only else ""))
+        return True
+
+    def _read_into(self, session, p: Path, read_only: str = "") -> str | None:
+        """``session.open(p)``, asking what the file does not settle (changed outside
+        Lopside? which measure? which decimal mark?). Returns the read-only reason ("" for
+        none), or None when the file was not opened (the user was told why)."""
+        from ..cli_common import INPUT_ERRORS, DecimalUndecided
+
+        measure = None
+        decimal = None
+        accept_changed = False
+        for _attempt in range(4):
+            try:
+                session.open(
+                    p, measure, decimal, accept_changed=accept_changed, read_only=read_only
+                )
+                return read_only
+            except ChangedOutside:
+                if accept_changed or not self.ask_open_changed(p.name):
+                    self.say(M.OPEN_FAILED.format(name=p.name, error=M.READ_ONLY_CHANGED))
+                    return None
+                accept_changed = True
+                read_only = read_only or M.READ_ONLY_CHANGED
+                continue
+            except DecimalUndecided as exc:
+                decimal = self.ask_decimal(p.name, exc.examples) if decimal is None else None
+                if decimal:
+                    continue
+                self._open_failed(p, exc)
+                return None
+            except INPUT_ERRORS as exc:
+                if measure is None and "measure" in str(exc) and p.suffix.lower() != SUFFIX:
+                    measure = self.ask_measure(p.name)
+                    if measure:
+                        continue
+                self._open_failed(p, exc)
+                return None
+            except (OSError, ValueError) as exc:
+                self._open_failed(p, exc)
+                return None
+        return None
+
+    def add_outcomes_from_file(self, path=None) -> bool:
+        """Add the outcome(s) of a study table, pasted .txt or project to this workbook
+        (one undo step), each named by its file or its own name."""
+        from .. import workbook_edits as wbe
+        from ..session import Session
+
+        if path is None:
+            path = self.ask_open_path(self.prefs.get(P.LAST_FOLDER) or str(Path.home()))
+            if not path:
+                return False
+        p = Path(path)
+        if p.suffix.lower() == ".pdf":
+            self.say(M.OUTCOME_FROM_PDF, 15000)
+            return False
+        other = Session()
+        if self._read_into(other, p) is None:
+            return False
+        book = other.workbook
+        names = book.names if p.suffix.lower() in (SUFFIX, ".json") and len(book) > 1 else (p.stem,)
+        edits = []
+        for name, outcome in zip(names, book.outcomes):
+            slot = self.session.new_outcome_slot(name, outcome.review)
+            at = len(self.session.outcome_names) + len(edits)
+            edits.append(wbe.AddOutcome(at, slot))
+        if not self.stack.push_many(M.OUTCOME_FROM_FILE_STEP.format(name=p.name), edits):
+            return False
+        self.say(M.OUTCOME_FROM_FILE.format(n=len(edits), name=p.name))
         return True
 
     def open_pdf(self, p: Path):

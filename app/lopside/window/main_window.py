@@ -290,6 +290,7 @@ class MainWindow(MenuActions, FileActions, ExportActions, QMainWindow):
         self.details.status.connect(self.say)
         self.power.power_done.connect(lambda _p: self.update_views())
         self.outcomes.status.connect(self.say)
+        self.outcomes.add_from_file_requested.connect(lambda: self.add_outcomes_from_file())
         self.panel_view.open_outcome.connect(self.open_outcome)
         self.panel_view.export_requested.connect(
             lambda what: self.export_panel() if what == "panel" else self.export_slide()

@@ -212,3 +212,10 @@ PANEL_UPDATING = "Analysing {n} outcomes\u2026"
 PANEL_FAILED = "The panel summary could not be made: {error}"
 PANEL_EXPORTED = "Wrote the panel summary to {path}."
 SLIDE_EXPORTED = "Wrote the slide to {path}."
+OUTCOME_FROM_FILE = "Added {n} outcome(s) from {name}; choose them above the study table."
+OUTCOME_FROM_FILE_STEP = "add outcomes from {name}"
+OUTCOME_FROM_PDF = (
+    "A PDF's rows are picked page by page: add a new outcome (Outcome > New outcome) and "
+    "paste the rows copied from the PDF (Edit > Paste rows from a paper), or open the PDF "
+    "itself with File > Open."
+)

@@ -42,6 +42,8 @@ class OutcomeBar(QWidget):
     """
 
     status = Signal(str)
+    #: "Add outcomes from a file…": the window asks for the file and reads it
+    add_from_file_requested = Signal()
 
     def __init__(
         self,
@@ -93,6 +95,9 @@ class OutcomeBar(QWidget):
 
     def _build_actions(self) -> None:
         self.act_add = self._action("&New outcome\u2026", self.add)
+        self.act_add_file = self._action(
+            "Add outcomes from a &file\u2026", lambda: self.add_from_file_requested.emit()
+        )
         self.act_rename = self._action("&Rename this outcome\u2026", self.rename)
         self.act_duplicate = self._action("&Duplicate this outcome", self.duplicate)
         self.act_up = self._action("Move &up", lambda: self.move(-1))
