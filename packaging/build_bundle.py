@@ -39,8 +39,8 @@ import statistics
 import subprocess
 import sys
 import tempfile
-import zipfile
 import time
+import zipfile
 from pathlib import Path
 
 HERE = Path(__file__).resolve().parent
