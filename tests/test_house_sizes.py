@@ -21,7 +21,6 @@ MAX_FUNCTION_LINES = 120
 #: the engineers who own them; take a line off when its module is split.
 OVERSIZED_MODULES: dict[str, int] = {
     "lopside/summary.py": 1332,  # to report/ and words/ (HOUSE-PLAN part 4)
-    "lopside/window/main_window.py": 1379,  # menus and actions apart from view wiring
 }
 
 #: Functions still over the limit ("path:qualified name" -> lines when listed).
@@ -38,7 +37,6 @@ OVERSIZED_FUNCTIONS: dict[str, int] = {
     "lopside/stats/power.py:simulate_power": 132,
     "lopside/stats/selection_sensitivity.py:_model": 149,
     "lopside/window/details_form.py:DetailsForm.__init__": 149,
-    "lopside/window/main_window.py:MainWindow.__init__": 157,
 }
 
 
