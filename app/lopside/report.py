@@ -607,4 +607,6 @@ def intake_json(review) -> dict[str, Any]:
         },
         "measure_how": a.measure_how,
         "favours": {"value": d.favours, "source": d.favours_source, "text": favours_text(d)},
+        # where each row read came from in its file ("page 7 of review.pdf, line 12")
+        "rows_at": [{"study": label, "place": place} for label, place in a.rows_at],
     }

@@ -150,6 +150,7 @@ def not_read_label(account) -> str:
         "cells": ("place", "places"),
         "column": ("column", "columns"),
         "row": ("row", "rows"),
+        "page": ("PDF page", "PDF pages"),
     }
     counts: dict[str, int] = {}
     for n in account.not_read:
