@@ -493,7 +493,9 @@ def smoke_test(bundle: Path = BUNDLE) -> list[str]:
         try:
             data = json.loads(p.stdout)
         except json.JSONDecodeError as exc:
-            raise StepFailed(f"check of a PDF printed no valid JSON: {exc}\n{p.stdout[:500]}")
+            raise StepFailed(
+                f"check of a PDF printed no valid JSON: {exc}\n{p.stdout[:500]}"
+            ) from exc
         if data.get("k") != len(SMOKE_PDF_ROWS):
             raise StepFailed(
                 f"check of a PDF read k={data.get('k')}, not {len(SMOKE_PDF_ROWS)}\n{p.stderr}"

@@ -111,11 +111,11 @@ def test_cli_account_names_page_and_line(two_page):
     assert a.source == "page 2 of review.pdf"
     assert "pasted text" not in repr(a)
     assert len(a.rows_at) == 3
-    for label, place in a.rows_at:
+    for _label, place in a.rows_at:
         assert place.startswith("page 2 of review.pdf, line ")
     # line numbers are counted on the page: the three rows are lines of page 2
     page2 = P.read_pdf(two_page, pages=[2]).pages[0]
-    for (label, place), study in zip(a.rows_at, review.studies, strict=True):
+    for (_label, place), study in zip(a.rows_at, review.studies, strict=True):
         n = int(place.rsplit(" ", 1)[1])
         assert page2.lines[n - 1].text.startswith(study.study)
     # the title says which page, once (it once took a line number from the account)

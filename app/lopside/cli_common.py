@@ -19,7 +19,6 @@ from .model.review import (
     MEASURE_NAMES,
     MEASURES,
     IntakeAccount,
-    NotRead,
     Review,
     ReviewDetails,
     StudyRow,
