@@ -109,6 +109,10 @@ FORBIDDEN_FILES = (
 KNOWN_ABSENT = {
     "scipy.special._cdflib": "listed by PyInstaller's scipy hook for older scipy releases; "
     "scipy 1.17 has no such module",
+    "pycparser.lextab": "listed by the contributed pycparser hook for pycparser 2.x, whose "
+    "parser tables were generated modules; pycparser 3 (pulled in through cffi by "
+    "cryptography, which pdfminer uses for encrypted PDFs) has none",
+    "pycparser.yacctab": "as pycparser.lextab",
 }
 HIDDEN_IMPORT_MISSING = re.compile(r'Hidden import [\'"]([\w.]+)[\'"] not found')
 

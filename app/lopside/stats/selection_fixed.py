@@ -159,6 +159,13 @@ class _Batch:
         return f, grad, H
 
 
+#: A full Newton step (exact Hessian) shorter than this, relative to the parameters' size,
+#: is taken as the last one: Newton's error after a step is of the order of the step
+#: squared (quadratic convergence), so one of 1e-6 lands within about 1e-12 of the
+#: maximum, and a further evaluation to confirm it would change nothing that is shown.
+NEWTON_LAST_STEP = 1e-6
+
+
 def _newton_batch(model: _Batch, logw: np.ndarray, x0: np.ndarray, *, maxiter: int = 60):
     """Damped Newton over (μ, τ² ≥ 0) for every weight set at once.
 
@@ -217,7 +224,7 @@ def _newton_batch(model: _Batch, logw: np.ndarray, x0: np.ndarray, *, maxiter: i
             moved = max(abs(new[0] - best_x[p][0]), abs(new[1] - best_x[p][1]))
             x[p] = new
             scale = max(1.0, abs(best_x[p][0]), abs(best_x[p][1]))
-            if newton and moved < 1e-9 * scale:
+            if newton and moved < NEWTON_LAST_STEP * scale:
                 # a full Newton step this small lands within rounding of the maximum
                 # (quadratic convergence): take it without another evaluation to confirm
                 best_x[p] = new
