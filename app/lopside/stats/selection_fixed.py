@@ -8,9 +8,13 @@ severe, one- or two-tailed.
 
 The four weight patterns below are Table 1 of Vevea & Woods (2005) **as recalled from
 memory** (methods.md 11.4). They could not be checked against the paper in this project;
-the sheet and the JSON say so (``WEIGHTS_PROVENANCE``). One-sided p-values are computed in
-the direction of the pooled estimate (small p = a large effect on that side), as in the
-fitted selection model.
+the sheet and the JSON say so (``WEIGHTS_PROVENANCE``). The likelihood itself does not
+rest on memory: with every weight equal it gives the ordinary ML random-effects fit, which
+tests/test_selection_first_principles.py checks against its score equations and scipy;
+each pattern's fit is checked against scipy's maximisation of the same weighted
+likelihood written out independently (tests/test_selection_sensitivity.py). One-sided
+p-values are computed in the direction of the pooled estimate (small p = a large effect on
+that side), as in the fitted selection model.
 """
 
 from __future__ import annotations

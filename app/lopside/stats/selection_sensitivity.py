@@ -24,6 +24,12 @@ uncorrected random-effects model (the analysis' τ² estimator), and held fixed 
 η: the robust variance stays valid when the weights are not exactly inverse variances,
 and a fixed τ̂² keeps the corrected estimate a weighted mean with known weights.
 
+What is checked without the paper (tests/test_selection_first_principles.py): at η = 1
+the corrected estimates are the uncorrected fixed- and random-effects ones; the robust
+variance equals CR2 computed from its matrix formula (Bell & McCaffrey 2002) by explicit
+matrices, and a three-study example worked by hand. What stays "from memory" is only that
+the paper uses these choices (CR2, Satterthwaite, τ̂² held fixed).
+
 S-value (the η at which the corrected estimate reaches the null): with A = Σ_aff W y and
 N = Σ_non W y (recoded so the pooled side is positive), η* = −A/N when N < 0; when
 N ≥ 0 even infinitely strong selection of this form cannot reach the null ("not
