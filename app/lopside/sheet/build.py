@@ -297,6 +297,22 @@ def _selection_block(result, st) -> list:
     return [_h2(sec.title, st), *section_table(sec, st, label_width=236)]
 
 
+def _side_by_side(sec):
+    """A table section printed with two of its rows to a line (its columns twice)."""
+    if not sec.header or len(sec.rows) < 4:
+        return sec
+    half = (len(sec.rows) + 1) // 2
+    blank = ("",) * len(sec.header)
+    rows = tuple(
+        tuple(sec.rows[i]) + (tuple(sec.rows[i + half]) if i + half < len(sec.rows) else blank)
+        for i in range(half)
+    )
+    # numbers keep their room (a heading such as "Estimate" must not break); labels wrap
+    widths = tuple(max(w, 1.15) if i else w for i, w in enumerate(sec.widths)) * 2
+    # no row emphasis: a line now holds two settings; the default is named in its label
+    return replace(sec, header=tuple(sec.header) * 2, rows=rows, widths=widths, emphasis=())
+
+
 #: rows of the selection brief printed on one line: (first label, second label) -> label
 _PAIRED_ROWS = {
     ("Fixed weights, one-tailed (moderate / severe)",
@@ -333,16 +349,16 @@ def _page2(result, appraisal, st) -> list:
     adj = adjustments_section(result)
     tf = trim_fill_section(result)
     rng = trim_fill_range(result)
-    if tf is not None and rng is not None:
-        # one sentence under the table (the lowest and highest estimate, and "the answer
-        # depends on the setting" when the settings disagree) instead of the six-row
-        # table, which the window, the text and the JSON keep: its room on the printed
-        # page goes to how strong selection would have to be
+    if tf is not None and rng is not None and rng.agree:
+        # the settings agree: one sentence (which setting gives the lowest and highest
+        # estimate) under the table is enough; the full table is printed when they disagree
         adj = replace(adj, notes=adj.notes + (rng.text,))
         tf = None
     out += _section(adj, st)
     if tf is not None:
-        out += _section(tf, st)
+        # two settings to a line: every setting in half the height, leaving room for how
+        # strong selection would have to be
+        out += _section(_side_by_side(tf), st)
     # how strong selection would have to be: the table here, its η curve under the funnel
     out += _selection_block(result, st)
     sens = sensitivity_section(result)
