@@ -19,6 +19,7 @@ import statsmodels.api as sm
 from scipy import stats
 
 from lopside.stats import asymmetry as asy
+from lopside.stats.asymmetry import rank as asy_rank
 from lopside.stats.data import StudyData
 from lopside.stats.results import NotComputable
 
@@ -319,22 +320,22 @@ def test_begg_by_sorting_matches_scipy_and_the_pairwise_count(k, rounding):
     assert res.statistic == pytest.approx(ref.statistic, abs=1e-12)
     assert res.pvalue == pytest.approx(ref.pvalue, rel=1e-9)
     fast = asy.begg_core(data.y, data.v)
-    saved = asy._BEGG_SORT_MIN
+    saved = asy_rank._BEGG_SORT_MIN
     try:
-        asy._BEGG_SORT_MIN = 10**9  # force the pairwise count
+        asy_rank._BEGG_SORT_MIN = 10**9  # force the pairwise count
         pairwise = asy.begg_core(data.y, data.v)
     finally:
-        asy._BEGG_SORT_MIN = saved
+        asy_rank._BEGG_SORT_MIN = saved
     for name in ("statistic", "pvalue", "z", "status", "ties"):
         assert np.array_equal(getattr(fast, name), getattr(pairwise, name), equal_nan=True)
 
 
 def test_begg_keeps_no_pair_cache_for_large_reviews():
     # the pair layout is cached only for small k: no process-lifetime cache grows with k
-    asy._pairs_cached.cache_clear()
+    asy_rank._pairs_cached.cache_clear()
     asy.begg_core(np.arange(2000.0), np.linspace(0.1, 1.0, 2000))
-    asy._pairs(asy._PAIRS_CACHE_MAX + 1)
-    assert asy._pairs_cached.cache_info().currsize == 0
+    asy_rank._pairs(asy_rank._PAIRS_CACHE_MAX + 1)
+    assert asy_rank._pairs_cached.cache_info().currsize == 0
 
 
 def test_count_inversions_by_definition():
@@ -343,7 +344,7 @@ def test_count_inversions_by_definition():
     for n in (0, 1, 2, 7, 33, 200):
         r = rng.integers(0, 9, n)
         brute = sum(1 for i in range(n) for j in range(i + 1, n) if r[i] > r[j])
-        assert asy._count_inversions(r) == brute
+        assert asy_rank._count_inversions(r) == brute
 
 
 def test_kendall_exact_distribution_by_enumeration():

@@ -25,6 +25,8 @@ import numpy as np
 import pytest
 
 from lopside.stats import pooling as pl
+from lopside.stats import pooling_batch as plb
+from lopside.stats import tau2 as t2m
 from lopside.stats.adjust_selection import selection_model
 from lopside.stats.adjust_trimfill import trim_and_fill
 from lopside.stats.data import StudyData
@@ -378,9 +380,9 @@ def test_rows_where_the_grid_overturns_scoring_get_the_global_maximum():
 def _grid_overturns(y, v) -> bool:
     """What tau2_reml decides: does a grid value beat the scoring result by > 1e-10?"""
     start = pl.tau2_dl(y, v).tau2
-    _, ll_est = pl._reml_scoring(y, v, start, 1000)
-    grid = np.concatenate(([0.0], pl._grid_scale(y, v, start) * pl._GRID_UNIT))
-    return bool(pl._restricted_loglik_grid(y, v, grid).max() > ll_est + 1e-10)
+    _, ll_est = t2m._reml_scoring(y, v, start, 1000)
+    grid = np.concatenate(([0.0], t2m._grid_scale(y, v, start) * t2m._GRID_UNIT))
+    return bool(t2m._restricted_loglik_grid(y, v, grid).max() > ll_est + 1e-10)
 
 
 def _two_maxima_batch(rng, n: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
@@ -401,10 +403,10 @@ def _two_maxima_batch(rng, n: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
 def _certify(y, v, masks):
     dl = pl.tau2_dl_batch(y, v, masks).tau2
     yc = y - np.median(y)
-    t, ll, mag, _, ok = pl._reml_scoring_block(yc, v, masks.astype(float), dl, 1000)
+    t, ll, mag, _, ok = plb._reml_scoring_block(yc, v, masks.astype(float), dl, 1000)
     rows = np.flatnonzero(ok)
-    scale = pl._grid_scale_batch(y, v, masks, rows, dl[rows])
-    certified = pl._reml_certify(y, v, masks, rows, t[rows], ll[rows], mag[rows], scale)
+    scale = plb._grid_scale_batch(y, v, masks, rows, dl[rows])
+    certified = plb._reml_certify(y, v, masks, rows, t[rows], ll[rows], mag[rows], scale)
     overturned = np.array([_grid_overturns(y[masks[b]], v[masks[b]]) for b in rows])
     return certified, overturned
 
@@ -580,13 +582,13 @@ def test_reuse_tau2_returns_the_same_estimates_computed_once(monkeypatch):
     name, y, v = datasets()[2]
     plain = {m: pl.random_effects(y, v, method=m, hksj=h) for m in pl.TAU2_METHODS for h in (0, 1)}
     calls = []
-    real = pl._estimate_tau2
+    real = t2m._estimate_tau2
 
     def counting(yy, vv, method):
         calls.append(method)
         return real(yy, vv, method)
 
-    monkeypatch.setattr(pl, "_estimate_tau2", counting)
+    monkeypatch.setattr(t2m, "_estimate_tau2", counting)
     with pl.reuse_tau2():
         reused = {
             m: pl.random_effects(y, v, method=m, hksj=h) for m in pl.TAU2_METHODS for h in (0, 1)

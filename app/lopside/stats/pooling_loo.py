@@ -1,0 +1,183 @@
+"""Leave-one-out for many studies in O(k) memory (the note below says how)."""
+
+from __future__ import annotations
+
+import numpy as np
+
+from lopside.stats.pooling_base import _as_arrays
+from lopside.stats.pooling_batch import _BLOCK, _fixed_results, _quietly, _random_results
+from lopside.stats.tau2 import _TOL, TAU2_METHODS, estimate_tau2, tau2_dl
+
+# Pooling k subsets of k - 1 studies as pooling_batch does costs k x k work per iteration. For large k
+# every sum over a subset is taken instead as (sum of the studies before i) + (sum of the
+# studies after i), from running sums (exact downdates for FE and DL, and no cancellation
+# when one study carries nearly all the weight). The iterative tau^2 of each subset
+# (REML, PM) is solved by scoring steps started from the full-data tau^2 t0: the sums at
+# t = t0 + d come from power series in d,
+#
+#     1/(v_j + t)^p = u_j^p sum_m C(p+m-1, m) (-d u_j)^m,   u_j = 1/(v_j + t0),
+#
+# whose power sums sum_j y_j^q u_j^r are formed once. The series is used only where
+# |d| max u_j <= _SERIES_RATIO (error below 1e-18 relative with _SERIES_TERMS terms); a
+# subset outside that range, or not converged, is pooled by the scalar functions.
+
+_SERIES_TERMS = 32
+
+
+_SERIES_RATIO = 0.25
+
+
+def _others(x: np.ndarray) -> np.ndarray:
+    """For each row i of x (studies x columns), the column sums over the other rows."""
+    zero = np.zeros((1,) + x.shape[1:])
+    before = np.concatenate([zero, np.cumsum(x, axis=0)[:-1]], axis=0)
+    after = np.concatenate([np.cumsum(x[::-1], axis=0)[::-1][1:], zero], axis=0)
+    return before + after
+
+
+class _LooSeries:
+    """Sums over each leave-one-out subset at tau^2 near t0, from power series."""
+
+    def __init__(self, yc: np.ndarray, v: np.ndarray, t0: float):
+        self.s = 1.0 / (float(v.min()) + t0)  # the largest u_j
+        x = 1.0 / (v + t0) / self.s  # u_j / s, in (0, 1]
+        powers = x[:, None] ** np.arange(1, _SERIES_TERMS + 4)[None, :]  # r = 1 .. M + 3
+        # P[q][i, r - 1] = sum over j != i of yc_j^q x_j^r
+        self.p = [_others(powers * (yc**q)[:, None]) for q in range(3)]
+        self.t0 = t0
+        m = np.arange(_SERIES_TERMS)
+        from scipy.special import comb
+
+        self.comb = {p: comb(p + m - 1, m) for p in (1, 2, 3)}
+
+    def sums(self, rows: np.ndarray, t: np.ndarray):
+        """sum w^p y^q over subset rows[b] at t[b], for (p, q) in the order
+        (1,0) (1,1) (1,2) (2,0) (2,1) (2,2) (3,0); and the ratio |d| max u."""
+        eps = (t - self.t0) * self.s
+        # (-eps)^m for m = 0 .. M - 1, by running products
+        powers = np.empty((rows.size, _SERIES_TERMS))
+        powers[:, 0] = 1.0
+        np.cumprod(
+            np.broadcast_to(-eps[:, None], (rows.size, _SERIES_TERMS - 1)),
+            axis=1,
+            out=powers[:, 1:],
+        )
+        whole = rows.size == self.p[0].shape[0]
+        out = []
+        for p, q in ((1, 0), (1, 1), (1, 2), (2, 0), (2, 1), (2, 2), (3, 0)):
+            coef = powers * self.comb[p]
+            part = self.p[q][:, p - 1 : p - 1 + _SERIES_TERMS]
+            if not whole:
+                part = part[rows]
+            out.append(np.einsum("ij,ij->i", coef, part) * self.s**p)
+        return out, np.abs(eps)
+
+
+def _loo_tau2_series(ser, yc, v, method, max_iter=100):
+    """tau^2 of every leave-one-out subset by scoring (REML) or Newton (PM) steps from t0.
+
+    Returns tau^2, a flag per subset (False: use the scalar function) and the step counts.
+    """
+    k = yc.size
+    tau2 = np.full(k, ser.t0)
+    iters = np.zeros(k, int)
+    ok = np.zeros(k, bool)
+    act = np.arange(k)
+    t = tau2.copy()
+    target = k - 2.0  # PM: generalised Q of k - 1 studies equals k - 2
+    for it in range(1, max_iter + 1):
+        (sw, swy, swy2, s2, s2y, s2y2, s3), ratio = ser.sums(act, t)
+        bad = ratio > _SERIES_RATIO
+        mu = swy / sw
+        s2r2 = s2y2 - 2.0 * mu * s2y + mu * mu * s2
+        if method == "REML":
+            score = -0.5 * (sw - s2 / sw) + 0.5 * s2r2
+            info = 0.5 * (s2 - 2.0 * s3 / sw + (s2 / sw) ** 2)
+            bad |= ~(info > 0)
+            new = np.maximum(0.0, t + score / info)
+        else:
+            f = swy2 - mu * swy - target
+            # Q(t) decreases: a root at the boundary when Q(0) <= target is left to Newton
+            # steps clamped at 0 (a step to 0 with f(0) < 0 ends there)
+            new = np.maximum(0.0, t + f / s2r2)
+            bad |= ~(s2r2 > 0)
+        done = ~bad & (np.abs(new - t) < _TOL * np.maximum(1.0, t))
+        fin = act[done]
+        tau2[fin], iters[fin], ok[fin] = new[done], it, True
+        keep = ~done & ~bad
+        act, t = act[keep], new[keep]
+        if not act.size:
+            break
+    return tau2, ok, iters
+
+
+@_quietly
+def leave_one_out_large(
+    y, v, *, method: str, hksj: bool = False, confidence_level: float = 0.95, tau2_full=None
+):
+    """Fixed- and random-effects pooling without each study in turn, O(k) memory.
+
+    The same quantities as :func:`fixed_effect_batch`, :func:`random_effects_batch` and
+    :func:`cochran_q_batch` on a leave-one-out mask (without percent weights), found from
+    running sums; REML and PM tau^2 by steps warm-started from the full-data ``tau2_full``
+    (computed when not given). Unlike :func:`tau2_reml` the REML steps do not repeat the
+    search for a higher maximum on a grid: with many studies the restricted likelihood
+    without one study differs little from the full one, whose maximum was checked.
+
+    Returns
+    -------
+    (fixed, random, q) : tuple of PooledEstimate, tuple of PooledEstimate, ndarray
+    """
+    y, v = _as_arrays(y, v)
+    k = y.size
+    n = np.full(k, k - 1)
+    yc = y - float(np.median(y))
+    centre = float(np.median(y))
+    w = 1.0 / v
+    sw, swy, swy2, s2 = _others(np.stack([w, w * yc, w * yc * yc, w * w], axis=1)).T
+    mu = swy / sw
+    q = np.maximum(swy2 - mu * swy, 0.0)
+    fixed = _fixed_results(centre + mu, sw, n, [()] * k, confidence_level)
+    converged = np.ones(k, bool)
+    notes = [""] * k
+    if method == "DL":
+        cc = sw - s2 / sw
+        tau2 = np.where(cc > 0, np.maximum(0.0, (q - (k - 2)) / cc), 0.0)
+        ok = np.ones(k, bool)
+        t0 = tau2_dl(y, v).tau2
+        ser = _LooSeries(yc, v, t0)
+    elif method in ("REML", "PM"):
+        t0 = estimate_tau2(y, v, method).tau2 if tau2_full is None else float(tau2_full)
+        ser = _LooSeries(yc, v, t0)
+        tau2, ok, _ = _loo_tau2_series(ser, yc, v, method)
+    else:
+        raise ValueError(f"unknown tau^2 method {method!r}; use one of {TAU2_METHODS}")
+    est = np.empty(k)
+    swr = np.empty(k)
+    rq = np.zeros(k)
+    rows = np.flatnonzero(ok)
+    (s_w, s_wy, s_wy2, *_), ratio = ser.sums(rows, tau2[rows])
+    near = ratio <= _SERIES_RATIO
+    r = rows[near]
+    est[r] = centre + s_wy[near] / s_w[near]
+    swr[r] = s_w[near]
+    rq[r] = np.maximum(s_wy2[near] - s_wy[near] ** 2 / s_w[near], 0.0)
+    for b in np.flatnonzero(~ok):
+        keep = np.arange(k) != b
+        t2 = estimate_tau2(y[keep], v[keep], method)
+        tau2[b], converged[b], notes[b] = t2.tau2, t2.converged, t2.note
+    direct = np.union1d(rows[~near], np.flatnonzero(~ok)).astype(int)
+    step = max(1, _BLOCK // max(1, k))
+    for s0 in range(0, direct.size, step):
+        r = direct[s0 : s0 + step]
+        wb = 1.0 / (v[None, :] + tau2[r, None])
+        wb[np.arange(r.size), r] = 0.0
+        s_w = wb.sum(axis=1)
+        e = (wb * yc).sum(axis=1) / s_w
+        res = yc[None, :] - e[:, None]
+        est[r], swr[r] = centre + e, s_w
+        rq[r] = (wb * res * res).sum(axis=1)
+    random = _random_results(
+        method, est, swr, rq, n, tau2, converged, tuple(notes), [()] * k, hksj, confidence_level
+    )
+    return fixed, random, q
