@@ -45,11 +45,13 @@ from .cli_options import (  # noqa: F401 - re-exported: lopside.cli.X keeps work
     _progress_for,
     _unread,
     add_analysis_arguments,
+    add_force_argument,
     add_intake_arguments,
     check_output_arg,
     load_input,
     settings_from_args,
 )
+from .fileio import OutputRefused
 from .model.review import MEASURES
 
 SUBCOMMANDS = ("check", "sheet", "plot", "batch", "panel", "slide")
@@ -163,6 +165,11 @@ def cmd_batch(args) -> int:
         )
     if args.workers is not None and args.workers < 1:
         return _fail("--workers: give a whole number of 1 or more.")
+    if Path(args.output).suffix.lower() in (".csv", ".xlsx", ".parquet"):
+        try:  # an existing file of another kind (a study table...) needs --force
+            check_output_arg(args, ("results", "xlsx", "parquet"), files)
+        except OutputRefused as exc:
+            return _fail(str(exc))
     options = BatchOptions(
         measure=args.measure,
         favours=args.favours,
@@ -203,24 +210,30 @@ def _outcome_inputs(args):
     """One outcome per table file (named by its stem), every outcome of a project."""
     from pathlib import Path
 
-    from .cli_common import INPUT_ERRORS
+    from .cli_common import INPUT_ERRORS, is_project, load_outcomes
     from .panel import OutcomeInput
+    from .settings import AnalysisSettings
 
     inputs = []
     for f in args.files:
         ns = argparse.Namespace(**{**vars(args), "file": f})
         try:
-            review, settings = _load(ns)
+            if is_project(f):
+                found = load_outcomes(f, args.measure, favours=args.favours)
+            else:  # tables, text and PDFs: with the account check of every command
+                review, settings = _load(ns)
+                found = [(Path(f).stem, review, settings)]
         except INPUT_ERRORS as exc:
             if not getattr(args, "skip_bad", False):
                 raise
             inputs.append(OutcomeInput(Path(f).stem, skipped=str(exc).splitlines()[0]))
             continue
-        if getattr(args, "favours", None):
-            review = review.with_details(favours=args.favours)
-        suffix = Path(f).suffix.lower()
-        name = (review.details.title or Path(f).stem) if suffix == ".lopside" else Path(f).stem
-        inputs.append(OutcomeInput(name, review, settings))
+        for name, review, settings in found:
+            if isinstance(settings, dict):
+                settings = AnalysisSettings.from_dict(settings)
+            if getattr(args, "favours", None):
+                review = review.with_details(favours=args.favours)
+            inputs.append(OutcomeInput(name, review, settings))
     return inputs
 
 
@@ -234,9 +247,10 @@ def cmd_panel(args) -> int:
     out = Path(args.output)
     if out.suffix.lower() not in FORMATS:
         return _fail(f"-o {out}: write the panel summary as .pdf, .docx, .xlsx or .csv.")
-    for f in args.files:
-        if Path(f).exists() and out.exists() and out.samefile(f):
-            return _fail(f"-o {out}: is also an input; write the summary to another file.")
+    try:
+        check_output_arg(args, ("pdf", "docx", "xlsx", "results"), args.files)
+    except OutputRefused as exc:
+        return _fail(str(exc))
     try:
         inputs = _outcome_inputs(args)
         summary = build_panel(args.title or "Panel summary", inputs, with_power=args.power)
@@ -268,17 +282,17 @@ def cmd_slide(args) -> int:
     out = Path(args.output)
     if out.suffix.lower() not in (".pptx", ".png"):
         return _fail(f"-o {out}: write the slide as .pptx or .png.")
-    if out.exists() and Path(args.file).exists() and out.samefile(args.file):
-        return _fail(f"-o {out}: is also the input; write the slide to another file.")
+    try:
+        check_output_arg(args, ("pptx", "png"))
+    except OutputRefused as exc:
+        return _fail(str(exc))
     try:
         review, settings = _load(args)
     except INPUT_ERRORS as exc:
         return _fail(str(exc))
     if args.favours:
         review = review.with_details(favours=args.favours)
-    name = review.details.title or Path(args.file).stem
-    if args.outcome and args.outcome.strip().casefold() != name.strip().casefold():
-        return _fail(f"{args.file}: has no outcome called '{args.outcome}' (it has '{name}').")
+    name = review.details.outcome or review.details.title or Path(args.file).stem
     result = analyse(review, settings)
     try:
         write_slide(result, assessment_of(result).appraisal, out, title=name)
@@ -384,11 +398,7 @@ def build_parser() -> argparse.ArgumentParser:
         "--appraiser", default="", metavar="NAME", help="name printed on the sheet as appraiser"
     )
     s.add_argument("--power", action="store_true", help="include the power simulation")
-    s.add_argument(
-        "--force",
-        action="store_true",
-        help="replace an existing file at OUT even if it is not a PDF (never the input)",
-    )
+    add_force_argument(s)
     s.set_defaults(func=cmd_sheet)
     p = sub.add_parser("plot", help="draw one figure to PNG, SVG or PDF")
     from .figures.cli_plot import add_plot_arguments, run_plot
@@ -420,17 +430,19 @@ def build_parser() -> argparse.ArgumentParser:
         action="store_true",
         help="list a file that cannot be read as skipped, instead of stopping",
     )
+    add_force_argument(pn)
     pn.set_defaults(func=cmd_panel, page=None)
     sl = sub.add_parser("slide", help="one journal-club slide: funnel and reading (PPTX or PNG)")
     add_analysis_arguments(sl)
     sl.add_argument("-o", "--output", required=True, metavar="OUT", help=".pptx or .png")
-    sl.add_argument("--outcome", metavar="NAME", help="the outcome to show (by name)")
     sl.add_argument(
         "--favours", choices=("lower", "higher"), help="which values favour the intervention"
     )
+    add_force_argument(sl)
     sl.set_defaults(func=cmd_slide)
     b = sub.add_parser("batch", help="appraise many files at once (Dask), one row per outcome")
     add_batch_arguments(b)
+    add_force_argument(b)
     b.set_defaults(func=cmd_batch)
     return parser
 
