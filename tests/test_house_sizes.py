@@ -28,7 +28,6 @@ OVERSIZED_MODULES: dict[str, int] = {
 
 #: Functions still over the limit ("path:qualified name" -> lines when listed).
 OVERSIZED_FUNCTIONS: dict[str, int] = {
-    "lopside/analysis.py:_analyse": 244,
     "lopside/figures/funnel.py:_draw": 335,
     "lopside/figures/rows.py:draw_rows": 426,
     "lopside/intake/checks.py:check_row": 288,
