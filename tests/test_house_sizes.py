@@ -31,7 +31,6 @@ OVERSIZED_FUNCTIONS: dict[str, int] = {
     "lopside/figures/funnel.py:_draw": 335,
     "lopside/figures/rows.py:draw_rows": 426,
     "lopside/intake/checks.py:check_row": 288,
-    "lopside/report.py:to_json": 180,
     "lopside/stats/adjust_selection.py:selection_model": 167,
     "lopside/stats/adjust_trimfill.py:trim_and_fill": 157,
     "lopside/stats/adjust_wls.py:wls": 123,
