@@ -31,7 +31,6 @@ OVERSIZED_FUNCTIONS: dict[str, int] = {
     "lopside/figures/funnel.py:_draw": 335,
     "lopside/figures/rows.py:draw_rows": 426,
     "lopside/intake/checks.py:check_row": 288,
-    "lopside/stats/adjust_selection.py:selection_model": 167,
     "lopside/stats/effects.py:_derive": 127,
     "lopside/stats/moderators.py:meta_regression": 136,
     "lopside/stats/power.py:simulate_power": 132,
