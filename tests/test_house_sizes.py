@@ -32,7 +32,6 @@ OVERSIZED_FUNCTIONS: dict[str, int] = {
     "lopside/intake/checks.py:check_row": 288,
     "lopside/stats/effects.py:_derive": 127,
     "lopside/stats/selection_sensitivity.py:_model": 149,
-    "lopside/window/details_form.py:DetailsForm.__init__": 149,
     "lopside/window/main_window.py:MainWindow.__init__": 157,
 }
 
