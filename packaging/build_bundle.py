@@ -40,6 +40,7 @@ import subprocess
 import sys
 import tempfile
 import time
+import zipfile
 from pathlib import Path
 
 HERE = Path(__file__).resolve().parent
@@ -441,6 +442,23 @@ def smoke_test(bundle: Path = BUNDLE) -> list[str]:
         if not png.exists() or png.read_bytes()[:8] != b"\x89PNG\r\n\x1a\n":
             raise StepFailed(f"plot did not write a PNG ({png})")
         passed.append(f"plot --kind funnel: {png.stat().st_size // 1024} KiB PNG")
+
+        # the panel summary in Word and a journal-club slide: python-docx and python-pptx
+        # need their templates in the bundle (the spec collects them)
+        book = sample.parent / "heart_failure_workbook.lopside"
+        for out, args, part in (
+            (tmp / "panel.docx", ["panel", book], "word/document.xml"),
+            (
+                tmp / "slide.pptx",
+                ["slide", book, "--outcome", "Serious adverse events"],
+                "ppt/presentation.xml",
+            ),
+        ):
+            run(prefix + [cli_exe, *args, "-o", out], f"bundle {args[0]} -o {out.name}", **opts)
+            with zipfile.ZipFile(out) as z:
+                if part not in z.namelist():
+                    raise StepFailed(f"{args[0]} -o {out.name} wrote no {part}")
+            passed.append(f"{args[0]} -o {out.name}: {out.stat().st_size // 1024} KiB")
 
         # The start-up hook must have moved matplotlib's cache to the per-user folder, or
         # every launch would rebuild the font cache.

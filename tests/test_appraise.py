@@ -333,3 +333,15 @@ def test_appraisal_is_frozen(symmetric_result):
     a = appraise(symmetric_result)
     with pytest.raises(AttributeError):
         a.rating = None  # type: ignore[misc]
+
+
+def test_one_study_is_counted_in_the_singular():
+    # "only 1 studies" was printed for a single-study review (common practice: English
+    # grammar); the reason for not rating names the count correctly
+    from lopside.assessment import assess
+    from lopside.model.review import Review, StudyRow
+
+    review = Review(studies=(StudyRow(study="Invented 2001", estimate=0.8, lower=0.6, upper=1.1),))
+    rating = assess(review).appraisal.rating
+    words = " ".join([rating.suggested, *rating.reasons])
+    assert "only 1 study " in words and "1 studies" not in words

@@ -37,12 +37,17 @@ RANDOM_KEYS = POOLED_KEYS | {"tau2", "method", "pi_low", "pi_high"}
 
 @pytest.fixture(scope="module")
 def outputs():
+    from lopside.model.project_file import load_workbook
+
     out = {}
     for path in sample_reviews():
-        args = ["check", str(path), "--json"]
-        r = run(*args)
-        assert r.returncode == 0, r.stderr
-        out[path.name] = json.loads(r.stdout)
+        # a workbook of several outcomes: each outcome by name (--outcome)
+        names = load_workbook(path).names if path.suffix == ".lopside" else ("",)
+        for name in names if len(names) > 1 else ("",):
+            args = ["check", str(path), "--json"] + (["--outcome", name] if name else [])
+            r = run(*args)
+            assert r.returncode == 0, r.stderr
+            out[f"{path.name} {name}".strip()] = json.loads(r.stdout)
     return out
 
 

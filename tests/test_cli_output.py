@@ -168,6 +168,24 @@ def test_ascii_spellings_of_the_characters_lopside_prints():
     assert "τ² ≥ −1".encode("cp1252", console.ERRORS).decode("cp1252") == "tau² >= -1"
 
 
+def test_ascii_spellings_keep_table_columns_in_line():
+    # a longer spelling takes its extra width from the padding after it (keeping one
+    # space), so the columns of the text tables stay where they were; prose keeps its
+    # single spaces
+    rows = [
+        "Random effects, REML τ²   0.16   0.11",
+        "Fixed effect              0.18   0.12",
+        "I²                        22 %",
+    ]
+    for enc in ("ascii", "cp1252"):
+        out = [r.encode(enc, console.ERRORS).decode(enc) for r in rows]
+        assert [len(o) for o in out] == [len(r) for r in rows], out
+        assert out[0].index("0.16") == rows[0].index("0.16")
+        assert out[0].startswith("Random effects, REML tau")
+    prose = "τ² = 0.01 and √n ≥ 2"
+    assert prose.encode("ascii", console.ERRORS).decode() == "tau2 = 0.01 and sqrtn >= 2"
+
+
 class _FakeConsole(io.TextIOWrapper):
     def isatty(self):
         return True

@@ -81,8 +81,26 @@ def _set(path: tuple, value):
 # project files: the document is refused with a message naming the place
 
 PROJECT_CASES = {
-    # other versions (the version must be the whole number 1, not a look-alike)
-    "version 2": (_with(_set(("lopside_project",), 2)), "format version 2"),
+    # other versions (the version must be the whole number 1 or 2, not a look-alike)
+    "version 3": (_with(_set(("lopside_project",), 3)), "format version 3"),
+    # version 2 is a workbook: the one-outcome body under version 2 lacks its outcomes
+    "version 2 without outcomes": (
+        _with(_set(("lopside_project",), 2)),
+        "outcomes: expected a list of one or more outcomes",
+    ),
+    "outcomes empty": (
+        json.dumps({"lopside_project": 2, "outcomes": []}),
+        "outcomes: expected a list",
+    ),
+    "outcome a string": (
+        json.dumps({"lopside_project": 2, "outcomes": [{}, "Pain"]}),
+        "outcome 2: expected an object",
+    ),
+    # an error inside the second outcome of two names that outcome
+    "second outcome bad": (
+        json.dumps({"lopside_project": 2, "outcomes": [{}, {"details": {"measure": "XYZ"}}]}),
+        "outcome 2, details, measure",
+    ),
     "version 0": (_with(_set(("lopside_project",), 0)), "format version 0"),
     "version true": (_with(_set(("lopside_project",), True)), "format version True"),
     "version text": (_with(_set(("lopside_project",), "1")), "format version '1'"),

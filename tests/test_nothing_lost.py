@@ -331,7 +331,7 @@ def test_an_autosave_that_fails_says_so(make_window, monkeypatch):
     def full(*a, **k):
         raise OSError(28, "No space left on device")
 
-    monkeypatch.setattr(project_file, "save", full)
+    monkeypatch.setattr(project_file, "save_workbook", full)  # autosave writes every outcome
     w.stack.push_edit(ed.SetCell(0, "study", "typed"))
     assert not w.autosaver.save_now()
     assert "Autosave failed" in w.last_message and "No space left" in w.last_message

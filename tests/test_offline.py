@@ -119,7 +119,7 @@ def test_headless_path_attempts_no_socket(tmp_path):
         from argparse import Namespace
         from pathlib import Path
         from lopside.analysis import analyse
-        from lopside.cli_common import load_review_file
+        from lopside.cli_common import load_outcomes, load_review_file
         from lopside.figures.cli_plot import build_figure
         from lopside.figures.export import save_figure
         from lopside.paths import sample_reviews
@@ -135,18 +135,19 @@ def test_headless_path_attempts_no_socket(tmp_path):
             measure = None
             if f.suffix != ".lopside" and twin.exists():
                 measure = load_review_file(twin)[0].details.measure
-            review, saved = load_review_file(f, measure)
-            result = analyse(review, AnalysisSettings.from_dict(saved))
-            text = json.dumps(to_json(result), allow_nan=False)
-            pdf, png = tmp / (f.name + ".pdf"), tmp / (f.name + ".png")
-            write_sheet(result, pdf)
-            save_figure(build_figure(result, Namespace(kind="funnel")), png)
-            done.append({{
-                "file": f.name,
-                "json_k": json.loads(text)["k"],
-                "sheet": pdf.read_bytes()[:5].decode("latin-1"),
-                "png": png.read_bytes()[1:4].decode("latin-1"),
-            }})
+            # every outcome of a workbook
+            for i, (_name, review, saved) in enumerate(load_outcomes(f, measure)):
+                result = analyse(review, AnalysisSettings.from_dict(saved))
+                text = json.dumps(to_json(result), allow_nan=False)
+                pdf, png = tmp / f"{{f.name}}{{i}}.pdf", tmp / f"{{f.name}}{{i}}.png"
+                write_sheet(result, pdf)
+                save_figure(build_figure(result, Namespace(kind="funnel")), png)
+                done.append({{
+                    "file": f.name,
+                    "json_k": json.loads(text)["k"],
+                    "sheet": pdf.read_bytes()[:5].decode("latin-1"),
+                    "png": png.read_bytes()[1:4].decode("latin-1"),
+                }})
         out["done"] = done
         """,
         tmp_path,

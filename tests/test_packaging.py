@@ -164,7 +164,7 @@ def test_sdist_has_sample_reviews_and_resources(tmp_path):
         if p.is_file():
             rel = p.relative_to(REPO).as_posix()
             assert rel in names, rel
-    for f in ("pyproject.toml", "README.md", "MANIFEST.in", "app/lopside/cli.py"):
+    for f in ("pyproject.toml", "README.md", "MANIFEST.in", "app/lopside/cli/__init__.py"):
         assert f in names, f
 
 

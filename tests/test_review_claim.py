@@ -49,15 +49,16 @@ def test_project_file_round_trip_and_validation(tmp_path):
     back, _ = project_file.load(path)
     assert back.details.claim == CLAIM
     doc = json.loads(path.read_text(encoding="utf-8"))
-    doc["details"]["claim"]["conclusion"] = "maybe"
+    body = doc["outcomes"][0]  # format 2: a workbook of one outcome
+    body["details"]["claim"]["conclusion"] = "maybe"
     with pytest.raises(project_file.ProjectFileError, match="claim conclusion"):
         project_file.loads(json.dumps(doc), accept_changed=True)
-    doc["details"]["claim"]["conclusion"] = "found"
-    doc["details"]["claim"]["p"] = 1.5
+    body["details"]["claim"]["conclusion"] = "found"
+    body["details"]["claim"]["p"] = 1.5
     with pytest.raises(project_file.ProjectFileError, match="claim p"):
         project_file.loads(json.dumps(doc), accept_changed=True)
     # older files without a claim still open
-    del doc["details"]["claim"]
+    del body["details"]["claim"]
     assert (
         project_file.loads(json.dumps(doc), accept_changed=True)[0].details.claim == ReviewClaim()
     )

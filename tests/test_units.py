@@ -25,12 +25,12 @@ def test_units_round_trip_and_older_files_read_as_none(tmp_path):
     review, _ = project_file.load(path)
     assert review.details.units == "mmHg"
     doc = json.loads(path.read_text(encoding="utf-8"))
-    del doc["details"]["units"]  # a file written before the field existed
+    del doc["outcomes"][0]["details"]["units"]  # a file written before the field existed
     doc.pop("checksum", None)  # (which had no checksum either)
     path.write_text(json.dumps(doc), encoding="utf-8")
     review, _ = project_file.load(path)
     assert review.details.units == ""
-    doc["details"]["units"] = 12
+    doc["outcomes"][0]["details"]["units"] = 12
     path.write_text(json.dumps(doc), encoding="utf-8")
     with pytest.raises(project_file.ProjectFileError, match="units"):
         project_file.load(path)

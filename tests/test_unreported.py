@@ -161,7 +161,7 @@ def test_project_file_round_trip_and_bad_value(tmp_path):
     text = path.read_text(encoding="utf-8")
     assert text.count('"reported": false') == 2 and '"reported": true' not in text
     doc = json.loads(text)
-    doc_studies = doc["studies"] if "studies" in doc else doc["review"]["studies"]
+    doc_studies = doc["outcomes"][0]["studies"]  # format 2: a workbook of one outcome
     doc_studies[4]["reported"] = "no"
     with pytest.raises(project_file.ProjectFileError, match="reported: expected true or false"):
         project_file.loads(json.dumps(doc), accept_changed=True)

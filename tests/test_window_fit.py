@@ -265,6 +265,7 @@ def test_mnemonics_are_unique_in_every_window_and_tab_scope(make_window):
             w.refresh_all_views()
             scope = [(m, s) for m, s in menus + tabs if m]
             scope += _widget_mnemonics(w.left.widget(li))
+            scope += _widget_mnemonics(w.outcomes)  # the outcome chooser above them
             scope += _widget_mnemonics(w.views.widget(vi))
             seen: dict[str, str] = {}
             for letter, where in scope:
@@ -273,7 +274,7 @@ def test_mnemonics_are_unique_in_every_window_and_tab_scope(make_window):
                 seen[letter] = where
             checked += len(scope)
     assert checked > 100  # the walk really visited the controls
-    assert clashes == []
+    assert clashes == [], "\n".join(sorted(set(clashes)))
     # every menu's own entries are unique too
     from PySide6.QtWidgets import QMenu
 

@@ -4,19 +4,26 @@ Every scenario, drug, trial name and number here is invented for demonstration. 
 are drawn from a seeded random generator with small-study effects or subgroup differences
 built in on purpose, so the demo has something to show. They describe no real trial.
 
-Run: PYTHONPATH=app python tools/make_sample_reviews.py
+Run: PYTHONPATH=app python tools/make_sample_reviews.py  (all files)
+     PYTHONPATH=app python -c "import sys; sys.path.insert(0, 'tools');
+         import make_sample_reviews as m; m.write_workbook()"   (the workbook only)
+
+The four one-outcome projects were written in format 1, before workbooks; they are kept
+so, as the files every test of migration opens (a rerun writes them as format 2).
 """
 
 from __future__ import annotations
 
 import math
+from dataclasses import replace
 from pathlib import Path
 
 import numpy as np
 
 from lopside.intake.table import write_table_csv
-from lopside.model.project_file import save
+from lopside.model.project_file import save, save_workbook
 from lopside.model.review import PublishedResult, Review, ReviewDetails, StudyRow
+from lopside.model.workbook import Outcome, Workbook
 
 OUT = Path(__file__).resolve().parents[1] / "sample_reviews"
 INVENTED = (
@@ -246,6 +253,130 @@ def pasted_text(review: Review) -> str:
     return "\n".join(lines) + "\n"
 
 
+HF_TITLE = "Caldremide added to usual care in acute heart failure"
+HF_QUESTION = (
+    "In adults admitted with acute heart failure, does caldremide added to usual care "
+    "improve outcomes at 90 days compared with usual care alone?"
+)
+
+
+def _hf_trials(rng: np.random.Generator, k: int) -> list[tuple[str, int, int, str]]:
+    """(name, year, size, risk of bias) of the invented trials, largest first."""
+    sizes = sorted(int(x) for x in np.exp(rng.uniform(math.log(60), math.log(2400), k)))
+    trials = []
+    for i, n in enumerate(reversed(sizes)):
+        year = 2008 + int(rng.integers(0, 16))
+        rob = "low" if n >= 500 else ("some concerns" if n >= 150 else "high")
+        trials.append((f"CALD-{i + 1:02d} ({SURNAMES[(i * 7) % 24]})", year, n, rob))
+    return trials
+
+
+def _binary_outcome(rng, trials, base, log_or, small_extra, name, measure, favours=""):
+    rows = []
+    for study, year, n, rob in trials:
+        n1, n0 = n // 2, n - n // 2
+        shift = small_extra * (1 - math.log(n / 60) / math.log(2400 / 60))
+        odds1 = base / (1 - base) * math.exp(log_or + shift)
+        a = int(rng.binomial(n1, odds1 / (1 + odds1)))
+        c = int(rng.binomial(n0, base))
+        rows.append(
+            StudyRow(
+                study=study,
+                year=year,
+                int_events=a,
+                int_total=n1,
+                ctl_events=c,
+                ctl_total=n0,
+                risk_of_bias=rob,
+            )
+        )
+    return ReviewDetails(outcome=name, measure=measure, favours=favours or "lower"), rows
+
+
+def _continuous_outcome(rng, trials, true, sd, name, measure, favours, units=""):
+    rows = []
+    for study, year, n, rob in trials:
+        n1, n0 = n // 2, n - n // 2
+        m0 = rng.uniform(0.8, 1.2) * 300 if units == "m" else rng.uniform(45, 60)
+        diff = true * sd + rng.normal(0, sd * math.sqrt(1 / n1 + 1 / n0))
+        rows.append(
+            StudyRow(
+                study=study,
+                year=year,
+                int_mean=_r(m0 + diff, 1),
+                int_sd=_r(sd * rng.uniform(0.9, 1.1), 1),
+                int_n=n1,
+                ctl_mean=_r(m0, 1),
+                ctl_sd=_r(sd * rng.uniform(0.9, 1.1), 1),
+                ctl_n=n0,
+                risk_of_bias=rob,
+            )
+        )
+    details = ReviewDetails(outcome=name, measure=measure, favours=favours, units=units)
+    return details, rows
+
+
+def heart_failure_workbook(rng: np.random.Generator) -> Workbook:
+    """Five outcomes of one invented review, as a guideline panel would rate them.
+
+    Mortality has small-study effects built in; readmission has none; the walk test
+    favours higher values and has units; quality of life has fewer than 10 trials;
+    serious adverse events are rare. The trials are shared between outcomes (each outcome
+    uses the trials that reported it), as in a real review.
+    """
+    trials = _hf_trials(rng, 20)
+    parts = [
+        _binary_outcome(
+            rng, trials[:18], 0.14, -0.08, -0.7, "All-cause mortality at 90 days", "OR"
+        ),
+        _binary_outcome(
+            rng, trials[1:15], 0.30, -0.18, 0.0, "Readmission for heart failure at 90 days", "RR"
+        ),
+        _continuous_outcome(
+            rng,
+            trials[2:13],
+            0.25,
+            80.0,
+            "Six-minute walk distance at 90 days",
+            "MD",
+            "higher",
+            "m",
+        ),
+        _continuous_outcome(
+            rng, trials[4:12], 0.20, 15.0, "Quality of life at 90 days", "SMD", "higher"
+        ),
+        _binary_outcome(rng, trials[:16], 0.03, 0.10, 0.0, "Serious adverse events", "OR"),
+    ]
+    outcomes = []
+    for details, rows in parts:
+        review = Review(
+            details=replace(
+                details,
+                title=HF_TITLE,
+                question=HF_QUESTION,
+                int_label="caldremide",
+                ctl_label="usual care",
+                source_note=INVENTED,
+            ),
+            studies=tuple(rows),
+        )
+        model = (
+            "random effects"
+            if details.measure in ("MD", "SMD")
+            else "Mantel-Haenszel, fixed effect"
+        )
+        outcomes.append(Outcome(with_published(review, model), {}))
+    return Workbook(tuple(outcomes))
+
+
+def write_workbook() -> None:
+    """Only the workbook (its own seed: the other files are not touched)."""
+    save_workbook(
+        heart_failure_workbook(np.random.default_rng(20261202)),
+        OUT / "heart_failure_workbook.lopside",
+    )
+
+
 def main() -> None:
     rng = np.random.default_rng(20261201)
     OUT.mkdir(exist_ok=True)
@@ -259,6 +390,7 @@ def main() -> None:
     (OUT / "relapse_orvelimab.txt").write_text(pasted_text(h), encoding="utf-8")
     s = with_published(small_review(rng), "random effects")
     save(s, OUT / "wound_dressings_small.lopside")
+    write_workbook()
     print("wrote", sorted(p.name for p in OUT.iterdir()))
 
 

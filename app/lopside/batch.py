@@ -168,8 +168,11 @@ def _error_row(file: str, message: str, sha: str | None, status: str = "error") 
     return row
 
 
-def _sheet_name(file: str, outcome: str) -> str:
+def _sheet_name(file: str, outcome: str = "") -> str:
+    """The sheet's file name: the input's path, and the outcome's name when it has several."""
     stem = Path(file).with_suffix("").as_posix().strip("/")
+    if outcome:
+        stem = f"{stem}--{outcome}"
     safe = "".join(c if c.isalnum() or c in "-_." else "_" for c in f"{stem}")
     return f"{safe.strip('._') or 'review'}.pdf"
 
@@ -179,29 +182,14 @@ def appraise_file(file: str, options: BatchOptions = BatchOptions()) -> list[dic
 
     The analysis is exactly ``lopside check``'s: the same loader, settings and engine.
     """
-    from .cli_common import INPUT_ERRORS, load_review_file
-    from .settings import AnalysisSettings
+    from .cli_common import INPUT_ERRORS, load_outcomes
 
     path = Path(file)
     sha = file_sha256(path)
     try:
         if sha is None:
             raise OSError("cannot be read")
-        review, saved = load_review_file(path, options.measure)
-        settings = AnalysisSettings.from_dict(saved)
-        changes = {}
-        if options.tau2_method:
-            changes["tau2_method"] = options.tau2_method
-        if options.ci_method:
-            changes["ci_method"] = options.ci_method
-        if options.hksj:
-            changes["hksj"] = True
-        if changes:
-            from dataclasses import replace
-
-            settings = replace(settings, **changes)
-        if options.favours:
-            review = review.with_details(favours=options.favours)
+        outcomes = load_outcomes(path, options.measure, favours=options.favours)
     except INPUT_ERRORS as exc:
         return [_error_row(file, str(exc), sha)]
     except (OSError, ValueError, MemoryError) as exc:
@@ -209,18 +197,31 @@ def appraise_file(file: str, options: BatchOptions = BatchOptions()) -> list[dic
     except Exception as exc:  # noqa: BLE001 - one bad file never stops a batch
         return [_error_row(file, f"{path.name}: cannot be read ({type(exc).__name__}).", sha)]
 
-    rows = []
-    for outcome, one in outcomes_of(review, path):
-        rows.append(_analyse_outcome(file, outcome, one, settings, sha, options))
-    return rows
+    several = len(outcomes) > 1
+    return [
+        _analyse_outcome(file, name, review, _settings(saved, options), sha, options, several)
+        for name, review, saved in outcomes
+    ]
 
 
-def outcomes_of(review, path: Path) -> list[tuple[str, Any]]:
-    """(name, review) per outcome; a one-outcome review is named by its title or file."""
-    return [(review.details.title or path.stem, review)]
+def _settings(saved: dict[str, Any], options: BatchOptions):
+    """The outcome's saved settings with the batch's own options over them."""
+    from dataclasses import replace
+
+    from .settings import AnalysisSettings
+
+    settings = AnalysisSettings.from_dict(saved)
+    changes: dict[str, Any] = {}
+    if options.tau2_method:
+        changes["tau2_method"] = options.tau2_method
+    if options.ci_method:
+        changes["ci_method"] = options.ci_method
+    if options.hksj:
+        changes["hksj"] = True
+    return replace(settings, **changes) if changes else settings
 
 
-def _analyse_outcome(file, outcome, review, settings, sha, options) -> dict[str, Any]:
+def _analyse_outcome(file, outcome, review, settings, sha, options, several) -> dict[str, Any]:
     from .assessment import assess
     from .outcome_row import outcome_row
 
@@ -247,7 +248,7 @@ def _analyse_outcome(file, outcome, review, settings, sha, options) -> dict[str,
     if options.sheets_dir and result.k > 0:
         from .sheet import write_sheet
 
-        target = Path(options.sheets_dir) / _sheet_name(file, outcome)
+        target = Path(options.sheets_dir) / _sheet_name(file, outcome if several else "")
         try:
             if os.path.abspath(target) == os.path.abspath(file):
                 raise OSError("the sheet would replace its own input")

@@ -14,7 +14,7 @@ from pathlib import Path
 from typing import Any
 
 from .intake.errors import IntakeError
-from .model.project_file import SUFFIX, ProjectFileError, load
+from .model.project_file import SUFFIX, ProjectFileError, load, load_workbook
 from .model.review import (
     MEASURE_NAMES,
     MEASURES,
@@ -24,6 +24,7 @@ from .model.review import (
     ReviewDetails,
     StudyRow,
 )
+from .model.workbook import WorkbookError
 
 ACCEPTED = (SUFFIX, ".json", ".csv", ".xlsx", ".txt", ".pdf")
 MAX_TEXT_BYTES = 50 * 2**20
@@ -182,8 +183,14 @@ def load_review_file(
     decimal: str | None = None,
     favours: str | None = None,
     accept_changed: bool = False,
+    outcome: str | None = None,
 ) -> tuple[Review, dict[str, Any]]:
     """Read FILE into a review; ``measure`` overrides (or supplies) the measure.
+
+    ``outcome`` names the outcome of a project that holds several (a workbook); without
+    it such a project is refused with :class:`~lopside.model.project_file.SeveralOutcomes`,
+    which lists them. A study table, pasted text or PDF holds one outcome, named by the
+    file's stem.
 
     ``decimal`` ("point"/"comma") settles numbers the file itself does not; ``favours``
     ("lower"/"higher") sets the direction of benefit. The review carries the intake
@@ -208,12 +215,17 @@ def load_review_file(
     if suffix == ".txt" and info.st_size > MAX_TEXT_BYTES:
         raise InputError(f"{p.name}: the file is larger than pasted text can be (more than 50 MB).")
     if suffix in (SUFFIX, ".json"):
-        review, settings = load(p, accept_changed=accept_changed)
+        review, settings = _project_outcome(p, outcome, accept_changed)
         if measure:
             review = review.with_details(measure=measure)
         if favours:
             review = review.with_details(favours=favours, favours_source="option")
         return review, settings
+    if outcome and outcome.strip().casefold() != p.stem.strip().casefold():
+        raise InputError(
+            f"{p.name}: a study table holds one outcome (called '{p.stem}' after the file); "
+            f"--outcome '{outcome}' is for project files that hold several."
+        )
     if suffix in (".csv", ".xlsx"):
         from .intake.table import read_table
 
@@ -251,6 +263,56 @@ def load_review_file(
     raise InputError(
         f"{p.name}: Lopside opens {', '.join(ACCEPTED)} files; this one is '{suffix or 'none'}'."
     )
+
+
+def _project_outcome(
+    p: Path, outcome: str | None, accept_changed: bool
+) -> tuple[Review, dict[str, Any]]:
+    """One outcome of a project: the one named, or the only one."""
+    if not outcome:
+        return load(p, accept_changed=accept_changed)
+    workbook = load_workbook(p, accept_changed=accept_changed)
+    try:
+        chosen = workbook.outcomes[workbook.find(outcome, p.name)]
+    except WorkbookError as exc:
+        raise InputError(str(exc)) from None
+    return chosen.review, chosen.settings
+
+
+def load_outcomes(
+    path: str | Path,
+    measure: str | None = None,
+    *,
+    decimal: str | None = None,
+    favours: str | None = None,
+    accept_changed: bool = False,
+) -> list[tuple[str, Review, dict[str, Any]]]:
+    """Every outcome of FILE as (name, review, saved settings), in the file's order.
+
+    A project gives each of its outcomes (under :attr:`Workbook.names`; an untitled
+    project of one outcome is named by its file); any other file gives one outcome named
+    by the file's stem. ``measure`` and ``favours`` apply to every outcome, as in
+    :func:`load_review_file`, whose errors this raises.
+    """
+    p = Path(path)
+    if p.suffix.lower() not in (SUFFIX, ".json") or not p.is_file():
+        review, settings = load_review_file(
+            p, measure, decimal=decimal, favours=favours, accept_changed=accept_changed
+        )
+        return [(p.stem, review, settings)]
+    workbook = load_workbook(p, accept_changed=accept_changed)
+    out = []
+    for name, o in zip(workbook.names, workbook.outcomes):
+        review = o.review
+        if measure:
+            review = review.with_details(measure=measure)
+        if favours:
+            review = review.with_details(favours=favours, favours_source="option")
+        details = review.details
+        if len(workbook) == 1 and not (details.outcome.strip() or details.title.strip()):
+            name = p.stem
+        out.append((name, review, o.settings))
+    return out
 
 
 def is_project(path: str | Path) -> bool:

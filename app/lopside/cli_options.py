@@ -102,6 +102,7 @@ def load_input(args):
             decimal=decimal,
             favours=favours,
             accept_changed=getattr(args, "accept_changed", False),
+            outcome=getattr(args, "outcome", None),
         )
     account = review.intake
     # only the commands that offer --allow-unread stop on unread input (check, sheet, plot)
@@ -115,6 +116,15 @@ def load_input(args):
             "without them (they are then listed in the output)."
         )
     return review, settings_from_args(args, AnalysisSettings.from_dict(saved))
+
+
+def add_force_argument(p: argparse.ArgumentParser) -> None:
+    """--force: replace an existing OUT of another kind (never one of the inputs)."""
+    p.add_argument(
+        "--force",
+        action="store_true",
+        help="replace an existing file at OUT even if it is of another kind (never an input)",
+    )
 
 
 def add_analysis_arguments(p: argparse.ArgumentParser) -> None:
@@ -146,6 +156,12 @@ def add_analysis_arguments(p: argparse.ArgumentParser) -> None:
         choices=("auto", "left", "right"),
         default=None,
         help="trim and fill: side of the missing studies",
+    )
+    p.add_argument(
+        "--outcome",
+        metavar="NAME",
+        default=None,
+        help="the outcome to appraise, in a project that holds several (by name)",
     )
     p.add_argument(
         "--accept-changed",
@@ -278,16 +294,21 @@ def _unread(exc: UnreadInput) -> int:
 _load = load_input
 
 
-def check_output_arg(args, kind: str):
+def check_output_arg(args, kind: str | tuple[str, ...], inputs=None):
     """The checked ``-o`` path of ``args`` (see :func:`lopside.fileio.check_output`).
 
+    ``kind`` is the output's kind, or the kinds a command writes (chosen by the suffix);
+    ``inputs`` the files read (default ``args.file``), which are never written over.
     Raises OutputRefused with a one-line message; nothing is written.
     """
     from pathlib import Path
 
-    from .fileio import OutputRefused, check_output
+    from .fileio import OutputRefused, check_output, kind_for_suffix
 
-    out = check_output(args.output, kind, (args.file,), force=getattr(args, "force", False))
+    kinds = (kind,) if isinstance(kind, str) else tuple(kind)
+    chosen = kind_for_suffix(args.output, kinds) or kinds[0]
+    files = tuple(inputs) if inputs is not None else (args.file,)
+    out = check_output(args.output, chosen, files, force=getattr(args, "force", False))
     folder = out.parent
     if str(folder) and not folder.is_dir():
         raise OutputRefused(

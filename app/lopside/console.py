@@ -82,10 +82,42 @@ def ascii_spelling(ch: str) -> str:
 
 
 def _ascii_errors(exc: UnicodeError) -> tuple[str, int]:
+    """Spell what the console cannot show in ASCII, keeping text columns in line.
+
+    A longer spelling (``τ²`` -> ``tau2``) would push the rest of an aligned table row to
+    the right. When the cell it sits in ends in padding (two spaces or more, before the
+    end of the line), the padding gives up the extra width, keeping one space; in running
+    text (single spaces) nothing is taken.
+    """
     if not isinstance(exc, UnicodeEncodeError):
         raise exc
-    bad = exc.object[exc.start : exc.end]
-    return "".join(ascii_spelling(ch) for ch in bad), exc.end
+    text, enc = exc.object, exc.encoding
+    line_end = text.find("\n", exc.start)
+    line_end = len(text) if line_end < 0 else line_end
+    pad = text.find("  ", exc.end, line_end)
+    if pad < 0:  # no padding ahead on this line: the word alone
+        end = exc.end
+        while end < line_end and not text[end].isspace():
+            end += 1
+        return _spell(text[exc.start : end], enc), end
+    spaces = len(text[pad:line_end]) - len(text[pad:line_end].lstrip(" "))
+    spelled = _spell(text[exc.start : pad], enc)
+    extra = len(spelled) - (pad - exc.start)
+    taken = min(max(extra, 0), spaces - 1)
+    return spelled + " " * (spaces - taken), pad + spaces
+
+
+def _spell(segment: str, encoding: str) -> str:
+    """``segment`` with each character the console cannot show spelled in ASCII."""
+    return "".join(ch if _shows(ch, encoding) else ascii_spelling(ch) for ch in segment)
+
+
+def _shows(ch: str, encoding: str) -> bool:
+    try:
+        ch.encode(encoding)
+    except (UnicodeEncodeError, LookupError):
+        return False
+    return True
 
 
 def _redirected_errors(exc: UnicodeError) -> tuple[bytes, int]:

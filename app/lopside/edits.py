@@ -620,6 +620,10 @@ def change_of(edit: Edit) -> Change:
 
 def describe(edit: Edit) -> str:
     """A short label for the Undo/Redo menu ("Undo type in Study 3, estimate")."""
+    from . import workbook_edits as wbe
+
+    if isinstance(edit, wbe.WORKBOOK_EDITS):
+        return wbe.describe(edit)
     if isinstance(edit, SetCell):
         return f"edit row {edit.row + 1}, {edit.field.replace('_', ' ')}"
     if isinstance(edit, SetRow):

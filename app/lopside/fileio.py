@@ -34,6 +34,23 @@ KINDS: dict[str, tuple[tuple[str, ...], str]] = {
     "svg": ((".svg",), "an SVG drawing"),
     "lopside": ((".lopside",), "a Lopside project"),
     "csv": ((".csv",), "a CSV table"),
+    # outputs of panel, slide and batch
+    "results": ((".csv",), "a CSV of Lopside results"),
+    "docx": ((".docx",), "a Word document"),
+    "xlsx": ((".xlsx",), "an Excel workbook"),
+    "pptx": ((".pptx",), "a PowerPoint file"),
+    "parquet": ((".parquet",), "a Parquet file"),
+}
+
+#: the first line of a CSV Lopside wrote as results (batch, panel summary), so that a
+#: study table (someone's input) is never taken for one
+_RESULT_HEADERS = (b"file,status,message,", b"outcome,measure,k,")
+
+#: the part every Office file of each kind holds (they are all ZIP files)
+_OFFICE_PARTS = {
+    "word/document.xml": "docx",
+    "xl/workbook.xml": "xlsx",
+    "ppt/presentation.xml": "pptx",
 }
 
 
@@ -161,7 +178,33 @@ def kind_of_existing(path: Path) -> str | None:
         return "svg"
     if text.startswith(b"{") and b'"lopside_project"' in head:
         return "lopside"
+    if head.startswith(b"PAR1"):
+        return "parquet"
+    if head.startswith(b"PK\x03\x04"):
+        return _office_kind(path)
+    if any(text.startswith(h) for h in _RESULT_HEADERS):
+        return "results"
     return None
+
+
+def _office_kind(path: Path) -> str | None:
+    import zipfile
+
+    try:
+        with zipfile.ZipFile(path) as z:
+            names = set(z.namelist())
+    except (OSError, zipfile.BadZipFile):
+        return None
+    for part, kind in _OFFICE_PARTS.items():
+        if part in names:
+            return kind
+    return None
+
+
+def kind_for_suffix(path: str | os.PathLike, choices: tuple[str, ...]) -> str | None:
+    """The first of ``choices`` (KINDS keys) whose suffixes include ``path``'s, or None."""
+    suffix = Path(path).suffix.lower()
+    return next((k for k in choices if suffix in KINDS[k][0]), None)
 
 
 def check_output(

@@ -13,6 +13,12 @@ Design invariants
   from identities what needs redrawing.
 * The dirty flag compares a state id: each distinct state of the review gets a new id;
   undo returns to the id it had, so undoing back to the saved state is clean again.
+* A session holds a workbook: one or more outcomes (:mod:`lopside.model.workbook`), of
+  which one is current. ``review`` and ``settings`` are the current outcome's; every view
+  works on it. Workbook edits (:mod:`lopside.workbook_edits`: add, delete, move, rename
+  outcomes, review-level details) share the one history with review edits; each step
+  remembers the outcome it changed, and undoing it selects that outcome first, so an undo
+  is never invisible. Choosing another outcome is not an edit (no undo step, not dirty).
 """
 
 from __future__ import annotations
@@ -24,12 +30,15 @@ from pathlib import Path
 from typing import Any
 
 from . import edits as ed
+from . import workbook_edits as wbe
 from .model.review import Review, ReviewDetails
+from .model.workbook import Outcome, Workbook
 from .settings import AnalysisSettings
 
 Listener = Callable[[ed.Change], None]
 
 _ids = itertools.count(1)
+_slot_ids = itertools.count(1)
 
 
 @dataclass(slots=True)
@@ -40,6 +49,8 @@ class _Step:
     inverse: ed.Edit
     before: int
     after: int
+    #: the id of the outcome a review edit changed (None for a workbook edit)
+    slot: int | None = None
 
 
 class Session:
@@ -62,6 +73,10 @@ class Session:
     ) -> None:
         self._review = review or Review()
         self._settings = settings or AnalysisSettings()
+        #: every outcome; the current one's review and settings live in _review/_settings
+        #: and are written back by _sync()
+        self._slots: list[wbe.Slot] = [wbe.Slot(next(_slot_ids), self._review, self._settings)]
+        self._at = 0
         self._path: Path | None = Path(path) if path else None
         self._undo: list[_Step] = []
         self._redo: list[_Step] = []
@@ -103,6 +118,61 @@ class Session:
         """Changes whenever the review changes (autosave uses it to see new work)."""
         return self._state
 
+    # ---------------------------------------------------------------- outcomes
+
+    def _sync(self) -> None:
+        self._slots[self._at] = wbe.Slot(self._slots[self._at].id, self._review, self._settings)
+
+    @property
+    def workbook(self) -> Workbook:
+        """Every outcome, with its review and settings (what Save writes)."""
+        self._sync()
+        return wbe.as_workbook(tuple(self._slots))
+
+    @property
+    def outcome_index(self) -> int:
+        return self._at
+
+    @property
+    def outcome_names(self) -> tuple[str, ...]:
+        return self.workbook.names
+
+    def outcome_reviews(self) -> tuple[tuple[Review, AnalysisSettings], ...]:
+        """(review, settings) of every outcome, in order (the panel summary reads them)."""
+        self._sync()
+        return tuple((s.review, s.settings) for s in self._slots)
+
+    def select_outcome(self, index: int) -> None:
+        """Make outcome ``index`` the current one (not an edit: no undo step, not dirty)."""
+        if not 0 <= index < len(self._slots):
+            raise IndexError(f"There is no outcome {index + 1}.")
+        if index == self._at:
+            return
+        change = ed.Change("reset")
+        self._emit(self._about, change)
+        self._sync()
+        self._at = index
+        self._review = self._slots[index].review
+        self._settings = self._slots[index].settings
+        self._merge_barrier = True
+        self._emit(self._changed, change)
+
+    def new_outcome_slot(self, name: str = "", review: Review | None = None) -> wbe.Slot:
+        """A slot for :class:`lopside.workbook_edits.AddOutcome`: empty (carrying the shared
+        details) or ``review`` under a free name."""
+        book = self.workbook
+        if review is None:
+            review = book.new_outcome(name).review
+        else:
+            review = review.with_details(outcome=book.free_name(name or "New outcome"))
+        return wbe.Slot(next(_slot_ids), review, AnalysisSettings())
+
+    def duplicate_slot(self, index: int) -> wbe.Slot:
+        """A copy of outcome ``index`` (its own id) named "... (copy)"."""
+        book = self.workbook
+        copy = book.duplicated(index).outcomes[index + 1]
+        return wbe.Slot(next(_slot_ids), copy.review, self._slots[index].settings)
+
     def display_name(self) -> str:
         """The file name, or the review title, or "Untitled review"."""
         if self._path is not None:
@@ -133,11 +203,43 @@ class Session:
 
     # ---------------------------------------------------------------- edits
 
-    def _apply(self, edit: ed.Edit) -> ed.Edit:
+    def _apply(self, edit: ed.Edit, slot: int | None = None) -> ed.Edit:
+        if isinstance(edit, wbe.WORKBOOK_EDITS):
+            return self._apply_workbook(edit)
+        if slot is not None and slot != self._slots[self._at].id:
+            # the step was made on another outcome: show it first, then change it
+            self.select_outcome(next(i for i, s in enumerate(self._slots) if s.id == slot))
         new_review, inverse = ed.apply(edit, self._review)  # raises before any change
         change = ed.change_of(edit)
         self._emit(self._about, change)
         self._review = new_review
+        self._emit(self._changed, change)
+        return inverse
+
+    def _apply_workbook(self, edit) -> ed.Edit:
+        self._sync()
+        current = self._slots[self._at].id
+        slots, inverse = wbe.apply(edit, tuple(self._slots))  # raises before any change
+        ids = [s.id for s in slots]
+        if isinstance(edit, wbe.AddOutcome):
+            at = edit.index  # a new outcome is shown at once
+        elif current in ids:
+            at = ids.index(current)
+        else:  # the current outcome was deleted: its neighbour
+            at = min(self._at, len(slots) - 1)
+        if slots[at].id != current:
+            change = ed.Change("reset")
+        elif slots[at].review.details != self._review.details:
+            change = ed.Change("details", (), getattr(edit, "field", "outcome"))
+        else:
+            change = ed.Change("outcomes")
+        self._emit(self._about, change)
+        self._slots = list(slots)
+        self._at = at
+        self._review = slots[at].review
+        self._settings = slots[at].settings
+        if change.kind == "reset":
+            self._merge_barrier = True
         self._emit(self._changed, change)
         return inverse
 
@@ -146,10 +248,20 @@ class Session:
 
         Raises :class:`lopside.edits.EditError` (nothing changes) when it does not fit.
         """
+        if isinstance(edit, ed.SetDetail) and wbe.is_shared(edit.field) and len(self._slots) > 1:
+            # a review-level detail: checked as the detail it is, set in every outcome
+            checked, _ = ed.apply(edit, self._review)
+            edit = wbe.SetShared(edit.field, getattr(checked.details, edit.field))
+        elif isinstance(edit, ed.SetDetail) and edit.field == "outcome" and len(self._slots) > 1:
+            # the outcome's name: unique in the workbook (refused when taken or empty)
+            checked, _ = ed.apply(edit, self._review)
+            edit = wbe.RenameOutcome(self._at, checked.details.outcome)
+        slot = None if isinstance(edit, wbe.WORKBOOK_EDITS) else self._slots[self._at].id
         last = self._undo[-1] if self._undo else None
         merged_edit = None
-        if merge and last is not None and not self._merge_barrier:
-            merged_edit = ed.merge(last.edit, edit)
+        if merge and last is not None and not self._merge_barrier and last.slot == slot:
+            if slot is not None:
+                merged_edit = ed.merge(last.edit, edit)
         inverse = self._apply(edit)
         self._redo.clear()
         new_state = next(_ids)
@@ -158,7 +270,7 @@ class Session:
             last.after = new_state
             self._state = new_state
             return True
-        self._undo.append(_Step(edit, inverse, self._state, new_state))
+        self._undo.append(_Step(edit, inverse, self._state, new_state, slot))
         self._state = new_state
         self._merge_barrier = False
         return False
@@ -168,7 +280,7 @@ class Session:
         if not self._undo:
             return None
         step = self._undo.pop()
-        self._apply(step.inverse)
+        self._apply(step.inverse, step.slot)
         self._redo.append(step)
         self._state = step.before
         self._merge_barrier = True
@@ -179,7 +291,7 @@ class Session:
         if not self._redo:
             return None
         step = self._redo.pop()
-        step.inverse = self._apply(step.edit)
+        step.inverse = self._apply(step.edit, step.slot)
         self._undo.append(step)
         self._state = step.after
         self._merge_barrier = True
@@ -218,12 +330,26 @@ class Session:
         dirty: bool = False,
         imported_from: str | Path | None = None,
         read_only: str = "",
+        workbook: Workbook | None = None,
     ) -> None:
-        """Start over on another review (New, Open, recovery). Clears the history."""
+        """Start over on another review (New, Open, recovery). Clears the history.
+
+        With ``workbook``, every outcome of it is held and the first is current
+        (``review`` and ``settings`` are then ignored).
+        """
         change = ed.Change("reset")
         self._emit(self._about, change)
-        self._review = review
-        self._settings = settings or AnalysisSettings()
+        if workbook is None:
+            workbook = Workbook((Outcome(review, (settings or AnalysisSettings()).to_dict()),))
+            given = [settings or AnalysisSettings()]
+        else:
+            given = [AnalysisSettings.from_dict(o.settings) for o in workbook.outcomes]
+        self._slots = [
+            wbe.Slot(next(_slot_ids), o.review, s) for o, s in zip(workbook.outcomes, given)
+        ]
+        self._at = 0
+        self._review = self._slots[0].review
+        self._settings = self._slots[0].settings
         self._path = Path(path) if path else None
         self.imported_from = Path(imported_from) if imported_from else None
         self.read_only = read_only
@@ -261,9 +387,14 @@ class Session:
         and ``project_file.ChangedOutside`` unless ``accept_changed``.
         """
         from .cli_common import load_review_file
-        from .model.project_file import SUFFIX
+        from .model.project_file import SUFFIX, load_workbook
 
         p = Path(path)
+        if p.suffix.lower() in (SUFFIX, ".json") and p.is_file() and measure is None:
+            # a project: every outcome of it
+            book = load_workbook(p, accept_changed=accept_changed)
+            self.reset(book.outcomes[0].review, None, p, read_only=read_only, workbook=book)
+            return
         review, saved = load_review_file(p, measure, decimal=decimal, accept_changed=accept_changed)
         if decimal and review.intake.decimal_how == "option":
             # in the window the user was asked: the account says so
@@ -276,7 +407,7 @@ class Session:
 
     def save(self, path: str | Path | None = None) -> Path:
         """Save atomically to ``path`` (or the current path); the session becomes clean."""
-        from .model.project_file import SUFFIX, save
+        from .model.project_file import SUFFIX, save_workbook
 
         if not path and self.read_only:
             raise ValueError(f"This review is {self.read_only}.")
@@ -285,7 +416,7 @@ class Session:
             raise ValueError("No file name yet: choose where to save the review.")
         if not target.suffix:
             target = target.with_suffix(SUFFIX)
-        save(self._review, target, self._settings.to_dict())
+        save_workbook(self.workbook, target)
         self._path = target
         self.imported_from = None
         self.read_only = ""

@@ -17,6 +17,7 @@ import re
 from dataclasses import dataclass
 
 from ..stats.results import NotComputable
+from ..words.numbers import plural
 
 MIN_K = 10
 
@@ -89,7 +90,8 @@ def compare_claim(result) -> ClaimComparison | None:
         applicable = "No test was reported."
     elif k < MIN_K:
         applicable = (
-            f"Not applicable: {k} studies are fewer than the {MIN_K} an asymmetry test needs "
+            f"Not applicable: {plural(k, 'study', 'studies')} {'is' if k == 1 else 'are'} fewer "
+            f"than the {MIN_K} an asymmetry test needs "
             "to be meaningful (Sterne et al. 2011)."
         )
     elif key is None:
@@ -146,7 +148,8 @@ def compare_claim(result) -> ClaimComparison | None:
     if concl == "none found":
         if k < MIN_K:
             verdict = (
-                f"The review's 'no evidence of bias' rests on a test run on {k} studies, "
+                f"The review's 'no evidence of bias' rests on a test run on "
+                f"{plural(k, 'study', 'studies')}, "
                 "too few for it to mean much."
             )
         elif power_value is not None and power_value < 0.5:

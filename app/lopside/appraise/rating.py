@@ -48,6 +48,7 @@ by tests/contradictions.py):
 from __future__ import annotations
 
 from ..model.review import CAUSE_TITLES, DOMAIN_RATINGS
+from ..words.numbers import plural
 from .model import CauseReading, DomainRating, Evidence, SmallStudyReading
 from .reading import NON_SIGNIFICANT
 
@@ -84,7 +85,9 @@ def _why_not_assessable(result, ss: SmallStudyReading) -> list[str]:
     k = result.k
     out = []
     if k < MIN_STUDIES:
-        out.append(f"only {k} studies (at least {MIN_STUDIES} advised; Sterne et al. 2011)")
+        out.append(
+            f"only {plural(k, 'study', 'studies')} (at least {MIN_STUDIES} advised; Sterne et al. 2011)"
+        )
     if not ss.test.computed:
         out.append("no recommended test could be run")
     counts = dict(ss.contour.observed_regions)

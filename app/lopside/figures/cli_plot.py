@@ -43,14 +43,12 @@ def add_plot_arguments(parser: argparse.ArgumentParser) -> None:
     * ``--show-filled`` [show_filled] — add trim-and-fill studies and adjusted estimate.
     * ``--labels [NAMES]`` [labels] — name studies on the funnel: all, or a comma list.
     """
+    from ..cli_options import add_force_argument
+
     parser.add_argument(
         "--kind", choices=KINDS, default="funnel", help="which figure (default funnel)"
     )
-    parser.add_argument(
-        "--force",
-        action="store_true",
-        help="replace an existing file at OUT of another kind (never the input)",
-    )
+    add_force_argument(parser)
     parser.add_argument(
         "-o", "--output", required=True, metavar="OUT", help="output file: .png, .svg or .pdf"
     )

@@ -1,6 +1,22 @@
 """The Lopside project file: a versioned JSON document of our own design.
 
-Layout (version 1)::
+Layout (version 2, a workbook of outcomes)::
+
+    {
+      "lopside_project": 2,
+      "saved_by": "Lopside 0.1.0",
+      "checksum": "sha256:...",
+      "outcomes": [ {details, studies, intake, notes, settings}, ... ]
+    }
+
+Each entry of ``outcomes`` is exactly a version-1 document without its two version keys
+(below), so a version-1 file is read as a workbook of one outcome and written back as
+version 2 on its next save (the migration is that one step; nothing in it is renamed or
+dropped). :func:`load` and :func:`loads` return one outcome as (review, settings) and
+refuse a workbook of several with :class:`SeveralOutcomes`, which names them;
+:func:`load_workbook` returns the whole :class:`~lopside.model.workbook.Workbook`.
+
+Layout of one outcome (version 1, files written before workbooks)::
 
     {
       "lopside_project": 1,
@@ -71,9 +87,12 @@ from .review import (
     StudyRow,
 )
 from .text import text_problem
+from .workbook import MAX_OUTCOMES, Outcome, Workbook
 
 FORMAT_KEY = "lopside_project"
-FORMAT_VERSION = 1
+FORMAT_VERSION = 2
+#: the versions this Lopside reads (1: one outcome, before workbooks)
+READABLE_VERSIONS = (1, 2)
 SUFFIX = ".lopside"
 #: limits that keep a hostile file from exhausting memory
 MAX_BYTES = 50 * 1024 * 1024
@@ -116,14 +135,38 @@ class ProjectFileError(ValueError):
 class ChangedOutside(ProjectFileError):
     """The file's content does not match its checksum: it was changed outside Lopside.
 
-    ``review`` and ``settings`` hold what the file says now (it passed every other check),
-    for a caller that asks the user and opens it anyway.
+    ``workbook`` holds what the file says now (it passed every other check), for a caller
+    that asks the user and opens it anyway; ``review`` and ``settings`` are its first
+    outcome.
     """
 
-    def __init__(self, message: str, review: Review, settings: dict[str, Any]) -> None:
+    def __init__(
+        self,
+        message: str,
+        review: Review,
+        settings: dict[str, Any],
+        workbook: Workbook | None = None,
+    ) -> None:
         super().__init__(message)
         self.review = review
         self.settings = settings
+        self.workbook = workbook or Workbook.of(review, settings)
+
+
+class SeveralOutcomes(ProjectFileError):
+    """A workbook of several outcomes where one outcome was asked for.
+
+    The message names the outcomes; ``workbook`` holds them all (nothing is picked for the
+    caller: a silent first outcome would appraise the wrong one).
+    """
+
+    def __init__(self, workbook: Workbook) -> None:
+        names = ", ".join(f"'{n}'" for n in workbook.names)
+        super().__init__(
+            f"this project holds {len(workbook)} outcomes ({names}); choose one with "
+            "--outcome NAME, or use 'lopside panel' for all of them."
+        )
+        self.workbook = workbook
 
 
 def canonical_bytes(doc: dict[str, Any]) -> bytes:
@@ -142,13 +185,18 @@ def checksum_of(doc: dict[str, Any]) -> str:
 # To JSON
 
 
-def review_to_dict(review: Review, settings: dict[str, Any] | None = None) -> dict[str, Any]:
+def _saved_by() -> str:
     from .. import __version__
 
+    return f"Lopside {__version__}"
+
+
+def review_to_dict(review: Review, settings: dict[str, Any] | None = None) -> dict[str, Any]:
+    """One outcome as a version-1 document (the unit a version-2 workbook lists)."""
     d = review.details
     doc: dict[str, Any] = {
-        FORMAT_KEY: FORMAT_VERSION,
-        "saved_by": f"Lopside {__version__}",
+        FORMAT_KEY: 1,
+        "saved_by": _saved_by(),
         "details": {
             "title": d.title,
             "question": d.question,
@@ -195,7 +243,32 @@ def review_to_dict(review: Review, settings: dict[str, Any] | None = None) -> di
     return doc
 
 
+def _outcome_entry(outcome: Outcome) -> dict[str, Any]:
+    doc = review_to_dict(outcome.review, outcome.settings)
+    del doc[FORMAT_KEY], doc["saved_by"]
+    return doc
+
+
+def workbook_to_dict(workbook: Workbook) -> dict[str, Any]:
+    """The workbook as a version-2 document (without its checksum)."""
+    return {
+        FORMAT_KEY: FORMAT_VERSION,
+        "saved_by": _saved_by(),
+        "outcomes": [_outcome_entry(o) for o in workbook.outcomes],
+    }
+
+
+def _entries(doc: dict[str, Any]) -> list[dict[str, Any]]:
+    """The outcome entries of a document of either version."""
+    return doc["outcomes"] if "outcomes" in doc else [doc]
+
+
 def _keep_non_finite_as_text(doc: dict[str, Any]) -> None:
+    for entry in _entries(doc):
+        _keep_entry_finite(entry)
+
+
+def _keep_entry_finite(doc: dict[str, Any]) -> None:
     """Move numbers that are not finite into ``unread`` (in place).
 
     JSON has no infinity, and the loader refuses one, so a row holding ``inf`` (from any
@@ -216,25 +289,29 @@ def _keep_non_finite_as_text(doc: dict[str, Any]) -> None:
         study["unread"] = unread
 
 
-def _render(doc: dict[str, Any]) -> str:
-    """JSON text: indented, with one study per line.
+def _render(doc: dict[str, Any], pad: str = "") -> str:
+    """JSON text: indented, with one study per line (outcomes one below the other).
 
     One compact line per study keeps the file readable and diffable while letting the
     fast C encoder do the bulk of the work (an indented dump of 20,000 studies goes
     through the pure-Python encoder and took seconds).
     """
     parts = []
+    inner = pad + "  "
     for key, value in doc.items():
         name = json.dumps(key, ensure_ascii=False)
         if key == "studies" and value:
             rows = ",\n".join(
-                "    " + json.dumps(s, ensure_ascii=False, allow_nan=False) for s in value
+                inner + "  " + json.dumps(s, ensure_ascii=False, allow_nan=False) for s in value
             )
-            parts.append(f"  {name}: [\n{rows}\n  ]")
+            parts.append(f"{inner}{name}: [\n{rows}\n{inner}]")
+        elif key == "outcomes" and value:
+            items = ",\n".join(inner + "  " + _render(o, inner + "  ") for o in value)
+            parts.append(f"{inner}{name}: [\n{items}\n{inner}]")
         else:
             body = json.dumps(value, indent=2, ensure_ascii=False, allow_nan=False)
-            parts.append(f"  {name}: " + body.replace("\n", "\n  "))
-    return "{\n" + ",\n".join(parts) + "\n}\n"
+            parts.append(f"{inner}{name}: " + body.replace("\n", "\n" + inner))
+    return "{\n" + ",\n".join(parts) + "\n" + pad + "}" + ("" if pad else "\n")
 
 
 def _with_checksum(doc: dict[str, Any]) -> dict[str, Any]:
@@ -250,13 +327,23 @@ def _with_checksum(doc: dict[str, Any]) -> dict[str, Any]:
 
 
 def dumps(review: Review, settings: dict[str, Any] | None = None) -> str:
+    """A one-outcome project as JSON text (see :func:`dumps_workbook`)."""
+    return dumps_workbook(Workbook.of(review, settings))
+
+
+def dumps_workbook(workbook: Workbook) -> str:
     """The project as JSON text (numbers that are not finite kept as unread text)."""
-    doc = review_to_dict(review, settings)
+    doc = workbook_to_dict(workbook)
     _keep_non_finite_as_text(doc)
     return _render(_with_checksum(doc))
 
 
 def save(review: Review, path: str | os.PathLike, settings: dict[str, Any] | None = None) -> None:
+    """Save a one-outcome project (see :func:`save_workbook`)."""
+    save_workbook(Workbook.of(review, settings), path)
+
+
+def save_workbook(workbook: Workbook, path: str | os.PathLike) -> None:
     """Write the project atomically (temp file in the same folder, fsync, replace).
 
     Raises
@@ -268,10 +355,10 @@ def save(review: Review, path: str | os.PathLike, settings: dict[str, Any] | Non
     OSError
         When the folder cannot be written; the file on disk is left as it was.
     """
-    doc = review_to_dict(review, settings)
+    doc = workbook_to_dict(workbook)
     _keep_non_finite_as_text(doc)
     try:
-        review_from_dict(doc)
+        workbook_from_dict(doc)
     except ProjectFileError as exc:
         raise ProjectFileError(
             f"Not saved, because the file could not be opened again: {exc}"
@@ -444,7 +531,22 @@ def _study(obj: Any, i: int) -> StudyRow:
 
 
 def review_from_dict(doc: Any) -> tuple[Review, dict[str, Any]]:
-    """Validate a parsed document and build the review; returns (review, settings)."""
+    """Validate a parsed document of one outcome; returns (review, settings).
+
+    Raises :class:`SeveralOutcomes` for a workbook of several outcomes.
+    """
+    return _single(workbook_from_dict(doc))
+
+
+def _single(workbook: Workbook) -> tuple[Review, dict[str, Any]]:
+    if len(workbook) != 1:
+        raise SeveralOutcomes(workbook)
+    only = workbook.outcomes[0]
+    return only.review, only.settings
+
+
+def workbook_from_dict(doc: Any) -> Workbook:
+    """Validate a parsed document (version 1 or 2) and build the workbook."""
     if not isinstance(doc, dict):
         raise ProjectFileError("This is not a Lopside project (the top level is not an object).")
     if FORMAT_KEY not in doc:
@@ -453,15 +555,49 @@ def review_from_dict(doc: Any) -> tuple[Review, dict[str, Any]]:
         )
     version = doc[FORMAT_KEY]
     # bool is an int in Python (True == 1): only a plain whole number is a version
-    if isinstance(version, bool) or not isinstance(version, int) or version != FORMAT_VERSION:
+    if (
+        isinstance(version, bool)
+        or not isinstance(version, int)
+        or version not in READABLE_VERSIONS
+    ):
         raise ProjectFileError(
             f"This project was written in format version {version!r}; this Lopside reads "
-            f"version {FORMAT_VERSION}. Open it with the Lopside version that wrote it."
+            f"versions {READABLE_VERSIONS[0]} to {FORMAT_VERSION}. Open it with the Lopside "
+            "version that wrote it."
         )
     if _depth(doc, MAX_DEPTH) > MAX_DEPTH:
         raise ProjectFileError(
             "The project file is nested more deeply than a project can be."
         ) from None
+    if version == 1:
+        return Workbook((_outcome_from_dict(doc),))
+    entries = doc.get("outcomes")
+    if not isinstance(entries, list) or not entries:
+        raise ProjectFileError("outcomes: expected a list of one or more outcomes.")
+    if len(entries) > MAX_OUTCOMES:
+        raise ProjectFileError(
+            f"outcomes: {len(entries)} outcomes is more than Lopside handles ({MAX_OUTCOMES})."
+        )
+    total = sum(len(e.get("studies") or ()) for e in entries if isinstance(e, dict))
+    if total > MAX_STUDIES * 5:
+        raise ProjectFileError(
+            f"outcomes: {total} studies in all is more than Lopside handles ({MAX_STUDIES * 5})."
+        )
+    outcomes = []
+    for i, entry in enumerate(entries):
+        if not isinstance(entry, dict):
+            raise ProjectFileError(f"outcome {i + 1}: expected an object.")
+        try:
+            outcomes.append(_outcome_from_dict(entry))
+        except ProjectFileError as exc:
+            if len(entries) == 1:
+                raise
+            raise ProjectFileError(f"outcome {i + 1}, {exc}") from None
+    return Workbook(tuple(outcomes))
+
+
+def _outcome_from_dict(doc: dict[str, Any]) -> Outcome:
+    """One outcome entry (a version-1 document's body), validated."""
     det = doc.get("details", {})
     if not isinstance(det, dict):
         raise ProjectFileError("details: expected an object.")
@@ -561,7 +697,7 @@ def review_from_dict(doc: Any) -> tuple[Review, dict[str, Any]]:
     )
     settings = _settings(doc.get("settings", {}) or {})
     intake = _intake_part(intake_from_dict, doc.get("intake"))
-    return Review(details=details, studies=rows, notes=notes, intake=intake), settings
+    return Outcome(Review(details=details, studies=rows, notes=notes, intake=intake), settings)
 
 
 def _intake_part(read, value):
@@ -572,11 +708,17 @@ def _intake_part(read, value):
 
 
 def loads(text: str, *, accept_changed: bool = False) -> tuple[Review, dict[str, Any]]:
-    """Parse and validate project text.
+    """Parse and validate the text of a one-outcome project.
 
-    Raises :class:`ChangedOutside` when the checksum does not match (unless
-    ``accept_changed``), after every other check passed.
+    Raises :class:`SeveralOutcomes` for a workbook of several outcomes, and
+    :class:`ChangedOutside` when the checksum does not match (unless ``accept_changed``),
+    after every other check passed.
     """
+    return _single(loads_workbook(text, accept_changed=accept_changed))
+
+
+def loads_workbook(text: str, *, accept_changed: bool = False) -> Workbook:
+    """Parse and validate project text of either version (see :func:`loads`)."""
     try:
         doc = json.loads(text)
     except json.JSONDecodeError as exc:
@@ -593,7 +735,7 @@ def loads(text: str, *, accept_changed: bool = False) -> tuple[Review, dict[str,
             "The project file is damaged or incomplete (a number in it has thousands of "
             "digits). Open the last good copy or the autosave."
         ) from None
-    review, settings = review_from_dict(doc)
+    workbook = workbook_from_dict(doc)
     if isinstance(doc, dict) and CHECKSUM_KEY in doc and not accept_changed:
         stored = doc[CHECKSUM_KEY]
         if not isinstance(stored, str) or stored != checksum_of(doc):
@@ -602,18 +744,31 @@ def loads(text: str, *, accept_changed: bool = False) -> tuple[Review, dict[str,
                 "no longer matches its checksum). Check it before relying on it; to use it "
                 "anyway, open it in the window (it stays read-only until saved) or add "
                 "--accept-changed.",
-                review,
-                settings,
+                workbook.outcomes[0].review,
+                workbook.outcomes[0].settings,
+                workbook,
             )
-    return review, settings
+    return workbook
 
 
 def load(path: str | os.PathLike, *, accept_changed: bool = False) -> tuple[Review, dict[str, Any]]:
-    """Read and validate a project file; errors name the file and the place.
+    """Read and validate a one-outcome project file; errors name the file and the place.
 
-    Raises :class:`ChangedOutside` (a ProjectFileError) when the content does not match
-    its checksum, unless ``accept_changed``.
+    Raises :class:`SeveralOutcomes` for a workbook of several outcomes (see
+    :func:`load_workbook`), and :class:`ChangedOutside` (a ProjectFileError) when the
+    content does not match its checksum, unless ``accept_changed``.
     """
+    p = Path(path)
+    try:
+        return _single(load_workbook(p, accept_changed=accept_changed))
+    except SeveralOutcomes as exc:
+        err = SeveralOutcomes(exc.workbook)
+        err.args = (f"{p.name}: {exc}",)
+        raise err from None
+
+
+def load_workbook(path: str | os.PathLike, *, accept_changed: bool = False) -> Workbook:
+    """Read and validate a project file of either version; errors name the file."""
     p = Path(path)
     try:
         info = p.stat()
@@ -636,8 +791,8 @@ def load(path: str | os.PathLike, *, accept_changed: bool = False) -> tuple[Revi
             f"{p.name}: not a Lopside project (byte {exc.start} is not UTF-8 text)."
         ) from None
     try:
-        return loads(text, accept_changed=accept_changed)
+        return loads_workbook(text, accept_changed=accept_changed)
     except ChangedOutside as exc:
-        raise ChangedOutside(f"{p.name}: {exc}", exc.review, exc.settings) from None
+        raise ChangedOutside(f"{p.name}: {exc}", exc.review, exc.settings, exc.workbook) from None
     except ProjectFileError as exc:
         raise ProjectFileError(f"{p.name}: {exc}") from None

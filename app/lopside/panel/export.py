@@ -187,7 +187,7 @@ def _docx(summary: PanelSummary, tmp: Path, date: str) -> None:
     doc.save(tmp)
 
 
-def _thumbnail(result) -> bytes | None:
+def thumbnail_png(result) -> bytes | None:
     """A small funnel (PNG) for an outcome's row; None when it cannot be drawn."""
     try:
         from ..figures.adaptors import funnel_input_from_result
@@ -229,7 +229,7 @@ def _pdf(summary: PanelSummary, tmp: Path, date: str) -> None:
     data = [head]
     for o in summary.outcomes:
         cells = [Paragraph(layout.markup(t), st["cell"]) for t in printed_cells(o.row)]
-        png = _thumbnail(o.result) if o.result is not None and o.result.k > 0 else None
+        png = thumbnail_png(o.result) if o.result is not None and o.result.k > 0 else None
         cells.append(Image(io.BytesIO(png), width=2.5 * cm, height=2.1 * cm) if png else "")
         data.append(cells)
     widths = [3.2, 1.8, 3.2, 2.8, 2.4, 1.4, 2.0, 2.6, 4.6, 2.7]

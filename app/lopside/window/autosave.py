@@ -230,7 +230,7 @@ class Autosaver(QObject):
             return True
         try:
             # the same checked, atomic save as File > Save, so an autosave always reopens
-            project_file.save(s.review, self.file, s.settings.to_dict())
+            project_file.save_workbook(s.workbook, self.file)  # every outcome
             meta = {
                 "original": str(s.path or ""),
                 "name": s.display_name(),

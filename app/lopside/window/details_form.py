@@ -116,7 +116,7 @@ class DetailsForm(QScrollArea):
         self.appraiser = self._line("Appraiser", "Your name (printed on the sheet)")
         form.addRow("&Title:", self.title)
         form.addRow("&Question:", self.question)
-        form.addRow("&Outcome:", self.outcome)
+        form.addRow("Outcome:", self.outcome)
         form.addRow("A&ppraiser:", self.appraiser)
         return about
 

@@ -21,40 +21,52 @@ Design invariants
 
 from __future__ import annotations
 
-import os
 from collections.abc import Callable
-from pathlib import Path
 
-from PySide6.QtCore import QByteArray, QPoint, Qt, QTimer, QUrl, Signal
-from PySide6.QtGui import QAction, QDesktopServices, QGuiApplication, QImage, QKeySequence
+from PySide6.QtCore import Qt, QTimer, QUrl, Signal
+from PySide6.QtGui import QDesktopServices
 from PySide6.QtWidgets import (
     QApplication,
-    QFileDialog,
-    QInputDialog,
     QLabel,
     QMainWindow,
     QMessageBox,
     QSplitter,
     QTabWidget,
+    QVBoxLayout,
+    QWidget,
 )
 
 from .. import edits as ed
-from ..fileio import OutputLocked, OutputRefused, check_output
-from ..model.project_file import SUFFIX, ChangedOutside
-from ..model.review import MEASURE_NAMES, MEASURES
 from ..session import Session
 from . import guards
 from . import messages as M
 from . import prefs as P
 from .adjust_panel import AdjustPanel
 from .adjust_panel import adjust_sections as _adjust_sections  # noqa: F401 - tests read it
-from .autosave import Autosaver, Recoverable, as_choice, find_recoverable
+from .autosave import Autosaver
 from .causes import CausesPanel
 from .details_form import DetailsForm
-from .errors import details, plain, show_error
-from .paste_dialog import PasteDialog
+from .errors import details, plain
+from .exports import ExportActions
+from .file_actions import FileActions
+from .menus import MenuActions
+from .outcomes import OutcomeBar
+from .panel_view import PanelSummaryPanel
 from .plots import CompanionPanel, ForestPanel, FunnelPanel
 from .power_panel import PowerPanel
+from .questions import (
+    _ask_decimal,
+    _ask_locked,
+    _ask_measure,
+    _ask_open_changed,
+    _ask_open_path,
+    _ask_open_sheet,
+    _ask_recover,
+    _ask_save_changes,
+    _ask_save_failed,
+    _ask_save_path,
+    _headless,
+)
 from .screen_fit import keep_on_screen, place_window, screen_signature
 from .sections import SectionsPanel
 from .study_panel import StudyPanel
@@ -62,12 +74,6 @@ from .undo import EditStack
 from .workers import AnalysisWorker, SheetWorker
 
 DEBOUNCE_MS = 50
-OPEN_FILTER = (
-    "Reviews and study tables (*.lopside *.json *.csv *.xlsx *.txt *.pdf);;"
-    "Lopside projects (*.lopside);;Study tables (*.csv *.xlsx);;Pasted rows (*.txt);;"
-    "A review's PDF (*.pdf)"
-)
-ACCEPTED_SUFFIXES = (SUFFIX, ".json", ".csv", ".xlsx", ".txt", ".pdf")
 
 
 # ------------------------------------------------------------------ summary section choices
@@ -106,115 +112,7 @@ def _tests_sections(result):
 # ------------------------------------------------------------------ default questions
 
 
-def _ask_recover(window, items: list[Recoverable]):
-    from .recovery import ask_recover
-
-    return ask_recover(window, items)
-
-
-def _ask_save_failed(window, name: str, error: str) -> bool:
-    """True when the user wants to save elsewhere."""
-    box = QMessageBox(QMessageBox.Warning, M.SAVE_FAILED_TITLE, "", parent=window)
-    box.setText(M.SAVE_FAILED_TEXT.format(name=name, error=error))
-    elsewhere = box.addButton(M.SAVE_ELSEWHERE, QMessageBox.AcceptRole)
-    box.addButton(QMessageBox.Cancel)
-    box.setDefaultButton(elsewhere)
-    box.exec()
-    return box.clickedButton() is elsewhere
-
-
-def _ask_open_changed(window, name: str) -> bool:
-    answer = QMessageBox.warning(
-        window,
-        M.CHANGED_OUTSIDE_TITLE,
-        M.CHANGED_OUTSIDE_TEXT.format(name=name),
-        QMessageBox.Open | QMessageBox.Cancel,
-        QMessageBox.Cancel,
-    )
-    return answer == QMessageBox.Open
-
-
-def _ask_locked(window, error: str, suggestion: str) -> bool:
-    answer = QMessageBox.question(
-        window,
-        M.EXPORT_LOCKED_TITLE,
-        M.EXPORT_LOCKED_TEXT.format(error=error, suggestion=suggestion),
-        QMessageBox.Yes | QMessageBox.No,
-        QMessageBox.Yes,
-    )
-    return answer == QMessageBox.Yes
-
-
-def _ask_save_changes(window, name: str) -> str:
-    answer = QMessageBox.question(
-        window,
-        M.UNSAVED_TITLE,
-        M.UNSAVED_TEXT.format(name=name),
-        QMessageBox.Save | QMessageBox.Discard | QMessageBox.Cancel,
-        QMessageBox.Save,
-    )
-    return {QMessageBox.Save: "save", QMessageBox.Discard: "discard"}.get(answer, "cancel")
-
-
-def _ask_open_path(window, folder: str) -> str:
-    path, _ = QFileDialog.getOpenFileName(window, "Open a review", folder, OPEN_FILTER)
-    return path
-
-
-def _ask_save_path(window, folder: str, title: str, filt: str) -> str:
-    path, _ = QFileDialog.getSaveFileName(window, title, folder, filt)
-    return path
-
-
-def _ask_measure(window, name: str) -> str | None:
-    items = [f"{m} \u2013 {MEASURE_NAMES[m]}" for m in MEASURES]
-    text, ok = QInputDialog.getItem(
-        window, "Which measure?", M.ASK_MEASURE.format(name=name), items, 0, False
-    )
-    return text.split(" ", 1)[0] if ok else None
-
-
-def _ask_decimal(window, name: str, examples) -> str | None:
-    """Ask once how numbers the file does not settle are read; two readings side by side."""
-    from ..cli_common import two_readings
-
-    rows = []
-    for place, text in examples[:4]:
-        as_point, as_comma = two_readings(text)
-        rows.append(
-            f"<tr><td>{place}</td><td>{text}</td><td>{as_point}</td><td>{as_comma}</td></tr>"
-        )
-    box = QMessageBox(window)
-    box.setWindowTitle("Decimal point or decimal comma?")
-    box.setTextFormat(Qt.RichText)
-    box.setText(
-        M.ASK_DECIMAL.format(name=name)
-        + "<table cellpadding='4'><tr><th>Where</th><th>Printed</th><th>Decimal point</th>"
-        "<th>Decimal comma</th></tr>" + "".join(rows) + "</table>"
-    )
-    point = box.addButton("Decimal &point", QMessageBox.AcceptRole)
-    comma = box.addButton("Decimal &comma", QMessageBox.AcceptRole)
-    box.addButton(QMessageBox.Cancel)
-    box.exec()
-    if box.clickedButton() is point:
-        return "point"
-    if box.clickedButton() is comma:
-        return "comma"
-    return None
-
-
-def _ask_open_sheet(window, path: str) -> bool:
-    answer = QMessageBox.question(
-        window,
-        "Sheet written",
-        M.SHEET_DONE.format(path=path) + "\n\nOpen it now?",
-        QMessageBox.Yes | QMessageBox.No,
-        QMessageBox.Yes,
-    )
-    return answer == QMessageBox.Yes
-
-
-class MainWindow(QMainWindow):
+class MainWindow(MenuActions, FileActions, ExportActions, QMainWindow):
     """The window. ``ask_*`` keyword arguments replace the modal questions (tests)."""
 
     analysed = Signal(object)
@@ -277,7 +175,26 @@ class MainWindow(QMainWindow):
         self.last_message = ""
         self.last_error: tuple[str, str, str] | None = None
         self._closing_ok = False
+        self._build_layout()
+        self._connect()
+        self._build_menus()
+        self._restore_prefs()
+        self.autosaver = Autosaver(self.session, parent=self) if autosave else None
+        if self.autosaver is not None:
+            self.autosaver.failed.connect(
+                lambda msg: self.say(M.AUTOSAVE_FAILED.format(error=msg), 0)
+            )
+        self._update_title()
+        self._set_tab_order()
+        # no change without intent: the wheel moves only a focused combo/spin box/slider
+        guards.install_wheel_guard()
+        guards.guard_tree(self)
+        from .focus import FocusTracker
 
+        self.focus_tracker = FocusTracker(self)
+
+    def _build_layout(self) -> None:
+        """The outcome chooser, the study table and details (left), the views (right)."""
         self.setWindowTitle("Lopside")
         self.setAcceptDrops(True)
         self.stack = EditStack(self.session, self)
@@ -291,6 +208,14 @@ class MainWindow(QMainWindow):
         self.details = DetailsForm(self.session, self.stack.push_edit)
         self.left.addTab(self.studies, "&Studies")
         self.left.addTab(self.details, "Review &details")
+        # above them: which outcome of the review they show
+        self.outcomes = OutcomeBar(self.session, self.stack.push_edit)
+        left_box = QWidget()
+        left_lay = QVBoxLayout(left_box)
+        left_lay.setContentsMargins(0, 0, 0, 0)
+        left_lay.setSpacing(2)
+        left_lay.addWidget(self.outcomes)
+        left_lay.addWidget(self.left, 1)
 
         # right: live views
         self.views = QTabWidget()
@@ -304,6 +229,7 @@ class MainWindow(QMainWindow):
         self.adjust = AdjustPanel(self.session)
         self.causes = CausesPanel(self.session, self.stack.push_edit)
         self.power = PowerPanel(self.session)
+        self.panel_view = PanelSummaryPanel(self.session)
         self.view_panels = (
             self.funnel,
             self.forest,
@@ -313,6 +239,7 @@ class MainWindow(QMainWindow):
             self.adjust,
             self.causes,
             self.power,
+            self.panel_view,
         )
         for panel, title in zip(
             self.view_panels,
@@ -325,13 +252,14 @@ class MainWindow(QMainWindow):
                 "Adjust",
                 "Causes",
                 "Power",
+                "Panel",
             ),
         ):
             self.views.addTab(panel, title)
         self._stale: set = set(self.view_panels)
 
         self.split = QSplitter(Qt.Horizontal)
-        self.split.addWidget(self.left)
+        self.split.addWidget(left_box)
         self.split.addWidget(self.views)
         self.split.setStretchFactor(0, 5)
         self.split.setStretchFactor(1, 6)
@@ -340,7 +268,8 @@ class MainWindow(QMainWindow):
         self.status_label = QLabel("")
         self.statusBar().addPermanentWidget(self.status_label)
 
-        # updates
+    def _connect(self) -> None:
+        """Updates after edits (debounced), and what each part tells the others."""
         self._timer = QTimer(self)
         self._timer.setSingleShot(True)
         self._timer.setInterval(DEBOUNCE_MS)
@@ -360,105 +289,14 @@ class MainWindow(QMainWindow):
         self.studies.mode_changed.connect(lambda m: self.prefs.set(P.ENTRY_MODE, m))
         self.details.status.connect(self.say)
         self.power.power_done.connect(lambda _p: self.update_views())
-
-        self._build_menus()
-        self._restore_prefs()
-        self.autosaver = Autosaver(self.session, parent=self) if autosave else None
-        if self.autosaver is not None:
-            self.autosaver.failed.connect(
-                lambda msg: self.say(M.AUTOSAVE_FAILED.format(error=msg), 0)
-            )
-        self._update_title()
-        self._set_tab_order()
-        # no change without intent: the wheel moves only a focused combo/spin box/slider
-        guards.install_wheel_guard()
-        guards.guard_tree(self)
-        from .focus import FocusTracker
-
-        self.focus_tracker = FocusTracker(self)
-
-    # ------------------------------------------------------------------ menus
-
-    def _action(self, text: str, slot, shortcut=None, tip: str = "") -> QAction:
-        a = QAction(text, self)
-        if shortcut is not None:
-            a.setShortcut(QKeySequence(shortcut))
-        if tip:
-            a.setStatusTip(tip)
-            a.setToolTip(tip)
-        a.triggered.connect(lambda _checked=False: slot())
-        return a
-
-    def _build_menus(self) -> None:
-        mb = self.menuBar()
-        f = mb.addMenu("&File")
-        self.act_new = self._action("&New review", self.new_review, QKeySequence.New)
-        self.act_open = self._action(
-            "&Open\u2026",
-            self.open_dialog,
-            QKeySequence.Open,
-            "Open a project, CSV/XLSX study table or pasted .txt",
+        self.outcomes.status.connect(self.say)
+        self.outcomes.add_from_file_requested.connect(lambda: self.add_outcomes_from_file())
+        self.panel_view.open_outcome.connect(self.open_outcome)
+        self.panel_view.export_requested.connect(
+            lambda what: self.export_panel() if what == "panel" else self.export_slide()
         )
-        f.addAction(self.act_new)
-        f.addAction(self.act_open)
-        self.samples_menu = f.addMenu("Open a s&ample review (invented)")
-        self.samples_menu.aboutToShow.connect(self._fill_samples)
-        self.recent_menu = f.addMenu("Open &recent")
-        self.recent_menu.aboutToShow.connect(self._fill_recent)
-        f.addSeparator()
-        self.act_save = self._action("&Save", self.save, QKeySequence.Save)
-        self.act_save_as = self._action("Sa&ve as\u2026", self.save_as, QKeySequence.SaveAs)
-        f.addAction(self.act_save)
-        f.addAction(self.act_save_as)
-        f.addSeparator()
-        self.act_sheet = self._action(
-            "&Export appraisal sheet (PDF)\u2026", self.export_sheet, "Ctrl+Shift+E"
-        )
-        self.act_figure = self._action(
-            "Export the &figure shown\u2026", self.export_figure, "Ctrl+Shift+F"
-        )
-        self.act_copy_funnel = self._action(
-            "&Copy the funnel plot as an image", self.copy_funnel, "Ctrl+Shift+C"
-        )
-        self.act_print = self._action(
-            "&Print the funnel plot\u2026", self.print_funnel, QKeySequence.Print
-        )
-        for a in (self.act_sheet, self.act_figure, self.act_copy_funnel, self.act_print):
-            f.addAction(a)
-        f.addSeparator()
-        f.addAction(self._action("&Quit", self.close, QKeySequence.Quit))
 
-        e = mb.addMenu("&Edit")
-        self.act_undo = self.stack.createUndoAction(self, "&Undo")
-        self.act_undo.setShortcut(QKeySequence.Undo)
-        self.act_redo = self.stack.createRedoAction(self, "&Redo")
-        self.act_redo.setShortcut(QKeySequence.Redo)
-        e.addAction(self.act_undo)
-        e.addAction(self.act_redo)
-        e.addSeparator()
-        s = self.studies
-        e.addAction(
-            self._action("&Paste rows from a paper\u2026", self.open_paste_dialog, "Ctrl+Shift+V")
-        )
-        e.addAction(self._action("&Add a row", s.add_row, "Ctrl+Shift+N"))
-        e.addAction(self._action("Dupli&cate rows", s.duplicate_rows, "Ctrl+D"))
-        e.addAction(self._action("&Delete rows", s.delete_rows, "Ctrl+Shift+Del"))
-        e.addAction(self._action("Mo&ve row up", lambda: s.move_current(-1), "Ctrl+Shift+Up"))
-        e.addAction(self._action("Move row do&wn", lambda: s.move_current(1), "Ctrl+Shift+Down"))
-        e.addAction(self._action("&Leave out / bring back", s.toggle_exclude, "Ctrl+E"))
-
-        v = mb.addMenu("&View")
-        v.addAction(self._action("The &study table", lambda: self._show_left(0), "Ctrl+Shift+T"))
-        v.addAction(self._action("The review &details", lambda: self._show_left(1), "Ctrl+Shift+R"))
-        v.addSeparator()
-        for i in range(self.views.count()):
-            v.addAction(
-                self._action(self.views.tabText(i), lambda i=i: self._show_view(i), f"Ctrl+{i + 1}")
-            )
-
-        h = mb.addMenu("&Help")
-        h.addAction(self._action("&Methods guide", self.show_guide, QKeySequence.HelpContents))
-        h.addAction(self._action("&About Lopside", self.show_about))
+    # ------------------------------------------------------------------ moving about
 
     def _show_left(self, i: int) -> None:
         self.left.setCurrentIndex(i)
@@ -476,29 +314,6 @@ class MainWindow(QMainWindow):
         order = [s.mode_box, s.measure_box, *s.buttons.values(), s.table, s.problems, self.views]
         for a, b in zip(order, order[1:]):
             self.setTabOrder(a, b)
-
-    def _fill_samples(self) -> None:
-        from ..paths import sample_reviews
-
-        self.samples_menu.clear()
-        try:
-            samples = sample_reviews()
-        except OSError:
-            samples = []
-        if not samples:
-            a = self.samples_menu.addAction("(no sample reviews installed)")
-            a.setEnabled(False)
-        for p in samples:
-            self.samples_menu.addAction(p.name, lambda p=p: self.open_sample(p))
-
-    def _fill_recent(self) -> None:
-        self.recent_menu.clear()
-        items = self.prefs.recent_files()
-        if not items:
-            a = self.recent_menu.addAction("(none yet)")
-            a.setEnabled(False)
-        for i, p in enumerate(items):
-            self.recent_menu.addAction(f"&{i + 1} {Path(p).name}", lambda p=p: self.open_path(p))
 
     # ------------------------------------------------------------------ prefs
 
@@ -559,81 +374,6 @@ class MainWindow(QMainWindow):
             self.studies.suggest_mode()
         self.update_views()
 
-    def offer_recovery(self, *, use_this_window: bool = True) -> bool:
-        """List every autosave left by windows that are gone; restore what the user picks.
-
-        The first restored review goes into this window (when ``use_this_window``), each
-        further one into a new window. Only what was restored or what the user chose to
-        discard is deleted; a recovery that fails keeps its autosave and says where.
-        Returns True when this window received a review.
-        """
-        own = (self.autosaver.stem,) if self.autosaver is not None else ()
-        items = find_recoverable(self.autosaver.folder if self.autosaver else None, own)
-        if not items:
-            return False
-        choice = as_choice(self.ask_recover(items), items)
-        here = False
-        for item in items:
-            if item in choice.discard:
-                item.discard()
-            elif item in choice.restore:
-                target = self if use_this_window and not here else self.spawn_window()
-                if target.recover(item):
-                    item.discard()  # the work now lives in the target's own autosave
-                    here = here or target is self
-                else:
-                    item.release()
-                    if target is not self:
-                        target._closing_ok = True
-                        target.close()
-            else:
-                item.release()  # decided later: offered again at the next start
-        return here
-
-    def spawn_window(self) -> MainWindow:
-        """A new window with the same questions (for a second restored review)."""
-        w = MainWindow(**self._window_kwargs)
-        w.resize(self.size())
-        w.move(self.pos() + QPoint(40 * (len(self.spawned) + 1), 40 * (len(self.spawned) + 1)))
-        w.show()
-        self.spawned.append(w)
-        return w
-
-    def recover(self, item: Recoverable) -> bool:
-        from ..model import project_file
-        from ..settings import AnalysisSettings
-
-        changed = ""
-        try:
-            try:
-                review, saved = project_file.load(item.review_file)
-            except project_file.ChangedOutside as exc:
-                # never silent: restored (it is all there is of that work), and said so
-                review, saved = exc.review, exc.settings
-                changed = " " + M.RECOVERED_CHANGED
-            settings = AnalysisSettings.from_dict(saved)
-        except (OSError, ValueError) as exc:
-            msg = M.RECOVER_FAILED.format(name=item.name, error=exc, path=item.review_file)
-            self.say(msg, 0)
-            self._warn(M.RECOVER_TITLE, msg)
-            return False
-        read_only = item.read_only
-        if item.original and _in_samples(os.path.dirname(item.original)):
-            read_only = read_only or M.READ_ONLY_SAMPLE
-        self.session.reset(review, settings, item.original or None, dirty=True, read_only=read_only)
-        self.stack.reset()
-        self.studies.suggest_mode()
-        self.say(M.RECOVERED.format(name=item.name) + changed, 0 if changed else 6000)
-        if self.autosaver is not None and not self.autosaver.save_now():
-            # keep the old autosave: our own could not take the work over
-            msg = M.RECOVER_FAILED.format(
-                name=item.name, error=self.autosaver.last_error, path=item.review_file
-            )
-            self.say(msg, 0)
-            return False
-        self.update_views()
-        return True
-
     def _warn(self, title: str, text: str) -> None:
         """A warning dialog after the current event (never in offscreen test runs)."""
         if _headless():
@@ -643,6 +383,9 @@ class MainWindow(QMainWindow):
     # ------------------------------------------------------------------ session events
 
     def _session_changed(self, change: ed.Change) -> None:
+        self._stale.add(self.panel_view)  # any outcome may have changed
+        if change.kind == "outcomes":
+            self._refresh_panel(self.views.currentWidget())
         if change.kind in ("details", "reset"):
             self.details.refresh()
             self.studies.refresh_measure()
@@ -873,462 +616,14 @@ class MainWindow(QMainWindow):
 
     # ------------------------------------------------------------------ paste
 
-    def open_paste_dialog(self, text: str | None = None) -> PasteDialog:
-        """Open the paste dialog (window-modal, not blocking) and return it."""
-        review = self.session.review
-        dlg = PasteDialog(review.measure, text or "", self, empty=not review.studies)
-        dlg.accepted.connect(lambda: self.insert_paste(dlg))
-        dlg.setWindowModality(Qt.WindowModal)
-        dlg.show()
-        self.paste_dialog = dlg
-        return dlg
-
-    def insert_paste(self, dlg: PasteDialog) -> bool:
-        """Insert what the dialog read, as ONE undo step."""
-        rows = dlg.rows()
-        if not rows:
-            return False
-        idx = self.studies.table.currentIndex()
-        at = idx.row() + 1 if idx.isValid() else len(self.session.review.studies)
-        edits: list[ed.Edit] = [ed.PasteBlock(at, tuple(rows))]
-        m = dlg.chosen_measure()
-        if m:
-            edits.append(ed.SetDetail("measure", m))
-        pub = dlg.chosen_published()
-        if pub is not None and not self.session.review.details.published.is_complete():
-            edits.append(ed.SetDetail("published", pub))
-        account = dlg.account()
-        if account is not None:
-            # what was not read stays listed with the review (problems list, sheet)
-            edits.append(ed.SetIntake(self.session.review.intake.plus(account)))
-        n = len(rows)
-        ok = self.stack.push_many(f"paste {n} row{'s' if n != 1 else ''}", edits)
-        self.studies.suggest_mode()
-        self.studies.select_row(at)
-        return ok
-
-    def paste_clipboard(self) -> None:
-        """Ctrl+V: one value goes into the current cell; anything more opens the preview."""
-        text = QGuiApplication.clipboard().text()
-        if not text:
-            return
-        one = text.strip("\r\n")
-        idx = self.studies.table.currentIndex()
-        if "\n" not in one and "\t" not in one and idx.isValid():
-            if idx.flags() & Qt.ItemIsEditable:
-                self.studies.model.setData(idx, one, Qt.EditRole)
-            return
-        self.open_paste_dialog(text)
-
     # ------------------------------------------------------------------ files
-
-    def _maybe_save(self) -> bool:
-        """Ask about unsaved changes; True when it is fine to drop the current review."""
-        self.causes.flush()
-        if not self.session.dirty:
-            return True
-        answer = self.ask_save_changes(self.session.display_name())
-        if answer == "save":
-            return self.save()
-        return answer == "discard"
-
-    def new_review(self) -> None:
-        if not self._maybe_save():
-            return
-        self.session.new()
-        self.stack.reset()
-        self.update_views()
-
-    def open_dialog(self) -> None:
-        if not self._maybe_save():
-            return
-        path = self.ask_open_path(self.prefs.last_folder())
-        if path:
-            self.open_path(path, ask=False)
-
-    def open_sample(self, path) -> bool:
-        """Open an invented sample read-only: Save asks for a place of the user's own."""
-        return self.open_path(path, remember=False, read_only=M.READ_ONLY_SAMPLE)
-
-    def open_path(
-        self, path, *, remember: bool = True, ask: bool = True, read_only: str = ""
-    ) -> bool:
-        """Open a project or import a study table; errors are shown, never raised.
-
-        A project changed outside Lopside is opened only when the user says so, and then
-        read-only (Save asks for a name).
-        """
-        from ..cli_common import INPUT_ERRORS
-
-        if ask and not self._maybe_save():
-            return False
-        from ..cli_common import DecimalUndecided
-
-        p = Path(path)
-        if p.suffix.lower() == ".pdf":
-            return self.open_pdf(p)
-        measure = None
-        decimal = None
-        accept_changed = False
-        for _attempt in range(4):
-            try:
-                self.session.open(
-                    p, measure, decimal, accept_changed=accept_changed, read_only=read_only
-                )
-                break
-            except ChangedOutside:
-                if accept_changed or not self.ask_open_changed(p.name):
-                    self.say(M.OPEN_FAILED.format(name=p.name, error=M.READ_ONLY_CHANGED))
-                    return False
-                accept_changed = True
-                read_only = read_only or M.READ_ONLY_CHANGED
-                continue
-            except DecimalUndecided as exc:
-                decimal = self.ask_decimal(p.name, exc.examples) if decimal is None else None
-                if decimal:
-                    continue
-                self._open_failed(p, exc)
-                return False
-            except INPUT_ERRORS as exc:
-                if measure is None and "measure" in str(exc) and p.suffix.lower() != SUFFIX:
-                    measure = self.ask_measure(p.name)
-                    if measure:
-                        continue
-                self._open_failed(p, exc)
-                return False
-            except (OSError, ValueError) as exc:
-                self._open_failed(p, exc)
-                return False
-        self.stack.reset()
-        self.studies.suggest_mode()
-        if remember:
-            self.prefs.add_recent(p)
-            # absolute, not resolved: a mapped drive (H:\) stays as the user chose it
-            self.prefs.set(P.LAST_FOLDER, os.path.dirname(os.path.abspath(p)))
-        self._update_title()
-        self.update_views()
-        self.say(f"Opened {p.name}." + (f" It is {read_only}." if read_only else ""))
-        return True
-
-    def open_pdf(self, p: Path):
-        """Read a review's PDF in the background, then let the user pick the rows."""
-        from PySide6.QtWidgets import QProgressDialog
-
-        from .pdf_dialog import PdfDialog, PdfReadWorker
-
-        worker = PdfReadWorker(str(p), self)
-        progress = QProgressDialog(M.PDF_READING, "Cancel", 0, 0, self)
-        progress.setWindowModality(Qt.WindowModal)
-        progress.setMinimumDuration(500)
-        progress.canceled.connect(worker.cancel)
-
-        def step(done: int, total: int) -> None:
-            progress.setMaximum(total)
-            progress.setValue(done)
-
-        def failed(message: str) -> None:
-            progress.close()
-            self._open_failed(p, ValueError(message))
-
-        def done(doc) -> None:
-            progress.close()
-            dlg = PdfDialog(str(p), self, doc=doc)
-            dlg.setWindowModality(Qt.WindowModal)
-            dlg.accepted.connect(lambda: self._pdf_chosen(p, dlg))
-            dlg.show()
-            self.pdf_dialog = dlg
-
-        worker.progress.connect(step)
-        worker.failed.connect(failed)
-        worker.finished_ok.connect(done)
-        self.pdf_worker = worker
-        worker.start()
-        return worker
-
-    def _pdf_chosen(self, p: Path, dlg) -> None:
-        """A new review from the chosen lines, through the paste preview."""
-        self.session.new()
-        self.stack.reset()
-        pages = ", ".join(str(n) for n in dlg.chosen_pages)
-        note = dlg.reading().source_note(p.name)
-        self.update_views()
-        paste = self.open_paste_dialog(dlg.chosen_text())
-
-        def added() -> None:
-            # where the rows came from stays with the review (shown on screen and sheet)
-            self.stack.push_many("note the PDF page", [ed.SetDetail("source_note", note)])
-            self.say(M.PDF_FROM.format(rows=len(paste.rows()), pages=pages, name=p.name), 15000)
-
-        paste.accepted.connect(added)
-
-    def _open_failed(self, p: Path, exc: Exception) -> None:
-        # plain words in the dialog; the file's path and the exception behind "Show details"
-        msg = M.OPEN_FAILED.format(name=p.name, error=plain(str(exc), p.name, str(p)))
-        self.say(msg, 15000)
-        self._error_dialog(M.OPEN_FAILED_TITLE, msg, details(exc, f"File: {p}"))
-
-    def _error_dialog(self, title: str, text: str, detail: str) -> None:
-        """Show an error box (not in headless runs); the last one is kept for tests."""
-        self.last_error = (title, text, detail)
-        if self.isVisible() and not _headless():
-            QTimer.singleShot(0, lambda: show_error(self, title, text, detail))
-
-    def save(self) -> bool:
-        self.causes.flush()
-        if self.session.path is None or self.session.read_only:
-            return self.save_as()
-        return self._save_to(self.session.path)
-
-    def save_as(self) -> bool:
-        self.causes.flush()
-        folder = self.prefs.last_folder()
-        if self.session.read_only or _in_samples(folder):
-            folder = self._own_folder()
-        name = self.session.path.name if self.session.path else None
-        suggested = str(
-            Path(folder) / (name or (self.session.review.details.title or "review")[:60] + SUFFIX)
-        )
-        while True:
-            path = self.ask_save_path(suggested, "Save the review", f"Lopside project (*{SUFFIX})")
-            if not path:
-                return False
-            if not Path(path).suffix:
-                path = str(Path(path).with_suffix(SUFFIX))
-            refused = ""
-            if _in_samples(os.path.dirname(os.path.abspath(path))):
-                refused = M.SAMPLE_FOLDER_REFUSED
-            else:
-                try:  # never over the CSV/XLSX/.txt it was imported from, never as a .csv
-                    check_output(path, "lopside", (self.session.imported_from,), force=True)
-                except OutputRefused as exc:
-                    refused = str(exc)
-            if not refused:
-                return self._save_to(Path(path))
-            self.say(refused, 15000)
-            self._warn(M.SAVE_FAILED_TITLE, refused)
-            if _headless():
-                return False
-            suggested = str(Path(self._own_folder()) / (Path(path).stem + SUFFIX))
-
-    def _own_folder(self) -> str:
-        folder = self.prefs.last_folder()
-        if _in_samples(folder):
-            from PySide6.QtCore import QStandardPaths
-
-            folder = QStandardPaths.writableLocation(QStandardPaths.DocumentsLocation)
-        return folder
-
-    def _save_to(self, path: Path) -> bool:
-        try:
-            saved = self.session.save(path)
-        except (OSError, ValueError) as exc:
-            msg = M.SAVE_FAILED.format(
-                name=Path(path).name, error=plain(str(exc), Path(path).name, str(path))
-            )
-            self.say(msg, 0)
-            # a dialog, not only a status message; "save elsewhere" keeps the work
-            if self.ask_save_failed(Path(path).name, str(exc)):
-                return self.save_as()
-            return False
-        self.stack.mark_clean()
-        self.prefs.add_recent(saved)
-        self.prefs.set(P.LAST_FOLDER, os.path.dirname(os.path.abspath(saved)))
-        if self.autosaver is not None:
-            self.autosaver.remove()
-        self._update_title()
-        self.say(M.SAVED.format(name=saved.name))
-        return True
-
-    def dragEnterEvent(self, event) -> None:  # noqa: N802 - Qt API
-        urls = event.mimeData().urls() if event.mimeData().hasUrls() else []
-        if any(
-            u.isLocalFile() and Path(u.toLocalFile()).suffix.lower() in ACCEPTED_SUFFIXES
-            for u in urls
-        ):
-            event.acceptProposedAction()
-        else:
-            event.ignore()
-
-    def dropEvent(self, event) -> None:  # noqa: N802 - Qt API
-        for u in event.mimeData().urls():
-            p = Path(u.toLocalFile())
-            if p.suffix.lower() in ACCEPTED_SUFFIXES:
-                event.acceptProposedAction()
-                QTimer.singleShot(0, lambda p=p: self.open_path(p))
-                return
 
     # ------------------------------------------------------------------ exports
 
-    def export_sheet(self, path: str | None = None) -> SheetWorker | None:
-        """Write the PDF sheet in a worker; returns the worker (started)."""
-        self.causes.flush()
-        self.update_views()
-        if self.result is None:
-            self.say(M.SHEET_FAILED.format(error=self.analysis_error or M.NO_ANALYSIS))
-            return None
-        if path is None:
-            base = self.session.path.stem if self.session.path else "appraisal"
-            path = self._ask_export_path(
-                str(Path(self._own_folder()) / f"{base}-sheet.pdf"),
-                "Export the appraisal sheet",
-                "PDF (*.pdf)",
-                "pdf",
-            )
-            if not path:
-                return None
-        elif self._refuse_export(path, "pdf"):
-            return None
-        w = SheetWorker(self.result, path, parent=self)
-        w.finished_with.connect(self._sheet_done)
-        w.failed.connect(lambda msg: self._sheet_failed(w, msg))
-        self.sheet_worker = w
-        self.say("Writing the appraisal sheet\u2026", 0)
-        w.start()
-        return w
-
-    def _inputs(self) -> tuple:
-        return (self.session.path, self.session.imported_from)
-
-    def _refuse_export(self, path, kind: str) -> bool:
-        """True (and the user is told why) when ``path`` must not receive the export."""
-        try:
-            # the file dialog has already asked before replacing an existing file
-            check_output(path, kind, self._inputs(), force=True)
-        except OutputRefused as exc:
-            text = str(exc)
-            if "being read" in text:
-                text = M.EXPORT_IS_INPUT.format(name=Path(path).name)
-            self.say(text, 15000)
-            self._warn("Not exported", text)
-            return True
-        return False
-
-    def _ask_export_path(self, suggested: str, title: str, filt: str, kind: str) -> str:
-        """Ask for an export file; never the review's own file (asked again if chosen)."""
-        while True:
-            path = self.ask_save_path(suggested, title, filt)
-            if not path:
-                return ""
-            if kind != "figure" and not Path(path).suffix:
-                path = str(Path(path).with_suffix("." + kind))
-            k = Path(path).suffix.lower().lstrip(".") if kind == "figure" else kind
-            if k not in ("png", "svg", "pdf"):
-                return path  # the export itself says which suffixes it can write
-            if not self._refuse_export(path, k):
-                return path
-            if _headless():
-                return ""
-
-    def _sheet_failed(self, worker, message: str) -> None:
-        err = getattr(worker, "error", None)
-        if isinstance(err, OutputLocked):
-            # a PDF viewer holds the old sheet (Windows): offer a free name instead
-            if self.ask_locked(str(err), err.suggestion.name):
-                self.export_sheet(str(err.suggestion))
-                return
-            self.say(str(err), 0)
-            return
-        self.say(M.SHEET_FAILED.format(error=message), 0)
-
-    def _sheet_done(self, path: str) -> None:
-        self.say(M.SHEET_DONE.format(path=path))
-        if self.ask_open_sheet(path):
-            self.open_url(QUrl.fromLocalFile(path))
-
-    def _current_figure_panel(self):
-        w = self.views.currentWidget()
-        return w if w in (self.funnel, self.forest, self.companions) else self.funnel
-
-    def funnel_export_figure(self):
-        """A fresh funnel Figure at the sheet's size (not the window's canvas size)."""
-        if self.result is None:
-            return None
-        from ..figures.adaptors import funnel_input_from_result as adaptor
-        from ..figures.funnel import funnel_figure
-
-        opts = self.funnel.funnel_options(self.result)
-        return funnel_figure(adaptor(self.result, opts), opts, size="page")
-
-    def export_figure(self, path: str | None = None) -> bool:
-        panel = self._current_figure_panel()
-        if self.result is None:
-            return False
-        if path is None:
-            path = self._ask_export_path(
-                str(Path(self._own_folder()) / f"{panel.objectName().lower()}.png"),
-                "Export the figure",
-                "PNG image (*.png);;SVG drawing (*.svg);;PDF (*.pdf)",
-                "figure",
-            )
-            if not path:
-                return False
-        else:
-            kind = Path(path).suffix.lower().lstrip(".")
-            if kind in ("png", "svg", "pdf") and self._refuse_export(path, kind):
-                return False
-        try:
-            if panel is self.funnel:
-                fig = self.funnel_export_figure()
-            else:
-                panel.show_result(self.result)
-                panel.draw_now()
-                fig = panel.figure
-            if fig is None:
-                return False
-            from ..figures.export import figure_bytes, format_for
-            from ..fileio import write_atomic
-
-            write_atomic(path, figure_bytes(fig, format_for(path)))
-        except (OSError, ValueError) as exc:
-            self.say(M.SHEET_FAILED.format(error=plain(str(exc), str(path))))
-            return False
-        self.say(M.EXPORTED_FIGURE.format(path=path))
-        return True
-
-    def funnel_image(self, dpi: int = 200) -> QImage | None:
-        from ..figures.export import figure_bytes
-
-        fig = self.funnel_export_figure()
-        if fig is None:
-            return None
-        img = QImage.fromData(QByteArray(figure_bytes(fig, "png", dpi=dpi)), "PNG")
-        return None if img.isNull() else img
-
-    def copy_funnel(self) -> bool:
-        try:
-            img = self.funnel_image()
-        except (ImportError, ValueError) as exc:
-            self.say(str(exc))
-            return False
-        if img is None:
-            return False
-        QGuiApplication.clipboard().setImage(img)
-        self.say(M.COPIED_FUNNEL)
-        return True
-
-    def print_funnel(self, printer=None) -> bool:
-        from PySide6.QtGui import QPainter
-        from PySide6.QtPrintSupport import QPrintDialog, QPrinter
-
-        if printer is None:
-            printer = QPrinter(QPrinter.HighResolution)
-            dlg = QPrintDialog(printer, self)
-            if dlg.exec() != QPrintDialog.Accepted:
-                return False
-        img = self.funnel_image(dpi=300)
-        if img is None:
-            return False
-        painter = QPainter(printer)
-        try:
-            rect = painter.viewport()
-            size = img.size()
-            size.scale(rect.size(), Qt.KeepAspectRatio)
-            painter.setViewport(rect.x(), rect.y(), size.width(), size.height())
-            painter.setWindow(img.rect())
-            painter.drawImage(0, 0, img)
-        finally:
-            painter.end()
-        return True
+    def open_outcome(self, index: int) -> None:
+        """Show outcome ``index`` (a click in the Panel view): its funnel."""
+        self.session.select_outcome(index)
+        self._show_view(self.view_panels.index(self.funnel))
 
     # ------------------------------------------------------------------ help
 
@@ -1358,22 +653,3 @@ class MainWindow(QMainWindow):
         if self.autosaver is not None:
             self.autosaver.close()
         event.accept()
-
-
-def _headless() -> bool:
-    return QApplication.platformName() in ("offscreen", "minimal")
-
-
-def _in_samples(folder: str) -> bool:
-    """True when ``folder`` is (inside) the folder of the bundled sample reviews."""
-    from ..paths import sample_reviews
-
-    try:
-        samples = sample_reviews()
-    except OSError:
-        return False
-    if not samples or not folder:
-        return False
-    here = os.path.normcase(os.path.realpath(folder))
-    home = os.path.normcase(os.path.realpath(samples[0].parent))
-    return here == home or here.startswith(home + os.sep)

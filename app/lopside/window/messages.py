@@ -186,3 +186,36 @@ RECOVER_INTRO = (
     "Discard."
 )
 RECOVER_DISCARD_CONFIRM = "Discard the ticked autosaves for good? This cannot be undone."
+
+# outcomes of a workbook (window/outcomes.py, window/panel_view.py)
+OUTCOME_TIP = (
+    "The outcome every view shows. A review has several outcomes (mortality, a symptom "
+    "score, adverse events...), each with its own studies, measure and rating "
+    "(Ctrl+PgUp / Ctrl+PgDown to step through them)."
+)
+OUTCOME_NEW_TITLE = "New outcome"
+OUTCOME_RENAME_TITLE = "Rename the outcome"
+OUTCOME_NAME_LABEL = "Name of the outcome (e.g. All-cause mortality at 1 year):"
+OUTCOME_ADDED = "Added the outcome “{name}”: type or paste its studies."
+OUTCOME_DELETED = "Deleted the outcome “{name}” (Undo brings it back)."
+OUTCOME_NO_STUDIES = "“{name}” has no studies to copy."
+OUTCOME_COPIED = (
+    "Copied {n} studies from “{name}”: their names, years, risk of bias and subgroups. "
+    "Type this outcome's numbers for each."
+)
+PANEL_EXPLAIN = (
+    "Every outcome of this review side by side, as a guideline panel rates them. Click a "
+    "row to open that outcome. Lopside informs the appraisal; the panel's own methods and "
+    "clinical judgement decide."
+)
+PANEL_UPDATING = "Analysing {n} outcomes\u2026"
+PANEL_FAILED = "The panel summary could not be made: {error}"
+PANEL_EXPORTED = "Wrote the panel summary to {path}."
+SLIDE_EXPORTED = "Wrote the slide to {path}."
+OUTCOME_FROM_FILE = "Added {n} outcome(s) from {name}; choose them above the study table."
+OUTCOME_FROM_FILE_STEP = "add outcomes from {name}"
+OUTCOME_FROM_PDF = (
+    "A PDF's rows are picked page by page: add a new outcome (Outcome > New outcome) and "
+    "paste the rows copied from the PDF (Edit > Paste rows from a paper), or open the PDF "
+    "itself with File > Open."
+)

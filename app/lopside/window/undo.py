@@ -13,6 +13,7 @@ from PySide6.QtCore import Signal
 from PySide6.QtGui import QUndoCommand, QUndoStack
 
 from .. import edits as ed
+from ..model.workbook import WorkbookError
 from ..session import Session
 
 
@@ -35,7 +36,7 @@ class EditCommand(QUndoCommand):
             self._first = False
             try:
                 self.merged = self.session.do(self.edit)
-            except ed.EditError as exc:
+            except (ed.EditError, WorkbookError) as exc:
                 self.error = str(exc)
                 self.setObsolete(True)  # QUndoStack drops an obsolete command at once
         else:
