@@ -19,8 +19,10 @@ Steps, all inside ``packaging/build`` and ``packaging/dist`` (both git-ignored):
    why it does not matter and the module indeed does not exist); then
    ``packaging/notices.py`` collects every licence text into
    ``THIRD-PARTY-NOTICES/`` and fails the build when a bundled distribution has none;
-3. a smoke test of the built folder: ``--self-test`` offscreen, ``check --json``,
-   ``sheet -o`` and ``plot`` on a sample review bundled inside it, with throwaway user
+3. a smoke test of the built folder: ``--self-test`` offscreen (which also reads and
+   renders the sheet it wrote, so pdfplumber and pypdfium2's native library are
+   exercised), ``check --json`` of a bundled sample review and of a small PDF written
+   here, ``sheet -o`` and ``plot`` on a sample review bundled inside it, with throwaway user
    folders; on Linux, when ``unshare`` can make a network namespace, with no network at
    all. Any failure -> exit status 1;
 4. the size of the folder and of what dominates it.
@@ -84,6 +86,11 @@ REQUIRED_MODULES = (
     "matplotlib.backends.backend_qtagg",
     "matplotlib.backends.backend_pdf",
     "matplotlib.backends.backend_svg",
+    "lopside.intake.pdf",
+    "pdfplumber",
+    "pdfminer.cmapdb",
+    "pypdfium2",
+    "pypdfium2_raw.bindings",
 )
 #: Files (name patterns) that must not be in the folder: Qt's network and web parts.
 FORBIDDEN_FILES = (
@@ -103,6 +110,10 @@ FORBIDDEN_FILES = (
 KNOWN_ABSENT = {
     "scipy.special._cdflib": "listed by PyInstaller's scipy hook for older scipy releases; "
     "scipy 1.17 has no such module",
+    "pycparser.lextab": "listed by the contributed pycparser hook for pycparser 2.x, whose "
+    "parser tables were generated modules; pycparser 3 (pulled in through cffi by "
+    "cryptography, which pdfminer uses for encrypted PDFs) has none",
+    "pycparser.yacctab": "as pycparser.lextab",
 }
 HIDDEN_IMPORT_MISSING = re.compile(r'Hidden import [\'"]([\w.]+)[\'"] not found')
 
@@ -298,6 +309,11 @@ def check_contents(bundle: Path = BUNDLE, work: Path = WORK) -> list[str]:
     if not index.is_file():
         raise StepFailed(f"no licence notices {index}: run packaging/notices.py")
     internal = bundle / "_internal"
+    pdfium = [p for p in (internal / "pypdfium2_raw").glob("*pdfium*") if p.is_file()]
+    if not pdfium:
+        raise StepFailed("no pdfium library in _internal/pypdfium2_raw (PDF previews need it)")
+    if not list((internal / "pdfminer" / "cmap").glob("*.gz")):
+        raise StepFailed("no character maps in _internal/pdfminer/cmap (PDF text needs them)")
     if not (internal / "svglib" / "svglib.py").is_file():
         raise StepFailed("svglib is not in _internal/svglib as replaceable .py files")
     fonts = list(internal.glob("matplotlib/mpl-data/fonts/ttf/DejaVuSans.ttf"))
@@ -322,6 +338,7 @@ def check_contents(bundle: Path = BUNDLE, work: Path = WORK) -> list[str]:
         "(network clients, dev tools, other toolkits)",
         f"Qt platform plugins: {', '.join(sorted(platforms))}; DejaVu Sans bundled; "
         "svglib as replaceable .py files",
+        f"PDF reading: {pdfium[0].name} and pdfminer's character maps bundled",
         f"licence notices: {index.relative_to(bundle)} "
         f"({sum(1 for _ in index.parent.rglob('*') if _.is_file())} files)",
     ]
@@ -372,6 +389,51 @@ def bundled_sample(bundle: Path) -> Path:
     if not samples:
         raise StepFailed(f"no *.lopside sample review inside the bundle ({d})")
     return samples[0]
+
+
+#: The rows of the small PDF the smoke test reads (invented trials, odds ratios).
+SMOKE_PDF_ROWS = (
+    ("Abelard 2004", "0.62 (0.41 to 0.94)"),
+    ("Brixton 2006", "0.81 (0.55 to 1.19)"),
+    ("Calloway 2008", "0.47 (0.22 to 1.01)"),
+    ("Dunmore 2009", "0.95 (0.72 to 1.25)"),
+    ("Estover 2011", "0.70 (0.48 to 1.02)"),
+)
+
+
+def write_small_pdf(path: Path) -> Path:
+    """A one-page PDF with a forest table as text (Helvetica, one of the 14 standard
+    fonts), written byte by byte so that the smoke test needs no library of its own."""
+    lines = ["BT /F1 11 Tf 72 780 Td (Table 1. Invented trials for a smoke test) Tj ET"]
+    y = 750
+    for label, ci in SMOKE_PDF_ROWS:
+        lines.append(f"BT /F1 9 Tf 72 {y} Td ({label}) Tj ET")
+        lines.append(f"BT /F1 9 Tf 260 {y} Td ({ci}) Tj ET")
+        y -= 15
+    stream = "\n".join(lines).encode("ascii")
+    objects = [
+        b"<< /Type /Catalog /Pages 2 0 R >>",
+        b"<< /Type /Pages /Kids [3 0 R] /Count 1 >>",
+        b"<< /Type /Page /Parent 2 0 R /MediaBox [0 0 595 842] "
+        b"/Resources << /Font << /F1 4 0 R >> >> /Contents 5 0 R >>",
+        b"<< /Type /Font /Subtype /Type1 /BaseFont /Helvetica /Encoding /WinAnsiEncoding >>",
+        b"<< /Length %d >>\nstream\n" % len(stream) + stream + b"\nendstream",
+    ]
+    out = bytearray(b"%PDF-1.4\n")
+    offsets = []
+    for i, body in enumerate(objects, start=1):
+        offsets.append(len(out))
+        out += b"%d 0 obj\n" % i + body + b"\nendobj\n"
+    xref = len(out)
+    out += b"xref\n0 %d\n0000000000 65535 f \n" % (len(objects) + 1)
+    for off in offsets:
+        out += b"%010d 00000 n \n" % off
+    out += b"trailer\n<< /Size %d /Root 1 0 R >>\nstartxref\n%d\n%%%%EOF\n" % (
+        len(objects) + 1,
+        xref,
+    )
+    path.write_bytes(bytes(out))
+    return path
 
 
 def smoke_test(bundle: Path = BUNDLE) -> list[str]:
@@ -425,6 +487,28 @@ def smoke_test(bundle: Path = BUNDLE) -> list[str]:
         if missing or data.get("k", 0) < 1:
             raise StepFailed(f"check --json lacks keys {missing} or has k < 1")
         passed.append(f"check --json {sample.name}: k={data['k']}, measure={data['measure']}")
+
+        # rows straight from a review's PDF: pdfplumber and pdfminer inside the bundle
+        review_pdf = write_small_pdf(tmp / "small-review.pdf")
+        p = run(
+            prefix + [cli_exe, "check", review_pdf, "--measure", "OR", "--json"],
+            "bundle check small-review.pdf --json",
+            **opts,
+        )
+        try:
+            data = json.loads(p.stdout)
+        except json.JSONDecodeError as exc:
+            raise StepFailed(
+                f"check of a PDF printed no valid JSON: {exc}\n{p.stdout[:500]}"
+            ) from exc
+        if data.get("k") != len(SMOKE_PDF_ROWS):
+            raise StepFailed(
+                f"check of a PDF read k={data.get('k')}, not {len(SMOKE_PDF_ROWS)}\n{p.stderr}"
+            )
+        source = data.get("intake", {}).get("source", "")
+        if "small-review.pdf" not in source:
+            raise StepFailed(f"the intake account of a PDF names {source!r}, not the file")
+        passed.append(f"check small-review.pdf: k={data['k']} read from {source}")
 
         pdf = tmp / "sheet.pdf"
         run(prefix + [cli_exe, "sheet", sample, "-o", pdf], "bundle sheet -o", **opts)

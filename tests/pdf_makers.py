@@ -291,3 +291,24 @@ def encrypted(path: Path) -> None:
     _text(c, 72, 760, "Abelard 2004 0.62 (0.41 to 0.94)", "Helvetica")
     c.showPage()
     c.save()
+
+
+def pathological_page(path: Path, pieces: int = 30_000, font: str = "Helvetica") -> list[str]:
+    """Three pages: the table, then a page of ``pieces`` tiny separate text objects (one
+    glyph each, 1 pt high, as a figure drawn in text can be), then the table again.
+    Reading the middle page takes far longer than either table page."""
+    c = canvas.Canvas(str(path), pagesize=A4)
+    for page in range(3):
+        if page == 1:
+            for i in range(pieces):
+                c.setFont(font, 1)
+                c.drawString(20 + (i * 7) % 550, 20 + (i * 13 % 800) + (i % 5) * 0.1, ".")
+        else:
+            y = 760
+            for lab, est, lo, hi, _, _ in TRIALS:
+                _text(c, 72, y, lab, font)
+                _text(c, 260, y, f"{est} ({lo} to {hi})", font)
+                y -= 15
+        c.showPage()
+    c.save()
+    return ci_lines()

@@ -166,6 +166,24 @@ def test_sheet_contains_each_section_and_the_caution(sheet14):
         assert DATE in page
 
 
+def test_page_two_carries_how_strong_selection_would_have_to_be(r14, sheet14):
+    # issue 20: the selection table and the η curve are on page 2 (the page stays within
+    # its shrink limit: test_pages_are_a4_and_the_main_sheet_is_three_pages)
+    from lopside.summary import fmt_effect_ci, selection_strength_brief
+
+    page2 = flat(text_of(sheet14.pdf)[1])
+    assert "How strong would selection have to be?" in page2
+    brief = selection_strength_brief(r14)
+    worst = dict(brief.rows)["Worst case"]
+    assert flat(worst) in page2
+    model = r14.selection_sensitivity.random
+    wc = model.worst_case
+    assert worst == fmt_effect_ci(wc.estimate, wc.ci_low, wc.ci_high, r14.measure)
+    # the curve's axis title is drawn as text under the funnel
+    assert "times more likely a result significant in favour" in page2
+    assert "recalled from memory" in page2
+
+
 def test_sheet_prints_the_results_numbers_as_formatted_by_the_summary(r14, sheet14):
     text = flat(" ".join(text_of(sheet14.pdf)))
     m = r14.measure

@@ -95,6 +95,10 @@ def test_open_pdf_in_window_reaches_the_table(make_window, qtbot, tmp_path):
     assert w.session.review.studies == truth
     assert "8 rows from page(s) 1 of review.pdf" in w.last_message
     assert w.session.review.details.source_note.startswith("Rows read from page 1 of review.pdf")
+    # the intake account names the PDF's page, not "pasted text" (issue 19)
+    intake = w.session.review.intake
+    assert intake.source == "page 1 of review.pdf"
+    assert [p.split(", line")[0] for _, p in intake.rows_at] == ["page 1 of review.pdf"] * 8
 
 
 def test_bad_pdf_in_window_is_a_message(make_window, qtbot, tmp_path):

@@ -344,210 +344,76 @@ def analyse(
         )
 
 
+#: pooled results are reported at 95 % whatever the paper's study CIs used
+CONFIDENCE_LEVEL = 0.95
+
+
 def _analyse(
     review, settings, *, with_power, power_progress, progress=None, stage="full", core=None
 ) -> AnalysisResult:
-    from .intake.checks import check_rows
-    from .stats import adjust, applicability, asymmetry, binary, moderators, sensitivity
-    from .stats import pooling as pl
-    from .stats.diagnostics import flag_rows, suspects
-    from .stats.effects import derive_all
-    from .stats.reconcile import reconcile
-
     settings = settings or AnalysisSettings()
-    extra_notes: list[str] = []
     measure = settings.measure or review.details.measure
-    level = review.details.ci_level
-    conf = 0.95  # pooled results are reported at 95 % whatever the paper's study CIs used
-
-    if core is not None:
+    if core is None:
+        base = _core_stage(review, settings, measure, progress)
+    else:
         # the full stage after a core stage of the same inputs: the same objects, so that
         # views showing only core numbers (the funnel) need not redraw
-        derived, problems, data, excluded = core.derived, core.problems, core.data, core.excluded
-        y, v = data.y, data.v
-        fixed, random, by_method = core.fixed, core.random, core.random_by_method
-        hksj_by_method, mh, peto = core.random_hksj_by_method, core.mantel_haenszel, core.peto
-        het, recommendation, tests = core.heterogeneity, core.recommendation, core.tests
-        rules, trim_fill = core.applicability, core.trim_fill
-    else:
-        _stage(progress, "reading the study rows")
-        derived = derive_all(
-            review.studies,
-            measure,
-            ci_level=level,
-            ci_method=settings.ci_method,
-            smd_correction=settings.smd_correction,
-        )
-        problems = check_rows(
-            review.studies, measure, level, places=review.intake.places(review.studies)
-        )
-        data, excluded = build_study_data(review, measure, derived)
-        y, v = data.y, data.v
-
-        _stage(progress, "pooling")
-        fixed = _safe(pl.fixed_effect, y, v, confidence_level=conf)
-        by_method = {
-            m: _safe(pl.random_effects, y, v, method=m, confidence_level=conf)
-            for m in pl.TAU2_METHODS
-        }
-        hksj_by_method = {
-            m: _safe(pl.random_effects, y, v, method=m, hksj=True, confidence_level=conf)
-            for m in pl.TAU2_METHODS
-        }
-        random = (hksj_by_method if settings.hksj else by_method)[settings.tau2_method]
-
-        if measure in BINARY_MEASURES and data.has_counts():
-            mh = _safe(
-                binary.mantel_haenszel,
-                data.a,
-                data.b,
-                data.c,
-                data.d,
-                measure,
-                confidence_level=conf,
-            )
-        else:
-            mh = NotComputable("Mantel-Haenszel pooling needs 2x2 counts for every study")
-        if measure == "OR" and data.has_counts():
-            peto = _safe(binary.peto, data.a, data.b, data.c, data.d, confidence_level=conf)
-        else:
-            peto = NotComputable("Peto pooling needs 2x2 counts and the odds ratio")
-
-        het = _safe(pl.heterogeneity, y, v, tau2_method=settings.tau2_method, confidence_level=conf)
-
-        _stage(progress, "small-study tests")
-        tau2 = random.tau2 if isinstance(random, PooledEstimate) else 0.0
-        recommendation = _safe(applicability.recommend, data, tau2)
-        # the recommended test runs with the options it was recommended with (e.g. the arcsine
-        # test with random effects when tau^2 is large: Sterne et al. 2011)
-        options = {}
-        if recommendation and not isinstance(recommendation, NotComputable):
-            options[recommendation.key] = recommendation.kwargs()
-        tests = asymmetry.run_all(data, alpha=settings.test_alpha, options=options)
-        if isinstance(het, NotComputable):
-            rules = _safe(applicability.applicability, data, None, None)
-        else:
-            rules = _safe(applicability.applicability, data, het.i2, het.pvalue)
-
-        _stage(progress, "trim and fill")
-        trim_fill = _safe(
-            adjust.trim_and_fill,
-            data,
-            estimator=settings.trimfill_estimator,
-            side=settings.trimfill_side,
-            trim_model=settings.trimfill_trim_model,
-            fill_model=settings.trimfill_fill_model,
-            tau2_method=settings.tau2_method,
-        )
-
+        base = _core_again(core, review, settings, measure)
     if stage == "core":
-        return _core_result(
-            review,
-            settings,
-            measure,
-            conf,
-            derived,
-            problems,
-            data,
-            excluded,
-            fixed,
-            random,
-            by_method,
-            hksj_by_method,
-            mh,
-            peto,
-            het,
-            tests,
-            recommendation,
-            rules,
-            trim_fill,
-        )
-    # Trim and fill depends on its choices (Peters et al. 2007): show the other usual ones.
-    variants: dict[str, Any] = {}
-    for est in ("L0", "R0"):
-        for trim_m, fill_m in (("FE", "FE"), ("FE", "RE"), ("RE", "RE")):
-            if (est, trim_m, fill_m) == (
-                settings.trimfill_estimator,
-                settings.trimfill_trim_model,
-                settings.trimfill_fill_model,
-            ):
-                variants[f"{est}, trim {trim_m}, fill {fill_m}"] = trim_fill  # already run
-                continue
-            variants[f"{est}, trim {trim_m}, fill {fill_m}"] = _safe(
-                adjust.trim_and_fill,
-                data,
-                estimator=est,
-                side=settings.trimfill_side,
-                trim_model=trim_m,
-                fill_model=fill_m,
-                tau2_method=settings.tau2_method,
-            )
-    _stage(progress, "leave one out")
-    loo = _safe(sensitivity.leave_one_out, data, tau2_method=settings.tau2_method)
-    _stage(progress, "cumulative analysis")
-    cumulative = _safe(sensitivity.cumulative, data, tau2_method=settings.tau2_method)
-    row_flags = _safe(flag_rows, data, loo)
-    published = _published_on_scale(review, measure)
-    if published is None:
-        recon: Any = NotComputable("no published pooled result with its CI was entered")
-    else:
-        models: dict[str, Any] = {"FE-IV": fixed, "MH": mh, "Peto": peto}
-        models.update(by_method)
-        models.update({f"{m}+HKSJ": r for m, r in hksj_by_method.items()})
-        recon = _safe(
-            reconcile,
-            models,
-            published,
-            ratio=measure in RATIO_MEASURES,
-            published_model=review.details.published.model,
-            loo=lambda key: _leave_one_out_estimates(data, key, measure),
-            flagged=_flagged_rows(review, problems) + suspects(row_flags, problems),
-        )
-    _stage(progress, "other adjustments")
-    pet_peese = _safe(
-        adjust.pet_peese, data, alpha=settings.petpeese_alpha, sided=settings.petpeese_sided
-    )
-    limit = _safe(adjust.limit_meta_analysis, data, tau2_method=settings.tau2_method)
-    selection = _safe(adjust.selection_model, data, cutpoints=settings.selection_cutpoints)
-    failsafe = _safe(sensitivity.fail_safe_n, data, trivial=settings.orwin_trivial)
-    sel_sens, sel_fixed = _selection_block(data, random, settings)
-    missing = _unreported_block(review, data, random, settings)
-
-    _stage(progress, "subgroups")
-    subgroups: dict[str, Any] = {}
-    meta_reg: dict[str, Any] = {}
-    for by in ("risk_of_bias", "subgroup"):
-        labels = getattr(data, by)
-        if len({x for x in labels if x}) >= 2:
-            subgroups[by] = _safe(
-                moderators.subgroup_analysis, data, by=by, tau2_method=settings.tau2_method
-            )
-            meta_reg[by] = _safe(moderators.meta_regression, data, by)
-
-    power = None
-    if with_power:
-        from .stats.power import simulate_power
-
-        _stage(progress, "power simulation")
-        power = _safe(
-            simulate_power,
-            data,
-            test="recommended",
-            reps=settings.power_reps,
-            seed=settings.power_seed,
-            selection=settings.power_selection,
-            alpha=settings.test_alpha,
-            progress=power_progress,
-        )
-
-    # work thinned or done another way for a large review is said in the result (DESIGN 8)
-    notes = tuple(
-        n for n in (getattr(loo, "note", ""), getattr(cumulative, "note", ""), *extra_notes) if n
-    )
-
+        return base
     # the full result is the core stage's (one construction of the shared fields) with the
     # rest filled in
-    core_result = _core_result(
+    rest = _full_stage(review, settings, base, with_power, power_progress, progress)
+    return replace(base, stage="full", **rest)
+
+
+def _core_again(core: AnalysisResult, review, settings, measure) -> AnalysisResult:
+    """The core result rebuilt around the objects of an earlier core stage."""
+    return _core_result(
+        review,
+        settings,
+        measure,
+        CONFIDENCE_LEVEL,
+        core.derived,
+        core.problems,
+        core.data,
+        core.excluded,
+        core.fixed,
+        core.random,
+        core.random_by_method,
+        core.random_hksj_by_method,
+        core.mantel_haenszel,
+        core.peto,
+        core.heterogeneity,
+        core.tests,
+        core.recommendation,
+        core.applicability,
+        core.trim_fill,
+    )
+
+
+def _core_stage(review, settings, measure, progress) -> AnalysisResult:
+    """Effects, pooling, heterogeneity, the tests and trim and fill: what the funnel and
+    the first numbers need."""
+    from .stats import pooling as pl
+
+    conf = CONFIDENCE_LEVEL
+    _stage(progress, "reading the study rows")
+    derived, problems, data, excluded = _read_rows(review, settings, measure)
+    _stage(progress, "pooling")
+    fixed, by_method, hksj_by_method, random = _pool(data, settings, conf)
+    mh, peto = _pool_counts(data, measure, conf)
+    het = _safe(
+        pl.heterogeneity, data.y, data.v, tau2_method=settings.tau2_method, confidence_level=conf
+    )
+    _stage(progress, "small-study tests")
+    recommendation, tests, rules = _small_study_tests(data, settings, random, het)
+    _stage(progress, "trim and fill")
+    s = settings
+    trim_fill = _trim_fill(
+        data, s, s.trimfill_estimator, s.trimfill_trim_model, s.trimfill_fill_model
+    )
+    return _core_result(
         review,
         settings,
         measure,
@@ -568,9 +434,130 @@ def _analyse(
         rules,
         trim_fill,
     )
-    return replace(
-        core_result,
-        stage="full",
+
+
+def _read_rows(review, settings, measure):
+    """Each row's effect and SE, the entry checks, and the arrays the statistics read."""
+    from .intake.checks import check_rows
+    from .stats.effects import derive_all
+
+    level = review.details.ci_level
+    derived = derive_all(
+        review.studies,
+        measure,
+        ci_level=level,
+        ci_method=settings.ci_method,
+        smd_correction=settings.smd_correction,
+    )
+    problems = check_rows(
+        review.studies, measure, level, places=review.intake.places(review.studies)
+    )
+    data, excluded = build_study_data(review, measure, derived)
+    return derived, problems, data, excluded
+
+
+def _pool(data, settings, conf):
+    """Fixed effect, random effects by every τ² estimator (with and without HKSJ), and the
+    chosen random-effects model."""
+    from .stats import pooling as pl
+
+    y, v = data.y, data.v
+    fixed = _safe(pl.fixed_effect, y, v, confidence_level=conf)
+    by_method = {
+        m: _safe(pl.random_effects, y, v, method=m, confidence_level=conf) for m in pl.TAU2_METHODS
+    }
+    hksj_by_method = {
+        m: _safe(pl.random_effects, y, v, method=m, hksj=True, confidence_level=conf)
+        for m in pl.TAU2_METHODS
+    }
+    random = (hksj_by_method if settings.hksj else by_method)[settings.tau2_method]
+    return fixed, by_method, hksj_by_method, random
+
+
+def _pool_counts(data, measure, conf):
+    """Mantel-Haenszel and Peto, where the 2x2 counts allow them."""
+    from .stats import binary
+
+    if measure in BINARY_MEASURES and data.has_counts():
+        mh = _safe(
+            binary.mantel_haenszel,
+            data.a,
+            data.b,
+            data.c,
+            data.d,
+            measure,
+            confidence_level=conf,
+        )
+    else:
+        mh = NotComputable("Mantel-Haenszel pooling needs 2x2 counts for every study")
+    if measure == "OR" and data.has_counts():
+        peto = _safe(binary.peto, data.a, data.b, data.c, data.d, confidence_level=conf)
+    else:
+        peto = NotComputable("Peto pooling needs 2x2 counts and the odds ratio")
+    return mh, peto
+
+
+def _small_study_tests(data, settings, random, het):
+    """The recommended test, every registered test, and the conditions for reading them."""
+    from .stats import applicability, asymmetry
+
+    tau2 = random.tau2 if isinstance(random, PooledEstimate) else 0.0
+    recommendation = _safe(applicability.recommend, data, tau2)
+    # the recommended test runs with the options it was recommended with (e.g. the arcsine
+    # test with random effects when tau^2 is large: Sterne et al. 2011)
+    options = {}
+    if recommendation and not isinstance(recommendation, NotComputable):
+        options[recommendation.key] = recommendation.kwargs()
+    tests = asymmetry.run_all(data, alpha=settings.test_alpha, options=options)
+    if isinstance(het, NotComputable):
+        rules = _safe(applicability.applicability, data, None, None)
+    else:
+        rules = _safe(applicability.applicability, data, het.i2, het.pvalue)
+    return recommendation, tests, rules
+
+
+def _trim_fill(data, settings, estimator, trim_model, fill_model):
+    from .stats import adjust
+
+    return _safe(
+        adjust.trim_and_fill,
+        data,
+        estimator=estimator,
+        side=settings.trimfill_side,
+        trim_model=trim_model,
+        fill_model=fill_model,
+        tau2_method=settings.tau2_method,
+    )
+
+
+def _full_stage(review, settings, base, with_power, power_progress, progress) -> dict[str, Any]:
+    """The rest of the analysis, as the fields of the full result."""
+    from .stats import adjust, sensitivity
+    from .stats.diagnostics import flag_rows
+
+    data = base.data
+    variants = _trim_fill_variants(data, settings, base.trim_fill)
+    _stage(progress, "leave one out")
+    loo = _safe(sensitivity.leave_one_out, data, tau2_method=settings.tau2_method)
+    _stage(progress, "cumulative analysis")
+    cumulative = _safe(sensitivity.cumulative, data, tau2_method=settings.tau2_method)
+    row_flags = _safe(flag_rows, data, loo)
+    recon = _reconciliation(review, base, row_flags)
+    _stage(progress, "other adjustments")
+    pet_peese = _safe(
+        adjust.pet_peese, data, alpha=settings.petpeese_alpha, sided=settings.petpeese_sided
+    )
+    limit = _safe(adjust.limit_meta_analysis, data, tau2_method=settings.tau2_method)
+    selection = _safe(adjust.selection_model, data, cutpoints=settings.selection_cutpoints)
+    failsafe = _safe(sensitivity.fail_safe_n, data, trivial=settings.orwin_trivial)
+    sel_sens, sel_fixed = _selection_block(data, base.random, settings)
+    missing = _unreported_block(review, data, base.random, settings)
+    _stage(progress, "subgroups")
+    subgroups, meta_reg = _moderators(data, settings)
+    power = _power(data, settings, power_progress, progress) if with_power else None
+    # work thinned or done another way for a large review is said in the result (DESIGN 8)
+    notes = tuple(n for n in (getattr(loo, "note", ""), getattr(cumulative, "note", "")) if n)
+    return dict(
         reconciliation=recon,
         trim_fill_variants=variants,
         pet_peese=pet_peese,
@@ -587,6 +574,77 @@ def _analyse(
         unreported_trials=missing,
         row_flags=row_flags,
         notes=notes,
+    )
+
+
+def _trim_fill_variants(data, settings, trim_fill) -> dict[str, Any]:
+    """Trim and fill depends on its choices (Peters et al. 2007): show the other usual ones."""
+    variants: dict[str, Any] = {}
+    s = settings
+    chosen = (s.trimfill_estimator, s.trimfill_trim_model, s.trimfill_fill_model)
+    for est in ("L0", "R0"):
+        for trim_m, fill_m in (("FE", "FE"), ("FE", "RE"), ("RE", "RE")):
+            key = f"{est}, trim {trim_m}, fill {fill_m}"
+            if (est, trim_m, fill_m) == chosen:
+                variants[key] = trim_fill  # already run
+            else:
+                variants[key] = _trim_fill(data, settings, est, trim_m, fill_m)
+    return variants
+
+
+def _reconciliation(review, base: AnalysisResult, row_flags):
+    """The entered rows pooled by every model against the review's published result."""
+    from .stats.diagnostics import suspects
+    from .stats.reconcile import reconcile
+
+    measure, data = base.measure, base.data
+    published = _published_on_scale(review, measure)
+    if published is None:
+        return NotComputable("no published pooled result with its CI was entered")
+    models: dict[str, Any] = {"FE-IV": base.fixed, "MH": base.mantel_haenszel, "Peto": base.peto}
+    models.update(base.random_by_method)
+    models.update({f"{m}+HKSJ": r for m, r in base.random_hksj_by_method.items()})
+    return _safe(
+        reconcile,
+        models,
+        published,
+        ratio=measure in RATIO_MEASURES,
+        published_model=review.details.published.model,
+        loo=lambda key: _leave_one_out_estimates(data, key, measure),
+        flagged=_flagged_rows(review, base.problems) + suspects(row_flags, base.problems),
+    )
+
+
+def _moderators(data, settings) -> tuple[dict[str, Any], dict[str, Any]]:
+    """Subgroup analyses and meta-regressions with the SE, by each grouping with 2+ levels."""
+    from .stats import moderators
+
+    subgroups: dict[str, Any] = {}
+    meta_reg: dict[str, Any] = {}
+    for by in ("risk_of_bias", "subgroup"):
+        labels = getattr(data, by)
+        if len({x for x in labels if x}) >= 2:
+            subgroups[by] = _safe(
+                moderators.subgroup_analysis, data, by=by, tau2_method=settings.tau2_method
+            )
+            meta_reg[by] = _safe(moderators.meta_regression, data, by)
+    return subgroups, meta_reg
+
+
+def _power(data, settings, power_progress, progress):
+    """Monte-Carlo power of the recommended test for these SEs."""
+    from .stats.power import simulate_power
+
+    _stage(progress, "power simulation")
+    return _safe(
+        simulate_power,
+        data,
+        test="recommended",
+        reps=settings.power_reps,
+        seed=settings.power_seed,
+        selection=settings.power_selection,
+        alpha=settings.test_alpha,
+        progress=power_progress,
     )
 
 

@@ -19,7 +19,6 @@ from .model.review import (
     MEASURE_NAMES,
     MEASURES,
     IntakeAccount,
-    NotRead,
     Review,
     ReviewDetails,
     StudyRow,
@@ -146,21 +145,18 @@ def load_pdf_review(
     got = rows_from_pages(doc, pages, measure, decimal=decimal)
     notes = notes + list(got.notes)
     paste = got.paste
-    where = f"page {pages[0]}" if len(pages) == 1 else f"pages {pages[0]}-{pages[-1]}"
+    where = got.where()
+    unread = doc.unread_pages()
+    # a page whose text could not be read is said on stderr and listed in the account
+    notes += [f"{path.name}: page {pg.number} was not read: {pg.problem}." for pg in unread]
     if not paste.rows:
-        raise InputError(f"{path.name}: no study rows could be read on {where}.\n{paste.account()}")
+        why = "".join(f" Page {pg.number}: {pg.problem}." for pg in unread if pg.number in pages)
+        raise InputError(
+            f"{path.name}: no study rows could be read on {where}.{why}\n{paste.account()}"
+        )
     if paste.undecided and not decimal:
         raise _undecided_error(path.name, paste.undecided, "line")
-    prose = 0
-    not_read = []
-    for r in paste.not_understood:
-        if not any(ch.isdigit() for ch in r.text):
-            prose += 1  # text without a number cannot be a study row (titles, prose)
-            continue
-        # study-looking lines not read go into the account (stderr, output, exit 4)
-        where = f"page {got.line_pages[r.line_no - 1]}, line {r.line_no}"
-        kind = next((n.kind for n in paste.not_read() if n.where == f"line {r.line_no}"), "line")
-        not_read.append(NotRead(kind, where, r.text.strip(), r.reason))
+    prose = got.prose_count(paste)
     if prose:
         notes.append(f"{path.name}: {prose} line(s) of text without numbers passed over.")
     review = review_from_rows(
@@ -169,8 +165,8 @@ def load_pdf_review(
     review = review.with_details(
         title=f"{path.stem} ({where})", source_note=got.source_note(path.name)
     )
-    account = paste.intake_account(path.name, review.intake.measure_how)
-    review = replace(review, intake=replace(account, not_read=tuple(not_read)))
+    account = got.intake_account(path.name, review.intake.measure_how, unread_pages=unread)
+    review = replace(review, intake=account)
     if paste.published is not None:
         review = review.with_details(published=paste.published)
     return _with_favours(review, favours), notes

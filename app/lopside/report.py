@@ -385,35 +385,124 @@ def to_json(result) -> dict[str, Any]:
 
     assessment = assessment_of(result)
     result = assessment.analysis
+    # what could not be computed, by key, in the order the parts below are read
     nc: dict[str, str] = {}
+    _note(nc, "flagged_studies", getattr(result, "row_flags", None))
+    _note(nc, "pooled.fixed", result.fixed)
+    _note(nc, "pooled.random", result.random)
+    het = _note(nc, "heterogeneity", result.heterogeneity)
+    tests_out = _tests_json(result, nc)
+    tf = _note(nc, "trim_fill", result.trim_fill)
+    rec = result.recommendation
+    out: dict[str, Any] = {
+        "lopside_version": __version__,
+        "title": result.review.details.title,
+        "measure": result.measure,
+        "scale": "natural log" if result.is_ratio else "as entered",
+        "k": result.k,
+        "studies": _studies_json(result),
+        "excluded": [plain(e) for e in result.excluded],
+        "problems": [plain(p) for p in result.problems],
+        "flagged_studies": flagged_studies(result),
+        "influence": _influence(result),
+        "pooled": _pooled_json(result),
+        "heterogeneity": _heterogeneity_json(het),
+        "reconciliation": plain(result.reconciliation),
+        "tests": tests_out,
+        "recommended_test": None if isinstance(rec, NotComputable) or rec is None else plain(rec),
+        "applicability": [plain(r) for r in result.applicability],
+        "trim_fill": None if isinstance(tf, NotComputable) else {**plain(tf), **_filled(tf)},
+        "trim_fill_variants": _trim_fill_variants_json(result),
+        "pet_peese": plain(result.pet_peese),
+        "limit": plain(result.limit),
+        "selection_model": plain(result.selection),
+        "selection_sensitivity": selection_sensitivity_json(result.selection_sensitivity),
+        "selection_fixed_weights": fixed_weights_json(result.selection_fixed_weights),
+        "leave_one_out": plain(result.leave_one_out),
+        "cumulative": plain(result.cumulative),
+        "fail_safe_n": plain(result.failsafe),
+        "subgroups": plain(result.subgroups),
+        "meta_regression": plain(result.meta_regression),
+        "power": plain(result.power) if result.power is not None else None,
+        "fingerprint_sha256": result.fingerprint,
+        # what was thinned or computed another way for a large review (never silent)
+        "notes": list(getattr(result, "notes", ())),
+        "settings": result.settings.to_dict(),
+        "review_claim": _review_claim_json(result),
+    }
+    missing = unreported_json(result.unreported_trials)
+    if missing is not None:
+        out["unreported_trials"] = missing
+    out["trim_fill_range"] = _trim_fill_range_json(result)
+    out["published_heterogeneity"] = _published_het_json(result)
+    out["appraisal"] = appraisal_json(assessment)
+    out["intake"] = intake_json(result.review)
+    out["not_computable"] = nc
+    return out
 
-    def note(key: str, value):
-        if isinstance(value, NotComputable):
-            nc[key] = value.reason
-        return value
 
-    data = result.data
-    studies = []
-    included_rows = set(data.rows)
-    for i, (row, d) in enumerate(zip(result.review.studies, result.derived)):
-        studies.append(
-            {
-                "row": i + 1,
-                "study": row.study,
-                "y": _num(d.y),
-                "se": _num(d.se),
-                "included": i in included_rows,
-                "route": getattr(d, "route", ""),
-                "how": getattr(d, "route_text", ""),
-            }
-        )
-    note("flagged_studies", getattr(result, "row_flags", None))
-    note("pooled.fixed", result.fixed)
-    note("pooled.random", result.random)
-    het = note("heterogeneity", result.heterogeneity)
+def _note(nc: dict[str, str], key: str, value):
+    """``value``, its reason kept under ``key`` in ``nc`` when it could not be computed."""
+    if isinstance(value, NotComputable):
+        nc[key] = value.reason
+    return value
+
+
+def _studies_json(result) -> list[dict[str, Any]]:
+    """``studies``: every table row with its effect, SE, and how the SE was obtained."""
+    included_rows = set(result.data.rows)
+    return [
+        {
+            "row": i + 1,
+            "study": row.study,
+            "y": _num(d.y),
+            "se": _num(d.se),
+            "included": i in included_rows,
+            "route": getattr(d, "route", ""),
+            "how": getattr(d, "route_text", ""),
+        }
+        for i, (row, d) in enumerate(zip(result.review.studies, result.derived))
+    ]
+
+
+def _pooled_json(result) -> dict[str, Any]:
+    return {
+        "fixed": _pooled(result.fixed, random=False),
+        "random": _pooled(result.random, random=True),
+        "random_by_method": {
+            m: _pooled(p, random=True) for m, p in result.random_by_method.items()
+        },
+        "random_hksj_by_method": {
+            m: _pooled(p, random=True) for m, p in result.random_hksj_by_method.items()
+        },
+        "mantel_haenszel": _pooled(result.mantel_haenszel, random=False),
+        "peto": _pooled(result.peto, random=False),
+    }
+
+
+def _heterogeneity_json(het) -> dict[str, Any] | None:
+    if isinstance(het, NotComputable):
+        return None
+    return {
+        "q": _num(het.q),
+        "df": het.df,
+        "p": _num(het.pvalue),
+        "i2": _num(het.i2),
+        "tau2": _num(het.tau2),
+        "h": _num(het.h),
+        "i2_ci": _with_method(het.i2_ci, I2_CI_METHOD),
+        "tau2_ci": _with_method(het.tau2_ci, TAU2_CI_METHOD),
+        "i2_ci_method": I2_CI_METHOD,
+        "tau2_ci_method": TAU2_CI_METHOD,
+        "tau2_method": het.tau2_method,
+    }
+
+
+def _tests_json(result, nc: dict[str, str]) -> dict[str, Any]:
+    """``tests``: every test's full result with the contract's short names beside it."""
     tests_out: dict[str, Any] = {}
     for key, t in result.tests.items():
-        note(f"tests.{key}", t)
+        _note(nc, f"tests.{key}", t)
         if isinstance(t, NotComputable) or t is None:
             tests_out[key] = None
             continue
@@ -447,111 +536,40 @@ def to_json(result) -> dict[str, Any]:
             tests_out.setdefault(variant, None)
     for key in ("egger", "begg", "harbord", "peters"):
         tests_out.setdefault(key, None)
-    tf = note("trim_fill", result.trim_fill)
-    if isinstance(tf, NotComputable):
-        trim = None
-    else:
-        adj = _get(tf, "adjusted")
-        trim = plain(tf)
-        trim.update(
-            k0=int(tf.k0),
-            side=tf.side,
-            estimate=_num(adj.estimate) if isinstance(adj, PooledEstimate) else None,
-            ci_low=_num(adj.ci.low) if isinstance(adj, PooledEstimate) else None,
-            ci_high=_num(adj.ci.high) if isinstance(adj, PooledEstimate) else None,
-        )
+    return tests_out
+
+
+def _filled(tf) -> dict[str, Any]:
+    """A trim-and-fill run's short fields: studies filled, side, the filled estimate."""
+    adj = _get(tf, "adjusted")
+    ok = isinstance(adj, PooledEstimate)
+    return {
+        "k0": int(tf.k0),
+        "side": tf.side,
+        "estimate": _num(adj.estimate) if ok else None,
+        "ci_low": _num(adj.ci.low) if ok else None,
+        "ci_high": _num(adj.ci.high) if ok else None,
+    }
+
+
+def _trim_fill_variants_json(result) -> dict[str, Any]:
     variants = {}
     for name, v in result.trim_fill_variants.items():
         if isinstance(v, NotComputable) or v is None:
             variants[name] = {"not_computable": getattr(v, "reason", "not run")}
-            continue
-        adj = _get(v, "adjusted")
-        ok = isinstance(adj, PooledEstimate)
-        variants[name] = {
-            "k0": int(v.k0),
-            "side": v.side,
-            "estimate": _num(adj.estimate) if ok else None,
-            "ci_low": _num(adj.ci.low) if ok else None,
-            "ci_high": _num(adj.ci.high) if ok else None,
-        }
-    rec = result.recommendation
-    out: dict[str, Any] = {
-        "lopside_version": __version__,
-        "title": result.review.details.title,
-        "measure": result.measure,
-        "scale": "natural log" if result.is_ratio else "as entered",
-        "k": result.k,
-        "studies": studies,
-        "excluded": [plain(e) for e in result.excluded],
-        "problems": [plain(p) for p in result.problems],
-        "flagged_studies": flagged_studies(result),
-        "influence": _influence(result),
-        "pooled": {
-            "fixed": _pooled(result.fixed, random=False),
-            "random": _pooled(result.random, random=True),
-            "random_by_method": {
-                m: _pooled(p, random=True) for m, p in result.random_by_method.items()
-            },
-            "random_hksj_by_method": {
-                m: _pooled(p, random=True) for m, p in result.random_hksj_by_method.items()
-            },
-            "mantel_haenszel": _pooled(result.mantel_haenszel, random=False),
-            "peto": _pooled(result.peto, random=False),
-        },
-        "heterogeneity": None
-        if isinstance(het, NotComputable)
-        else {
-            "q": _num(het.q),
-            "df": het.df,
-            "p": _num(het.pvalue),
-            "i2": _num(het.i2),
-            "tau2": _num(het.tau2),
-            "h": _num(het.h),
-            "i2_ci": _with_method(het.i2_ci, I2_CI_METHOD),
-            "tau2_ci": _with_method(het.tau2_ci, TAU2_CI_METHOD),
-            "i2_ci_method": I2_CI_METHOD,
-            "tau2_ci_method": TAU2_CI_METHOD,
-            "tau2_method": het.tau2_method,
-        },
-        "reconciliation": plain(result.reconciliation),
-        "tests": tests_out,
-        "recommended_test": None if isinstance(rec, NotComputable) or rec is None else plain(rec),
-        "applicability": [plain(r) for r in result.applicability],
-        "trim_fill": trim,
-        "trim_fill_variants": variants,
-        "pet_peese": plain(result.pet_peese),
-        "limit": plain(result.limit),
-        "selection_model": plain(result.selection),
-        "selection_sensitivity": selection_sensitivity_json(result.selection_sensitivity),
-        "selection_fixed_weights": fixed_weights_json(result.selection_fixed_weights),
-        "leave_one_out": plain(result.leave_one_out),
-        "cumulative": plain(result.cumulative),
-        "fail_safe_n": plain(result.failsafe),
-        "subgroups": plain(result.subgroups),
-        "meta_regression": plain(result.meta_regression),
-        "power": plain(result.power) if result.power is not None else None,
-        "fingerprint_sha256": result.fingerprint,
-        # what was thinned or computed another way for a large review (never silent)
-        "notes": list(getattr(result, "notes", ())),
-        "settings": result.settings.to_dict(),
-    }
+        else:
+            variants[name] = _filled(v)
+    return variants
+
+
+def _review_claim_json(result) -> dict[str, Any] | None:
+    """What the review said about small-study effects, with Lopside's comparison."""
     from .appraise.claim import compare_claim
 
-    claim = result.review.details.claim
     comparison = compare_claim(result)
-    out["review_claim"] = (
-        None if comparison is None else {**plain(claim), "comparison": plain(comparison)}
-    )
-    missing = unreported_json(result.unreported_trials)
-    if missing is not None:
-        out["unreported_trials"] = missing
-
-    out["trim_fill_range"] = _trim_fill_range_json(result)
-    out["published_heterogeneity"] = _published_het_json(result)
-    out["appraisal"] = appraisal_json(assessment)
-    out["intake"] = intake_json(result.review)
-    out["not_computable"] = nc
-    return out
+    if comparison is None:
+        return None
+    return {**plain(result.review.details.claim), "comparison": plain(comparison)}
 
 
 def _trim_fill_range_json(result) -> dict[str, Any] | None:
@@ -607,4 +625,6 @@ def intake_json(review) -> dict[str, Any]:
         },
         "measure_how": a.measure_how,
         "favours": {"value": d.favours, "source": d.favours_source, "text": favours_text(d)},
+        # where each row read came from in its file ("page 7 of review.pdf, line 12")
+        "rows_at": [{"study": label, "place": place} for label, place in a.rows_at],
     }

@@ -58,6 +58,35 @@ def _row_height_pt(font: float) -> float:
     return font * 1.6
 
 
+@dataclass(slots=True)
+class _Layout:
+    """Where everything goes, in inches, computed before anything is drawn."""
+
+    rows: list[Row]  # labels wrapped, dropped columns' cells removed
+    columns: list[Column]  # those kept
+    col_w: list[float]
+    xs: list[float]  # left edge of each kept column
+    dropped: list[Column]
+    caption: str  # wrapped, with the dropped columns' notes
+    footer: str  # wrapped
+    fs: float
+    fs_small: float
+    row_pt: float
+    W: float
+    H: float
+    margin: float
+    x_label: float
+    label_w: float
+    plot_x0: float
+    plot_x1: float
+    x_lo: float
+    x_hi: float
+    line_in: float
+    body_rows: float
+    bottom: float
+    foot_in: float
+
+
 def draw_rows(
     rows: list[Row],
     columns: list[Column],
@@ -85,18 +114,119 @@ def draw_rows(
     "null", "layout" (column positions in inches) for tests.
     """
     from matplotlib.figure import Figure
-    from matplotlib.patches import Polygon, Rectangle
     from matplotlib.transforms import blended_transform_factory
 
-    preset = style.size_preset(size)
+    lay = _layout(
+        rows, columns, style.size_preset(size), width, caption, footer, label_header,
+        (left_words, right_words), null, measure,
+    )  # fmt: skip
+    fs, W, H = lay.fs, lay.W, lay.H
+    with style.style_context(fs):
+        fig = Figure(figsize=(W, H))
+        ax, centres = _axes(fig, lay, measure)
+        tr_text = blended_transform_factory(fig.dpi_scale_trans, ax.transData)
+        art: dict[str, Any] = {
+            "ax": ax,
+            "squares": [],
+            "diamonds": [],
+            "bars": [],
+            "arrows": [],
+            "texts": [],
+            "layout": {
+                "label_x": lay.x_label,
+                "label_w": lay.label_w,
+                "columns": list(zip(lay.xs, lay.col_w, strict=True)),
+                "plot": (lay.plot_x0, lay.plot_x1),
+                "row_pt": lay.row_pt,
+                "height": H,
+                "dropped": [c.header for c in lay.dropped],
+            },
+        }
+        _draw_zebra(fig, lay, centres, tr_text)
+        _draw_header(fig, lay, tr_text, label_header)
+        # null and reference lines across the body
+        art["null"] = ax.axvline(null, color=style.NULL_LINE, lw=style.LINE_WIDTH["null"], zorder=1)
+        if reference is not None and np.isfinite(reference):
+            ax.axvline(reference, color=reference_colour, lw=0.7, ls=(0, (2, 2)), zorder=1)
+        _draw_body(fig, ax, lay, centres, tr_text, art)
+        lines_used = _draw_favours(fig, ax, lay, null, left_words, right_words)
+        label = effect_axis_label(measure, units)
+        plot_pt = (lay.plot_x1 - lay.plot_x0) * 72.0
+        loc = "center" if text_width_pt(label, fs) <= plot_pt else "right"
+        ax.set_xlabel(label, fontsize=fs, labelpad=fs * 1.4 * lines_used + 1.0, loc=loc)
+        if lay.footer:
+            fig.text(
+                lay.margin / W,
+                0.04 / H,
+                lay.footer,
+                fontsize=lay.fs_small,
+                color=style.MUTED,
+                va="bottom",
+                ha="left",
+            )
+        fig.lopside_artists = art
+    return fig
+
+
+def _layout(
+    rows, columns, preset, width, caption, footer, label_header, words, null, measure
+) -> _Layout:
+    """Column widths, the label column, the x range and the heights of every band."""
     fs = preset.font
     fs_small = fs * 0.85
     row_pt = _row_height_pt(fs)
     W = float(width) if width else preset.width
     margin = 0.08
     gap_pt = fs * (0.7 if preset.name == "column" else 1.0)
+    rows, columns, col_w, dropped, label_w = _fit_columns(
+        rows, columns, label_header, W, fs, gap_pt, margin
+    )
+    notes = [c.dropped_note for c in dropped if c.dropped_note]
+    if notes:
+        caption = " \u00b7 ".join([caption, *notes]) if caption else " \u00b7 ".join(notes)
+    # a label too long for its column goes onto two lines before anything is cut
+    rows = [_wrap_label(r, label_w * 72.0 - (fs if r.indent else 0.0), fs) for r in rows]
+    x_label = margin
+    xs = []
+    x = x_label + label_w + gap_pt / 72.0
+    for w in col_w:
+        xs.append(x)
+        x += w + gap_pt / 72.0
+    plot_x0 = x
+    plot_x1 = W - margin
 
-    # ---------------------------------------------------------------- column widths
+    # heights
+    body_rows = sum(r.height for r in rows)
+    line_in = row_pt / 72.0
+    caption = wrap_words(caption, (W - 2 * margin) * 72.0, fs_small, sep=" \u00b7 ")
+    footer = "\n".join(
+        wrap_words(line, (W - 2 * margin) * 72.0, fs_small)
+        for line in wrap_words(footer, (W - 2 * margin) * 72.0, fs_small, sep="  ").split("\n")
+    )
+    caption_lines = caption.count("\n") + 1 if caption else 0
+    top = 0.06 + caption_lines * fs_small * 1.35 / 72.0 + line_in * 1.2  # caption + header
+    # tick marks and labels, the "favours" words, the axis title
+    x_lo, x_hi = _x_range(rows, null, measure)
+    # do the "favours" words fit beside the null? If not, each gets its own line
+    null_in = plot_x0 + (null - x_lo) / (x_hi - x_lo) * (plot_x1 - plot_x0)
+    word_lines = 1
+    for text, room in ((words[0], null_in - margin), (words[1], W - margin - null_in)):
+        if text and text_width_pt(text + " \u2192", fs_small) > room * 72.0 - 2:
+            word_lines = 2
+    bottom = (7.0 + fs * 1.1 + fs * 1.4 * word_lines + fs * 1.6) / 72.0 + 0.04
+    foot_in = (footer.count("\n") + 1) * fs_small * 1.4 / 72.0 if footer else 0.0
+    H = top + body_rows * line_in + 0.12 + bottom + foot_in
+    return _Layout(
+        rows, columns, col_w, xs, dropped, caption, footer, fs, fs_small, row_pt, W, H,
+        margin, x_label, label_w, plot_x0, plot_x1, x_lo, x_hi, line_in, body_rows, bottom,
+        foot_in,
+    )  # fmt: skip
+
+
+def _fit_columns(rows, columns, label_header, W, fs, gap_pt, margin):
+    """Text column widths and the label column's; optional columns dropped when the plot
+    would otherwise get less than its share. Returns (rows, columns, col_w, dropped,
+    label_w)."""
     col_w = []
     for j, col in enumerate(columns):
         widths = [text_width_pt(col.header, fs, "bold")]
@@ -144,33 +274,13 @@ def draw_rows(
         ]
         numeric_w = sum(col_w) + gap_pt / 72.0 * (len(columns) + 1)
         label_room = W - 2 * margin - numeric_w - plot_min
-    notes = [c.dropped_note for c in dropped if c.dropped_note]
-    if notes:
-        caption = " \u00b7 ".join([caption, *notes]) if caption else " \u00b7 ".join(notes)
     label_w = max(min(label_natural, label_room), label_min)
-    # a label too long for its column goes onto two lines before anything is cut
-    rows = [_wrap_label(r, label_w * 72.0 - (fs if r.indent else 0.0), fs) for r in rows]
-    x_label = margin
-    xs = []
-    x = x_label + label_w + gap_pt / 72.0
-    for w in col_w:
-        xs.append(x)
-        x += w + gap_pt / 72.0
-    plot_x0 = x
-    plot_x1 = W - margin
+    return rows, columns, col_w, dropped, label_w
 
-    # ---------------------------------------------------------------- heights
-    body_rows = sum(r.height for r in rows)
-    line_in = row_pt / 72.0
-    caption = wrap_words(caption, (W - 2 * margin) * 72.0, fs_small, sep=" \u00b7 ")
-    footer = "\n".join(
-        wrap_words(line, (W - 2 * margin) * 72.0, fs_small)
-        for line in wrap_words(footer, (W - 2 * margin) * 72.0, fs_small, sep="  ").split("\n")
-    )
-    caption_lines = caption.count("\n") + 1 if caption else 0
-    top = 0.06 + caption_lines * fs_small * 1.35 / 72.0 + line_in * 1.2  # caption + header
-    # tick marks and labels, the "favours" words, the axis title
-    # ------------------------------------------------------------ x range
+
+def _x_range(rows, null: float, measure: str) -> tuple[float, float]:
+    """The effect axis' range: every estimate, pooled interval and the null in view; very
+    wide study intervals cut at the frame (with an arrow) so as not to squash the rest."""
     est = [r.estimate for r in rows if r.kind in ("study", "point") and np.isfinite(r.estimate)]
     core = est + [v for r in rows if r.kind in ("summary", "pi") for v in (r.low, r.high)]
     core += [null]
@@ -191,299 +301,286 @@ def draw_rows(
     if not x_hi > x_lo:  # nothing but the null line (no study): a range of zero width
         x_lo, x_hi = c_lo - span / 2, c_hi + span / 2
     pad = 0.05 * (x_hi - x_lo)
-    x_lo, x_hi = x_lo - pad, x_hi + pad
-    # do the "favours" words fit beside the null? If not, each gets its own line
-    null_in = plot_x0 + (null - x_lo) / (x_hi - x_lo) * (plot_x1 - plot_x0)
-    word_lines = 1
-    for words, room in ((left_words, null_in - margin), (right_words, W - margin - null_in)):
-        if words and text_width_pt(words + " \u2192", fs_small) > room * 72.0 - 2:
-            word_lines = 2
-    bottom = (7.0 + fs * 1.1 + fs * 1.4 * word_lines + fs * 1.6) / 72.0 + 0.04
-    foot_in = (footer.count("\n") + 1) * fs_small * 1.4 / 72.0 if footer else 0.0
-    H = top + body_rows * line_in + 0.12 + bottom + foot_in
+    return x_lo - pad, x_hi + pad
 
-    with style.style_context(fs):
-        fig = Figure(figsize=(W, H))
-        ax_bottom = (bottom + foot_in) / H
-        ax_h = (body_rows * line_in + 0.12) / H
-        ax = fig.add_axes((plot_x0 / W, ax_bottom, (plot_x1 - plot_x0) / W, ax_h))
-        # row centres in "row units": 0 at the top of the body
-        centres = []
-        ypos = 0.0
-        for r in rows:
-            centres.append(ypos + r.height / 2)
-            ypos += r.height
-        pad_rows = 0.12 / line_in
-        ax.set_ylim(body_rows + pad_rows, 0.0)
 
-        # ticks whose labels, as drawn, keep a space between them
-        set_effect_axis(
-            ax,
-            measure,
-            x_lo,
-            x_hi,
-            "x",
-            max_ticks=7,
-            axis_pt=(plot_x1 - plot_x0) * 72.0,
-            font_pt=fs * 0.9,
-        )
-        ax.set_autoscale_on(False)
-        ax.spines["left"].set_visible(False)
-        ax.set_facecolor("none")  # let the zebra shading show through
-        ax.set_yticks([])
-        ax.tick_params(axis="x", labelsize=fs * 0.9)
+def _axes(fig, lay: _Layout, measure: str):
+    """The plot's axes (rows counted down from 0 at the top of the body) and the centre
+    of each row in those units."""
+    W, H = lay.W, lay.H
+    ax_bottom = (lay.bottom + lay.foot_in) / H
+    ax_h = (lay.body_rows * lay.line_in + 0.12) / H
+    ax = fig.add_axes((lay.plot_x0 / W, ax_bottom, (lay.plot_x1 - lay.plot_x0) / W, ax_h))
+    # row centres in "row units": 0 at the top of the body
+    centres = []
+    ypos = 0.0
+    for r in lay.rows:
+        centres.append(ypos + r.height / 2)
+        ypos += r.height
+    pad_rows = 0.12 / lay.line_in
+    ax.set_ylim(lay.body_rows + pad_rows, 0.0)
 
-        tr_text = blended_transform_factory(fig.dpi_scale_trans, ax.transData)
-        art: dict[str, Any] = {
-            "ax": ax,
-            "squares": [],
-            "diamonds": [],
-            "bars": [],
-            "arrows": [],
-            "texts": [],
-            "layout": {
-                "label_x": x_label,
-                "label_w": label_w,
-                "columns": list(zip(xs, col_w, strict=True)),
-                "plot": (plot_x0, plot_x1),
-                "row_pt": row_pt,
-                "height": H,
-                "dropped": [c.header for c in dropped],
-            },
-        }
+    # ticks whose labels, as drawn, keep a space between them
+    set_effect_axis(
+        ax,
+        measure,
+        lay.x_lo,
+        lay.x_hi,
+        "x",
+        max_ticks=7,
+        axis_pt=(lay.plot_x1 - lay.plot_x0) * 72.0,
+        font_pt=lay.fs * 0.9,
+    )
+    ax.set_autoscale_on(False)
+    ax.spines["left"].set_visible(False)
+    ax.set_facecolor("none")  # let the zebra shading show through
+    ax.set_yticks([])
+    ax.tick_params(axis="x", labelsize=lay.fs * 0.9)
+    return ax, centres
 
-        # zebra shading on study rows: guides the eye along a long table
-        zebra = 0
-        for r, c in zip(rows, centres, strict=True):
-            if r.kind in ("study", "point"):
-                if zebra % 2 == 1:
-                    fig.patches.append(
-                        Rectangle(
-                            (margin, c - r.height / 2),
-                            W - 2 * margin,
-                            r.height,
-                            transform=tr_text,
-                            facecolor=style.BAND_RAMP[0],
-                            edgecolor="none",
-                            zorder=-1,
-                        )
+
+def _draw_zebra(fig, lay: _Layout, centres, tr_text) -> None:
+    """Zebra shading on study rows: guides the eye along a long table."""
+    from matplotlib.patches import Rectangle
+
+    zebra = 0
+    for r, c in zip(lay.rows, centres, strict=True):
+        if r.kind in ("study", "point"):
+            if zebra % 2 == 1:
+                fig.patches.append(
+                    Rectangle(
+                        (lay.margin, c - r.height / 2),
+                        lay.W - 2 * lay.margin,
+                        r.height,
+                        transform=tr_text,
+                        facecolor=style.BAND_RAMP[0],
+                        edgecolor="none",
+                        zorder=-1,
                     )
-                zebra += 1
-            else:
-                zebra = 0
+                )
+            zebra += 1
+        else:
+            zebra = 0
 
-        # header row
-        head_y = -0.75
+
+def _draw_header(fig, lay: _Layout, tr_text, label_header: str) -> None:
+    """The header row (label and column headings, a rule under them) and the caption."""
+    fs, margin, W = lay.fs, lay.margin, lay.W
+    head_y = -0.75
+    fig.text(
+        lay.x_label,
+        head_y,
+        label_header,
+        transform=tr_text,
+        fontsize=fs,
+        fontweight="bold",
+        color=style.INK,
+        va="center",
+        ha="left",
+    )
+    for (xc, wc), col in zip(zip(lay.xs, lay.col_w, strict=True), lay.columns, strict=True):
         fig.text(
-            x_label,
+            xc + (wc if col.align == "right" else 0.0),
             head_y,
-            label_header,
+            col.header,
             transform=tr_text,
             fontsize=fs,
             fontweight="bold",
             color=style.INK,
             va="center",
+            ha=col.align,
+        )
+    fig.lines.append(_hline(fig, tr_text, margin, W - margin, -0.15, style.RULE, 0.6))
+    if lay.caption:
+        fig.text(
+            margin / W,
+            1.0 - 0.05 / lay.H,
+            lay.caption,
+            fontsize=lay.fs_small,
+            color=style.MUTED,
+            va="top",
             ha="left",
         )
-        for (xc, wc), col in zip(zip(xs, col_w, strict=True), columns, strict=True):
+
+
+def _draw_body(fig, ax, lay: _Layout, centres, tr_text, art: dict[str, Any]) -> None:
+    """Each row: its label and cells, then its mark (square, diamond, point or bar)."""
+    s_max = (0.85 * lay.row_pt) ** 2
+    rows = lay.rows
+    wmax = max([r.weight for r in rows if r.kind == "study" and np.isfinite(r.weight)] or [1.0])
+    for r, c in zip(rows, centres, strict=True):
+        if r.kind == "rule":
+            fig.lines.append(
+                _hline(fig, tr_text, lay.margin, lay.W - lay.margin, c, style.RULE, 0.6)
+            )
+            art["texts"].append([])
+            continue
+        art["texts"].append(_row_texts(fig, lay, r, c, tr_text))
+        if not np.isfinite(r.estimate) and r.kind != "pi":
+            continue
+        _row_mark(ax, lay, r, c, art, s_max, wmax)
+
+
+def _row_texts(fig, lay: _Layout, r: Row, c: float, tr_text) -> list:
+    """A row's label (fitted to its room) and its cells."""
+    fs, x_label = lay.fs, lay.x_label
+    row_texts = []
+    if r.label:
+        room = lay.label_w * 72.0 - (fs if r.indent else 0.0)
+        if r.kind == "header":  # a group's name has its line to itself
+            room = (lay.plot_x0 - x_label) * 72.0
+        weight = "bold" if r.bold else "normal"
+        text = "\n".join(fit_label(x, room, fs, weight) for x in r.label.split("\n"))
+        row_texts.append(
             fig.text(
-                xc + (wc if col.align == "right" else 0.0),
-                head_y,
-                col.header,
+                x_label + (fs / 72.0 if r.indent else 0.0),
+                c,
+                text,
                 transform=tr_text,
                 fontsize=fs,
-                fontweight="bold",
+                fontweight=weight,
                 color=style.INK,
                 va="center",
-                ha=col.align,
-            )
-        fig.lines.append(_hline(fig, tr_text, margin, W - margin, -0.15, style.RULE, 0.6))
-        if caption:
-            fig.text(
-                margin / W,
-                1.0 - 0.05 / H,
-                caption,
-                fontsize=fs_small,
-                color=style.MUTED,
-                va="top",
                 ha="left",
             )
+        )
+    for j, cell in enumerate(r.cells):
+        if not cell or j >= len(lay.columns):
+            continue
+        xc, wc = lay.xs[j], lay.col_w[j]
+        row_texts.append(
+            fig.text(
+                xc + (wc if lay.columns[j].align == "right" else 0.0),
+                c,
+                cell,
+                transform=tr_text,
+                fontsize=fs,
+                fontweight="bold" if _bold_cells(r) else "normal",
+                color=style.INK,
+                va="center",
+                ha=lay.columns[j].align,
+            )
+        )
+    return row_texts
 
-        # null and reference lines across the body
-        art["null"] = ax.axvline(null, color=style.NULL_LINE, lw=style.LINE_WIDTH["null"], zorder=1)
-        if reference is not None and np.isfinite(reference):
-            ax.axvline(reference, color=reference_colour, lw=0.7, ls=(0, (2, 2)), zorder=1)
 
-        s_max = (0.85 * row_pt) ** 2
-        wmax = max([r.weight for r in rows if r.kind == "study" and np.isfinite(r.weight)] or [1.0])
-        for r, c in zip(rows, centres, strict=True):
-            row_texts = []
-            if r.kind == "rule":
-                fig.lines.append(_hline(fig, tr_text, margin, W - margin, c, style.RULE, 0.6))
-                art["texts"].append(row_texts)
-                continue
-            if r.label:
-                room = label_w * 72.0 - (fs if r.indent else 0.0)
-                if r.kind == "header":  # a group's name has its line to itself
-                    room = (plot_x0 - x_label) * 72.0
-                weight = "bold" if r.bold else "normal"
-                text = "\n".join(fit_label(x, room, fs, weight) for x in r.label.split("\n"))
-                row_texts.append(
-                    fig.text(
-                        x_label + (fs / 72.0 if r.indent else 0.0),
-                        c,
-                        text,
-                        transform=tr_text,
-                        fontsize=fs,
-                        fontweight=weight,
-                        color=style.INK,
-                        va="center",
-                        ha="left",
-                    )
-                )
-            for j, cell in enumerate(r.cells):
-                if not cell or j >= len(columns):
-                    continue
-                xc, wc = xs[j], col_w[j]
-                row_texts.append(
-                    fig.text(
-                        xc + (wc if columns[j].align == "right" else 0.0),
-                        c,
-                        cell,
-                        transform=tr_text,
-                        fontsize=fs,
-                        fontweight="bold" if _bold_cells(r) else "normal",
-                        color=style.INK,
-                        va="center",
-                        ha=columns[j].align,
-                    )
-                )
-            art["texts"].append(row_texts)
-            if not np.isfinite(r.estimate) and r.kind != "pi":
-                continue
-            lo, hi = r.low, r.high
-            if r.kind in ("study", "point"):
-                if np.isfinite(lo) and np.isfinite(hi):
-                    a, b = max(lo, x_lo), min(hi, x_hi)
-                    (ln,) = ax.plot(
-                        [a, b], [c, c], color=r.colour, lw=style.LINE_WIDTH["ci"], zorder=2
-                    )
-                    art["bars"].append(ln)
-                    for side, cut, mk in ((lo < x_lo, x_lo, "<"), (hi > x_hi, x_hi, ">")):
-                        if side:
-                            (arrow,) = ax.plot(
-                                [cut],
-                                [c],
-                                marker=mk,
-                                ms=fs * 0.55,
-                                color=r.colour,
-                                zorder=2.5,
-                                clip_on=False,
-                            )
-                            art["arrows"].append(arrow)
-                if r.kind == "study":
-                    w = r.weight if np.isfinite(r.weight) else wmax
-                    area = max(s_max * w / wmax, 0.04 * s_max)
-                    sq = ax.scatter(
-                        [r.estimate],
-                        [c],
-                        s=[area],
-                        marker="s",
-                        c=r.colour,
-                        edgecolors="none",
-                        zorder=3,
-                    )
-                else:
-                    sq = ax.scatter(
-                        [r.estimate],
-                        [c],
-                        s=[(0.55 * row_pt) ** 2],
-                        marker="D",
-                        c=r.colour,
-                        edgecolors=style.PAPER,
-                        linewidths=0.5,
-                        zorder=3,
-                    )
-                art["squares"].append(sq)
-            elif r.kind == "summary":
-                half = 0.36 * r.height
-                poly = Polygon(
-                    [(lo, c), (r.estimate, c - half), (hi, c), (r.estimate, c + half)],
-                    closed=True,
-                    facecolor=style.PAPER if r.hollow else r.colour,
-                    edgecolor=r.colour,
-                    lw=1.0,
-                    zorder=3,
-                )
-                ax.add_patch(poly)
-                art["diamonds"].append(poly)
-            elif r.kind == "pi" and np.isfinite(lo) and np.isfinite(hi):
-                (bar,) = ax.plot(
-                    [lo, hi], [c, c], color=r.colour, lw=2.2, solid_capstyle="butt", zorder=2
-                )
-                for end in (lo, hi):
-                    ax.plot([end, end], [c - 0.28, c + 0.28], color=r.colour, lw=1.0, zorder=2)
-                art["bars"].append(bar)
+def _row_mark(ax, lay: _Layout, r: Row, c: float, art, s_max: float, wmax: float) -> None:
+    """A study's square or a step's point with its interval, a pooled diamond, or a
+    prediction-interval bar."""
+    from matplotlib.patches import Polygon
 
-        # words either side of the null, under the tick labels
-        words_y = -(7.0 + fs * 1.15) / 72.0
-        tr_words = blended_transform_factory(ax.transData, ax.transAxes)
-        from matplotlib.transforms import ScaledTranslation
-
-        off = ScaledTranslation(0, words_y, fig.dpi_scale_trans)
-        nudge = (x_hi - x_lo) * 0.015
-        to_in = ax.transData.transform
-        null_px = to_in((null, 0))[0]
-        left_room = (null_px - fig.dpi_scale_trans.transform((margin, 0))[0]) * 72.0 / fig.dpi
-        right_room = (fig.dpi_scale_trans.transform((W - margin, 0))[0] - null_px) * 72.0 / fig.dpi
-        lines_used = 1
-        line_pt = fs_small * 1.25
-        sides = []
-        for words, room, sign in ((left_words, left_room, -1), (right_words, right_room, 1)):
-            if not words:
-                continue
-            txt = ("\u2190 " + words) if sign < 0 else (words + " \u2192")
-            beside = x_lo < null + sign * nudge < x_hi and text_width_pt(txt, fs_small) <= room - 2
-            sides.append((txt, sign, beside))
-        if all(beside for _t, _s, beside in sides):
-            for txt, sign, _b in sides:
-                ha = "right" if sign < 0 else "left"
-                fig.texts.append(
-                    _text(fig, null + sign * nudge, 0, txt, tr_words + off, fs_small, ha)
-                )
+    lo, hi = r.low, r.high
+    if r.kind in ("study", "point"):
+        if np.isfinite(lo) and np.isfinite(hi):
+            _interval(ax, lay, r, c, art)
+        if r.kind == "study":
+            w = r.weight if np.isfinite(r.weight) else wmax
+            area = max(s_max * w / wmax, 0.04 * s_max)
+            sq = ax.scatter(
+                [r.estimate],
+                [c],
+                s=[area],
+                marker="s",
+                c=r.colour,
+                edgecolors="none",
+                zorder=3,
+            )
         else:
-            # no room beside the null: each phrase goes to its own end of the plot (the
-            # left words at the left end, the right words at the right end), on one line
-            # when both fit, else the right-hand phrase on a second line
-            plot_pt = (plot_x1 - plot_x0) * 72.0
-            total = sum(text_width_pt(t, fs_small) for t, _s, _b in sides) + fs_small * 2
-            for txt, sign, _b in sides:
-                row = 1 if (sign > 0 and total > plot_pt and len(sides) == 2) else 0
-                lines_used = max(lines_used, row + 1)
-                y_off = ScaledTranslation(0, words_y - row * line_pt / 72.0, fig.dpi_scale_trans)
-                tr = blended_transform_factory(fig.dpi_scale_trans, ax.transAxes) + y_off
-                # on a line of its own a phrase may run past the plot's other end
-                room_pt = (W - margin - plot_x0 if sign < 0 else plot_x1 - margin) * 72.0
-                fit = fit_label(txt, plot_pt if row == 0 and sign > 0 else room_pt, fs_small)
-                edge = plot_x0 if sign < 0 else plot_x1
-                t = _text(fig, edge, 0, fit, tr, fs_small, "left" if sign < 0 else "right")
-                fig.texts.append(t)
-        label = effect_axis_label(measure, units)
-        plot_pt = (plot_x1 - plot_x0) * 72.0
-        loc = "center" if text_width_pt(label, fs) <= plot_pt else "right"
-        ax.set_xlabel(label, fontsize=fs, labelpad=fs * 1.4 * lines_used + 1.0, loc=loc)
-        if footer:
-            fig.text(
-                margin / W,
-                0.04 / H,
-                footer,
-                fontsize=fs_small,
-                color=style.MUTED,
-                va="bottom",
-                ha="left",
+            sq = ax.scatter(
+                [r.estimate],
+                [c],
+                s=[(0.55 * lay.row_pt) ** 2],
+                marker="D",
+                c=r.colour,
+                edgecolors=style.PAPER,
+                linewidths=0.5,
+                zorder=3,
             )
-        fig.lopside_artists = art
-    return fig
+        art["squares"].append(sq)
+    elif r.kind == "summary":
+        half = 0.36 * r.height
+        poly = Polygon(
+            [(lo, c), (r.estimate, c - half), (hi, c), (r.estimate, c + half)],
+            closed=True,
+            facecolor=style.PAPER if r.hollow else r.colour,
+            edgecolor=r.colour,
+            lw=1.0,
+            zorder=3,
+        )
+        ax.add_patch(poly)
+        art["diamonds"].append(poly)
+    elif r.kind == "pi" and np.isfinite(lo) and np.isfinite(hi):
+        (bar,) = ax.plot([lo, hi], [c, c], color=r.colour, lw=2.2, solid_capstyle="butt", zorder=2)
+        for end in (lo, hi):
+            ax.plot([end, end], [c - 0.28, c + 0.28], color=r.colour, lw=1.0, zorder=2)
+        art["bars"].append(bar)
+
+
+def _interval(ax, lay: _Layout, r: Row, c: float, art) -> None:
+    """A study's interval, cut at the frame with an arrow where it runs past it."""
+    lo, hi, x_lo, x_hi = r.low, r.high, lay.x_lo, lay.x_hi
+    a, b = max(lo, x_lo), min(hi, x_hi)
+    (ln,) = ax.plot([a, b], [c, c], color=r.colour, lw=style.LINE_WIDTH["ci"], zorder=2)
+    art["bars"].append(ln)
+    for side, cut, mk in ((lo < x_lo, x_lo, "<"), (hi > x_hi, x_hi, ">")):
+        if side:
+            (arrow,) = ax.plot(
+                [cut],
+                [c],
+                marker=mk,
+                ms=lay.fs * 0.55,
+                color=r.colour,
+                zorder=2.5,
+                clip_on=False,
+            )
+            art["arrows"].append(arrow)
+
+
+def _draw_favours(fig, ax, lay: _Layout, null, left_words, right_words) -> int:
+    """Words either side of the null, under the tick labels; the lines they take."""
+    from matplotlib.transforms import ScaledTranslation, blended_transform_factory
+
+    fs_small, margin, W = lay.fs_small, lay.margin, lay.W
+    x_lo, x_hi, plot_x0, plot_x1 = lay.x_lo, lay.x_hi, lay.plot_x0, lay.plot_x1
+    words_y = -(7.0 + lay.fs * 1.15) / 72.0
+    tr_words = blended_transform_factory(ax.transData, ax.transAxes)
+    off = ScaledTranslation(0, words_y, fig.dpi_scale_trans)
+    nudge = (x_hi - x_lo) * 0.015
+    to_in = ax.transData.transform
+    null_px = to_in((null, 0))[0]
+    left_room = (null_px - fig.dpi_scale_trans.transform((margin, 0))[0]) * 72.0 / fig.dpi
+    right_room = (fig.dpi_scale_trans.transform((W - margin, 0))[0] - null_px) * 72.0 / fig.dpi
+    lines_used = 1
+    line_pt = fs_small * 1.25
+    sides = []
+    for words, room, sign in ((left_words, left_room, -1), (right_words, right_room, 1)):
+        if not words:
+            continue
+        txt = ("\u2190 " + words) if sign < 0 else (words + " \u2192")
+        beside = x_lo < null + sign * nudge < x_hi and text_width_pt(txt, fs_small) <= room - 2
+        sides.append((txt, sign, beside))
+    if all(beside for _t, _s, beside in sides):
+        for txt, sign, _b in sides:
+            ha = "right" if sign < 0 else "left"
+            fig.texts.append(_text(fig, null + sign * nudge, 0, txt, tr_words + off, fs_small, ha))
+        return lines_used
+    # no room beside the null: each phrase goes to its own end of the plot (the
+    # left words at the left end, the right words at the right end), on one line
+    # when both fit, else the right-hand phrase on a second line
+    plot_pt = (plot_x1 - plot_x0) * 72.0
+    total = sum(text_width_pt(t, fs_small) for t, _s, _b in sides) + fs_small * 2
+    for txt, sign, _b in sides:
+        row = 1 if (sign > 0 and total > plot_pt and len(sides) == 2) else 0
+        lines_used = max(lines_used, row + 1)
+        y_off = ScaledTranslation(0, words_y - row * line_pt / 72.0, fig.dpi_scale_trans)
+        tr = blended_transform_factory(fig.dpi_scale_trans, ax.transAxes) + y_off
+        # on a line of its own a phrase may run past the plot's other end
+        room_pt = (W - margin - plot_x0 if sign < 0 else plot_x1 - margin) * 72.0
+        fit = fit_label(txt, plot_pt if row == 0 and sign > 0 else room_pt, fs_small)
+        edge = plot_x0 if sign < 0 else plot_x1
+        t = _text(fig, edge, 0, fit, tr, fs_small, "left" if sign < 0 else "right")
+        fig.texts.append(t)
+    return lines_used
 
 
 def _hline(fig, transform, x0, x1, y, colour, lw):

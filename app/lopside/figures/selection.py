@@ -90,13 +90,22 @@ def draw_selection_curve(ax: Axes, inp: SelectionCurveInput, *, size: str = "col
                 eta[band_ok], lo[band_ok], hi[band_ok], color=style.BAND_RAMP[1], lw=0, zorder=1
             )
         art["null"] = ax.axhline(0.0, color=style.NULL_LINE, lw=style.LINE_WIDTH["null"], zorder=2)
+        # a worst case just below the null line: the two labels go on the outer sides of
+        # their lines, so that they do not meet between them (elsewhere "no effect" sits
+        # under the null line and the worst case's label above its line)
+        worst_below = False
+        if inp.worst is not None and math.isfinite(inp.worst) and inp.worst < 0.0:
+            seen = np.concatenate([est, lo[band_ok], hi[band_ok], [0.0, inp.worst]])
+            seen = seen[np.isfinite(seen)]
+            span = float(seen.max() - seen.min()) if seen.size else 0.0
+            worst_below = -inp.worst < 0.2 * span
         ax.annotate(
             "no effect",
             (eta[-1], 0.0),
-            xytext=(-2, -3),
+            xytext=(-2, 3 if worst_below else -3),
             textcoords="offset points",
             ha="right",
-            va="top",
+            va="bottom" if worst_below else "top",
             color=style.MUTED,
             fontsize=preset.font * 0.85,
         )
@@ -117,10 +126,10 @@ def draw_selection_curve(ax: Axes, inp: SelectionCurveInput, *, size: str = "col
             ax.annotate(
                 f"worst case {format_effect(inp.worst, inp.measure)}",
                 (eta[-1], inp.worst),
-                xytext=(-2, 3),
+                xytext=(-2, -3 if worst_below else 3),
                 textcoords="offset points",
                 ha="right",
-                va="bottom",
+                va="top" if worst_below else "bottom",
                 color=style.INK,
                 fontsize=preset.font * 0.85,
             )

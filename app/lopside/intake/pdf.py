@@ -15,22 +15,37 @@ Design invariants
 * Failure is a sentence: a password, a page without a text layer, a damaged file, or a
   page too complex to read are each reported in plain words (:class:`PdfError` for the
   whole file). Work is bounded: pages with more than :data:`MAX_PAGE_CHARS` characters are
-  not read, and a progress callback may cancel.
+  not read, each page is read against a deadline (:data:`PAGE_SECONDS`; a page that
+  takes longer is stopped and named, see :func:`read_pdf`), and a progress callback may
+  cancel. A page that could not be read is listed in the intake account (kind "page"),
+  never passed over silently.
+* The intake account names where each row came from on the PDF ("page 7 of review.pdf,
+  line 12"), not "pasted text", also after the lines went through the paste preview
+  (:meth:`PdfRows.intake_account`).
 * Rendering pages for the window's preview (pypdfium2) lives here too, with no Qt.
 """
 
 from __future__ import annotations
 
+import ctypes
 import os
 import statistics
+import threading
 from collections.abc import Callable, Sequence
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 
+from ..model.review import IntakeAccount, NotRead
 from .errors import IntakeError
 
 #: A page with more characters than this is not read (a forest table has a few thousand).
 MAX_PAGE_CHARS = 200_000
+#: Longest time one page's text layer may take to read, in seconds. A page of a review
+#: takes well under a second; one built of a huge number of tiny pieces (a scatter of
+#: glyphs, a figure drawn as text) can take minutes, and is stopped instead.
+PAGE_SECONDS = 15.0
+#: After the deadline, how long the stopped page has to wind down (seconds).
+STOP_GRACE_SECONDS = 2.0
 #: Largest PDF file read (bytes).
 MAX_PDF_BYTES = 200 * 2**20
 
@@ -42,6 +57,15 @@ NO_TEXT_LAYER = (
 
 class PdfError(IntakeError):
     """A PDF that cannot be read at all (password, damaged, not a PDF)."""
+
+
+def too_slow(seconds: float) -> str:
+    """Why a page was stopped (the page itself is named by the caller)."""
+    return (
+        f"reading its text took longer than {seconds:g} s and was stopped (a page built "
+        "of very many small pieces, such as a figure drawn as text); if the table is on "
+        "it, copy its rows from your PDF reader and paste them"
+    )
 
 
 @dataclass(frozen=True, slots=True)
@@ -66,6 +90,8 @@ class PdfLine:
     bottom: float
     #: footnote marks left out of the text (small raised characters)
     dropped_marks: tuple[str, ...] = ()
+    #: the line's number on its page (1-based, in reading order)
+    line_no: int = 0
 
 
 @dataclass(frozen=True, slots=True)
@@ -85,6 +111,11 @@ class PdfPage:
     #: for a sideways page, which way it was turned to read it: "ccw" or "cw"
     turn: str = ""
 
+    def unread(self) -> bool:
+        """The page has text that could not be read (too slow, too large, an error);
+        a page without a text layer is not counted: it holds no text to lose."""
+        return bool(self.problem) and self.problem != NO_TEXT_LAYER
+
     def box_on_page(self, line: PdfLine) -> tuple[float, float, float, float]:
         """(x0, top, x1, bottom) of ``line`` on the page as printed (points, top-left),
         undoing the quarter turn used to read a sideways table."""
@@ -100,6 +131,10 @@ class PdfDocument:
     path: str
     pages: tuple[PdfPage, ...]
     cancelled: bool = False
+
+    def unread_pages(self) -> list[PdfPage]:
+        """Pages whose text could not be read (see :meth:`PdfPage.unread`)."""
+        return [p for p in self.pages if p.unread()]
 
     def ranked(self) -> list[PdfPage]:
         """Pages holding study rows, most rows first (ties: earlier page first)."""
@@ -117,6 +152,91 @@ class PdfRows:
     #: page number of each line of the paste, by line number (1-based)
     line_pages: tuple[int, ...]
     notes: tuple[str, ...] = field(default_factory=tuple)
+    #: each line's text and its number on its page, in the order of ``line_pages``
+    texts: tuple[str, ...] = ()
+    page_lines: tuple[int, ...] = ()
+
+    def where(self, name: str = "") -> str:
+        """ "page 7 of review.pdf", "pages 7-8 of ...", "pages 7 and 9 of ..." (the pages
+        read); without ``name`` just the pages."""
+        pages = sorted(set(self.pages))
+        if len(pages) == 1:
+            text = f"page {pages[0]}"
+        elif pages == list(range(pages[0], pages[-1] + 1)):
+            text = f"pages {pages[0]}-{pages[-1]}"
+        else:
+            text = "pages " + ", ".join(str(n) for n in pages[:-1]) + f" and {pages[-1]}"
+        return f"{text} of {name}" if name else text
+
+    def places(self, paste=None) -> dict[int, tuple[int, int] | None]:
+        """(page, line on that page) of each line of ``paste`` (default: this reading),
+        by line number; matched by text, so that lines the user edited, added or removed
+        in the paste preview keep the right places (an edited line has None)."""
+        paste = self.paste if paste is None else paste
+        avail: dict[str, list[tuple[int, int]]] = {}
+        for text, page, line_no in zip(self.texts, self.line_pages, self.page_lines):
+            avail.setdefault(text.strip(), []).append((page, line_no))
+        out: dict[int, tuple[int, int] | None] = {}
+        for r in paste.lines:
+            hits = avail.get(r.text.strip())
+            out[r.line_no] = hits.pop(0) if hits else None
+        return out
+
+    def intake_account(
+        self,
+        name: str,
+        measure_how: str = "",
+        *,
+        paste=None,
+        unread_pages: Sequence[PdfPage] = (),
+        with_prose: bool = False,
+    ) -> IntakeAccount:
+        """The intake account of rows read from this PDF: the source is the page(s) of
+        the file ("page 7 of review.pdf"), each row's place is "page 7 of review.pdf,
+        line 12", lines not read are named by page and line, and pages that could not be
+        read at all (``unread_pages``) are listed as such. ``paste`` is the reading of the
+        lines as finally accepted (the window's paste preview may have edited them).
+        Lines without any digit (titles, prose around a table) are left out of the list
+        unless ``with_prose``; the caller says how many (:meth:`prose_count`)."""
+        paste = self.paste if paste is None else paste
+        at = self.places(paste)
+        edited = "edited in the paste preview"
+
+        def place(line_no: int) -> str:
+            got = at.get(line_no)
+            return f"page {got[0]}, line {got[1]}" if got else f"line {line_no}, {edited}"
+
+        not_read: list[NotRead] = []
+        for page in unread_pages:
+            not_read.append(NotRead("page", f"page {page.number}", "", page.problem))
+        by_line = {n.where: n for n in paste.not_read()}
+        for r in paste.not_understood:
+            if not with_prose and not any(ch.isdigit() for ch in r.text):
+                continue
+            n = by_line.get(f"line {r.line_no}")
+            kind = n.kind if n is not None else "line"
+            not_read.append(NotRead(kind, place(r.line_no), r.text.strip(), r.reason))
+        rows_at = []
+        for r in paste.studies:
+            if r.row_index is None:
+                continue
+            got = at.get(r.line_no)
+            where = f"page {got[0]} of {name}, line {got[1]}" if got else place(r.line_no)
+            rows_at.append((paste.rows[r.row_index].study, where))
+        return IntakeAccount(
+            source=self.where(name),
+            not_read=tuple(not_read),
+            decimal_mark=paste.decimal_mark,
+            decimal_how=paste.decimal_how,
+            decimal_evidence=paste.decimal_evidence,
+            measure_how=measure_how,
+            rows_at=tuple(rows_at),
+        )
+
+    @staticmethod
+    def prose_count(paste) -> int:
+        """Lines not read that hold no digit at all (titles, prose): counted, not listed."""
+        return sum(1 for r in paste.not_understood if not any(ch.isdigit() for ch in r.text))
 
     def source_note(self, name: str) -> str:
         """Where the rows came from, for the review's source note and the sheet:
@@ -385,6 +505,7 @@ def _read_page(page, number: int) -> PdfPage:
             apart = _lines_of(left, number, None, height) + _lines_of(right, number, None, height)
             if _label_score(apart) > _label_score(lines):
                 lines, columns = apart, 2
+        lines = _numbered(lines)
         return PdfPage(number, width, height, tuple(lines), _score(lines), columns=columns)
     best = None
     for rot in ("ccw", "cw"):
@@ -393,8 +514,67 @@ def _read_page(page, number: int) -> PdfPage:
         if best is None or score > best[0]:
             best = (score, lines, rot)
     return PdfPage(
-        number, width, height, tuple(best[1]), best[0], orientation="sideways", turn=best[2]
+        number,
+        width,
+        height,
+        tuple(_numbered(best[1])),
+        best[0],
+        orientation="sideways",
+        turn=best[2],
     )
+
+
+def _numbered(lines: Sequence[PdfLine]) -> list[PdfLine]:
+    return [replace(line, line_no=i) for i, line in enumerate(lines, start=1)]
+
+
+class _Stop(BaseException):
+    """Raised inside a page's reading thread when its deadline has passed. A
+    BaseException, so that pdfminer's and pdfplumber's ``except Exception`` clauses
+    cannot swallow it."""
+
+
+def _stop_thread(thread: threading.Thread) -> None:
+    """Raise :class:`_Stop` in ``thread`` at its next Python instruction (CPython's
+    PyThreadState_SetAsyncExc). pdfminer and pdfplumber are pure Python, so a page's
+    reading stops within a fraction of a second; only a single long C call (inflating a
+    huge stream) is not interrupted, and the caller then stops reading the file."""
+    ident = thread.ident
+    if ident is None:  # pragma: no cover - the thread was started
+        return
+    set_async = ctypes.pythonapi.PyThreadState_SetAsyncExc
+    set_async.argtypes = (ctypes.c_ulong, ctypes.py_object)
+    set_async.restype = ctypes.c_int
+    set_async(ident, _Stop)
+
+
+def _read_page_bounded(page, number: int, seconds: float) -> tuple[PdfPage, bool]:
+    """(the page, whether its reading could not be stopped). Reads ``page`` in a worker
+    thread and stops it after ``seconds``; the page then comes back with the reason as
+    its problem and no lines."""
+    if seconds == float("inf"):
+        return _read_page(page, number), False
+    box: dict[str, object] = {}
+
+    def work() -> None:
+        try:
+            box["page"] = _read_page(page, number)
+        except _Stop:
+            box["stopped"] = True
+        except Exception as exc:  # noqa: BLE001 - handed to the reading thread
+            box["error"] = exc
+
+    thread = threading.Thread(target=work, name=f"lopside-pdf-page-{number}", daemon=True)
+    thread.start()
+    thread.join(seconds)
+    if not thread.is_alive():
+        if "error" in box:
+            raise box["error"]  # type: ignore[misc]
+        return box["page"], False  # type: ignore[return-value]
+    _stop_thread(thread)
+    thread.join(STOP_GRACE_SECONDS)
+    empty = PdfPage(number, float(page.width), float(page.height), (), problem=too_slow(seconds))
+    return empty, thread.is_alive()
 
 
 def read_pdf(
@@ -402,14 +582,22 @@ def read_pdf(
     *,
     pages: Sequence[int] | None = None,
     progress: Callable[[int, int], bool] | None = None,
+    page_seconds: float | None = None,
 ) -> PdfDocument:
     """Read the text layer of ``path`` page by page (all pages, or the 1-based ``pages``).
 
     ``progress(done, total)`` is called after each page; returning False cancels (the
     pages read so far are kept and ``cancelled`` is set). Raises :class:`PdfError` for a
     file that cannot be read at all.
+
+    Each page is read in a worker thread against a deadline of ``page_seconds`` (None:
+    :data:`PAGE_SECONDS` as it is at the call; ``math.inf``: no deadline, no thread). A page that takes longer is stopped and comes back with no lines and
+    the reason as its ``problem`` (:func:`too_slow`); the other pages are read as usual.
+    Should a page's reading not stop (a single long call inside C), the pages after it
+    are not read either, each with that reason, since the file is still in use.
     """
     p = Path(path)
+    seconds = PAGE_SECONDS if page_seconds is None else page_seconds
     pdf = _open(p)
     out: list[PdfPage] = []
     cancelled = False
@@ -422,10 +610,28 @@ def read_pdf(
                     f"there is no page {n} (the PDF has {total} page{'s' if total != 1 else ''}).",
                     path=p,
                 )
+        stuck = 0
         for i, n in enumerate(wanted):
+            if stuck:
+                out.append(
+                    PdfPage(
+                        n,
+                        0.0,
+                        0.0,
+                        (),
+                        problem=(
+                            f"this page could not be read: reading page {stuck} could not be "
+                            "stopped, so the rest of the file was left"
+                        ),
+                    )
+                )
+                continue
             page = pdf.pages[n - 1]
             try:
-                out.append(_read_page(page, n))
+                got, hung = _read_page_bounded(page, n, seconds)
+                out.append(got)
+                if hung:
+                    stuck = n
             except Exception as exc:  # noqa: BLE001 - one bad page is a sentence, not a stop
                 out.append(
                     PdfPage(
@@ -437,7 +643,8 @@ def read_pdf(
                     )
                 )
             finally:
-                page.close()
+                if not stuck:
+                    page.close()
             if progress is not None and progress(i + 1, len(wanted)) is False:
                 cancelled = True
                 break
@@ -510,6 +717,8 @@ def rows_from_pages(
         pages=tuple(pages),
         line_pages=tuple(line.page for line in lines),
         notes=tuple(notes),
+        texts=tuple(line.text for line in lines),
+        page_lines=tuple(line.line_no for line in lines),
     )
 
 
@@ -559,6 +768,7 @@ def render_page(path: str | os.PathLike[str], number: int, scale: float = 1.5):
 __all__ = [
     "MAX_PAGE_CHARS",
     "NO_TEXT_LAYER",
+    "PAGE_SECONDS",
     "PdfDocument",
     "PdfError",
     "PdfLine",

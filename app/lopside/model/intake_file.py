@@ -13,7 +13,7 @@ from .review import DECIMAL_HOW, FAVOURS_SOURCES, IntakeAccount, NotRead
 
 #: most entries kept (a hostile file cannot make the account huge)
 MAX_NOT_READ = 20_000
-_KINDS = ("line", "text", "cells", "column", "row")
+_KINDS = ("line", "text", "cells", "column", "row", "page")
 
 
 class IntakeFileError(ValueError):

@@ -297,7 +297,8 @@ class NotRead:
 
     ``kind`` is ``"line"`` (a pasted line that looks like a study), ``"text"`` (a pasted
     line with no numbers after its label: listed, but not study-looking), ``"cells"``
-    (cells of a table row), ``"column"`` (a column of a table) or ``"row"`` (a table row);
+    (cells of a table row), ``"column"`` (a column of a table), ``"row"`` (a table row)
+    or ``"page"`` (a PDF page whose text could not be read);
     ``where`` names the place as the user sees it ("line 4", "row 7", "column 'or'").
     """
 

@@ -241,15 +241,21 @@ def _funnel_block(result, appraisal, st) -> list:
 
     from .figures import FigureUnavailable, funnel_flowable
 
-    fig_w = 243.0
+    # with the η curve under it the funnel column is narrower, so that the reading beside
+    # it wraps less and the block is no taller than the funnel alone was
+    fig_w = 206.0 if _has_selection_curve(result) else 243.0
+    # the η curve (how strong selection would have to be) goes under the funnel, in the
+    # room the reading beside it leaves; the funnel is drawn a little shorter for it
+    curve = _selection_curve(result, fig_w, st)
     try:
-        fig = funnel_flowable(result, fig_w, 300.0)
+        fig = funnel_flowable(result, fig_w, 300.0 if curve is None else 178.0)
     except FigureUnavailable as exc:
         fig = para(f"The funnel plot could not be drawn: {exc}", st["muted"])
+    left = [fig] if curve is None else [fig, _spacer(4), curve]
     sec = small_study_section(appraisal)
     text_w = FRAME_W - fig_w - 8
     reading = section_table(sec, st, width=text_w, label_width=58)
-    t = Table([[fig, reading]], colWidths=[fig_w + 8, text_w], hAlign="LEFT")
+    t = Table([[left, reading]], colWidths=[fig_w + 8, text_w], hAlign="LEFT")
     t.setStyle(
         TableStyle(
             [
@@ -264,35 +270,76 @@ def _funnel_block(result, appraisal, st) -> list:
     return [_h2("The funnel plot and what it shows", st), t]
 
 
-def _selection_block(result, st) -> list:
-    """How strong selection would have to be: the table beside the η curve."""
-    from reportlab.platypus import Table, TableStyle
+def _has_selection_curve(result) -> bool:
+    ss = getattr(result, "selection_sensitivity", None)
+    return hasattr(getattr(ss, "random", None), "curve")
 
+
+def _selection_curve(result, width: float, st):
+    """The corrected estimate against η, for the left column under the funnel (None when
+    the sensitivity to selection has nothing to show)."""
     from .figures import FigureUnavailable, selection_curve_flowable
 
-    sec = selection_strength_brief(result)
+    if not _has_selection_curve(result):
+        return None
+    try:
+        return selection_curve_flowable(result, width, 84.0)
+    except FigureUnavailable as exc:
+        return para(f"The selection curve could not be drawn: {exc}", st["muted"])
+
+
+def _selection_block(result, st) -> list:
+    """How strong selection would have to be: the compact table, full width (its η curve
+    is drawn under the funnel)."""
+    sec = _paired(selection_strength_brief(result))
     if not sec.rows:
         return []
-    fig_w = 190.0
-    try:
-        fig = selection_curve_flowable(result, fig_w, 120.0)
-    except FigureUnavailable as exc:
-        fig = para(f"The selection curve could not be drawn: {exc}", st["muted"])
-    text_w = FRAME_W - fig_w - 8
-    table = section_table(sec, st, width=text_w, label_width=185)
-    t = Table([[table, fig]], colWidths=[text_w + 8, fig_w], hAlign="LEFT")
-    t.setStyle(
-        TableStyle(
-            [
-                ("VALIGN", (0, 0), (-1, -1), "TOP"),
-                ("FONTNAME", (0, 0), (-1, -1), fonts.REGULAR),
-                ("LEFTPADDING", (0, 0), (-1, -1), 0),
-                ("RIGHTPADDING", (0, 0), (-1, -1), 0),
-                ("TOPPADDING", (0, 0), (-1, -1), 0),
-            ]
-        )
+    return [_h2(sec.title, st), *section_table(sec, st, label_width=236)]
+
+
+def _side_by_side(sec):
+    """A table section printed with two of its rows to a line (its columns twice)."""
+    if not sec.header or len(sec.rows) < 4:
+        return sec
+    half = (len(sec.rows) + 1) // 2
+    blank = ("",) * len(sec.header)
+    rows = tuple(
+        tuple(sec.rows[i]) + (tuple(sec.rows[i + half]) if i + half < len(sec.rows) else blank)
+        for i in range(half)
     )
-    return [_h2(sec.title, st), t]
+    # numbers keep their room (a heading such as "Estimate" must not break); labels wrap
+    widths = tuple(max(w, 1.15) if i else w for i, w in enumerate(sec.widths)) * 2
+    # no row emphasis: a line now holds two settings; the default is named in its label
+    return replace(sec, header=tuple(sec.header) * 2, rows=rows, widths=widths, emphasis=())
+
+
+#: rows of the selection brief printed on one line: (first label, second label) -> label
+_PAIRED_ROWS = {
+    ("Fixed weights, one-tailed (moderate / severe)",
+     "Fixed weights, two-tailed (moderate / severe)"):
+        "Fixed weights (moderate / severe): one-; two-tailed",
+    ("Missing trials found no effect", "Missing trials found the opposite effect"):
+        "Missing trials found no effect; the opposite effect",
+}  # fmt: skip
+
+
+def _paired(sec):
+    """The brief with its paired rows on one line each (fixed weights one- and two-tailed;
+    missing trials with no effect and with the opposite effect), its notes in one
+    paragraph: the same numbers in less height on the printed page."""
+    rows, i = [], 0
+    while i < len(sec.rows):
+        label, value = sec.rows[i][0], sec.rows[i][1]
+        if i + 1 < len(sec.rows):
+            merged = _PAIRED_ROWS.get((label, sec.rows[i + 1][0]))
+            if merged is not None:
+                rows.append((merged, f"{value}; {sec.rows[i + 1][1]}"))
+                i += 2
+                continue
+        rows.append((label, value))
+        i += 1
+    notes = (" ".join(sec.notes),) if sec.notes else ()
+    return replace(sec, rows=tuple(rows), notes=notes)
 
 
 def _page2(result, appraisal, st) -> list:
@@ -309,14 +356,16 @@ def _page2(result, appraisal, st) -> list:
         tf = None
     out += _section(adj, st)
     if tf is not None:
-        out += _section(tf, st)
-    # the selection block (table and η curve) is left out here: page 2 now carries the
-    # sensitivity section too; page 1 keeps the sentence, the window and JSON the detail
+        # two settings to a line: every setting in half the height, leaving room for how
+        # strong selection would have to be
+        out += _section(_side_by_side(tf), st)
+    # how strong selection would have to be: the table here, its η curve under the funnel
+    out += _selection_block(result, st)
     sens = sensitivity_section(result)
     # fail-safe N is not recommended (Cochrane Handbook 5.1, 10.4.4.3): the window and the
     # text show it with its caution; the printed sheet leaves it out to keep its room
     sens = replace(sens, rows=tuple(r for r in sens.rows if not r[0].startswith("Fail-safe")))
-    out += _section(sens, st, label_width=150)
+    out += _section(sens, st, label_width=200)
     # power is read out beside the funnel (simulated or not), so no separate block here
     return out
 

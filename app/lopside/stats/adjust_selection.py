@@ -295,18 +295,7 @@ def selection_model(
     """
     from scipy.special import chdtrc, ndtr, ndtri
 
-    if direction not in DIRECTIONS:
-        raise ValueError(f"unknown direction {direction!r}; use one of {DIRECTIONS}")
-    if tau2_method not in TAU2_METHODS:
-        raise ValueError(f"unknown tau² method {tau2_method!r}; use one of {TAU2_METHODS}")
-    cutpoints = tuple(float(c) for c in cutpoints)
-    if (
-        not cutpoints
-        or any(not 0.0 < c < 1.0 for c in cutpoints)
-        or any(b <= a for a, b in zip(cutpoints[:-1], cutpoints[1:]))
-    ):
-        raise ValueError("cutpoints must be increasing values strictly between 0 and 1")
-
+    cutpoints = _check_options(cutpoints, direction, tau2_method)
     y = np.asarray(data.y, dtype=float)
     se = np.asarray(data.se, dtype=float)
     k = y.size
@@ -320,19 +309,10 @@ def selection_model(
     re = random_effects(y, se**2, method=tau2_method)
     if isinstance(re, NotComputable):
         return re
-    if direction == "auto":
-        dir_used = "negative" if re.estimate < 0 else "positive"
-        direction_rule = (
-            f"automatic: the random-effects pooled estimate is {dir_used} "
-            f"({re.estimate:.3g}), so p-values are one-sided in that direction"
-        )
-    else:
-        dir_used = direction
-        direction_rule = f"chosen by the user: one-sided p-values favour {direction} effects"
+    dir_used, direction_rule = _direction(re.estimate, direction)
     sign = 1.0 if dir_used == "positive" else -1.0
-    yw = sign * y
 
-    model = _Model(yw, se, cutpoints)
+    model = _Model(sign * y, se, cutpoints)
     labels = _interval_labels(cutpoints)
     counts = tuple(int(c) for c in model.counts)
     empty = [labels[j] for j in range(J) if counts[j] == 0]
@@ -344,50 +324,15 @@ def selection_model(
             + dir_used
             + " direction); use fewer cut-points"
         )
-
-    mu0 = sign * re.estimate
-    tau0 = math.sqrt(re.tau2) if re.tau2 > 0 else 0.1 * float(np.median(se))
-    bounds_null = [(None, None), (0.0, None)]
-    null, ok_null = _fit(model, [np.array([mu0, tau0])], bounds_null, selection=False)
-    bounds = bounds_null + [(-_LOGW_BOUND, _LOGW_BOUND)] * (J - 1)
-    starts = [
-        np.concatenate([[mu0, tau0], np.zeros(J - 1)]),
-        np.concatenate([[0.5 * mu0, tau0], np.full(J - 1, math.log(0.5))]),
-    ]
-    fit, ok = _fit(model, starts, bounds, selection=True)
-    if not (ok and ok_null):
-        return NotComputable(
-            "the selection model is not estimable: the likelihood maximisation did not "
-            "converge for these data"
-        )
-    x = np.asarray(fit.x, dtype=float)
+    fits = _maximise(model, sign * re.estimate, re.tau2, se, labels)
+    if isinstance(fits, NotComputable):
+        return fits
+    fit, null, x = fits
     logw = x[2:]
-    at_edge = [labels[j + 1] for j in range(J - 1) if abs(logw[j]) > _LOGW_BOUND - 1e-2]
-    if at_edge:
-        return NotComputable(
-            "the selection model is not estimable: the publication weight for "
-            + ", ".join(at_edge)
-            + " runs to its limit (the data push it towards 0 or infinity)"
-        )
-
     note_parts = []
-    tau_zero = x[1] <= 1e-6 * max(1.0, float(np.median(se)))
-    free = np.ones(x.size, dtype=bool)
-    if tau_zero:
-        x[1] = 0.0
-        free[1] = False
-        note_parts.append("τ² was estimated at 0 (boundary); the SEs treat it as fixed")
-    H = _hessian(lambda t: model.negll(t, selection=True), x, free)
-    eig = np.linalg.eigvalsh(0.5 * (H + H.T))
-    if not np.all(np.isfinite(eig)) or eig.min() <= 1e-8 * max(1.0, abs(eig.max())):
-        return NotComputable(
-            "the selection model is not estimable: the likelihood is flat in at least one "
-            "direction, so the data cannot pin down the weights and the estimate together"
-        )
-    cov_free = np.linalg.inv(H)
-    cov = np.zeros((x.size, x.size))
-    cov[np.ix_(free, free)] = cov_free
-    se_x = np.sqrt(np.clip(np.diag(cov), 0.0, None))
+    se_x = _standard_errors(model, x, se, note_parts)
+    if isinstance(se_x, NotComputable):
+        return se_x
 
     mu = sign * float(x[0])
     se_mu = float(se_x[0])
@@ -429,3 +374,82 @@ def selection_model(
         confidence_level=confidence_level,
         note="; ".join(note_parts),
     )
+
+
+def _check_options(cutpoints, direction: str, tau2_method: str) -> tuple[float, ...]:
+    """The cut-points as floats; ValueError for an option the model does not know."""
+    if direction not in DIRECTIONS:
+        raise ValueError(f"unknown direction {direction!r}; use one of {DIRECTIONS}")
+    if tau2_method not in TAU2_METHODS:
+        raise ValueError(f"unknown tau² method {tau2_method!r}; use one of {TAU2_METHODS}")
+    cutpoints = tuple(float(c) for c in cutpoints)
+    if (
+        not cutpoints
+        or any(not 0.0 < c < 1.0 for c in cutpoints)
+        or any(b <= a for a, b in zip(cutpoints[:-1], cutpoints[1:]))
+    ):
+        raise ValueError("cutpoints must be increasing values strictly between 0 and 1")
+    return cutpoints
+
+
+def _direction(estimate: float, direction: str) -> tuple[str, str]:
+    """(the direction p-values are one-sided in, the rule that chose it, in words)."""
+    if direction != "auto":
+        return direction, f"chosen by the user: one-sided p-values favour {direction} effects"
+    dir_used = "negative" if estimate < 0 else "positive"
+    return dir_used, (
+        f"automatic: the random-effects pooled estimate is {dir_used} "
+        f"({estimate:.3g}), so p-values are one-sided in that direction"
+    )
+
+
+def _maximise(model: _Model, mu0: float, tau2: float, se: np.ndarray, labels):
+    """The fits with and without selection, and the parameters with it (mu, tau, log
+    weights), or NotComputable when either fit fails or a weight runs to its bound."""
+    J = len(labels)
+    tau0 = math.sqrt(tau2) if tau2 > 0 else 0.1 * float(np.median(se))
+    bounds_null = [(None, None), (0.0, None)]
+    null, ok_null = _fit(model, [np.array([mu0, tau0])], bounds_null, selection=False)
+    bounds = bounds_null + [(-_LOGW_BOUND, _LOGW_BOUND)] * (J - 1)
+    starts = [
+        np.concatenate([[mu0, tau0], np.zeros(J - 1)]),
+        np.concatenate([[0.5 * mu0, tau0], np.full(J - 1, math.log(0.5))]),
+    ]
+    fit, ok = _fit(model, starts, bounds, selection=True)
+    if not (ok and ok_null):
+        return NotComputable(
+            "the selection model is not estimable: the likelihood maximisation did not "
+            "converge for these data"
+        )
+    x = np.asarray(fit.x, dtype=float)
+    logw = x[2:]
+    at_edge = [labels[j + 1] for j in range(J - 1) if abs(logw[j]) > _LOGW_BOUND - 1e-2]
+    if at_edge:
+        return NotComputable(
+            "the selection model is not estimable: the publication weight for "
+            + ", ".join(at_edge)
+            + " runs to its limit (the data push it towards 0 or infinity)"
+        )
+    return fit, null, x
+
+
+def _standard_errors(model: _Model, x: np.ndarray, se: np.ndarray, note_parts: list[str]):
+    """SEs of the parameters from the Hessian; τ at its boundary is held fixed (set to 0
+    in ``x``, said in ``note_parts``). NotComputable when the likelihood is flat."""
+    tau_zero = x[1] <= 1e-6 * max(1.0, float(np.median(se)))
+    free = np.ones(x.size, dtype=bool)
+    if tau_zero:
+        x[1] = 0.0
+        free[1] = False
+        note_parts.append("τ² was estimated at 0 (boundary); the SEs treat it as fixed")
+    H = _hessian(lambda t: model.negll(t, selection=True), x, free)
+    eig = np.linalg.eigvalsh(0.5 * (H + H.T))
+    if not np.all(np.isfinite(eig)) or eig.min() <= 1e-8 * max(1.0, abs(eig.max())):
+        return NotComputable(
+            "the selection model is not estimable: the likelihood is flat in at least one "
+            "direction, so the data cannot pin down the weights and the estimate together"
+        )
+    cov_free = np.linalg.inv(H)
+    cov = np.zeros((x.size, x.size))
+    cov[np.ix_(free, free)] = cov_free
+    return np.sqrt(np.clip(np.diag(cov), 0.0, None))

@@ -186,97 +186,29 @@ def trim_and_fill(
     -------
     TrimFillResult or NotComputable
     """
-    if estimator not in ESTIMATORS:
-        raise ValueError(f"unknown estimator {estimator!r}; use one of {ESTIMATORS}")
-    if side not in SIDES:
-        raise ValueError(f"unknown side {side!r}; use one of {SIDES}")
-    if trim_model not in MODELS or fill_model not in MODELS:
-        raise ValueError(f"models must be one of {MODELS}")
-    if tau2_method not in TAU2_METHODS:
-        raise ValueError(f"unknown tau² method {tau2_method!r}; use one of {TAU2_METHODS}")
-
+    _check_options(estimator, side, trim_model, fill_model, tau2_method)
     y = np.asarray(data.y, dtype=float)
     se = np.asarray(data.se, dtype=float)
     n = y.size
     if n < 3:
         return NotComputable("trim and fill needs at least three studies")
     labels = data.labels if len(data.labels) == n else tuple(f"Study {i + 1}" for i in range(n))
-
-    if side == "auto":
-        slope = egger_slope(y, se)
-        if slope is None:
-            return NotComputable(
-                "all studies have the same standard error, so the side where studies might "
-                "be missing cannot be judged automatically; choose the side yourself"
-            )
-        scale = float(np.abs(y).max()) or 1.0
-        if abs(slope) <= 1e-12 * scale:
-            side_used = "left"
-            side_rule = (
-                "automatic: the Egger slope of the estimates on their standard errors is "
-                "zero, so small studies do not lean either way; left used by convention"
-            )
-        elif slope > 0:
-            side_used = "left"
-            side_rule = (
-                f"automatic: the Egger slope of the estimates on their standard errors is "
-                f"positive ({slope:.3g}), i.e. smaller studies show larger estimates, so "
-                f"studies are assumed missing on the left (smaller estimates)"
-            )
-        else:
-            side_used = "right"
-            side_rule = (
-                f"automatic: the Egger slope of the estimates on their standard errors is "
-                f"negative ({slope:.3g}), i.e. smaller studies show smaller estimates, so "
-                f"studies are assumed missing on the right (larger estimates)"
-            )
-    else:
-        side_used = side
-        side_rule = f"chosen by the user: studies assumed missing on the {side}"
+    chosen = _choose_side(y, se, side)
+    if isinstance(chosen, NotComputable):
+        return chosen
+    side_used, side_rule = chosen
 
     sign = 1.0 if side_used == "left" else -1.0
     yw = sign * y
     v = se**2
     # Trimming order: largest working estimate first; ties → larger SE first.
     trim_order = np.lexsort((-se, -yw))
-
-    def centre_without(k: int) -> float | NotComputable:
-        keep = np.ones(n, dtype=bool)
-        keep[trim_order[:k]] = False
-        est = _pool(yw[keep], v[keep], trim_model, tau2_method, confidence_level)
-        return est if isinstance(est, NotComputable) else est.estimate
-
-    k0 = 0
-    sequence = [0]  # k0 values visited, starting from no trimming
-    converged = False
-    note = ""
-    iterations = 0
-    while True:
-        centre = centre_without(k0)
-        if isinstance(centre, NotComputable):
-            return centre
-        iterations += 1
-        _, new_k0 = k0_statistic(yw - centre, estimator)
-        new_k0 = min(new_k0, n - 1)
-        if new_k0 == k0:
-            converged = True
-            break
-        if new_k0 in sequence:
-            cycle = sequence[sequence.index(new_k0) :]
-            note = (
-                "the number of missing studies oscillated between "
-                + ", ".join(str(x) for x in sorted(set(cycle)))
-                + f"; the last value reached ({new_k0}) is shown"
-            )
-        elif iterations >= max_iter:
-            note = f"the trimming did not settle within {max_iter} iterations; last value shown"
-        sequence.append(new_k0)
-        k0 = new_k0
-        if note:
-            centre = centre_without(k0)
-            if isinstance(centre, NotComputable):
-                return centre
-            break
+    trimming = _trim(
+        yw, v, trim_order, estimator, trim_model, tau2_method, max_iter, confidence_level
+    )
+    if isinstance(trimming, NotComputable):
+        return trimming
+    k0, centre, sequence, iterations, converged, note = trimming
 
     trimmed = trim_order[:k0]
     filled_w = 2.0 * centre - yw[trimmed]
@@ -310,3 +242,92 @@ def trim_and_fill(
         confidence_level=confidence_level,
         note=note,
     )
+
+
+def _check_options(estimator, side, trim_model, fill_model, tau2_method) -> None:
+    """Raise ValueError for an option trim and fill does not know."""
+    if estimator not in ESTIMATORS:
+        raise ValueError(f"unknown estimator {estimator!r}; use one of {ESTIMATORS}")
+    if side not in SIDES:
+        raise ValueError(f"unknown side {side!r}; use one of {SIDES}")
+    if trim_model not in MODELS or fill_model not in MODELS:
+        raise ValueError(f"models must be one of {MODELS}")
+    if tau2_method not in TAU2_METHODS:
+        raise ValueError(f"unknown tau² method {tau2_method!r}; use one of {TAU2_METHODS}")
+
+
+def _choose_side(y: np.ndarray, se: np.ndarray, side: str) -> tuple[str, str] | NotComputable:
+    """(the side studies are assumed missing on, the rule that chose it, in words)."""
+    if side != "auto":
+        return side, f"chosen by the user: studies assumed missing on the {side}"
+    slope = egger_slope(y, se)
+    if slope is None:
+        return NotComputable(
+            "all studies have the same standard error, so the side where studies might "
+            "be missing cannot be judged automatically; choose the side yourself"
+        )
+    scale = float(np.abs(y).max()) or 1.0
+    if abs(slope) <= 1e-12 * scale:
+        return "left", (
+            "automatic: the Egger slope of the estimates on their standard errors is "
+            "zero, so small studies do not lean either way; left used by convention"
+        )
+    if slope > 0:
+        return "left", (
+            f"automatic: the Egger slope of the estimates on their standard errors is "
+            f"positive ({slope:.3g}), i.e. smaller studies show larger estimates, so "
+            f"studies are assumed missing on the left (smaller estimates)"
+        )
+    return "right", (
+        f"automatic: the Egger slope of the estimates on their standard errors is "
+        f"negative ({slope:.3g}), i.e. smaller studies show smaller estimates, so "
+        f"studies are assumed missing on the right (larger estimates)"
+    )
+
+
+def _trim(yw, v, trim_order, estimator, trim_model, tau2_method, max_iter, level):
+    """Trim the most extreme studies until the number missing settles (or cycles).
+
+    Returns (k0, centre, k0 values visited, iterations, converged, note) on the working
+    scale (missing studies on the left), or NotComputable when a centre cannot be pooled.
+    """
+    n = yw.size
+
+    def centre_without(k: int) -> float | NotComputable:
+        keep = np.ones(n, dtype=bool)
+        keep[trim_order[:k]] = False
+        est = _pool(yw[keep], v[keep], trim_model, tau2_method, level)
+        return est if isinstance(est, NotComputable) else est.estimate
+
+    k0 = 0
+    sequence = [0]  # k0 values visited, starting from no trimming
+    converged = False
+    note = ""
+    iterations = 0
+    while True:
+        centre = centre_without(k0)
+        if isinstance(centre, NotComputable):
+            return centre
+        iterations += 1
+        _, new_k0 = k0_statistic(yw - centre, estimator)
+        new_k0 = min(new_k0, n - 1)
+        if new_k0 == k0:
+            converged = True
+            break
+        if new_k0 in sequence:
+            cycle = sequence[sequence.index(new_k0) :]
+            note = (
+                "the number of missing studies oscillated between "
+                + ", ".join(str(x) for x in sorted(set(cycle)))
+                + f"; the last value reached ({new_k0}) is shown"
+            )
+        elif iterations >= max_iter:
+            note = f"the trimming did not settle within {max_iter} iterations; last value shown"
+        sequence.append(new_k0)
+        k0 = new_k0
+        if note:
+            centre = centre_without(k0)
+            if isinstance(centre, NotComputable):
+                return centre
+            break
+    return k0, centre, sequence, iterations, converged, note

@@ -112,8 +112,6 @@ def wls(
         errors equal), when there are no residual degrees of freedom for an estimated
         scale, or when the points lie exactly on the fitted surface.
     """
-    from scipy.special import ndtr, ndtri, stdtr, stdtrit
-
     if scaling not in SCALES:
         raise ValueError(f"unknown scaling {scaling!r}; use one of {SCALES}")
     y = np.asarray(y, dtype=float)
@@ -129,6 +127,38 @@ def wls(
     sw = np.sqrt(w)
     Xw = X * sw[:, None]
     yw = y * sw
+    solved = _solve(Xw, yw)
+    if isinstance(solved, NotComputable):
+        return solved
+    beta, xtwx_inv = solved
+    resid = yw - Xw @ beta
+    df_resid = k - p
+    rss = float(resid @ resid)
+    s2 = rss / df_resid if df_resid > 0 else math.nan
+    scaled = _scale(scaling, rss, s2, df_resid, yw)
+    if isinstance(scaled, NotComputable):
+        return scaled
+    scale, df = scaled
+    cov = scale * xtwx_inv
+    ses = np.sqrt(np.diag(cov))
+    if not (np.all(np.isfinite(ses)) and np.all(ses > 0) and np.all(np.isfinite(beta))):
+        return NotComputable(
+            "the regression cannot be computed accurately: the standard errors span too "
+            "many orders of magnitude (check the entries for typing or unit errors)"
+        )
+    return WLSFit(
+        coefficients=_coefficients(beta, ses, names, df, confidence_level),
+        cov=tuple(tuple(float(x) for x in row) for row in cov),
+        scale=float(scale),
+        residual_scale=float(s2),
+        df_resid=int(df_resid),
+        k=int(k),
+        scaling=scaling,
+    )
+
+
+def _solve(Xw: np.ndarray, yw: np.ndarray) -> tuple[np.ndarray, np.ndarray] | NotComputable:
+    """The coefficients and (X'WX)^-1, or NotComputable for a rank-deficient design."""
     # Rank check on the column-scaled matrix so that a covariate measured in small units
     # is not mistaken for a constant.
     norms = np.linalg.norm(Xw, axis=0)
@@ -146,40 +176,36 @@ def wls(
     # number, and with SEs spread over many orders of magnitude that gave negative
     # variances (NaN standard errors) for designs the rank check had accepted.
     zinv = (vt.T / sv**2) @ vt
-    xtwx_inv = zinv / np.outer(norms, norms)
-    resid = yw - Xw @ beta
-    df_resid = k - p
-    rss = float(resid @ resid)
-    s2 = rss / df_resid if df_resid > 0 else math.nan
+    return beta, zinv / np.outer(norms, norms)
+
+
+def _scale(scaling: str, rss: float, s2: float, df_resid: int, yw: np.ndarray):
+    """(the residual scale the covariance uses, the df of its t) for ``scaling``."""
     if scaling == "fixed":
-        scale, df = 1.0, None
-    else:
-        if df_resid < 1:
-            return NotComputable(
-                "there are no residual degrees of freedom: the regression needs more studies"
-            )
-        if scaling == "estimated":
-            # Relative tolerance: an exact fit in exact arithmetic leaves rounding residue.
-            if rss <= 1e-24 * max(1.0, float(yw @ yw)):
-                return NotComputable(
-                    "the studies lie exactly on the fitted line, so there is no residual "
-                    "spread to test against"
-                )
-            scale = s2
-        else:
-            scale = max(1.0, s2)
-        df = float(df_resid)
-    cov = scale * xtwx_inv
-    ses = np.sqrt(np.diag(cov))
-    if not (np.all(np.isfinite(ses)) and np.all(ses > 0) and np.all(np.isfinite(beta))):
+        return 1.0, None
+    if df_resid < 1:
         return NotComputable(
-            "the regression cannot be computed accurately: the standard errors span too "
-            "many orders of magnitude (check the entries for typing or unit errors)"
+            "there are no residual degrees of freedom: the regression needs more studies"
         )
+    if scaling == "estimated":
+        # Relative tolerance: an exact fit in exact arithmetic leaves rounding residue.
+        if rss <= 1e-24 * max(1.0, float(yw @ yw)):
+            return NotComputable(
+                "the studies lie exactly on the fitted line, so there is no residual "
+                "spread to test against"
+            )
+        return s2, float(df_resid)
+    return max(1.0, s2), float(df_resid)
+
+
+def _coefficients(beta, ses, names, df, confidence_level) -> tuple[Coefficient, ...]:
+    """Each coefficient with its z (fixed scale) or t interval and two-sided p."""
+    from scipy.special import ndtr, ndtri, stdtr, stdtrit
+
     half = 0.5 + confidence_level / 2.0
     crit = float(ndtri(half)) if df is None else float(stdtrit(df, half))
     coefs = []
-    for j in range(p):
+    for j in range(beta.size):
         b, s = float(beta[j]), float(ses[j])
         stat = b / s
         pv = float(2.0 * ndtr(-abs(stat))) if df is None else float(2.0 * stdtr(df, -abs(stat)))
@@ -195,15 +221,7 @@ def wls(
                 confidence_level=confidence_level,
             )
         )
-    return WLSFit(
-        coefficients=tuple(coefs),
-        cov=tuple(tuple(float(x) for x in row) for row in cov),
-        scale=float(scale),
-        residual_scale=float(s2),
-        df_resid=int(df_resid),
-        k=int(k),
-        scaling=scaling,
-    )
+    return tuple(coefs)
 
 
 def egger_slope(y, se) -> float | None:

@@ -435,7 +435,7 @@ def meta_regression(
     -------
     MetaRegressionResult or NotComputable
     """
-    from scipy.special import chdtrc, fdtrc
+    from scipy.special import chdtrc
 
     if test not in TESTS:
         raise ValueError(f"unknown test {test!r}; use one of {TESTS}")
@@ -460,17 +460,7 @@ def meta_regression(
     fit, t2 = res
     p = X.shape[1]
     df = k - p
-
-    # Joint test of the moderator columns (1 .. 1 + m).
-    m = M.shape[1]
-    sl = slice(1, 1 + m)
-    b = np.array([c.estimate for c in fit.coefficients])[sl]
-    V = np.array(fit.cov)[sl, sl]
-    wald = float(b @ np.linalg.solve(V, b))
-    if test == "z":
-        mod_test = ModeratorTest(wald, m, None, float(chdtrc(m, wald)), "chi-square")
-    else:
-        mod_test = ModeratorTest(wald / m, m, df, float(fdtrc(m, df, wald / m)), "F")
+    mod_test = _moderator_test(fit, M.shape[1], df, test)
 
     # Residual heterogeneity with FE weights.
     fe_fit = wls(y, X, 1.0 / v, names=names, scaling="fixed")
@@ -482,37 +472,7 @@ def meta_regression(
     answer = "the SE was not included in the model"
     if with_se:
         se_with = fit.coef("se")
-        base = _re_fit(
-            y, v, np.column_stack([np.ones(k), se]), ("intercept", "se"), test, confidence_level
-        )
-        if isinstance(base, NotComputable):
-            se_without = base
-            answer = f"the model with SE alone cannot be fitted: {base.reason}"
-        else:
-            se_without = base[0].coef("se")
-            before = se_without.pvalue < alpha
-            after = se_with.pvalue < alpha
-            nums = (
-                f"slope on SE {se_without.estimate:.3g} (p = {se_without.pvalue:.3g}) without "
-                f"the moderator, {se_with.estimate:.3g} (p = {se_with.pvalue:.3g}) with it"
-            )
-            if se_without.estimate != 0:
-                kept = 100.0 * se_with.estimate / se_without.estimate
-                nums += f"; the slope keeps {kept:.0f}% of its size"
-            if before and after:
-                answer = f"Yes: the SE slope persists with the moderator in the model ({nums})."
-            elif before and not after:
-                answer = (
-                    f"Not clearly: the SE slope is no longer below the level once the "
-                    f"moderator is in the model ({nums}); the moderator may explain part of "
-                    f"the small-study effect, or the two cannot be told apart with these "
-                    f"studies."
-                )
-            elif not before and after:
-                answer = f"The SE slope appears only once the moderator is included ({nums})."
-            else:
-                answer = f"There is no clear SE slope with or without the moderator ({nums})."
-            answer += f" Level {alpha:g}."
+        se_without, answer = _se_slope_answer(y, v, se, se_with, test, alpha, confidence_level)
     note = ""
     if k < 10 * (p - 1):
         note = (
@@ -538,3 +498,50 @@ def meta_regression(
         confidence_level=confidence_level,
         note=note,
     )
+
+
+def _moderator_test(fit, m: int, df: int, test: str) -> ModeratorTest:
+    """Joint Wald test of the moderator columns (1 .. 1 + m): chi-square or F."""
+    from scipy.special import chdtrc, fdtrc
+
+    sl = slice(1, 1 + m)
+    b = np.array([c.estimate for c in fit.coefficients])[sl]
+    V = np.array(fit.cov)[sl, sl]
+    wald = float(b @ np.linalg.solve(V, b))
+    if test == "z":
+        return ModeratorTest(wald, m, None, float(chdtrc(m, wald)), "chi-square")
+    return ModeratorTest(wald / m, m, df, float(fdtrc(m, df, wald / m)), "F")
+
+
+def _se_slope_answer(y, v, se, se_with: Coefficient, test, alpha, confidence_level):
+    """(the SE slope without the moderator, does the slope persist with it, in words)."""
+    k = y.size
+    base = _re_fit(
+        y, v, np.column_stack([np.ones(k), se]), ("intercept", "se"), test, confidence_level
+    )
+    if isinstance(base, NotComputable):
+        return base, f"the model with SE alone cannot be fitted: {base.reason}"
+    se_without = base[0].coef("se")
+    before = se_without.pvalue < alpha
+    after = se_with.pvalue < alpha
+    nums = (
+        f"slope on SE {se_without.estimate:.3g} (p = {se_without.pvalue:.3g}) without "
+        f"the moderator, {se_with.estimate:.3g} (p = {se_with.pvalue:.3g}) with it"
+    )
+    if se_without.estimate != 0:
+        kept = 100.0 * se_with.estimate / se_without.estimate
+        nums += f"; the slope keeps {kept:.0f}% of its size"
+    if before and after:
+        answer = f"Yes: the SE slope persists with the moderator in the model ({nums})."
+    elif before and not after:
+        answer = (
+            f"Not clearly: the SE slope is no longer below the level once the "
+            f"moderator is in the model ({nums}); the moderator may explain part of "
+            f"the small-study effect, or the two cannot be told apart with these "
+            f"studies."
+        )
+    elif not before and after:
+        answer = f"The SE slope appears only once the moderator is included ({nums})."
+    else:
+        answer = f"There is no clear SE slope with or without the moderator ({nums})."
+    return se_without, answer + f" Level {alpha:g}."

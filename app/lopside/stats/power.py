@@ -552,36 +552,14 @@ def simulate_power(
     if isinstance(setup, NotComputable):
         return setup
     model, mu, t2, direction = setup
-    if test == "recommended":
-        rec = recommend(data, t2)
-        key, opts = rec.key, rec.kwargs()
-    else:
-        key, opts = test, dict(options or {})
-    if key not in asy.REGISTRY:
-        raise ValueError(f"unknown asymmetry test {key!r}; known: {sorted(asy.REGISTRY)}")
-    if key not in SIMULATED_TESTS:
-        return NotComputable(f"power simulation is not available for {asy.REGISTRY[key].name}")
-    pre = asy.precheck(key, data)
-    if pre is not None:
-        return pre
-
-    rng = np.random.default_rng(seed)
-    hits = {"type1": 0, "power": 0}
-    failed = {"type1": 0, "power": 0}
-    done = 0
-    while done < reps:
-        m = min(chunk, reps - done)
-        for scenario, sel in (("type1", 1.0), ("power", selection)):
-            sim = _draw(model, rng, m, sel, direction)
-            if sim is None:
-                return NotComputable(_MAX_TRIES_MSG)
-            p, status = _pvalues(key, sim, opts)
-            ok = status == asy.OK
-            hits[scenario] += int((ok & (p < alpha)).sum())
-            failed[scenario] += int((~ok).sum())
-        done += m
-        if progress is not None and progress(done, reps) is False:
-            return NotComputable("cancelled")
+    chosen = _test_for(data, test, options, t2)
+    if isinstance(chosen, NotComputable):
+        return chosen
+    key, opts = chosen
+    counts = _run(model, seed, key, opts, reps, chunk, selection, direction, alpha, progress)
+    if isinstance(counts, NotComputable):
+        return counts
+    hits, failed = counts
 
     type1 = hits["type1"] / reps
     power = hits["power"] / reps
@@ -594,12 +572,7 @@ def simulate_power(
         f"get published); with no selection it would signal about {_pct(type1)} of the time "
         f"(nominal {_pct(alpha)})."
     )
-    note = model.describe(t2)
-    if isinstance(model, _NormalModel) and data.measure in ("OR", "RR", "SMD"):
-        note += (
-            "; without counts or group sizes the link between the effect and its SE is not "
-            "reproduced, so false alarms may be understated"
-        )
+    note = _simulation_note(model, t2, data)
     return PowerResult(
         test=key,
         name=name,
@@ -621,3 +594,55 @@ def simulate_power(
         options=tuple(sorted(opts.items())),
         reading=reading,
     )
+
+
+def _test_for(data: StudyData, test: str, options: dict | None, t2: float):
+    """(registry key, options) of the test to simulate, or NotComputable when it cannot be
+    simulated or these data cannot run it."""
+    if test == "recommended":
+        rec = recommend(data, t2)
+        key, opts = rec.key, rec.kwargs()
+    else:
+        key, opts = test, dict(options or {})
+    if key not in asy.REGISTRY:
+        raise ValueError(f"unknown asymmetry test {key!r}; known: {sorted(asy.REGISTRY)}")
+    if key not in SIMULATED_TESTS:
+        return NotComputable(f"power simulation is not available for {asy.REGISTRY[key].name}")
+    pre = asy.precheck(key, data)
+    if pre is not None:
+        return pre
+    return key, opts
+
+
+def _run(model, seed, key, opts, reps, chunk, selection, direction, alpha, progress):
+    """Signals and failed fits per scenario ("type1": no selection; "power": selection),
+    drawn in chunks; NotComputable when drawing fails or ``progress`` cancels."""
+    rng = np.random.default_rng(seed)
+    hits = {"type1": 0, "power": 0}
+    failed = {"type1": 0, "power": 0}
+    done = 0
+    while done < reps:
+        m = min(chunk, reps - done)
+        for scenario, sel in (("type1", 1.0), ("power", selection)):
+            sim = _draw(model, rng, m, sel, direction)
+            if sim is None:
+                return NotComputable(_MAX_TRIES_MSG)
+            p, status = _pvalues(key, sim, opts)
+            ok = status == asy.OK
+            hits[scenario] += int((ok & (p < alpha)).sum())
+            failed[scenario] += int((~ok).sum())
+        done += m
+        if progress is not None and progress(done, reps) is False:
+            return NotComputable("cancelled")
+    return hits, failed
+
+
+def _simulation_note(model, t2: float, data: StudyData) -> str:
+    """How the studies were simulated, with the caveat of a model without counts."""
+    note = model.describe(t2)
+    if isinstance(model, _NormalModel) and data.measure in ("OR", "RR", "SMD"):
+        note += (
+            "; without counts or group sizes the link between the effect and its SE is not "
+            "reproduced, so false alarms may be understated"
+        )
+    return note

@@ -8,9 +8,13 @@ severe, one- or two-tailed.
 
 The four weight patterns below are Table 1 of Vevea & Woods (2005) **as recalled from
 memory** (methods.md 11.4). They could not be checked against the paper in this project;
-the sheet and the JSON say so (``WEIGHTS_PROVENANCE``). One-sided p-values are computed in
-the direction of the pooled estimate (small p = a large effect on that side), as in the
-fitted selection model.
+the sheet and the JSON say so (``WEIGHTS_PROVENANCE``). The likelihood itself does not
+rest on memory: with every weight equal it gives the ordinary ML random-effects fit, which
+tests/test_selection_first_principles.py checks against its score equations and scipy;
+each pattern's fit is checked against scipy's maximisation of the same weighted
+likelihood written out independently (tests/test_selection_sensitivity.py). One-sided
+p-values are computed in the direction of the pooled estimate (small p = a large effect on
+that side), as in the fitted selection model.
 """
 
 from __future__ import annotations
@@ -159,6 +163,13 @@ class _Batch:
         return f, grad, H
 
 
+#: A full Newton step (exact Hessian) shorter than this, relative to the parameters' size,
+#: is taken as the last one: Newton's error after a step is of the order of the step
+#: squared (quadratic convergence), so one of 1e-6 lands within about 1e-12 of the
+#: maximum, and a further evaluation to confirm it would change nothing that is shown.
+NEWTON_LAST_STEP = 1e-6
+
+
 def _newton_batch(model: _Batch, logw: np.ndarray, x0: np.ndarray, *, maxiter: int = 60):
     """Damped Newton over (μ, τ² ≥ 0) for every weight set at once.
 
@@ -217,7 +228,7 @@ def _newton_batch(model: _Batch, logw: np.ndarray, x0: np.ndarray, *, maxiter: i
             moved = max(abs(new[0] - best_x[p][0]), abs(new[1] - best_x[p][1]))
             x[p] = new
             scale = max(1.0, abs(best_x[p][0]), abs(best_x[p][1]))
-            if newton and moved < 1e-9 * scale:
+            if newton and moved < NEWTON_LAST_STEP * scale:
                 # a full Newton step this small lands within rounding of the maximum
                 # (quadratic convergence): take it without another evaluation to confirm
                 best_x[p] = new

@@ -24,6 +24,12 @@ uncorrected random-effects model (the analysis' τ² estimator), and held fixed 
 η: the robust variance stays valid when the weights are not exactly inverse variances,
 and a fixed τ̂² keeps the corrected estimate a weighted mean with known weights.
 
+What is checked without the paper (tests/test_selection_first_principles.py): at η = 1
+the corrected estimates are the uncorrected fixed- and random-effects ones; the robust
+variance equals CR2 computed from its matrix formula (Bell & McCaffrey 2002) by explicit
+matrices, and a three-study example worked by hand. What stays "from memory" is only that
+the paper uses these choices (CR2, Satterthwaite, τ̂² held fixed).
+
 S-value (the η at which the corrected estimate reaches the null): with A = Σ_aff W y and
 N = Σ_non W y (recoded so the pooled side is positive), η* = −A/N when N < 0; when
 N ≥ 0 even infinitely strong selection of this form cannot reach the null ("not
@@ -212,6 +218,29 @@ def satterthwaite_df_direct(y, omega, a_row, phi) -> float:
 # --------------------------------------------------------------------------- main
 
 
+#: points of each grid of the search for the interval's S-value
+SEARCH_POINTS = 41
+_UNIT: dict[int, np.ndarray] = {}
+
+
+def _geom(lo: float, hi: float, n: int) -> np.ndarray:
+    """n points from ``lo`` to ``hi`` (both exact) evenly spaced on a log scale; the
+    same points as numpy's geomspace up to rounding, without its overhead."""
+    unit = _UNIT.get(n)
+    if unit is None:
+        unit = _UNIT.setdefault(n, np.linspace(0.0, 1.0, n))
+    out = lo * np.exp(math.log(hi / lo) * unit)
+    out[0], out[-1] = lo, hi
+    return out
+
+
+def _curve_top(s_value: float | None, s_ci: float | None) -> float:
+    """How far the curve for the figure goes: far enough to show the S-values, at least
+    to η = 100."""
+    reach = [x for x in (s_value, s_ci) if x is not None]
+    return min(ETA_SEARCH_MAX, max(100.0, 3.0 * max(reach, default=1.0)))
+
+
 def _limits(est, se, crit):
     return est - crit * se, est + crit * se
 
@@ -236,8 +265,7 @@ def _model(
     n_aff = int(aff.sum())
     n_non = k - n_aff
 
-    def evaluate(eta_arr: np.ndarray):
-        a = np.where(aff[None, :], 1.0, eta_arr[:, None])
+    def evaluate_a(a: np.ndarray):
         if robust:
             est, se, df = _robust(yy, w, a, phi)
             with np.errstate(invalid="ignore"):
@@ -246,8 +274,31 @@ def _model(
         est, se = _fe(yy, w, a)
         return est, se, np.full(est.shape, np.nan), np.full(est.shape, z)
 
+    def weights_for(eta_arr: np.ndarray) -> np.ndarray:
+        return np.where(aff[None, :], 1.0, eta_arr[:, None])
+
+    def evaluate(eta_arr: np.ndarray):
+        return evaluate_a(weights_for(eta_arr))
+
+    # One array evaluation for what every call needs: the reported η, the first grid of
+    # the search for the interval's S-value, the curve for the figure (its reach guessed
+    # from the closed-form S-value; redone below only if the interval's S-value reaches
+    # further) and the worst case (a row that keeps only the non-affirmative studies).
+    A = float(w[aff] @ yy[aff])
+    N = float(w[~aff] @ yy[~aff])
+    guess = -A / N if n_aff and n_non and N < 0 else None
     eta_arr = np.asarray(etas, dtype=float)
-    est, se, df, crit = evaluate(eta_arr)
+    search0 = _geom(1.0, ETA_SEARCH_MAX, SEARCH_POINTS)
+    curve_top = _curve_top(guess, None)
+    curve_grid = _geom(1.0, curve_top, CURVE_POINTS)
+    rows = [weights_for(np.concatenate([eta_arr, search0, curve_grid]))]
+    worst_row = n_non > 0 and (not robust or n_non >= 2)
+    if worst_row:
+        rows.append((~aff).astype(float)[None, :])
+    est_all, se_all, df_all, crit_all = evaluate_a(np.vstack(rows) if worst_row else rows[0])
+    n_e, n_s = eta_arr.size, search0.size
+    est, se, df, crit = (x[:n_e] for x in (est_all, se_all, df_all, crit_all))
+    cut = slice(n_e + n_s, n_e + n_s + curve_grid.size)
     by_eta = []
     for i, eta in enumerate(etas):
         lo, hi = _limits(est[i], se[i], crit[i])
@@ -265,40 +316,31 @@ def _model(
             )
         )
 
-    # worst case: the non-affirmative studies alone
+    # worst case: the non-affirmative studies alone (the last row above)
     if n_non == 0:
         worst: WorstCase | NotComputable = NotComputable(MSG_ALL_AFFIRMATIVE)
+    elif robust and n_non < 2:
+        wsum = w[~aff].sum()
+        west = float((w[~aff] @ yy[~aff]) / wsum)
+        worst = WorstCase(
+            estimate=sign * west,
+            se=None,
+            ci_low=None,
+            ci_high=None,
+            k=n_non,
+            reason="a robust interval needs at least two non-affirmative studies",
+        )
     else:
-        a = (~aff).astype(float)[None, :]
+        we, wse, wdf, wcrit = float(est_all[-1]), float(se_all[-1]), df_all[-1], crit_all[-1]
+        lo, hi = _limits(we, wse, float(wcrit))
+        if sign < 0:
+            lo, hi = -hi, -lo
         if robust:
-            if n_non < 2:
-                wsum = w[~aff].sum()
-                west = float((w[~aff] @ yy[~aff]) / wsum)
-                worst = WorstCase(
-                    estimate=sign * west,
-                    se=None,
-                    ci_low=None,
-                    ci_high=None,
-                    k=n_non,
-                    reason="a robust interval needs at least two non-affirmative studies",
-                )
-            else:
-                we, wse, wdf = _robust(yy, w, a, phi)
-                wcrit = float(stdtrit(wdf[0], q))
-                lo, hi = _limits(float(we[0]), float(wse[0]), wcrit)
-                if sign < 0:
-                    lo, hi = -hi, -lo
-                worst = WorstCase(sign * float(we[0]), float(wse[0]), lo, hi, n_non, float(wdf[0]))
+            worst = WorstCase(sign * we, wse, lo, hi, n_non, float(wdf))
         else:
-            we, wse = _fe(yy, w, a)
-            lo, hi = _limits(float(we[0]), float(wse[0]), z)
-            if sign < 0:
-                lo, hi = -hi, -lo
-            worst = WorstCase(sign * float(we[0]), float(wse[0]), lo, hi, n_non)
+            worst = WorstCase(sign * we, wse, lo, hi, n_non)
 
     # S-value for the estimate: closed form
-    A = float(w[aff] @ yy[aff])
-    N = float(w[~aff] @ yy[~aff])
     s_value: float | None = None
     if n_aff == 0:
         s_reason = MSG_NO_AFFIRMATIVE
@@ -329,9 +371,16 @@ def _model(
             # vectorised bracketing: a log grid, then finer grids inside the first bracket
             lo_eta, hi_eta = 1.0, ETA_SEARCH_MAX
             s_ci, ci_reason = None, MSG_NOT_ATTAINABLE_CI
-            for _ in range(5):
-                grid = np.geomspace(lo_eta, hi_eta, 41)
-                g = near(grid)
+            for rnd in range(5):
+                if rnd == 0:  # the first grid was evaluated with the reported η
+                    grid = search0
+                    g = (
+                        est_all[n_e : n_e + n_s]
+                        - crit_all[n_e : n_e + n_s] * se_all[n_e : n_e + n_s]
+                    )
+                else:
+                    grid = _geom(lo_eta, hi_eta, SEARCH_POINTS)
+                    g = near(grid)
                 hit = np.flatnonzero(~(g > 0))
                 if hit.size == 0 or hit[0] == 0:
                     break
@@ -345,10 +394,12 @@ def _model(
                 s_ci = lo_eta + (hi_eta - lo_eta) * g_lo / (g_lo - g_hi)
                 ci_reason = ""
     # the curve for the figure: far enough to show the S-values, at least to η = 100
-    reach = [x for x in (s_value, s_ci) if x is not None]
-    top = min(ETA_SEARCH_MAX, max(100.0, 3.0 * max(reach, default=1.0)))
-    grid = np.geomspace(1.0, top, CURVE_POINTS)
-    ce, cs, _, cc = evaluate(grid)
+    top = _curve_top(s_value, s_ci)
+    if top == curve_top:
+        grid, ce, cs, cc = curve_grid, est_all[cut], se_all[cut], crit_all[cut]
+    else:
+        grid = _geom(1.0, top, CURVE_POINTS)
+        ce, cs, _, cc = evaluate(grid)
     lo_c, hi_c = ce - cc * cs, ce + cc * cs
     if sign < 0:
         lo_c, hi_c = -hi_c, -lo_c

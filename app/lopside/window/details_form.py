@@ -91,7 +91,20 @@ class DetailsForm(QScrollArea):
         inner = WrappingPage()
         self.setWidget(inner)
         outer = QVBoxLayout(inner)
+        outer.addWidget(self._review_box())
+        outer.addWidget(self._scale_box())
+        outer.addWidget(self._published_box())
+        outer.addWidget(self._claim_box())
+        self.source_note = QLabel()
+        self.source_note.setWordWrap(True)
+        self.source_note.setStyleSheet("color: #616E7C;")
+        outer.addWidget(self.source_note)
+        outer.addStretch(1)
+        self._connect()
+        self.refresh()
 
+    def _review_box(self) -> QGroupBox:
+        """Title, question, outcome, appraiser."""
         about = QGroupBox("The review")
         form = QFormLayout(about)
         form.setFieldGrowthPolicy(QFormLayout.AllNonFixedFieldsGrow)
@@ -105,8 +118,10 @@ class DetailsForm(QScrollArea):
         form.addRow("&Question:", self.question)
         form.addRow("Outcome:", self.outcome)
         form.addRow("A&ppraiser:", self.appraiser)
-        outer.addWidget(about)
+        return about
 
+    def _scale_box(self) -> QGroupBox:
+        """Measure, units, the studies' CI level, direction of benefit, arm labels."""
         scale = QGroupBox("How the effects are expressed")
         f2 = QFormLayout(scale)
         f2.setFieldGrowthPolicy(QFormLayout.AllNonFixedFieldsGrow)
@@ -137,8 +152,10 @@ class DetailsForm(QScrollArea):
         arms_label = QLabel("&Arm labels:")
         arms_label.setBuddy(self.int_label)
         f2.addRow(arms_label, arms)
-        outer.addWidget(scale)
+        return scale
 
+    def _published_box(self) -> QGroupBox:
+        """The review's pooled result as printed (checked against the rows)."""
         pub = QGroupBox("Published pooled result (as printed)")
         f3 = QFormLayout(pub)
         self.pub_estimate = self._line("Published pooled estimate", "e.g. 0.72")
@@ -160,8 +177,10 @@ class DetailsForm(QScrollArea):
         self.pub_problem.setWordWrap(True)
         self.pub_problem.setStyleSheet("color: #9B2C1F;")
         f3.addRow(self.pub_problem)
-        outer.addWidget(pub)
+        return pub
 
+    def _claim_box(self) -> QGroupBox:
+        """What the review said about small-study effects (optional)."""
         said = QGroupBox("What the review said about small-study effects (optional)")
         f4 = QFormLayout(said)
         self.claim_test = self._line("Test the review used", "e.g. Egger's test")
@@ -191,14 +210,10 @@ class DetailsForm(QScrollArea):
         self.claim_problem.setWordWrap(True)
         self.claim_problem.setStyleSheet("color: #9B2C1F;")
         f4.addRow(self.claim_problem)
-        outer.addWidget(said)
+        return said
 
-        self.source_note = QLabel()
-        self.source_note.setWordWrap(True)
-        self.source_note.setStyleSheet("color: #616E7C;")
-        outer.addWidget(self.source_note)
-        outer.addStretch(1)
-
+    def _connect(self) -> None:
+        """Each field commits its edit when editing finishes."""
         self._texts = {
             "title": self.title,
             "question": self.question,
@@ -230,7 +245,6 @@ class DetailsForm(QScrollArea):
         )
         self.ci_level.editingFinished.connect(self._level_done)
         self.claim_conclusion.activated.connect(self._conclusion_done)
-        self.refresh()
 
     def _line(self, name: str, placeholder: str) -> QLineEdit:
         w = QLineEdit()

@@ -319,6 +319,7 @@ class FileActions:
         note = dlg.reading().source_note(p.name)
         self.update_views()
         paste = self.open_paste_dialog(dlg.chosen_text())
+        paste.set_origin(dlg.origin())  # the account names page and line of the PDF
 
         def added() -> None:
             # where the rows came from stays with the review (shown on screen and sheet)

@@ -55,6 +55,8 @@ class PasteDialog(QDialog):
         #: the decimal mark the user chose for numbers the paste does not settle
         self.decimal: str | None = None
         self._measure_touched = False
+        #: (file name, PdfRows, unread pages) when the text came from a PDF (set_origin)
+        self._origin = None
         self.resize(980, 600)
         lay = QVBoxLayout(self)
         help_ = QLabel(M.PASTE_HELP)
@@ -253,10 +255,20 @@ class PasteDialog(QDialog):
                 f"suggested by the paste preview ({r.measure_why})" if r.measure_guess == m else ""
             )
         )
-        account = r.intake_account("pasted text", how)
+        if self._origin is not None:
+            name, rows, unread = self._origin
+            account = rows.intake_account(name, how, paste=r, unread_pages=unread)
+        else:
+            account = r.intake_account("pasted text", how)
         if self.decimal is not None and account.decimal_how == "option":
             account = replace(account, decimal_how="asked")
         return account
+
+    def set_origin(self, origin) -> None:
+        """The text came from a PDF: ``origin`` is :meth:`PdfDialog.origin`. The account
+        then says "page 7 of review.pdf" and names each row's page and line (lines the
+        user edits here are named as edited)."""
+        self._origin = origin
 
     def chosen_published(self):
         r = self.reading

@@ -375,3 +375,11 @@ class PdfDialog(QDialog):
     @property
     def chosen_pages(self) -> list[int]:
         return self.selected_pages()
+
+    def origin(self):
+        """(file name, the reading of the chosen lines, pages whose text could not be
+        read) for :meth:`PasteDialog.set_origin`: the intake account then names page
+        and line of the PDF for each row instead of "pasted text"."""
+        from pathlib import Path
+
+        return Path(self.path).name, self.reading(), tuple(self.doc.unread_pages())

@@ -168,6 +168,22 @@ def _run_steps(tmp: Path, holder: dict) -> int:
             print(f"      {out} ({out.stat().st_size // 1024} KB)")
             _step(step, t)
 
+            # the PDF reader's two libraries (pdfplumber/pdfminer for the text layer,
+            # pypdfium2's native library for previews) on the sheet just written
+            step = "read and render a PDF"
+            t = time.perf_counter()
+            from ..intake.pdf import read_pdf, render_page
+
+            doc = read_pdf(out, pages=[1])
+            words = sum(len(line.text.split()) for line in doc.pages[0].lines)
+            if words < 20:
+                raise RuntimeError(f"only {words} words read from the sheet's first page")
+            image = render_page(out, 1, scale=0.5)
+            if image.width < 100 or image.getextrema() in ((255, 255), ((255, 255),) * 3):
+                raise RuntimeError("the sheet's first page rendered blank")
+            print(f"      {words} words read; page 1 rendered at {image.width}x{image.height}")
+            _step(step, t)
+
         step = "close the window"
         window._closing_ok = True  # noqa: SLF001 - nothing to save in a self-test
         window.close()
