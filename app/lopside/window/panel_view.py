@@ -37,7 +37,6 @@ COLUMNS = (
     ("Small-study evidence", "test_p", ((4, "{}"), (5, "power: {}"), (6, "adjusted: {}"))),
     ("Rating: suggested / accepted", "rating_suggested", ((7, "{}"), (8, "{}"))),
 )
-WIDTHS = (210, 170)
 THUMB_W, THUMB_H = 96, 84
 
 
@@ -127,9 +126,12 @@ class PanelSummaryPanel(QWidget):
         self.table.setWordWrap(True)
         self.table.verticalHeader().setVisible(False)
         header = self.table.horizontalHeader()
-        header.setSectionResizeMode(QHeaderView.Interactive)
-        header.setStretchLastSection(True)
+        # the funnel keeps its size; the three text columns share the width the view has
+        # (the rows grow taller on a narrow screen instead of hiding the rating)
+        header.setSectionResizeMode(QHeaderView.Stretch)
+        header.setSectionResizeMode(0, QHeaderView.Fixed)
         self.table.setColumnWidth(0, THUMB_W + 8)
+        header.sectionResized.connect(lambda *_: self._fit_rows())
         lay.addWidget(self.table, 1)
         row = QHBoxLayout()
         self.export_button = QPushButton("E&xport the panel summary\u2026")
@@ -252,13 +254,20 @@ class PanelSummaryPanel(QWidget):
                 item.setToolTip(text)
                 item.setTextAlignment(Qt.AlignLeft | Qt.AlignVCenter)
                 t.setItem(r, c, item)
-            t.setRowHeight(r, THUMB_H + 6)
         t.setColumnWidth(0, THUMB_W + 8)
-        for c, width in enumerate(WIDTHS, start=1):
-            t.setColumnWidth(c, width)
+        self._fit_rows()
         # the outcomes' own order first; a click on a heading sorts by it
         t.horizontalHeader().setSortIndicator(0, Qt.AscendingOrder)
         t.setSortingEnabled(True)
+
+    def _fit_rows(self) -> None:
+        """Each row as tall as its wrapped text, within one and a half funnels (a longer
+        reason ends in "…"; the whole text is the cell's tooltip)."""
+        t = self.table
+        t.resizeRowsToContents()
+        low, high = THUMB_H + 6, int(1.5 * (THUMB_H + 6))
+        for r in range(t.rowCount()):
+            t.setRowHeight(r, min(max(t.rowHeight(r), low), high))
 
     def _clicked(self, row: int, _column: int) -> None:
         item = self.table.item(row, 0)
