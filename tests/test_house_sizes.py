@@ -22,11 +22,7 @@ MAX_FUNCTION_LINES = 120
 OVERSIZED_MODULES: dict[str, int] = {}
 
 #: Functions still over the limit ("path:qualified name" -> lines when listed).
-OVERSIZED_FUNCTIONS: dict[str, int] = {
-    "lopside/intake/checks.py:check_row": 288,
-    "lopside/stats/effects.py:_derive": 127,
-    "lopside/stats/selection_sensitivity.py:_model": 149,
-}
+OVERSIZED_FUNCTIONS: dict[str, int] = {}
 
 
 def _functions(tree: ast.AST, prefix: str = ""):

@@ -213,105 +213,134 @@ def check_row(
     """
     if measure not in MEASURES:
         raise ValueError(f"unknown measure {measure!r}; expected one of {MEASURES}")
-    pr: Mapping[str, str] = printed or {}
-    out: list[Problem] = []
-    name = MEASURE_NAMES[measure]
-    ratio = measure in RATIO_MEASURES
+    c = _RowCheck(row, measure, ci_level, index, printed or {}, place)
+    c.not_finite()
+    c.unread_and_label()
+    c.impossible_values()
+    if not c.row.reported:
+        c.unreported()
+        return tuple(c.out)
+    c.interval()
+    c.counts_and_means()
+    c.p_only()
+    c.anything_to_analyse()
+    return tuple(c.out)
 
-    def add(fld: str, severity: str, code: str, **fields: object) -> None:
-        out.append(_problem(index, row, fld, severity, code, place, **fields))
 
-    # values that are not finite numbers (NaN, infinity, a stray type) are reported once
-    # and then treated as missing by every other rule
-    bad: dict[str, object] = {}
-    for fld in NUMERIC_FIELDS:
-        v = getattr(row, fld)
-        if v is None:
-            continue
-        if isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v):
-            bad[fld] = v
-    if bad:
-        for fld, v in bad.items():
-            add(fld, ERROR, "not_finite", value=v)
-        row = replace(row, **{fld: None for fld in bad})
+class _RowCheck:
+    """The checks of one row, in the order their problems are listed (see check_row)."""
 
-    def fmt(fld: str) -> str:
-        return _fmt(getattr(row, fld), pr, fld)
+    def __init__(self, row, measure, ci_level, index, printed, place) -> None:
+        self.row, self.measure, self.ci_level = row, measure, ci_level
+        self.index, self.pr, self.place = index, printed, place
+        self.out: list[Problem] = []
+        self.name = MEASURE_NAMES[measure]
+        self.ratio = measure in RATIO_MEASURES
+        self.unread: dict[str, str] = {}
 
-    unread = row.unread_dict()
-    for fld, text in row.unread:
-        add(fld, ERROR, "unread", text=text)
-    if not row.study.strip():
-        add("study", WARNING, "no_label")
+    def add(self, fld: str, severity: str, code: str, **fields: object) -> None:
+        self.out.append(_problem(self.index, self.row, fld, severity, code, self.place, **fields))
 
-    # -- values that cannot be right whatever the measure
-    # the row's own CI level, else the review's (an interval needs a usable level)
-    if row.level is not None and not (LEVEL_MIN < row.level < LEVEL_MAX):
-        add("level", ERROR, "level_range", level=fmt("level"))
-    elif row.level is None and lo_hi_given(row) and not (LEVEL_MIN < ci_level < LEVEL_MAX):
-        add("level", ERROR, "level_range", level=f"{ci_level:g}")
-    if row.p is not None and not (0.0 < row.p <= 1.0):
-        add("p", ERROR, "p_range", p=fmt("p"))
-    if row.se is not None:
-        if row.se < 0:
-            add("se", ERROR, "negative", what="SE", value=fmt("se"))
-        elif row.se == 0:
-            add("se", ERROR, "se_zero")
-    for prefix in ("int", "ctl"):
-        sd_field = f"{prefix}_sd"
-        sd = getattr(row, sd_field)
-        if sd is not None:
-            if sd < 0:
-                add(sd_field, ERROR, "negative", what="SD", value=fmt(sd_field))
-            elif sd == 0:
-                add(sd_field, WARNING, "sd_zero")
-    whole_fields = {
-        "int_events": "events",
-        "int_total": "total",
-        "ctl_events": "events",
-        "ctl_total": "total",
-        "int_n": "number",
-        "ctl_n": "number",
-        "n": "number",
-    }
-    for fld, what in whole_fields.items():
-        v = getattr(row, fld)
-        if v is None:
-            continue
-        if v < 0:
-            add(
-                fld,
-                ERROR,
-                "negative",
-                what=f"{_arm(fld[:3])} {what}" if fld != "n" else "n",
-                value=fmt(fld),
-            )
-        elif v != int(v):
-            add(fld, WARNING, "not_whole", what=fld.replace("_", " "), value=fmt(fld))
-    for prefix in ("int", "ctl"):
-        ev, tot = getattr(row, f"{prefix}_events"), getattr(row, f"{prefix}_total")
-        if ev is not None and tot is not None and ev > tot >= 0:
-            add(
-                f"{prefix}_events",
-                ERROR,
-                "events_over_total",
-                arm=_arm(prefix),
-                events=fmt(f"{prefix}_events"),
-                total=fmt(f"{prefix}_total"),
-            )
+    def fmt(self, fld: str) -> str:
+        return _fmt(getattr(self.row, fld), self.pr, fld)
 
-    for prefix in ("int", "ctl"):
-        arm_n = getattr(row, f"{prefix}_n")
-        if arm_n is not None and 0 <= arm_n < 2:
-            add(f"{prefix}_n", ERROR, "arm_too_small", arm=_arm(prefix), value=fmt(f"{prefix}_n"))
-        tot = getattr(row, f"{prefix}_total")
-        if tot is not None and tot == 0:
-            add(f"{prefix}_total", ERROR, "total_zero", arm=_arm(prefix))
+    def not_finite(self) -> None:
+        """Values that are not finite numbers (NaN, infinity, a stray type) are reported
+        once and then treated as missing by every other rule."""
+        bad: dict[str, object] = {}
+        for fld in NUMERIC_FIELDS:
+            v = getattr(self.row, fld)
+            if v is None:
+                continue
+            if isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v):
+                bad[fld] = v
+        if bad:
+            for fld, v in bad.items():
+                self.add(fld, ERROR, "not_finite", value=v)
+            self.row = replace(self.row, **{fld: None for fld in bad})
 
-    if not row.reported:
-        # a trial known to be missing: only its size is used (the missing-trial scenarios)
+    def unread_and_label(self) -> None:
+        self.unread = self.row.unread_dict()
+        for fld, text in self.row.unread:
+            self.add(fld, ERROR, "unread", text=text)
+        if not self.row.study.strip():
+            self.add("study", WARNING, "no_label")
+
+    def impossible_values(self) -> None:
+        """Values that cannot be right whatever the measure."""
+        row, add, fmt = self.row, self.add, self.fmt
+        # the row's own CI level, else the review's (an interval needs a usable level)
+        if row.level is not None and not (LEVEL_MIN < row.level < LEVEL_MAX):
+            add("level", ERROR, "level_range", level=fmt("level"))
+        elif row.level is None and lo_hi_given(row) and not (LEVEL_MIN < self.ci_level < LEVEL_MAX):
+            add("level", ERROR, "level_range", level=f"{self.ci_level:g}")
+        if row.p is not None and not (0.0 < row.p <= 1.0):
+            add("p", ERROR, "p_range", p=fmt("p"))
+        if row.se is not None:
+            if row.se < 0:
+                add("se", ERROR, "negative", what="SE", value=fmt("se"))
+            elif row.se == 0:
+                add("se", ERROR, "se_zero")
+        for prefix in ("int", "ctl"):
+            sd_field = f"{prefix}_sd"
+            sd = getattr(row, sd_field)
+            if sd is not None:
+                if sd < 0:
+                    add(sd_field, ERROR, "negative", what="SD", value=fmt(sd_field))
+                elif sd == 0:
+                    add(sd_field, WARNING, "sd_zero")
+        self._whole_numbers()
+        self._arms()
+
+    def _whole_numbers(self) -> None:
+        for fld, what in WHOLE_FIELDS.items():
+            v = getattr(self.row, fld)
+            if v is None:
+                continue
+            if v < 0:
+                self.add(
+                    fld,
+                    ERROR,
+                    "negative",
+                    what=f"{_arm(fld[:3])} {what}" if fld != "n" else "n",
+                    value=self.fmt(fld),
+                )
+            elif v != int(v):
+                self.add(fld, WARNING, "not_whole", what=fld.replace("_", " "), value=self.fmt(fld))
+
+    def _arms(self) -> None:
+        row, add, fmt = self.row, self.add, self.fmt
+        for prefix in ("int", "ctl"):
+            ev, tot = getattr(row, f"{prefix}_events"), getattr(row, f"{prefix}_total")
+            if ev is not None and tot is not None and ev > tot >= 0:
+                add(
+                    f"{prefix}_events",
+                    ERROR,
+                    "events_over_total",
+                    arm=_arm(prefix),
+                    events=fmt(f"{prefix}_events"),
+                    total=fmt(f"{prefix}_total"),
+                )
+        for prefix in ("int", "ctl"):
+            arm_n = getattr(row, f"{prefix}_n")
+            if arm_n is not None and 0 <= arm_n < 2:
+                add(
+                    f"{prefix}_n",
+                    ERROR,
+                    "arm_too_small",
+                    arm=_arm(prefix),
+                    value=fmt(f"{prefix}_n"),
+                )
+            tot = getattr(row, f"{prefix}_total")
+            if tot is not None and tot == 0:
+                add(f"{prefix}_total", ERROR, "total_zero", arm=_arm(prefix))
+
+    def unreported(self) -> None:
+        """A trial known to be missing: only its size is used (the missing-trial
+        scenarios)."""
+        row = self.row
         if row.total_n() is None:
-            add("n", ERROR, "unreported_no_size")
+            self.add("n", ERROR, "unreported_no_size")
         results = [
             f
             for f in ("estimate", "lower", "upper", "se", "p", "int_events", "ctl_events",
@@ -319,147 +348,178 @@ def check_row(
             if getattr(row, f) is not None
         ]  # fmt: skip
         if results:
-            add(results[0], WARNING, "unreported_has_results", fields=", ".join(results))
-        return tuple(out)
+            self.add(results[0], WARNING, "unreported_has_results", fields=", ".join(results))
 
-    # -- the estimate and its interval
-    est, lo, hi = row.estimate, row.lower, row.upper
-    if measure == "RD":
-        for fld in ("estimate", "lower", "upper"):
-            v = getattr(row, fld)
-            if v is not None and abs(v) > 1.0:
-                add(fld, ERROR, "rd_over_one", value=fmt(fld))
-    if ratio:
-        for fld, what in (
-            ("estimate", "estimate"),
-            ("lower", "lower limit"),
-            ("upper", "upper limit"),
-        ):
-            v = getattr(row, fld)
-            if v is not None and v <= 0:
-                add(fld, ERROR, "ratio_not_positive", what=what, value=fmt(fld), measure_name=name)
-    limits_ok = False
-    if lo is not None and hi is not None:
-        if lo > hi:
-            add("lower", ERROR, "limits_reversed", lower=fmt("lower"), upper=fmt("upper"))
-        elif lo == hi:
-            add("lower", ERROR, "limits_equal", lower=fmt("lower"))
-        else:
-            limits_ok = True
-    elif (lo is None) != (hi is None) and not ({"lower", "upper"} & set(unread)):
-        add(
-            "upper" if hi is None else "lower",
-            WARNING,
-            "partial_ci",
-            given="lower" if lo is not None else "upper",
+    def interval(self) -> None:
+        """The estimate and its interval."""
+        row, add, fmt = self.row, self.add, self.fmt
+        est, lo, hi = row.estimate, row.lower, row.upper
+        if self.measure == "RD":
+            for fld in ("estimate", "lower", "upper"):
+                v = getattr(row, fld)
+                if v is not None and abs(v) > 1.0:
+                    add(fld, ERROR, "rd_over_one", value=fmt(fld))
+        if self.ratio:
+            for fld, what in (
+                ("estimate", "estimate"),
+                ("lower", "lower limit"),
+                ("upper", "upper limit"),
+            ):
+                v = getattr(row, fld)
+                if v is not None and v <= 0:
+                    add(
+                        fld,
+                        ERROR,
+                        "ratio_not_positive",
+                        what=what,
+                        value=fmt(fld),
+                        measure_name=self.name,
+                    )
+        limits_ok = False
+        if lo is not None and hi is not None:
+            if lo > hi:
+                add("lower", ERROR, "limits_reversed", lower=fmt("lower"), upper=fmt("upper"))
+            elif lo == hi:
+                add("lower", ERROR, "limits_equal", lower=fmt("lower"))
+            else:
+                limits_ok = True
+        elif (lo is None) != (hi is None) and not ({"lower", "upper"} & set(self.unread)):
+            add(
+                "upper" if hi is None else "lower",
+                WARNING,
+                "partial_ci",
+                given="lower" if lo is not None else "upper",
+            )
+        if (lo is not None or hi is not None) and est is None and "estimate" not in self.unread:
+            add("estimate", WARNING, "ci_without_estimate")
+        if est is not None and limits_ok:
+            assert lo is not None and hi is not None
+            if est < lo or est > hi:
+                add(
+                    "estimate",
+                    ERROR,
+                    "estimate_outside",
+                    estimate=fmt("estimate"),
+                    lower=fmt("lower"),
+                    upper=fmt("upper"),
+                )
+            elif not self.ratio or (est > 0 and lo > 0):
+                self.out.extend(
+                    _symmetry_problems(row, self.measure, self.index, self.pr, self.place)
+                )
+
+    def counts_and_means(self) -> None:
+        row, add, fmt, measure, name = self.row, self.add, self.fmt, self.measure, self.name
+        unread = self.unread
+        count_fields = ("int_events", "int_total", "ctl_events", "ctl_total")
+        mean_fields = ("int_mean", "int_sd", "int_n", "ctl_mean", "ctl_sd", "ctl_n")
+        given_counts = [f for f in count_fields if getattr(row, f) is not None]
+        given_means = [f for f in mean_fields if getattr(row, f) is not None]
+        if given_counts and len(given_counts) < 4:
+            missing = ", ".join(
+                f for f in count_fields if f not in given_counts and f not in unread
+            )
+            if missing:
+                add(missing.split(", ")[0], WARNING, "partial_counts", missing=missing)
+        if given_means and len(given_means) < 6:
+            missing = ", ".join(f for f in mean_fields if f not in given_means and f not in unread)
+            if missing:
+                add(missing.split(", ")[0], WARNING, "partial_means", missing=missing)
+        est, lo, hi = row.estimate, row.lower, row.upper
+        has_estimate_route = est is not None and (
+            (lo is not None and hi is not None) or row.se is not None or row.p is not None
         )
-    if (lo is not None or hi is not None) and est is None and "estimate" not in unread:
-        add("estimate", WARNING, "ci_without_estimate")
-    if est is not None and limits_ok:
-        assert lo is not None and hi is not None
-        if est < lo or est > hi:
-            add(
-                "estimate",
-                ERROR,
-                "estimate_outside",
-                estimate=fmt("estimate"),
-                lower=fmt("lower"),
-                upper=fmt("upper"),
-            )
-        elif not ratio or (est > 0 and lo > 0):
-            out.extend(_symmetry_problems(row, measure, index, pr, place))
+        if row.has_counts() and measure not in BINARY_MEASURES and not has_estimate_route:
+            pass  # reported below as "nothing to analyse for this measure"
+        elif row.has_counts() and measure not in BINARY_MEASURES:
+            add("int_events", WARNING, "counts_unused", measure_name=name)
+        if row.has_means() and measure not in CONTINUOUS_MEASURES and has_estimate_route:
+            add("int_mean", WARNING, "means_unused", measure_name=name)
+        if row.has_counts() and measure in ("OR", "RR"):
+            a, n1, c, n0 = row.int_events, row.int_total, row.ctl_events, row.ctl_total
+            if a == 0 and c == 0:
+                add(
+                    "int_events",
+                    WARNING,
+                    "double_zero",
+                    int_total=fmt("int_total"),
+                    ctl_total=fmt("ctl_total"),
+                    measure_name=name,
+                )
+            elif a == n1 and c == n0 and (n1 or 0) > 0:
+                add(
+                    "int_events",
+                    WARNING,
+                    "all_events",
+                    int_events=fmt("int_events"),
+                    int_total=fmt("int_total"),
+                    ctl_events=fmt("ctl_events"),
+                    ctl_total=fmt("ctl_total"),
+                    measure_name=name,
+                )
 
-    # -- counts and means
-    count_fields = ("int_events", "int_total", "ctl_events", "ctl_total")
-    mean_fields = ("int_mean", "int_sd", "int_n", "ctl_mean", "ctl_sd", "ctl_n")
-    given_counts = [f for f in count_fields if getattr(row, f) is not None]
-    given_means = [f for f in mean_fields if getattr(row, f) is not None]
-    if given_counts and len(given_counts) < 4:
-        missing = ", ".join(f for f in count_fields if f not in given_counts and f not in unread)
-        if missing:
-            add(missing.split(", ")[0], WARNING, "partial_counts", missing=missing)
-    if given_means and len(given_means) < 6:
-        missing = ", ".join(f for f in mean_fields if f not in given_means and f not in unread)
-        if missing:
-            add(missing.split(", ")[0], WARNING, "partial_means", missing=missing)
-    has_estimate_route = est is not None and (
-        (lo is not None and hi is not None) or row.se is not None or row.p is not None
-    )
-    if row.has_counts() and measure not in BINARY_MEASURES and not has_estimate_route:
-        pass  # reported below as "nothing to analyse for this measure"
-    elif row.has_counts() and measure not in BINARY_MEASURES:
-        add("int_events", WARNING, "counts_unused", measure_name=name)
-    if row.has_means() and measure not in CONTINUOUS_MEASURES and has_estimate_route:
-        add("int_mean", WARNING, "means_unused", measure_name=name)
-    if row.has_counts() and measure in ("OR", "RR"):
-        a, n1, c, n0 = row.int_events, row.int_total, row.ctl_events, row.ctl_total
-        if a == 0 and c == 0:
-            add(
-                "int_events",
-                WARNING,
-                "double_zero",
-                int_total=fmt("int_total"),
-                ctl_total=fmt("ctl_total"),
-                measure_name=name,
-            )
-        elif a == n1 and c == n0 and (n1 or 0) > 0:
-            add(
-                "int_events",
-                WARNING,
-                "all_events",
-                int_events=fmt("int_events"),
-                int_total=fmt("int_total"),
-                ctl_events=fmt("ctl_events"),
-                ctl_total=fmt("ctl_total"),
-                measure_name=name,
-            )
+    def p_only(self) -> None:
+        """A P value as the only route."""
+        row, add, fmt = self.row, self.add, self.fmt
+        est, lo, hi = row.estimate, row.lower, row.upper
+        only_p = (
+            est is not None
+            and row.p is not None
+            and row.se is None
+            and not (lo is not None and hi is not None)
+        )
+        if only_p and row.p is not None and 0.0 < row.p <= 1.0:
+            assert est is not None
+            null = 1.0 if self.ratio else 0.0
+            if row.p_bound == ">":
+                add("p", WARNING, "p_bound_unusable", p=fmt("p"))
+            elif row.p_bound == "<":
+                add("p", WARNING, "p_bound_approx", p=fmt("p"))
+            if est == null:
+                add("estimate", ERROR, "p_at_null", estimate=fmt("estimate"))
+            elif row.p >= 0.9:
+                add("p", ERROR if row.p == 1.0 else WARNING, "p_near_one", p=fmt("p"))
 
-    # -- a P value as the only route
-    only_p = (
-        est is not None
-        and row.p is not None
-        and row.se is None
-        and not (lo is not None and hi is not None)
-    )
-    if only_p and row.p is not None and 0.0 < row.p <= 1.0:
-        assert est is not None
-        null = 1.0 if ratio else 0.0
-        if row.p_bound == ">":
-            add("p", WARNING, "p_bound_unusable", p=fmt("p"))
-        elif row.p_bound == "<":
-            add("p", WARNING, "p_bound_approx", p=fmt("p"))
-        if est == null:
-            add("estimate", ERROR, "p_at_null", estimate=fmt("estimate"))
-        elif row.p >= 0.9:
-            add("p", ERROR if row.p == 1.0 else WARNING, "p_near_one", p=fmt("p"))
+    def anything_to_analyse(self) -> None:
+        """Is there anything to analyse? And a risk of bias we can read."""
+        row, add, measure, name = self.row, self.add, self.measure, self.name
+        routes = _routes(row, measure)
+        if not routes and not self.unread:
+            if row.has_counts() and measure not in BINARY_MEASURES:
+                add(
+                    "",
+                    ERROR,
+                    "no_route_for_measure",
+                    measure_name=name,
+                    why=f"counts cannot give the {name}",
+                )
+            elif row.has_means() and measure not in CONTINUOUS_MEASURES:
+                add(
+                    "",
+                    ERROR,
+                    "no_route_for_measure",
+                    measure_name=name,
+                    why=f"means and SDs cannot give the {name}",
+                )
+            else:
+                add("", ERROR, "no_route")
+        if (
+            row.risk_of_bias is not None
+            and row.risk_of_bias.strip().casefold() not in RISK_OF_BIAS_LEVELS
+        ):
+            add("risk_of_bias", WARNING, "risk_of_bias_unknown", value=row.risk_of_bias)
 
-    # -- is there anything to analyse?
-    routes = _routes(row, measure)
-    if not routes and not unread:
-        if row.has_counts() and measure not in BINARY_MEASURES:
-            add(
-                "",
-                ERROR,
-                "no_route_for_measure",
-                measure_name=name,
-                why=f"counts cannot give the {name}",
-            )
-        elif row.has_means() and measure not in CONTINUOUS_MEASURES:
-            add(
-                "",
-                ERROR,
-                "no_route_for_measure",
-                measure_name=name,
-                why=f"means and SDs cannot give the {name}",
-            )
-        else:
-            add("", ERROR, "no_route")
-    if (
-        row.risk_of_bias is not None
-        and row.risk_of_bias.strip().casefold() not in RISK_OF_BIAS_LEVELS
-    ):
-        add("risk_of_bias", WARNING, "risk_of_bias_unknown", value=row.risk_of_bias)
-    return tuple(out)
+
+#: whole-number fields and what each counts (for the "negative" and "not whole" checks)
+WHOLE_FIELDS = {
+    "int_events": "events",
+    "int_total": "total",
+    "ctl_events": "events",
+    "ctl_total": "total",
+    "int_n": "number",
+    "ctl_n": "number",
+    "n": "number",
+}
 
 
 def lo_hi_given(row: StudyRow) -> bool:

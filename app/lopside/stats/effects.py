@@ -561,14 +561,8 @@ def derive(
         )
 
 
-def _derive(
-    row: StudyRow, measure: str, ci_level: float, ci_method: str, smd_correction: str
-) -> Derived:
-    work = _Work([], [])
-    if measure not in MEASURES:
-        return Derived(problems=(f"unknown effect measure {measure!r}; use one of {MEASURES}",))
-
-    # counts and arm sizes are recorded whatever route gives y (Peters' test, axes)
+def _counts_of(row: StudyRow):
+    """(counts, double zero?, arcsine difference, its variance) of a row's 2x2 counts."""
     counts: tuple[float, float, float, float] | None = None
     double_zero = False
     asd = asd_var = None
@@ -581,6 +575,12 @@ def _derive(
             double_zero = a == 0 and c == 0
             asd = math.asin(math.sqrt(a / n1c)) - math.asin(math.sqrt(c / n0c))
             asd_var = 1 / (4 * n1c) + 1 / (4 * n0c)
+    return counts, double_zero, asd, asd_var
+
+
+def _sizes_of(row: StudyRow, measure: str, work: _Work):
+    """(intervention, control, total) participants; a total that is not positive is
+    noted and left out."""
     n1, n0 = _arm_sizes(row, measure, work)
     scratch = _Work([], [])
     n_given = _num(row.n, "n", scratch)
@@ -589,8 +589,11 @@ def _derive(
         work.notes.append("n: the total is not a positive number, so it was not used")
     if n_total is None and n1 is not None and n0 is not None:
         n_total = n1 + n0
-    sizes = (n1, n0, n_total)
+    return n1, n0, n_total
 
+
+def _routes_present(row: StudyRow, measure: str) -> list[str]:
+    """The entry routes this row fills, in the order they are tried."""
     present = []
     if measure in BINARY_MEASURES and _counts_present(row):
         present.append("counts")
@@ -602,6 +605,21 @@ def _derive(
         present.append("se")
     if _p_present(row):
         present.append("p")
+    return present
+
+
+def _derive(
+    row: StudyRow, measure: str, ci_level: float, ci_method: str, smd_correction: str
+) -> Derived:
+    work = _Work([], [])
+    if measure not in MEASURES:
+        return Derived(problems=(f"unknown effect measure {measure!r}; use one of {MEASURES}",))
+
+    # counts and arm sizes are recorded whatever route gives y (Peters' test, axes)
+    counts, double_zero, asd, asd_var = _counts_of(row)
+    n1, n0, n_total = _sizes_of(row, measure, work)
+    sizes = (n1, n0, n_total)
+    present = _routes_present(row, measure)
 
     y = var = None
     route = text = ""

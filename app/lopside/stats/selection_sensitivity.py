@@ -317,82 +317,19 @@ def _model(
         )
 
     # worst case: the non-affirmative studies alone (the last row above)
-    if n_non == 0:
-        worst: WorstCase | NotComputable = NotComputable(MSG_ALL_AFFIRMATIVE)
-    elif robust and n_non < 2:
-        wsum = w[~aff].sum()
-        west = float((w[~aff] @ yy[~aff]) / wsum)
-        worst = WorstCase(
-            estimate=sign * west,
-            se=None,
-            ci_low=None,
-            ci_high=None,
-            k=n_non,
-            reason="a robust interval needs at least two non-affirmative studies",
-        )
-    else:
-        we, wse, wdf, wcrit = float(est_all[-1]), float(se_all[-1]), df_all[-1], crit_all[-1]
-        lo, hi = _limits(we, wse, float(wcrit))
-        if sign < 0:
-            lo, hi = -hi, -lo
-        if robust:
-            worst = WorstCase(sign * we, wse, lo, hi, n_non, float(wdf))
-        else:
-            worst = WorstCase(sign * we, wse, lo, hi, n_non)
-
+    last = (float(est_all[-1]), float(se_all[-1]), df_all[-1], crit_all[-1])
+    worst = _worst_case(yy, w, aff, sign, robust, last)
     # S-value for the estimate: closed form
-    s_value: float | None = None
-    if n_aff == 0:
-        s_reason = MSG_NO_AFFIRMATIVE
-    elif est[0] <= 0:
-        s_reason = MSG_ESTIMATE_ALREADY
-    elif n_non == 0 or N >= 0:
-        s_reason = MSG_NOT_ATTAINABLE
-    else:
-        s_value = -A / N
-        s_reason = ""
+    s_value, s_reason = _s_value(n_aff, n_non, float(est[0]), A, N)
 
     # S-value for the interval: the limit nearer the null, searched on a log grid
-    s_ci: float | None = None
-    if n_aff == 0:
-        ci_reason = MSG_NO_AFFIRMATIVE
-    else:
+    def near(e):
+        e_, s_, _, c_ = evaluate(np.asarray(e, dtype=float))
+        return e_ - c_ * s_
 
-        def near(e):
-            e_, s_, _, c_ = evaluate(np.asarray(e, dtype=float))
-            return e_ - c_ * s_
-
-        first = float(est[0] - crit[0] * se[0])  # η = 1 is the first of ``etas``
-        if not math.isfinite(first):
-            ci_reason = "the interval cannot be computed at η = 1 for these studies"
-        elif first <= 0:
-            ci_reason = MSG_CI_ALREADY
-        else:
-            # vectorised bracketing: a log grid, then finer grids inside the first bracket
-            lo_eta, hi_eta = 1.0, ETA_SEARCH_MAX
-            s_ci, ci_reason = None, MSG_NOT_ATTAINABLE_CI
-            for rnd in range(5):
-                if rnd == 0:  # the first grid was evaluated with the reported η
-                    grid = search0
-                    g = (
-                        est_all[n_e : n_e + n_s]
-                        - crit_all[n_e : n_e + n_s] * se_all[n_e : n_e + n_s]
-                    )
-                else:
-                    grid = _geom(lo_eta, hi_eta, SEARCH_POINTS)
-                    g = near(grid)
-                hit = np.flatnonzero(~(g > 0))
-                if hit.size == 0 or hit[0] == 0:
-                    break
-                j = int(hit[0])
-                if not math.isfinite(g[j]):
-                    ci_reason = "the interval cannot be computed at large η"
-                    break
-                lo_eta, hi_eta = float(grid[j - 1]), float(grid[j])
-                g_lo, g_hi = float(g[j - 1]), float(g[j])
-                # linear interpolation inside the (already very narrow) bracket
-                s_ci = lo_eta + (hi_eta - lo_eta) * g_lo / (g_lo - g_hi)
-                ci_reason = ""
+    first_grid = est_all[n_e : n_e + n_s] - crit_all[n_e : n_e + n_s] * se_all[n_e : n_e + n_s]
+    first = float(est[0] - crit[0] * se[0])  # η = 1 is the first of ``etas``
+    s_ci, ci_reason = _s_value_ci(n_aff, first, search0, first_grid, near)
     # the curve for the figure: far enough to show the S-values, at least to η = 100
     top = _curve_top(s_value, s_ci)
     if top == curve_top:
@@ -416,6 +353,76 @@ def _model(
         worst_case=worst,
         curve=curve,
     )
+
+
+def _worst_case(yy, w, aff, sign: int, robust: bool, last) -> WorstCase | NotComputable:
+    """The estimate from the non-affirmative studies alone; ``last`` is the (estimate, SE,
+    df, critical value) of that row of the model's one array evaluation."""
+    n_non = int((~aff).sum())
+    if n_non == 0:
+        return NotComputable(MSG_ALL_AFFIRMATIVE)
+    if robust and n_non < 2:
+        wsum = w[~aff].sum()
+        west = float((w[~aff] @ yy[~aff]) / wsum)
+        return WorstCase(
+            estimate=sign * west,
+            se=None,
+            ci_low=None,
+            ci_high=None,
+            k=n_non,
+            reason="a robust interval needs at least two non-affirmative studies",
+        )
+    we, wse, wdf, wcrit = last
+    lo, hi = _limits(we, wse, float(wcrit))
+    if sign < 0:
+        lo, hi = -hi, -lo
+    if robust:
+        return WorstCase(sign * we, wse, lo, hi, n_non, float(wdf))
+    return WorstCase(sign * we, wse, lo, hi, n_non)
+
+
+def _s_value(n_aff: int, n_non: int, est1: float, A: float, N: float):  # noqa: N803
+    """(S-value, reason): the η at which the corrected estimate reaches the null, in
+    closed form (-A/N), or None and why not."""
+    if n_aff == 0:
+        return None, MSG_NO_AFFIRMATIVE
+    if est1 <= 0:
+        return None, MSG_ESTIMATE_ALREADY
+    if n_non == 0 or N >= 0:
+        return None, MSG_NOT_ATTAINABLE
+    return -A / N, ""
+
+
+def _s_value_ci(n_aff: int, first: float, search0, first_grid, near):
+    """(S-value, reason) for the interval: the η at which the limit nearer the null
+    reaches it, bracketed on log grids (the first already evaluated), then interpolated
+    linearly inside the last, very narrow bracket."""
+    if n_aff == 0:
+        return None, MSG_NO_AFFIRMATIVE
+    if not math.isfinite(first):
+        return None, "the interval cannot be computed at η = 1 for these studies"
+    if first <= 0:
+        return None, MSG_CI_ALREADY
+    lo_eta, hi_eta = 1.0, ETA_SEARCH_MAX
+    s_ci, ci_reason = None, MSG_NOT_ATTAINABLE_CI
+    for rnd in range(5):
+        if rnd == 0:  # the first grid was evaluated with the reported η
+            grid, g = search0, first_grid
+        else:
+            grid = _geom(lo_eta, hi_eta, SEARCH_POINTS)
+            g = near(grid)
+        hit = np.flatnonzero(~(g > 0))
+        if hit.size == 0 or hit[0] == 0:
+            break
+        j = int(hit[0])
+        if not math.isfinite(g[j]):
+            ci_reason = "the interval cannot be computed at large η"
+            break
+        lo_eta, hi_eta = float(grid[j - 1]), float(grid[j])
+        g_lo, g_hi = float(g[j - 1]), float(g[j])
+        s_ci = lo_eta + (hi_eta - lo_eta) * g_lo / (g_lo - g_hi)
+        ci_reason = ""
+    return s_ci, ci_reason
 
 
 def affirmative_mask(y: np.ndarray, se: np.ndarray, sign: int) -> np.ndarray:
