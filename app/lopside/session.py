@@ -32,7 +32,7 @@ from typing import Any
 from . import edits as ed
 from . import workbook_edits as wbe
 from .model.review import Review, ReviewDetails
-from .model.workbook import Outcome, Workbook
+from .model.workbook import Outcome, Workbook, outcome_name
 from .settings import AnalysisSettings
 
 Listener = Callable[[ed.Change], None]
@@ -135,7 +135,10 @@ class Session:
 
     @property
     def outcome_names(self) -> tuple[str, ...]:
-        return self.workbook.names
+        """The names shown (read on every change by the chooser: no workbook is built)."""
+        self._sync()
+        n = len(self._slots)
+        return tuple(outcome_name(s.review, i, n) for i, s in enumerate(self._slots))
 
     def outcome_reviews(self) -> tuple[tuple[Review, AnalysisSettings], ...]:
         """(review, settings) of every outcome, in order (the panel summary reads them)."""
