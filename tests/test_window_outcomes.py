@@ -153,3 +153,12 @@ def test_outcomes_added_from_files_are_one_undo_step(book_window, tmp_path):
     assert len(w.session.outcome_names) == 6
     assert not w.add_outcomes_from_file(tmp_path / "review.pdf")
     assert "Paste rows from a paper" in w.last_message
+
+
+def test_a_slide_of_an_outcome_without_studies_says_why(book_window, tmp_path):
+    w, _ = book_window
+    w.outcomes.ask_name = lambda *a: "Empty outcome"
+    assert w.outcomes.add()
+    assert w.export_slide(str(tmp_path / "e.pptx")) is None
+    assert w.last_message.startswith("The slide could not be written:")
+    assert not (tmp_path / "e.pptx").exists()

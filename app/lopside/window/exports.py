@@ -70,7 +70,7 @@ def panel_to_file(window, path: str | None = None) -> Path | None:
         title = window.session.review.details.title or "Panel summary"
         write_panel(build_panel(title, window.panel_view.inputs()), out)
     except (OSError, ValueError) as exc:
-        window.say(M.SHEET_FAILED.format(error=exc), 0)
+        window.say(M.PANEL_EXPORT_FAILED.format(error=exc), 0)
         return None
     finally:
         QApplication.restoreOverrideCursor()
@@ -85,7 +85,7 @@ def slide_to_file(window, path: str | None = None) -> Path | None:
 
     window.update_views()
     if window.result is None or window.result.k == 0:
-        window.say(M.SHEET_FAILED.format(error=window.analysis_error or M.NO_ANALYSIS))
+        window.say(M.SLIDE_FAILED.format(error=window.analysis_error or M.NO_ANALYSIS))
         return None
     stem = window.session.path.stem if window.session.path else "review"
     path = path or _ask(window, f"{stem}-slide.pptx", "Export a journal-club slide", SLIDE_FILTER)
@@ -99,7 +99,7 @@ def slide_to_file(window, path: str | None = None) -> Path | None:
     try:
         write_slide(window.result, assessment_of(window.result).appraisal, out, title=name)
     except (OSError, ValueError) as exc:
-        window.say(M.SHEET_FAILED.format(error=exc), 0)
+        window.say(M.SLIDE_FAILED.format(error=exc), 0)
         return None
     window.say(M.SLIDE_EXPORTED.format(path=out))
     return out

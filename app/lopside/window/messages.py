@@ -219,3 +219,5 @@ OUTCOME_FROM_PDF = (
     "paste the rows copied from the PDF (Edit > Paste rows from a paper), or open the PDF "
     "itself with File > Open."
 )
+PANEL_EXPORT_FAILED = "The panel summary could not be written: {error}"
+SLIDE_FAILED = "The slide could not be written: {error}"
