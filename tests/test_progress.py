@@ -78,6 +78,37 @@ def test_core_stage_has_the_first_numbers_and_says_the_rest_is_pending():
     to_json(core)  # every output path can render a core result
 
 
+def test_core_stage_pools_only_the_chosen_model_and_says_the_others_follow():
+    """The core stage pools with the chosen τ² (issue 16); the comparison with the other
+    estimators belongs to the full stage, and until then the summary says so rather than
+    showing a table half old, half new (DESIGN 8)."""
+    from lopside.analysis import CORE_PENDING
+    from lopside.settings import AnalysisSettings
+    from lopside.stats.results import NotComputable
+    from lopside.summary import pooled_section
+
+    review = _sample()
+    for hksj in (False, True):
+        settings = AnalysisSettings(tau2_method="PM", hksj=hksj)
+        core = analyse(review, settings, stage="core")
+        full = analyse(review, settings)
+        chosen, other = (
+            (core.random_hksj_by_method, core.random_by_method)
+            if hksj
+            else (core.random_by_method, core.random_hksj_by_method)
+        )
+        assert chosen["PM"] is core.random
+        for table, key in [(chosen, "DL"), (chosen, "REML")] + [(other, m) for m in other]:
+            assert isinstance(table[key], NotComputable) and table[key].reason == CORE_PENDING
+        assert list(core.random_by_method) == list(full.random_by_method)
+        full_tables = full.random_hksj_by_method if hksj else full.random_by_method
+        assert to_json_part(full_tables["PM"]) == to_json_part(core.random)
+        for m, p in full.random_by_method.items():
+            assert not isinstance(p, NotComputable), m
+        rows = pooled_section(core).rows
+        assert any(CORE_PENDING in cell for r in rows for cell in r)
+
+
 def test_full_stage_from_a_core_stage_equals_the_whole_analysis():
     from lopside.report import to_json
 

@@ -10,6 +10,7 @@ from __future__ import annotations
 import hashlib
 import json
 import math
+import operator
 from dataclasses import dataclass, field, replace
 from typing import Any
 
@@ -121,8 +122,27 @@ def fingerprint(review: Review, measure: str) -> str:
 UNREPORTED_REASON = "never reported results: used only in the missing-trial scenarios"
 
 
-def _nan_array(values) -> np.ndarray:
-    return np.array([np.nan if v is None else float(v) for v in values], dtype=float)
+#: StudyData's optional columns and the Derived attribute each is read from
+_OPTIONAL_COLUMNS = {
+    "n": "n_total",
+    "n1": "n1",
+    "n0": "n0",
+    "a": "a",
+    "b": "b",
+    "c": "c",
+    "d": "d",
+    "se_modified": "se_modified",
+    "asd": "asd",
+    "asd_var": "asd_var",
+}
+
+
+def _nan_columns(derived, columns: dict[str, str]) -> dict[str, np.ndarray]:
+    """The named attributes of each derived row as float columns, None as nan."""
+    names = tuple(columns.values())
+    get = operator.attrgetter(*names)
+    table = np.array([get(d) for d in derived], dtype=float).reshape(-1, len(names))
+    return {key: table[:, j].copy() for j, key in enumerate(columns)}
 
 
 def build_study_data(review: Review, measure: str, derived) -> tuple[StudyData, tuple]:
@@ -151,26 +171,15 @@ def build_study_data(review: Review, measure: str, derived) -> tuple[StudyData, 
             keep.append(i)
     rows = [review.studies[i] for i in keep]
     ds = [derived[i] for i in keep]
-
-    def col(name):
-        return _nan_array(getattr(d, name, None) for d in ds)
-
+    # one table of the optional numbers (None -> nan, as float() of each value would give)
+    cols = _nan_columns(ds, _OPTIONAL_COLUMNS)
     data = StudyData(
         measure=measure,
         y=np.array([d.y for d in ds], dtype=float),
         se=np.array([d.se for d in ds], dtype=float),
         labels=tuple(r.study or f"Row {i + 1}" for i, r in zip(keep, rows)),
         rows=tuple(keep),
-        n=col("n_total"),
-        n1=col("n1"),
-        n0=col("n0"),
-        a=col("a"),
-        b=col("b"),
-        c=col("c"),
-        d=col("d"),
-        se_modified=col("se_modified"),
-        asd=col("asd"),
-        asd_var=col("asd_var"),
+        **cols,
         risk_of_bias=tuple((r.risk_of_bias or "").strip().lower() for r in rows),
         subgroup=tuple((r.subgroup or "").strip() for r in rows),
     )
@@ -363,6 +372,11 @@ def _analyse(
         return base
     # the full result is the core stage's (one construction of the shared fields) with the
     # rest filled in
+    base = replace(
+        base,
+        tests=_other_tests(base.data, settings, base.tests),
+        **_pool_by_method(base.data, settings, base.confidence_level, base.random),
+    )
     rest = _full_stage(review, settings, base, with_power, power_progress, progress)
     return replace(base, stage="full", **rest)
 
@@ -401,7 +415,8 @@ def _core_stage(review, settings, measure, progress) -> AnalysisResult:
     _stage(progress, "reading the study rows")
     derived, problems, data, excluded = _read_rows(review, settings, measure)
     _stage(progress, "pooling")
-    fixed, by_method, hksj_by_method, random = _pool(data, settings, conf)
+    fixed, random = _pool(data, settings, conf)
+    by_method, hksj_by_method = _pending_by_method(settings, random).values()
     mh, peto = _pool_counts(data, measure, conf)
     het = _safe(
         pl.heterogeneity, data.y, data.v, tau2_method=settings.tau2_method, confidence_level=conf
@@ -457,21 +472,48 @@ def _read_rows(review, settings, measure):
 
 
 def _pool(data, settings, conf):
-    """Fixed effect, random effects by every τ² estimator (with and without HKSJ), and the
-    chosen random-effects model."""
+    """Fixed effect and the chosen random-effects model (the core stage's pooling)."""
     from .stats import pooling as pl
 
     y, v = data.y, data.v
     fixed = _safe(pl.fixed_effect, y, v, confidence_level=conf)
-    by_method = {
-        m: _safe(pl.random_effects, y, v, method=m, confidence_level=conf) for m in pl.TAU2_METHODS
-    }
-    hksj_by_method = {
-        m: _safe(pl.random_effects, y, v, method=m, hksj=True, confidence_level=conf)
-        for m in pl.TAU2_METHODS
-    }
-    random = (hksj_by_method if settings.hksj else by_method)[settings.tau2_method]
-    return fixed, by_method, hksj_by_method, random
+    random = _safe(
+        pl.random_effects,
+        y,
+        v,
+        method=settings.tau2_method,
+        hksj=settings.hksj,
+        confidence_level=conf,
+    )
+    return fixed, random
+
+
+def _pending_by_method(settings, random) -> dict[str, dict[str, Any]]:
+    """The by-estimator tables of the core stage: the chosen model, the others pending."""
+    from .stats.pooling import TAU2_METHODS
+
+    pending = NotComputable(CORE_PENDING)
+    by_method: dict[str, Any] = {m: pending for m in TAU2_METHODS}
+    hksj_by_method = dict(by_method)
+    (hksj_by_method if settings.hksj else by_method)[settings.tau2_method] = random
+    return {"random_by_method": by_method, "random_hksj_by_method": hksj_by_method}
+
+
+def _pool_by_method(data, settings, conf, random) -> dict[str, dict[str, Any]]:
+    """Random effects by every τ² estimator, with and without HKSJ (the full stage's
+    comparison); the chosen model is the core stage's object."""
+    from .stats import pooling as pl
+
+    y, v = data.y, data.v
+    tables: dict[str, dict[str, Any]] = {}
+    for name, hksj in (("random_by_method", False), ("random_hksj_by_method", True)):
+        tables[name] = {
+            m: random
+            if (m, hksj) == (settings.tau2_method, settings.hksj)
+            else _safe(pl.random_effects, y, v, method=m, hksj=hksj, confidence_level=conf)
+            for m in pl.TAU2_METHODS
+        }
+    return tables
 
 
 def _pool_counts(data, measure, conf):
@@ -497,8 +539,13 @@ def _pool_counts(data, measure, conf):
     return mh, peto
 
 
+#: the tests the core stage runs beside the recommended one: the funnel draws its line
+CORE_TESTS = ("egger",)
+
+
 def _small_study_tests(data, settings, random, het):
-    """The recommended test, every registered test, and the conditions for reading them."""
+    """The recommended test (and those the funnel draws), the other registered tests
+    pending, and the conditions for reading them."""
     from .stats import applicability, asymmetry
 
     tau2 = random.tau2 if isinstance(random, PooledEstimate) else 0.0
@@ -508,12 +555,34 @@ def _small_study_tests(data, settings, random, het):
     options = {}
     if recommendation and not isinstance(recommendation, NotComputable):
         options[recommendation.key] = recommendation.kwargs()
-    tests = asymmetry.run_all(data, alpha=settings.test_alpha, options=options)
+    now = set(CORE_TESTS) | set(options)
+    pending = NotComputable(CORE_PENDING)
+    tests = {
+        key: asymmetry.run_test(key, data, alpha=settings.test_alpha, **options.get(key, {}))
+        if key in now
+        else pending
+        for key in asymmetry.REGISTRY
+    }
     if isinstance(het, NotComputable):
         rules = _safe(applicability.applicability, data, None, None)
     else:
         rules = _safe(applicability.applicability, data, het.i2, het.pvalue)
     return recommendation, tests, rules
+
+
+def _other_tests(data, settings, tests) -> dict[str, Any]:
+    """The registered tests the core stage left pending (the full stage's part), in
+    registry order."""
+    from .stats import asymmetry
+
+    return {
+        key: asymmetry.run_test(key, data, alpha=settings.test_alpha) if _is_pending(t) else t
+        for key, t in tests.items()
+    }
+
+
+def _is_pending(value) -> bool:
+    return isinstance(value, NotComputable) and value.reason == CORE_PENDING
 
 
 def _trim_fill(data, settings, estimator, trim_model, fill_model):

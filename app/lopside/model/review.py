@@ -149,18 +149,26 @@ class StudyRow:
 
     def to_dict(self) -> dict[str, Any]:
         out: dict[str, Any] = {}
-        for f in fields(self):
-            value = getattr(self, f.name)
-            if f.name == "unread":
+        for name in _ROW_FIELDS:
+            value = getattr(self, name)
+            if value is None:
+                continue
+            if name == "unread":
                 if value:
                     out["unread"] = dict(value)
-                continue
-            if value is None or (f.name == "exclude" and value is False):
-                continue
-            if f.name == "reported" and value is True:
-                continue
-            out[f.name] = value
+            elif name == "exclude":
+                if value is not False:
+                    out[name] = value
+            elif name == "reported":
+                if value is not True:
+                    out[name] = value
+            else:
+                out[name] = value
         return out
+
+
+#: the row's field names in order (dataclasses.fields is slow on every call)
+_ROW_FIELDS: tuple[str, ...] = tuple(f.name for f in fields(StudyRow))
 
 
 @dataclass(frozen=True, slots=True)

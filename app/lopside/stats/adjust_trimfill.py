@@ -33,6 +33,7 @@ import numpy as np
 from .adjust_wls import egger_slope
 from .data import StudyData
 from .pooling import TAU2_METHODS, fixed_effect, random_effects
+from .pooling_base import TOO_EXTREME, _too_extreme
 from .results import NotComputable, PooledEstimate
 
 ESTIMATORS: tuple[str, ...] = ("L0", "R0")
@@ -114,7 +115,9 @@ def _average_ranks(a: np.ndarray, tol: float) -> np.ndarray:
     # (a chain: each value is compared with the one before it)
     starts = np.concatenate(([0], np.flatnonzero(~(np.diff(s) <= tol)) + 1))
     ends = np.concatenate((starts[1:], [n])) - 1
-    run = np.cumsum(np.isin(np.arange(n), starts)) - 1
+    first = np.zeros(n, dtype=np.intp)
+    first[starts] = 1
+    run = np.cumsum(first) - 1
     ranks = np.empty(n)
     ranks[order] = 0.5 * (starts + ends)[run] + 1.0
     return ranks
@@ -293,9 +296,18 @@ def _trim(yw, v, trim_order, estimator, trim_model, tau2_method, max_iter, level
     """
     n = yw.size
 
+    if trim_model == "FE" and _too_extreme(yw, v):
+        return NotComputable(TOO_EXTREME)
+    w = 1.0 / v
+
     def centre_without(k: int) -> float | NotComputable:
         keep = np.ones(n, dtype=bool)
         keep[trim_order[:k]] = False
+        if trim_model == "FE":
+            # the fixed-effect estimate as fixed_effect() computes it, without its CI and
+            # weights; a subset of sums that are finite is finite (all terms are >= 0)
+            wk = w[keep]
+            return float((wk * yw[keep]).sum() / wk.sum())
         est = _pool(yw[keep], v[keep], trim_model, tau2_method, level)
         return est if isinstance(est, NotComputable) else est.estimate
 

@@ -4,6 +4,8 @@ first used), the array conversion, and the check that the weighted sums are fini
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
 
 
@@ -48,11 +50,11 @@ def _too_extreme(y: np.ndarray, v: np.ndarray) -> bool:
     """True when the weighted sums that every estimator needs overflow or are not finite."""
     with np.errstate(all="ignore"):
         return not (
-            np.all(np.isfinite(y))
-            and np.all(np.isfinite(v))
-            and np.all(v > 0)
-            and np.isfinite((y * y / v).sum())
-            and np.isfinite((1.0 / v).sum())
+            np.isfinite(y).all()
+            and np.isfinite(v).all()
+            and (v > 0).all()
+            and math.isfinite((y * y / v).sum())
+            and math.isfinite((1.0 / v).sum())
         )
 
 

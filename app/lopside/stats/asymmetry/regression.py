@@ -6,6 +6,8 @@ Formulas: methods.md section 3.
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
 
 from lopside.stats.asymmetry.base import (
@@ -236,6 +238,14 @@ def arcsine_core(asd, asd_var, use=None, *, random: bool = False) -> TestArrays:
 # The tests
 
 
+def _close(p: float, q: float) -> bool:
+    """numpy.isclose(p, q, rtol=_EGGER_AGREE_RTOL, atol=1e-12) for two floats, without
+    numpy's array machinery (the agreement check of the two formulations)."""
+    if math.isinf(p) or math.isinf(q):
+        return p == q
+    return abs(p - q) <= 1e-12 + _EGGER_AGREE_RTOL * abs(q)
+
+
 def egger(data: StudyData, *, alpha: float = DEFAULT_ALPHA) -> AsymmetryResult | NotComputable:
     """Egger's regression test (Egger et al. 1997), formulation A.
 
@@ -262,9 +272,7 @@ def egger(data: StudyData, *, alpha: float = DEFAULT_ALPHA) -> AsymmetryResult |
         return _not_computable("egger", int(a.status), int(a.k_used), n_dropped=len(dropped))
     b = egger_wls_core(data.y, data.se, use)
     pairs = ((a.intercept, b.slope), (a.intercept_se, b.slope_se), (a.slope, b.intercept))
-    if int(b.status) != OK or not all(
-        np.isclose(float(p), float(q), rtol=_EGGER_AGREE_RTOL, atol=1e-12) for p, q in pairs
-    ):
+    if int(b.status) != OK or not all(_close(float(p), float(q)) for p, q in pairs):
         return NotComputable(MSG_EGGER_DISAGREE.format(name=_name("egger")))
     return _wrap(
         "egger",

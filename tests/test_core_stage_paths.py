@@ -1,0 +1,82 @@
+"""The core stage's quick paths give the same answers as the general code they skip
+(issue 16: the core stage at 30 studies should cost no more than a user's own script).
+
+Each check compares with something outside the quick path: numpy's own ``isclose`` and
+``all`` (the general-purpose definitions), and the full fixed-effect pooling of the subset.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+
+from lopside.stats.asymmetry.regression import _EGGER_AGREE_RTOL, _close
+from lopside.stats.pooling import fixed_effect
+from lopside.stats.pooling_base import _too_extreme
+
+AWKWARD = [0.0, -0.0, 1.0, 1 + 1e-9, 1 + 1e-6, 1e-13, -1e-13, 2e-12, 5e-324, 1e308, -1e308]
+AWKWARD += [math.inf, -math.inf, math.nan]
+
+
+def test_egger_agreement_check_is_numpys_isclose():
+    """Source: numpy.isclose(a, b, rtol, atol) = |a - b| <= atol + rtol |b|, infinities
+    equal only to themselves, nan never (numpy documentation)."""
+    rng = np.random.default_rng(7)
+    values = AWKWARD + list(rng.uniform(-3, 3, 40))
+    values += [v * (1 + rng.choice([1e-10, 1e-8, 1e-7, 1e-5])) for v in values[-40:]]
+    mismatches = [
+        (p, q)
+        for p in values
+        for q in values
+        if bool(np.isclose(p, q, rtol=_EGGER_AGREE_RTOL, atol=1e-12)) != _close(p, q)
+    ]
+    assert mismatches == []
+
+
+@pytest.mark.parametrize("seed", range(30))
+def test_too_extreme_is_the_all_finite_definition(seed):
+    """Source: the definition in numpy terms (np.all of isfinite and v > 0, finite sums)."""
+    rng = np.random.default_rng(seed)
+    k = int(rng.integers(1, 12))
+    y = rng.normal(0, 1, k)
+    v = rng.uniform(0.01, 1, k)
+    for arr in (y, v):
+        if rng.random() < 0.5:
+            arr[rng.integers(0, k)] = rng.choice(
+                [math.inf, -math.inf, math.nan, 0.0, -1.0, 1e-320, 1e308]
+            )
+    with np.errstate(all="ignore"):
+        expected = not (
+            np.all(np.isfinite(y))
+            and np.all(np.isfinite(v))
+            and np.all(v > 0)
+            and np.isfinite((y * y / v).sum())
+            and np.isfinite((1.0 / v).sum())
+        )
+    assert _too_extreme(y, v) is expected
+
+
+@pytest.mark.parametrize("seed", range(20))
+def test_trim_and_fill_fixed_effect_centres_equal_full_pooling(seed):
+    """The fixed-effect centre while trimming is fixed_effect()'s estimate of the kept
+    studies, bit for bit (trim and fill with trim FE recomputed by pooling each subset)."""
+    from lopside.stats.adjust_trimfill import _pool as pool_subset
+    from lopside.stats.adjust_trimfill import _trim, k0_statistic
+
+    rng = np.random.default_rng(100 + seed)
+    k = int(rng.integers(3, 40))
+    se = rng.uniform(0.05, 0.8, k)
+    yw = rng.normal(0.2 + 0.8 * se, np.sqrt(se**2 + 0.05))
+    v = se**2
+    order = np.lexsort((-se, -yw))
+    k0, centre, _sequence, _iterations, converged, _note = _trim(
+        yw, v, order, "L0", "FE", "REML", 100, 0.95
+    )
+    keep = np.ones(k, dtype=bool)
+    keep[order[:k0]] = False
+    assert centre == fixed_effect(yw[keep], v[keep]).estimate
+    assert centre == pool_subset(yw[keep], v[keep], "FE", "REML", 0.95).estimate
+    if converged:  # the number settled: L0 from that centre gives k0 again (Duval & Tweedie 2000)
+        assert min(k0_statistic(yw - centre, "L0")[1], k - 1) == k0
