@@ -80,3 +80,38 @@ def test_trim_and_fill_fixed_effect_centres_equal_full_pooling(seed):
     assert centre == pool_subset(yw[keep], v[keep], "FE", "REML", 0.95).estimate
     if converged:  # the number settled: L0 from that centre gives k0 again (Duval & Tweedie 2000)
         assert min(k0_statistic(yw - centre, "L0")[1], k - 1) == k0
+
+
+def test_row_to_dict_is_the_set_fields_in_field_order():
+    """StudyRow.to_dict (what the fingerprint and project files hash and save) keeps the
+    fields that are set, in field order, leaving out the defaults; the definition is
+    checked field by field with dataclasses.fields (the standard library)."""
+    import dataclasses
+
+    from lopside.model.review import StudyRow
+
+    rng = np.random.default_rng(3)
+    names = [f.name for f in dataclasses.fields(StudyRow)]
+    numeric = [n for n in names if n not in ("study", "risk_of_bias", "subgroup")]
+    numeric = [n for n in numeric if n not in ("exclude", "reported", "unread")]
+    for _ in range(300):
+        kw = {n: float(rng.normal()) for n in numeric if rng.random() < 0.3}
+        if rng.random() < 0.7:
+            kw["study"] = f"Invented {int(rng.integers(100))}"
+        kw["exclude"] = bool(rng.random() < 0.3)
+        kw["reported"] = bool(rng.random() < 0.7)
+        if rng.random() < 0.3:
+            kw["unread"] = (("lower", "0,5"),)
+        row = StudyRow(**kw)
+        expected = {}
+        for f in dataclasses.fields(row):
+            v = getattr(row, f.name)
+            if v is None or (f.name, v) in (("exclude", False), ("reported", True)):
+                continue
+            if f.name == "unread":
+                if v:
+                    expected["unread"] = dict(v)
+                continue
+            expected[f.name] = v
+        got = row.to_dict()
+        assert got == expected and list(got) == list(expected)

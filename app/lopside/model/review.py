@@ -13,6 +13,7 @@ Design invariants
 
 from __future__ import annotations
 
+import operator
 from dataclasses import dataclass, field, fields, replace
 from typing import Any
 
@@ -148,27 +149,22 @@ class StudyRow:
         return None
 
     def to_dict(self) -> dict[str, Any]:
-        out: dict[str, Any] = {}
-        for name in _ROW_FIELDS:
-            value = getattr(self, name)
-            if value is None:
-                continue
-            if name == "unread":
-                if value:
-                    out["unread"] = dict(value)
-            elif name == "exclude":
-                if value is not False:
-                    out[name] = value
-            elif name == "reported":
-                if value is not True:
-                    out[name] = value
-            else:
-                out[name] = value
+        """The fields that are set, in field order: None, an empty ``unread``,
+        ``exclude=False`` and ``reported=True`` (the defaults) are left out."""
+        out = {k: v for k, v in zip(_ROW_FIELDS, _row_values(self)) if v is not None}
+        unread = out.pop("unread", ())
+        if out.get("exclude") is False:
+            del out["exclude"]
+        if out.get("reported") is True:
+            del out["reported"]
+        if unread:
+            out["unread"] = dict(unread)
         return out
 
 
 #: the row's field names in order (dataclasses.fields is slow on every call)
 _ROW_FIELDS: tuple[str, ...] = tuple(f.name for f in fields(StudyRow))
+_row_values = operator.attrgetter(*_ROW_FIELDS)
 
 
 @dataclass(frozen=True, slots=True)
