@@ -19,7 +19,7 @@ import numpy as np
 from .model.review import BINARY_MEASURES, RATIO_MEASURES, Review
 from .settings import AnalysisSettings
 from .stats.data import StudyData
-from .stats.results import NotComputable, PooledEstimate
+from .stats.results import CORE_PENDING, NotComputable, PooledEstimate, is_pending
 
 
 @dataclass(frozen=True, slots=True)
@@ -576,13 +576,9 @@ def _other_tests(data, settings, tests) -> dict[str, Any]:
     from .stats import asymmetry
 
     return {
-        key: asymmetry.run_test(key, data, alpha=settings.test_alpha) if _is_pending(t) else t
+        key: asymmetry.run_test(key, data, alpha=settings.test_alpha) if is_pending(t) else t
         for key, t in tests.items()
     }
-
-
-def _is_pending(value) -> bool:
-    return isinstance(value, NotComputable) and value.reason == CORE_PENDING
 
 
 def _trim_fill(data, settings, estimator, trim_model, fill_model):
@@ -715,10 +711,6 @@ def _power(data, settings, power_progress, progress):
         alpha=settings.test_alpha,
         progress=power_progress,
     )
-
-
-#: what a view shows for a number of the full stage while only the core stage is ready
-CORE_PENDING = "being updated (the full analysis follows in a moment)"
 
 
 def _rules_tuple(rules) -> tuple:

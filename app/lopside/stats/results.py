@@ -27,6 +27,15 @@ class NotComputable:
         return False
 
 
+#: what a view shows for a number of the full stage while only the core stage is ready
+CORE_PENDING = "being updated (the full analysis follows in a moment)"
+
+
+def is_pending(x: object) -> bool:
+    """True for a result the full stage of the analysis has still to compute."""
+    return isinstance(x, NotComputable) and x.reason == CORE_PENDING
+
+
 def finite(x: float | None) -> bool:
     return x is not None and isinstance(x, (int, float)) and math.isfinite(x)
 

@@ -3,7 +3,17 @@ when a test can be trusted here, what the review itself claimed, and the test's 
 
 from __future__ import annotations
 
-from ..words.numbers import fmt_num, fmt_p, fmt_share, is_finite, is_ok, plural, why_not
+from ..stats.results import is_pending
+from ..words.numbers import (
+    fmt_num,
+    fmt_p,
+    fmt_share,
+    is_finite,
+    is_ok,
+    missing_word,
+    plural,
+    why_not,
+)
 from ..words.rows import _test_result_text, recommended_key
 from ..words.sentences import rule_detail
 from .section import Section
@@ -40,6 +50,8 @@ def tests_section(result) -> Section:
                 aside = f"{plural(len(dropped), 'study', 'studies')} set aside ({dropped[0][1]})"
                 role = f"{role}; {aside}" if role else aside
             rows.append((name, _test_result_text(t), fmt_p(t.pvalue), str(t.k_used), role))
+        elif is_pending(t):
+            rows.append((name, missing_word(t), "", "", role))
         else:
             note = f"{role}: {why_not(t)}" if role else why_not(t)
             rows.append((name, "not computed", "", "", note))

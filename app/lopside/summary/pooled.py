@@ -7,7 +7,7 @@ from __future__ import annotations
 from typing import Any
 
 from ..model.review import RATIO_MEASURES
-from ..stats.results import NotComputable, PooledEstimate
+from ..stats.results import NotComputable, PooledEstimate, is_pending
 from ..words.numbers import (
     MISSING,
     fmt_ci,
@@ -24,6 +24,7 @@ from ..words.numbers import (
     fmt_tau2,
     is_finite,
     is_ok,
+    missing_word,
     model_name,
     plural,
     pooled_text,
@@ -112,6 +113,8 @@ def pooled_section(result) -> Section:
                     fmt_tau2(p.tau2) if tau else "",
                 )
             )
+        elif is_pending(p):
+            rows.append((name, missing_word(p), "", "", ""))
         elif isinstance(p, NotComputable):
             rows.append((name, "not computed", p.reason, "", ""))
 

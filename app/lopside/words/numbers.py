@@ -15,7 +15,7 @@ import math
 from typing import Any
 
 from ..model.review import RATIO_MEASURES
-from ..stats.results import NotComputable, PooledEstimate
+from ..stats.results import NotComputable, PooledEstimate, is_pending
 
 MINUS = "\u2212"
 DASH = "\u2013"
@@ -239,6 +239,16 @@ def why_not(x: Any, default: str = "not computed") -> str:
     if isinstance(x, NotComputable):
         return x.reason
     return default
+
+
+#: the result column of a number the full stage has still to compute
+UPDATING = "updating\u2026"
+
+
+def missing_word(x: Any) -> str:
+    """The result column of a missing result: "updating…" while the full stage runs,
+    else "not computed" (the reason goes in its own column)."""
+    return UPDATING if is_pending(x) else "not computed"
 
 
 def pooled_text(p: PooledEstimate | Any, measure: str) -> str:
