@@ -128,3 +128,21 @@ def to_json_part(x):
     from lopside.report import plain
 
     return plain(x)
+
+
+def test_core_stage_reading_says_what_is_still_coming_not_that_it_could_not_be_run():
+    """While only the core stage is shown, the funnel's reading must not claim that only
+    one adjustment could be run or that no other test could be (DESIGN 8: a number still
+    being computed is not a number that failed)."""
+    from lopside.assessment import assessment_of
+    from lopside.summary.appraisal import small_study_section
+
+    def rows(result):
+        return dict(small_study_section(assessment_of(result).appraisal).rows)
+
+    review = _sample()
+    core_rows, full_rows = rows(analyse(review, stage="core")), rows(analyse(review))
+    assert "being updated" in core_rows["Adjusted"]
+    assert "Only one adjustment could be run" not in core_rows["Adjusted"]
+    assert "the others are being updated" in core_rows["Other tests"]
+    assert "being updated" not in full_rows["Adjusted"] + full_rows["Other tests"]

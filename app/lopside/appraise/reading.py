@@ -11,7 +11,7 @@ from __future__ import annotations
 from typing import Any
 
 from ..model.review import RATIO_MEASURES
-from ..stats.results import PooledEstimate
+from ..stats.results import PooledEstimate, is_pending
 from ..words.numbers import (
     fmt_ci,
     fmt_effect,
@@ -265,6 +265,8 @@ def test_reading(result, g: Glossary) -> TestReading:
     name = getattr(t, "name", None) or (spec.name if spec else rec.key)
     others = [f"{tt.name} {fmt_p_eq(tt.pvalue)}" for k, tt in computed_tests if k != rec.key]
     others_text = "; ".join(others) if others else "no other test could be run"
+    if any(is_pending(tt) for tt in result.tests.values()):
+        others_text = "; ".join(others + ["the others are being updated"])
     expl = (
         " Its behaviour for this measure is not established: read it as exploratory."
         if (rec.exploratory)
@@ -393,6 +395,7 @@ def adjustment_range(result, g: Glossary) -> AdjustmentRange:
                 continue
             name = f"PET-PEESE ({name})"
         picked.append((name, float(est)))
+    pending = any(is_pending(getattr(result, f)) for f in ("pet_peese", "limit", "selection"))
     if not picked:
         return AdjustmentRange(
             (),
@@ -402,7 +405,9 @@ def adjustment_range(result, g: Glossary) -> AdjustmentRange:
             0,
             0,
             "not available",
-            "No adjustment method could be run on these data.",
+            "The adjustments are being updated."
+            if pending
+            else "No adjustment method could be run on these data.",
         )
     values = [e for _n, e in picked]
     low, high = min(values), max(values)
@@ -437,6 +442,9 @@ def adjustment_range(result, g: Glossary) -> AdjustmentRange:
             f"The {n} adjusted estimates ({names}) range from {fmt_effect(low, m)} to "
             f"{fmt_effect(high, m)}"
         )
+    elif pending:
+        # the core stage: the others are still to come, not impossible
+        text = f"So far one adjustment ({names}): {fmt_effect(low, m)}"
     else:
         text = f"Only one adjustment could be run ({names}): {fmt_effect(low, m)}"
     if unadj is not None:
@@ -460,6 +468,8 @@ def adjustment_range(result, g: Glossary) -> AdjustmentRange:
             text += f" Of the {n}: " + "; ".join(parts) + "."
         else:
             text += " It " + parts[0].split(" ", 1)[1] + "."
+    if pending:
+        text += " The other adjustments are being updated."
     text += " A range of 'what if' answers, not a corrected estimate."
     return AdjustmentRange(
         tuple(picked), low, high, unadj, towards, crosses, moves, text, away=away, little=little
