@@ -382,28 +382,8 @@ def _analyse(
 
 
 def _core_again(core: AnalysisResult, review, settings, measure) -> AnalysisResult:
-    """The core result rebuilt around the objects of an earlier core stage."""
-    return _core_result(
-        review,
-        settings,
-        measure,
-        CONFIDENCE_LEVEL,
-        core.derived,
-        core.problems,
-        core.data,
-        core.excluded,
-        core.fixed,
-        core.random,
-        core.random_by_method,
-        core.random_hksj_by_method,
-        core.mantel_haenszel,
-        core.peto,
-        core.heterogeneity,
-        core.tests,
-        core.recommendation,
-        core.applicability,
-        core.trim_fill,
-    )
+    """The core result of an earlier core stage of the same inputs, around these inputs."""
+    return replace(core, review=review, settings=settings, measure=measure)
 
 
 def _core_stage(review, settings, measure, progress) -> AnalysisResult:
@@ -431,23 +411,23 @@ def _core_stage(review, settings, measure, progress) -> AnalysisResult:
     return _core_result(
         review,
         settings,
-        measure,
-        conf,
-        derived,
-        problems,
-        data,
-        excluded,
-        fixed,
-        random,
-        by_method,
-        hksj_by_method,
-        mh,
-        peto,
-        het,
-        tests,
-        recommendation,
-        rules,
-        trim_fill,
+        measure=measure,
+        confidence_level=conf,
+        derived=tuple(derived),
+        problems=tuple(problems),
+        data=data,
+        excluded=excluded,
+        fixed=fixed,
+        random=random,
+        random_by_method=by_method,
+        random_hksj_by_method=hksj_by_method,
+        mantel_haenszel=mh,
+        peto=peto,
+        heterogeneity=het,
+        tests=tests,
+        recommendation=recommendation,
+        applicability=_rules_tuple(rules),
+        trim_fill=trim_fill,
     )
 
 
@@ -719,50 +699,14 @@ def _rules_tuple(rules) -> tuple:
     return tuple(rules)
 
 
-def _core_result(
-    review,
-    settings,
-    measure,
-    conf,
-    derived,
-    problems,
-    data,
-    excluded,
-    fixed,
-    random,
-    by_method,
-    hksj_by_method,
-    mh,
-    peto,
-    het,
-    tests,
-    recommendation,
-    rules,
-    trim_fill,
-) -> AnalysisResult:
+def _core_result(review, settings, **core: Any) -> AnalysisResult:
     """The core stage: what the first redraw needs; the rest says it is being updated."""
     pending = NotComputable(CORE_PENDING)
     return AnalysisResult(
         review=review,
         settings=settings,
-        measure=measure,
-        confidence_level=conf,
-        derived=tuple(derived),
-        problems=tuple(problems),
-        data=data,
-        excluded=excluded,
-        fixed=fixed,
-        random=random,
-        random_by_method=by_method,
-        random_hksj_by_method=hksj_by_method,
-        mantel_haenszel=mh,
-        peto=peto,
-        heterogeneity=het,
+        **core,
         reconciliation=pending,
-        tests=tests,
-        recommendation=recommendation,
-        applicability=_rules_tuple(rules),
-        trim_fill=trim_fill,
         trim_fill_variants={},
         pet_peese=pending,
         limit=pending,
@@ -776,6 +720,6 @@ def _core_result(
         selection_sensitivity=pending,
         selection_fixed_weights=pending,
         unreported_trials=pending if any(not r.reported for r in review.studies) else None,
-        fingerprint=fingerprint(review, measure),
+        fingerprint=fingerprint(review, core["measure"]),
         stage="core",
     )
