@@ -10,7 +10,7 @@ study). Targets: the core stage at 30 studies <= 1.0x the script; the whole anal
 3,000 studies <= 0.5x. Both are timed in this one process, interleaved (CPU time); the
 reviews are invented (tests/bench/bench_analyse.py), given as estimate and SE.
 
-    PYTHONPATH=app python tests/bench/bench_user_script.py [--sizes 30,3000] [--repeat 5]
+    PYTHONPATH=app python tests/bench/bench_user_script.py [--sizes 30,3000] [--repeat 15]
 """
 
 from __future__ import annotations
@@ -95,7 +95,7 @@ def user_script(y: np.ndarray, se: np.ndarray) -> dict:
 def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--sizes", default="30,3000")
-    ap.add_argument("--repeat", type=int, default=5)
+    ap.add_argument("--repeat", type=int, default=15)
     args = ap.parse_args()
     from lopside.analysis import analyse
 
@@ -103,7 +103,7 @@ def main() -> None:
         review, y, se = review_of(k)
         analyse(review, stage="core")  # warm-up: imports
         user_script(y, se)
-        reps = args.repeat if k <= 300 else max(2, args.repeat // 2)
+        reps = args.repeat if k <= 300 else max(3, args.repeat // 2)
         core, full, mine = [], [], []
         for _ in range(reps):
             t = time.process_time()
