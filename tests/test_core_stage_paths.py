@@ -115,3 +115,31 @@ def test_row_to_dict_is_the_set_fields_in_field_order():
             expected[f.name] = v
         got = row.to_dict()
         assert got == expected and list(got) == list(expected)
+
+
+@pytest.mark.parametrize(
+    "row",
+    [
+        {"estimate": 10**400, "se": 0.1},
+        {"estimate": 1.1, "lower": 0.5, "upper": 10**400},
+        {"int_events": 10**400, "int_total": 10**401, "ctl_events": 3, "ctl_total": 20},
+        {"int_events": 3, "int_total": 20, "ctl_events": 4, "ctl_total": 10**400},
+    ],
+)
+def test_an_int_beyond_the_float_range_is_a_problem_not_a_crash(row):
+    """A number too large for a float (10**400 from a script or a hand-edited file) is
+    reported on its row, like infinity, never raised (DESIGN 8; Python floats top out near
+    1.8e308, common practice)."""
+    from lopside.analysis import analyse
+    from lopside.model.review import Review, ReviewDetails, StudyRow
+
+    others = [
+        StudyRow(study=f"Invented {i}", int_events=3 + i, int_total=40, ctl_events=6, ctl_total=40)
+        for i in range(3)
+    ]
+    review = Review(
+        details=ReviewDetails(measure="OR"), studies=(StudyRow(study="Huge", **row), *others)
+    )
+    result = analyse(review)
+    assert result.k == 3 and [e.row for e in result.excluded] == [0]
+    assert any(p.row == 0 and p.code == "not_finite" for p in result.problems)

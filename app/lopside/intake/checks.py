@@ -90,6 +90,14 @@ def _fmt_like(value: float, decimals: int) -> str:
 # -- one row --------------------------------------------------------------------------
 
 
+def _finite(v: float) -> bool:
+    """math.isfinite, False (not an error) for an int beyond the float range."""
+    try:
+        return math.isfinite(v)
+    except OverflowError:
+        return False
+
+
 def _arm(prefix: str) -> str:
     return "intervention" if prefix == "int" else "control"
 
@@ -174,7 +182,7 @@ class _RowCheck:
             v = getattr(self.row, fld)
             if v is None:
                 continue
-            if isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v):
+            if isinstance(v, bool) or not isinstance(v, (int, float)) or not _finite(v):
                 bad[fld] = v
         if bad:
             for fld, v in bad.items():

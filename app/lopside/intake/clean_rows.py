@@ -30,12 +30,12 @@ from lopside.model.review import (
     RATIO_MEASURES,
     RISK_OF_BIAS_LEVELS,
     StudyRow,
+    plain_number,
 )
 
 _COUNTS = ("int_events", "int_total", "ctl_events", "ctl_total")
 #: fields a row entered as 2x2 counts only leaves blank (``n`` is checked on its own)
 _BLANK = tuple(f for f in NUMERIC_FIELDS if f not in _COUNTS and f != "n")
-_PLAIN = {int, float}
 _MEANS = ("int_mean", "int_sd", "int_n", "ctl_mean", "ctl_sd", "ctl_n")
 _arms = operator.attrgetter(*_COUNTS, *_MEANS)
 _blank = operator.attrgetter(*_BLANK)
@@ -61,9 +61,7 @@ def clean_count_rows(rows: Sequence[StudyRow], measure: str) -> list[bool]:
         if _blank(r).count(None) != len(_BLANK):
             continue
         v = [getattr(r, f) for f in _COUNTS] + [r.n]
-        if not all(type(x) in _PLAIN for x in v[:4]) or (
-            v[4] is not None and type(v[4]) not in _PLAIN
-        ):
+        if not all(plain_number(x) for x in v[:4]) or (v[4] is not None and not plain_number(v[4])):
             continue
         rob = r.risk_of_bias
         if rob is not None and rob.strip().casefold() not in RISK_OF_BIAS_LEVELS:

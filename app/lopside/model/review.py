@@ -162,6 +162,22 @@ class StudyRow:
         return out
 
 
+def plain_number(x: object) -> bool:
+    """True for a plain int or float that converts to a float (an int beyond the float
+    range, e.g. 10**400 from a script, does not: it is left to the one-row path, which
+    reports it)."""
+    t = type(x)
+    if t is float:
+        return True
+    if t is int:
+        try:
+            float(x)  # type: ignore[arg-type]
+        except OverflowError:
+            return False
+        return True
+    return False
+
+
 #: the row's field names in order (dataclasses.fields is slow on every call)
 _ROW_FIELDS: tuple[str, ...] = tuple(f.name for f in fields(StudyRow))
 _row_values = operator.attrgetter(*_ROW_FIELDS)

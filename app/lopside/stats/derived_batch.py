@@ -26,12 +26,18 @@ from collections.abc import Sequence
 
 import numpy as np
 
-from lopside.model.review import BINARY_MEASURES, RATIO_MEASURES
+from lopside.model.review import BINARY_MEASURES, RATIO_MEASURES, plain_number
 
-from .derived import _MEASURE_WORDS, MAX_ABS_EFFECT, MAX_ARM_TOTAL, MAX_SE, MIN_SE, Derived
+from .derived import (
+    _MEASURE_WORDS,
+    MAX_ABS_EFFECT,
+    MAX_ARM_TOTAL,
+    MAX_SE,
+    MIN_SE,
+    Derived,
+)
 from .derived_rows import estimate_batch, means_batch
 
-_PLAIN = {int, float}
 _values = operator.attrgetter("int_events", "int_total", "ctl_events", "ctl_total", "n")
 
 
@@ -48,9 +54,7 @@ def _candidates(rows: Sequence) -> tuple[list[int], np.ndarray, list[bool]]:
         ):
             continue  # another route entered: the one-row path notes it
         v = (r.int_events, r.int_total, r.ctl_events, r.ctl_total, r.n)
-        if not all(type(x) in _PLAIN for x in v[:4]) or (
-            v[4] is not None and type(v[4]) not in _PLAIN
-        ):
+        if not all(plain_number(x) for x in v[:4]) or (v[4] is not None and not plain_number(v[4])):
             continue
         idx.append(i)
         vals.append(v[:4] + (math.nan if v[4] is None else v[4],))

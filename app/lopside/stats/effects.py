@@ -132,7 +132,10 @@ def _num(value: object, name: str, work: _Work) -> float | None:
     if isinstance(value, bool) or not isinstance(value, numbers.Real):
         work.problems.append(f"{name}: {value!r} is not a number; enter a number or leave it blank")
         return None
-    x = float(value)
+    try:
+        x = float(value)
+    except OverflowError:  # an int beyond the float range
+        x = math.inf
     if not math.isfinite(x):
         work.problems.append(f"{name}: {value!r} is not a finite number; enter the value printed")
         return None
