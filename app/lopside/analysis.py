@@ -533,6 +533,7 @@ def _trim_fill(data, settings, estimator, trim_model, fill_model):
 def _full_stage(review, settings, base, with_power, power_progress, progress) -> dict[str, Any]:
     """The rest of the analysis, as the fields of the full result."""
     from .stats import adjust, sensitivity
+    from .stats.adjust_selection import selection_fit_note
     from .stats.diagnostics import flag_rows
 
     data = base.data
@@ -556,7 +557,8 @@ def _full_stage(review, settings, base, with_power, power_progress, progress) ->
     subgroups, meta_reg = _moderators(data, settings)
     power = _power(data, settings, power_progress, progress) if with_power else None
     # work thinned or done another way for a large review is said in the result (DESIGN 8)
-    notes = tuple(n for n in (getattr(loo, "note", ""), getattr(cumulative, "note", "")) if n)
+    thinned = (getattr(loo, "note", ""), getattr(cumulative, "note", ""))
+    notes = tuple(n for n in (*thinned, selection_fit_note(selection)) if n)
     return dict(
         reconciliation=recon,
         trim_fill_variants=variants,

@@ -594,7 +594,7 @@ def _fixed_results(est, sw, n, weights, confidence_level):
     p = 2.0 * ndtr(-np.abs(stat))
     z = _norm_ppf(0.5 + confidence_level / 2.0)
     lo, hi = (est - z * se).tolist(), (est + z * se).tolist()
-    ci = ConfidenceInterval
+    new, CI = tuple.__new__, ConfidenceInterval  # the named tuple without its Python __new__
     out: list[PooledEstimate | NotComputable] = []
     rows = zip(n.tolist(), est.tolist(), se.tolist(), stat.tolist(), p.tolist(), lo, hi, weights)
     for nb, e, s, st, pb, a, b, wts in rows:
@@ -606,7 +606,7 @@ def _fixed_results(est, sw, n, weights, confidence_level):
                 "FE-IV",
                 e,
                 s,
-                ci(a, b),
+                new(CI, (a, b)),
                 st,
                 pb,
                 confidence_level,
@@ -672,6 +672,12 @@ def random_effects_batch(
     )
 
 
+def _per_distinct(fn, x: np.ndarray, *args) -> np.ndarray:
+    """fn(x, *args) elementwise, evaluated once per distinct value of x."""
+    u, inv = np.unique(x, return_inverse=True)
+    return fn(u, *args)[inv.reshape(x.shape)]
+
+
 def _random_results(
     method, est, sw, rq, n, tau2_arr, converged, notes, weights, hksj, confidence_level
 ):
@@ -685,25 +691,28 @@ def _random_results(
     se = 1.0 / np.sqrt(sw)
     df = (n - 1).astype(float)
     q = rq / df
-    se_h = np.sqrt(np.maximum(1.0, q) / sw)
-    crit_t = stdtrit(df, alpha_half)
-    stat_t = est / se_h
-    p_t = 2.0 * stdtr(df, -np.abs(stat_t))
     stat_z = est / se
     p_z = 2.0 * ndtr(-np.abs(stat_z))
-    tq = stdtrit(n - 2.0, alpha_half)
+    # t quantiles once per distinct df (leave-one-out rows share one): each costs a search
+    tq = _per_distinct(stdtrit, n - 2.0, alpha_half)
     half = tq * np.sqrt(tau2_arr + se**2)
     z = _norm_ppf(alpha_half)
     # the chosen interval of each row: t with HKSJ (two or more studies), otherwise z
-    s_out = np.where(use_t, se_h, se)
-    crit = np.where(use_t, crit_t, z)
-    stat = np.where(use_t, stat_t, stat_z)
-    p = np.where(use_t, p_t, p_z)
+    s_out, crit, stat, p = se, np.full(n.shape, z), stat_z, p_z
+    if np.any(use_t):
+        se_h = np.sqrt(np.maximum(1.0, q) / sw)
+        crit_t = _per_distinct(stdtrit, df, alpha_half)
+        stat_t = est / se_h
+        p_t = 2.0 * stdtr(df, -np.abs(stat_t))
+        s_out = np.where(use_t, se_h, se)
+        crit = np.where(use_t, crit_t, z)
+        stat = np.where(use_t, stat_t, stat_z)
+        p = np.where(use_t, p_t, p_z)
     lo, hi = (est - crit * s_out).tolist(), (est + crit * s_out).tolist()
     pi_lo, pi_hi = (est - half).tolist(), (est + half).tolist()
     df_l = df.tolist()
     hksj_note = "HKSJ needs two or more studies: z interval"
-    ci = ConfidenceInterval
+    new, CI = tuple.__new__, ConfidenceInterval  # the named tuple without its Python __new__
     cols = zip(
         n.tolist(),
         est.tolist(),
@@ -731,7 +740,7 @@ def _random_results(
                 method,
                 e,
                 s,
-                ci(a, c),
+                new(CI, (a, c)),
                 st,
                 pb,
                 confidence_level,
@@ -739,7 +748,7 @@ def _random_results(
                 df_l[b] if t else None,
                 t,
                 int(k),
-                ci(pl, ph) if k >= 3 else None,
+                new(CI, (pl, ph)) if k >= 3 else None,
                 weights[b],
                 conv,
                 note,
