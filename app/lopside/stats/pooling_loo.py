@@ -59,15 +59,26 @@ class _LooSeries:
 
     def __init__(self, yc: np.ndarray, v: np.ndarray, t0: float):
         self.s = 1.0 / (float(v.min()) + t0)  # the largest u_j
-        x = 1.0 / (v + t0) / self.s  # u_j / s, in (0, 1]
-        powers = x[:, None] ** np.arange(1, _SERIES_TERMS + 4)[None, :]  # r = 1 .. M + 3
-        # P[q][i, r - 1] = sum over j != i of yc_j^q x_j^r
-        self.p = [_others(powers * (yc**q)[:, None]) for q in range(3)]
+        self.x = 1.0 / (v + t0) / self.s  # u_j / s, in (0, 1]
+        self.yc = yc
+        self.p: list[np.ndarray] = []
+        self._powers(4)
         self.t0 = t0
         m = np.arange(_SERIES_TERMS)
         from scipy.special import comb
 
         self.comb = {p: comb(p + m - 1, m) for p in (1, 2, 3)}
+
+    def _powers(self, n: int) -> None:
+        """P[q][i, r - 1] = sum over j != i of yc_j^q x_j^r for r = 1 .. at least n (formed
+        for as many powers as the steps so far needed; each column is the same whatever
+        the number of columns)."""
+        if self.p and self.p[0].shape[1] >= n:
+            return
+        have = self.p[0].shape[1] if self.p else 0
+        n = min(_SERIES_TERMS + 3, max(n, 2 * have))
+        powers = self.x[:, None] ** np.arange(1, n + 1)[None, :]
+        self.p = [_others(powers * (self.yc**q)[:, None]) for q in range(3)]
 
     def sums(self, rows: np.ndarray, t: np.ndarray, need=_ALL_SUMS):
         """sum w^p y^q over subset rows[b] at t[b], for (p, q) in the order
@@ -79,6 +90,7 @@ class _LooSeries:
         eps = (t - self.t0) * self.s
         ratio = np.abs(eps)
         m = _terms_needed(float(ratio.max()) if ratio.size else 0.0)
+        self._powers(m + 2)  # powers up to p + m - 1 with p <= 3
         # (-eps)^m for m = 0 .. M - 1, by running products
         powers = np.empty((rows.size, m))
         powers[:, 0] = 1.0
