@@ -251,6 +251,22 @@ def test_large_selection_model_from_one_start_agrees_and_says_so(monkeypatch):
     assert one.omega[1] == pytest.approx(both.omega[1], rel=1e-4)
 
 
+@pytest.mark.parametrize("key", ["FE-IV", "REML+HKSJ", "DL", "PM"])
+def test_large_reconciliation_leave_one_out_agrees_with_the_mask(monkeypatch, key):
+    # Reference: the batched pooling on a leave-one-out mask (checked against the scalar
+    # functions in test_pooling_batch.py), which a large review would need k x k for
+    import lopside.stats.sensitivity as sens
+    from lopside.analysis import _leave_one_out_estimates
+
+    d = _heterogeneous(220, 0.05, seed=9)
+    exact = _leave_one_out_estimates(d, key, "OR")
+    monkeypatch.setattr(sens, "LARGE_K", 100)
+    fast = _leave_one_out_estimates(d, key, "OR")
+    assert [r[:2] for r in fast] == [r[:2] for r in exact]
+    for (_, _, a), (_, _, b) in zip(fast, exact):
+        assert a == pytest.approx(b, rel=1e-9, abs=1e-12)
+
+
 # --------------------------------------------------------------------------------------
 # Duplicate search: the same pairs as printing every row's digits
 

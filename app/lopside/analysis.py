@@ -194,7 +194,20 @@ def _leave_one_out_estimates(data: StudyData, model_key: str, measure: str):
     from .stats import binary
     from .stats import pooling as pl
 
+    from .stats.sensitivity import LARGE_K
+
     key = model_key.removesuffix("+HKSJ")
+    if data.k > LARGE_K and key in ("FE-IV", *pl.TAU2_METHODS):
+        # many studies: running sums in O(k) memory, as the leave-one-out analysis (whose
+        # note says so), not a k x k mask
+        fixed, random, _ = pl.leave_one_out_large(
+            data.y, data.v, method="DL" if key == "FE-IV" else key
+        )
+        results = fixed if key == "FE-IV" else random
+        return [
+            (data.rows[i], data.labels[i], r.estimate if r else float("nan"))
+            for i, r in enumerate(results)
+        ]
     keep = ~np.eye(data.k, dtype=bool)
     if key == "FE-IV":
         results = pl.fixed_effect_batch(data.y, data.v, keep, with_weights=False)
