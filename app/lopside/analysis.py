@@ -193,7 +193,6 @@ def _leave_one_out_estimates(data: StudyData, model_key: str, measure: str):
     """(row, label, estimate without that study) under one model, for the reconciliation."""
     from .stats import binary
     from .stats import pooling as pl
-
     from .stats.sensitivity import LARGE_K
 
     key = model_key.removesuffix("+HKSJ")
