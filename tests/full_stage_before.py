@@ -12,6 +12,7 @@ import numpy as np
 from lopside.stats.pooling_base import _norm_ppf
 from lopside.stats.results import ConfidenceInterval, NotComputable, PooledEstimate
 
+
 def _fixed_results(est, sw, n, weights, confidence_level):
     """PooledEstimate per row from the estimate and sum of weights of each subset."""
     from scipy.special import ndtr

@@ -179,18 +179,16 @@ def _random_batches(rng):
 def test_batched_results_are_built_with_the_same_bits_as_before():
     from full_stage_before import _fixed_results as fixed_before
     from full_stage_before import _random_results as random_before
-
     from lopside.stats.pooling_batch import _fixed_results, _random_results
 
     rng = np.random.default_rng(12)
-    quiet = np.errstate(divide="ignore", invalid="ignore")  # as the batched callers run them
     for _ in range(400):
         n, est, sw, rq, tau2 = _random_batches(rng)
         level = float(rng.choice([0.9, 0.95, 0.99]))
         weights = [tuple(rng.random(int(m)).tolist()) for m in n]
         conv = rng.random(n.size) < 0.9
         notes = tuple(rng.choice(["", "did not converge"]) for _ in n)
-        with quiet:
+        with np.errstate(divide="ignore", invalid="ignore"):  # as the batched callers run them
             assert repr(_fixed_results(est, sw, n, weights, level)) == repr(
                 fixed_before(est, sw, n, weights, level)
             )
@@ -201,7 +199,6 @@ def test_batched_results_are_built_with_the_same_bits_as_before():
 
 def test_selection_likelihood_has_the_same_bits_as_before():
     import full_stage_before as before
-
     from lopside.stats.adjust_selection import _Model
 
     rng = np.random.default_rng(4)
