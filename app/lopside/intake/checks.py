@@ -20,12 +20,17 @@ Design invariants
 from __future__ import annotations
 
 import math
-import operator
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, fields, replace
 
 from lopside.intake import messages as M
+from lopside.intake.clean_rows import (  # clean_count_rows is also this module's API
+    clean_count_rows,
+    clean_estimate_rows,
+    clean_means_rows,
+)
 from lopside.intake.numbers import count_decimals
+from lopside.intake.symmetry import Symmetry, symmetry  # noqa: F401 - part of this API
 from lopside.model.review import (
     BINARY_MEASURES,
     CONTINUOUS_MEASURES,
@@ -80,89 +85,6 @@ def _fmt(value: float, printed: Mapping[str, str], fld: str) -> str:
 
 def _fmt_like(value: float, decimals: int) -> str:
     return f"{value:.{max(decimals, 0)}f}"
-
-
-# -- symmetry -------------------------------------------------------------------------
-
-
-@dataclass(frozen=True, slots=True)
-class Symmetry:
-    """Whether an interval is symmetric around its estimate, allowing for rounding.
-
-    ``log_ok``/``linear_ok`` are True when some true values within half a unit of the
-    last printed decimal of each number are exactly symmetric on that scale (``None``
-    for the log scale when a number is not positive). ``implied`` is the estimate the
-    limits point to on the scale expected for the measure.
-    """
-
-    log_ok: bool | None
-    linear_ok: bool
-    implied: float
-    log_gap: float | None
-    linear_gap: float
-
-
-def _gap_range(
-    e: float, lo: float, hi: float, he: float, hl: float, hu: float, f
-) -> tuple[float, float] | None:
-    """Range of f(e) - (f(lo) + f(hi)) / 2 over the rounding box (f increasing)."""
-    try:
-        low = f(e - he) - (f(lo + hl) + f(hi + hu)) / 2.0
-    except ValueError:
-        return None
-    try:
-        high = f(e + he) - (f(lo - hl) + f(hi - hu)) / 2.0
-    except ValueError:
-        high = math.inf  # a limit that may round to 0: the box reaches any asymmetry
-    return low, high
-
-
-def _safe_log(x: float) -> float:
-    if x <= 0:
-        raise ValueError("log of a non-positive number")
-    return math.log(x)
-
-
-def symmetry(
-    estimate: float,
-    lower: float,
-    upper: float,
-    measure: str,
-    decimals: tuple[int, int, int] = (2, 2, 2),
-) -> Symmetry:
-    """Test an interval for symmetry on the log and the plain scale, allowing for rounding.
-
-    Parameters
-    ----------
-    estimate, lower, upper : float
-        As printed (natural scale).
-    measure : str
-        One of MEASURES; decides the expected scale and ``implied``.
-    decimals : tuple of int
-        Decimals printed for the estimate, the lower and the upper limit.
-
-    Notes
-    -----
-    Half a unit in the last printed place bounds the rounding error of each number.
-    Because ``f(e) - (f(lo) + f(hi)) / 2`` is monotone in each number for an increasing
-    ``f``, its range over the rounding box is reached at two corners, so the test is
-    exact, not a first-order approximation.
-    """
-    he, hl, hu = (0.5 * 10.0 ** (-d) for d in decimals)
-    lin = _gap_range(estimate, lower, upper, he, hl, hu, lambda x: x)
-    assert lin is not None
-    linear_ok = lin[0] <= 0.0 <= lin[1]
-    log_ok: bool | None = None
-    log_gap: float | None = None
-    if estimate > 0 and lower > 0 and upper > 0:
-        rng = _gap_range(estimate, lower, upper, he, hl, hu, _safe_log)
-        log_ok = rng is None or rng[0] <= 0.0 <= rng[1]
-        log_gap = math.log(estimate) - (math.log(lower) + math.log(upper)) / 2.0
-    if measure in RATIO_MEASURES and lower > 0 and upper > 0:
-        implied = math.sqrt(lower * upper)
-    else:
-        implied = (lower + upper) / 2.0
-    return Symmetry(log_ok, linear_ok, implied, log_gap, estimate - (lower + upper) / 2.0)
 
 
 # -- one row --------------------------------------------------------------------------
@@ -607,6 +529,12 @@ def check_rows(
     """
     out: list[Problem] = []
     clean = clean_count_rows(rows, measure)
+    bounds = (LEVEL_MIN, LEVEL_MAX)
+    for other in (
+        clean_estimate_rows(rows, measure, ci_level, bounds, printed),
+        clean_means_rows(rows, measure),
+    ):
+        clean = [a or b for a, b in zip(clean, other, strict=True)]
     twice = entered_twice(rows)
     for i, row in enumerate(rows):
         place = places[i] if places is not None and i < len(places) else ""
@@ -622,12 +550,6 @@ def check_rows(
 
 
 _ROW_FIELDS = tuple(f.name for f in fields(StudyRow))
-_COUNTS = ("int_events", "int_total", "ctl_events", "ctl_total")
-#: fields a row entered as 2x2 counts only leaves blank (``n`` is checked on its own)
-_BLANK = tuple(f for f in NUMERIC_FIELDS if f not in _COUNTS and f != "n")
-_PLAIN = {int, float}
-_blank = operator.attrgetter(*_BLANK)
-_counts_and_n = operator.attrgetter(*_COUNTS, "n")
 
 
 def _entry_key(row: StudyRow) -> tuple:
@@ -668,51 +590,3 @@ def entered_twice(rows: Sequence[StudyRow]) -> dict[int, int]:
             else:
                 seen.setdefault(key, i)
     return out
-
-
-def clean_count_rows(rows: Sequence[StudyRow], measure: str) -> list[bool]:
-    """For each row, True when it is entered as 2x2 counts only and :func:`check_row`
-    would find nothing wrong with it (decided over arrays for all rows at once).
-
-    False means only "check this row one by one": a row with anything else entered, or
-    any value the arrays cannot vouch for, is left to :func:`check_row`.
-    """
-    flags = [False] * len(rows)
-    if measure not in BINARY_MEASURES:
-        return flags
-    idx, vals = [], []
-    for i, r in enumerate(rows):
-        if r.unread or not r.reported or not isinstance(r.study, str) or not r.study.strip():
-            continue
-        if any(getattr(r, f) is not None for f in _BLANK):
-            continue
-        v = [getattr(r, f) for f in _COUNTS] + [r.n]
-        if not all(type(x) in _PLAIN for x in v[:4]) or (
-            v[4] is not None and type(v[4]) not in _PLAIN
-        ):
-            continue
-        rob = r.risk_of_bias
-        if rob is not None and rob.strip().casefold() not in RISK_OF_BIAS_LEVELS:
-            continue
-        idx.append(i)
-        vals.append([math.nan if x is None else x for x in v])
-    if not idx:
-        return flags
-    import numpy as np
-
-    a = np.array(vals, dtype=float).reshape(-1, 5)
-    e1, t1, e0, t0, n = a.T
-    counts = a[:, :4]
-    with np.errstate(invalid="ignore"):
-        ok = np.isfinite(counts).all(axis=1) & (counts >= 0).all(axis=1)
-        ok &= (np.trunc(counts) == counts).all(axis=1)  # whole numbers
-        ok &= (e1 <= t1) & (e0 <= t0) & (t1 > 0) & (t0 > 0)
-        ok &= np.isnan(n) | (np.isfinite(n) & (n >= 0) & (np.trunc(n) == n))
-        if measure in ("OR", "RR"):
-            ok &= ~((e1 == 0) & (e0 == 0))  # no events in either arm
-            ok &= ~((e1 == t1) & (e0 == t0))  # every participant had the event
-    # a value typed as nan is not blank: it is reported (np.nan marks a blank n only)
-    for j in np.flatnonzero(ok).tolist():
-        if rows[idx[j]].n is None or math.isfinite(rows[idx[j]].n):
-            flags[idx[j]] = True
-    return flags

@@ -1,13 +1,16 @@
 """What effect derivation gives for one study (:class:`Derived`) and the limits it keeps.
 
 A low module of its own so that :mod:`lopside.stats.effects` (one row at a time, every
-route) and :mod:`lopside.stats.derived_batch` (many rows at once, the 2x2 route) share one
-definition.
+route) and :mod:`lopside.stats.derived_batch` (many rows at once, the 2x2, estimate and
+means routes) share one definition of the result, the limits, the quantiles, Hedges' J
+and the way numbers are written into the route text.
 """
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
+from statistics import NormalDist
 
 #: Largest |effect| on the analysis scale that is used. Squares and inverse-variance
 #: weights of larger numbers overflow or lose all precision in the pooled sums, so such a
@@ -21,6 +24,12 @@ MAX_SE = 1e12
 MAX_ARM_TOTAL = 1e9
 
 
+#: Handbook 5.1 section 7.7.3.2: below about 60 per group a CI was probably t-based.
+AUTO_T_ARM_SIZE = 60.0
+#: Asymmetry of the estimate within its interval (in SEs) worth a note.
+ASYMMETRY_NOTE = 0.2
+_NORMAL = NormalDist()
+
 _MEASURE_WORDS = {
     "OR": "log odds ratio",
     "RR": "log risk ratio",
@@ -29,6 +38,44 @@ _MEASURE_WORDS = {
     "MD": "mean difference",
     "SMD": "Hedges' g",
 }
+
+
+def _fmt(x: float) -> str:
+    """A number as a person would write it (up to 4 significant digits)."""
+    return f"{x:.4g}"
+
+
+def _z_quantile(upper_tail: float) -> float:
+    """Normal quantile with ``upper_tail`` probability above it (accurate for tiny tails)."""
+    return -_NORMAL.inv_cdf(upper_tail)
+
+
+def _t_quantile(upper_tail: float, df: float) -> float:
+    """Student t quantile with ``upper_tail`` probability above it."""
+    # scipy.special is imported here, not at module level, to keep window start-up fast.
+    from scipy.special import stdtrit
+
+    return -float(stdtrit(df, upper_tail))
+
+
+def hedges_j(m: float, *, exact: bool = True) -> float:
+    """Hedges' small-sample correction factor J for ``m`` degrees of freedom.
+
+    Parameters
+    ----------
+    m : float
+        Degrees of freedom, n1 + n0 - 2 (must be > 1 for the exact form, > 0.25 otherwise).
+    exact : bool
+        Exact Gamma(m/2) / (sqrt(m/2) Gamma((m-1)/2)) (computed with log-gamma, so large
+        ``m`` does not overflow), or the approximation 1 - 3/(4m - 1).
+
+    Returns
+    -------
+    float
+    """
+    if exact:
+        return math.exp(math.lgamma(m / 2) - math.lgamma((m - 1) / 2)) / math.sqrt(m / 2)
+    return 1.0 - 3.0 / (4.0 * m - 1.0)
 
 
 @dataclass(frozen=True, slots=True)

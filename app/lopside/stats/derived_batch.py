@@ -12,6 +12,10 @@ correct nothing: plain int/float counts that are valid, no estimate route entere
 them, a valid or blank ``n``, no zero cell (ratio measures) and a positive variance (RD),
 and an effect and SE inside the limits. Every other row is left to
 :func:`~lopside.stats.effects.derive` (``None`` in the list returned).
+
+Rows entered as an estimate with its SE, or with its CI, and rows entered as means, SDs
+and sizes per arm, take :mod:`lopside.stats.derived_rows` the same way; :func:`derive_batch`
+gives every row's fast result (or ``None``).
 """
 
 from __future__ import annotations
@@ -25,6 +29,7 @@ import numpy as np
 from lopside.model.review import BINARY_MEASURES, RATIO_MEASURES
 
 from .derived import _MEASURE_WORDS, MAX_ABS_EFFECT, MAX_ARM_TOTAL, MAX_SE, MIN_SE, Derived
+from .derived_rows import estimate_batch, means_batch
 
 _PLAIN = {int, float}
 _values = operator.attrgetter("int_events", "int_total", "ctl_events", "ctl_total", "n")
@@ -113,4 +118,26 @@ def counts_batch(rows: Sequence, measure: str) -> list[Derived | None]:
             asd=math.asin(math.sqrt(p1j)) - math.asin(math.sqrt(p0j)),
             asd_var=avj,
         )
+    return out
+
+
+def derive_batch(
+    rows: Sequence,
+    measure: str,
+    *,
+    ci_level: float = 95.0,
+    ci_method: str = "z",
+    smd_correction: str = "exact",
+) -> list[Derived | None]:
+    """Each row's :class:`Derived` by the first batch path that vouches for it, else None.
+
+    The paths take disjoint rows (2x2 counts only; an estimate with its SE or CI only;
+    means, SDs and sizes only), so at most one of them gives a row its result.
+    """
+    out = counts_batch(rows, measure)
+    for other in (
+        estimate_batch(rows, measure, ci_level=ci_level, ci_method=ci_method),
+        means_batch(rows, measure, smd_correction=smd_correction),
+    ):
+        out = [f if f is not None else o for f, o in zip(out, other, strict=True)]
     return out

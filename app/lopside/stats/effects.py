@@ -59,7 +59,6 @@ import math
 import numbers
 from collections.abc import Iterable
 from dataclasses import dataclass
-from statistics import NormalDist
 
 from lopside.model.review import (
     BINARY_MEASURES,
@@ -69,15 +68,21 @@ from lopside.model.review import (
     StudyRow,
 )
 
-from .derived import (  # noqa: F401 - Derived and the limits are part of this module's API
+from .derived import (  # noqa: F401 - Derived, hedges_j and the limits are this module's API
     _MEASURE_WORDS,
+    ASYMMETRY_NOTE,
+    AUTO_T_ARM_SIZE,
     MAX_ABS_EFFECT,
     MAX_ARM_TOTAL,
     MAX_SE,
     MIN_SE,
     Derived,
+    _fmt,
+    _t_quantile,
+    _z_quantile,
+    hedges_j,
 )
-from .derived_batch import counts_batch
+from .derived_batch import derive_batch
 
 ROUTES: tuple[str, ...] = ("counts", "means", "ci", "se", "p")
 ROUTE_NAMES: dict[str, str] = {
@@ -90,15 +95,10 @@ ROUTE_NAMES: dict[str, str] = {
 CI_METHODS: tuple[str, ...] = ("z", "t", "auto")
 SMD_CORRECTIONS: tuple[str, ...] = ("exact", "approx")
 
-#: Handbook 5.1 section 7.7.3.2: below about 60 per group a CI was probably t-based.
-AUTO_T_ARM_SIZE = 60.0
 #: P at or above this gives z close to 0 and an unbounded SE.
 P_TOO_LARGE = 0.999
 #: P at or below this was probably rounded, so the SE is only roughly known.
 P_ROUNDED = 0.001
-#: Asymmetry of the estimate within its interval (in SEs) worth a note.
-ASYMMETRY_NOTE = 0.2
-_NORMAL = NormalDist()
 
 # --------------------------------------------------------------------------------------
 # small helpers
@@ -137,24 +137,6 @@ def _num(value: object, name: str, work: _Work) -> float | None:
         work.problems.append(f"{name}: {value!r} is not a finite number; enter the value printed")
         return None
     return x
-
-
-def _fmt(x: float) -> str:
-    """A number as a person would write it (up to 4 significant digits)."""
-    return f"{x:.4g}"
-
-
-def _z_quantile(upper_tail: float) -> float:
-    """Normal quantile with ``upper_tail`` probability above it (accurate for tiny tails)."""
-    return -_NORMAL.inv_cdf(upper_tail)
-
-
-def _t_quantile(upper_tail: float, df: float) -> float:
-    """Student t quantile with ``upper_tail`` probability above it."""
-    # scipy.special is imported here, not at module level, to keep window start-up fast.
-    from scipy.special import stdtrit
-
-    return -float(stdtrit(df, upper_tail))
 
 
 # --------------------------------------------------------------------------------------
@@ -485,26 +467,6 @@ def _from_p(
 # public functions
 
 
-def hedges_j(m: float, *, exact: bool = True) -> float:
-    """Hedges' small-sample correction factor J for ``m`` degrees of freedom.
-
-    Parameters
-    ----------
-    m : float
-        Degrees of freedom, n1 + n0 - 2 (must be > 1 for the exact form, > 0.25 otherwise).
-    exact : bool
-        Exact Gamma(m/2) / (sqrt(m/2) Gamma((m-1)/2)) (computed with log-gamma, so large
-        ``m`` does not overflow), or the approximation 1 - 3/(4m - 1).
-
-    Returns
-    -------
-    float
-    """
-    if exact:
-        return math.exp(math.lgamma(m / 2) - math.lgamma((m - 1) / 2)) / math.sqrt(m / 2)
-    return 1.0 - 3.0 / (4.0 * m - 1.0)
-
-
 def derive(
     row: StudyRow,
     measure: str,
@@ -754,15 +716,16 @@ def derive_all(rows: Iterable[StudyRow], measure: str, **kw: object) -> tuple[De
     -------
     tuple of Derived
 
-    Rows entered as 2x2 counts only are derived together over arrays
-    (:func:`lopside.stats.derived_batch.counts_batch`, the same numbers); the first row
+    Rows entered by one clean route (2x2 counts, an estimate with its SE or CI, or means
+    and SDs) are derived together over arrays
+    (:func:`lopside.stats.derived_batch.derive_batch`, the same numbers); the first row
     always takes the one-row path, so bad keyword arguments raise as before.
     """
     rows = tuple(rows)
     if not rows:
         return ()
     first = derive(rows[0], measure, **kw)  # type: ignore[arg-type]
-    fast = counts_batch(rows[1:], measure)
+    fast = derive_batch(rows[1:], measure, **kw)  # type: ignore[arg-type]
     rest = (
         f if f is not None else derive(row, measure, **kw)  # type: ignore[arg-type]
         for row, f in zip(rows[1:], fast, strict=True)
