@@ -202,8 +202,20 @@ def _leave_one_out_estimates(data: StudyData, model_key: str, measure: str):
     """(row, label, estimate without that study) under one model, for the reconciliation."""
     from .stats import binary
     from .stats import pooling as pl
+    from .stats.sensitivity import LARGE_K
 
     key = model_key.removesuffix("+HKSJ")
+    if data.k > LARGE_K and key in ("FE-IV", *pl.TAU2_METHODS):
+        # many studies: running sums in O(k) memory, as the leave-one-out analysis (whose
+        # note says so), not a k x k mask
+        fixed, random, _ = pl.leave_one_out_large(
+            data.y, data.v, method="DL" if key == "FE-IV" else key
+        )
+        results = fixed if key == "FE-IV" else random
+        return [
+            (data.rows[i], data.labels[i], r.estimate if r else float("nan"))
+            for i, r in enumerate(results)
+        ]
     keep = ~np.eye(data.k, dtype=bool)
     if key == "FE-IV":
         results = pl.fixed_effect_batch(data.y, data.v, keep, with_weights=False)
@@ -578,6 +590,7 @@ def _trim_fill(data, settings, estimator, trim_model, fill_model):
 def _full_stage(review, settings, base, with_power, power_progress, progress) -> dict[str, Any]:
     """The rest of the analysis, as the fields of the full result."""
     from .stats import adjust, sensitivity
+    from .stats.adjust_selection import selection_fit_note
     from .stats.diagnostics import flag_rows
 
     data = base.data
@@ -601,7 +614,8 @@ def _full_stage(review, settings, base, with_power, power_progress, progress) ->
     subgroups, meta_reg = _moderators(data, settings)
     power = _power(data, settings, power_progress, progress) if with_power else None
     # work thinned or done another way for a large review is said in the result (DESIGN 8)
-    notes = tuple(n for n in (getattr(loo, "note", ""), getattr(cumulative, "note", "")) if n)
+    thinned = (getattr(loo, "note", ""), getattr(cumulative, "note", ""))
+    notes = tuple(n for n in (*thinned, selection_fit_note(selection)) if n)
     return dict(
         reconciliation=recon,
         trim_fill_variants=variants,

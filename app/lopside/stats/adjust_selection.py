@@ -132,10 +132,10 @@ class _Model:
         ll = -0.5 * np.log(2.0 * np.pi * st2) - 0.5 * r * r / st2
         if selection:
             logw = np.concatenate([[0.0], theta[2:]])
-            with np.errstate(invalid="ignore"):
-                cdf = self._ndtr((self.bounds - mu) / st[:, None])
+            cdf = np.empty_like(self.bounds)
             cdf[:, 0] = 1.0
             cdf[:, -1] = 0.0
+            self._ndtr((self.bounds[:, 1:-1] - mu) / st[:, None], out=cdf[:, 1:-1])
             P = cdf[:, :-1] - cdf[:, 1:]
             A = P @ np.exp(logw)
             if np.any(A <= 0):
@@ -166,18 +166,19 @@ class _Model:
             st = np.sqrt(st2)
             logw = np.concatenate([[0.0], phi[2:]])
             omega = np.exp(logw)
-            with np.errstate(invalid="ignore"):
-                a = (self.bounds - mu) / st[:, None]
-            a[:, 0] = np.inf
-            a[:, -1] = -np.inf
-            cdf = self._ndtr(a)
+            # Φ is 1 and 0 at the outer bounds (+inf, -inf): only the inner ones are
+            # evaluated (ndtr of an infinity costs as much as a number)
+            inner = (self.bounds[:, 1:-1] - mu) / st[:, None]
+            cdf = np.empty_like(self.bounds)
+            cdf[:, 0] = 1.0
+            cdf[:, -1] = 0.0
+            self._ndtr(inner, out=cdf[:, 1:-1])
             P = cdf[:, :-1] - cdf[:, 1:]
             A = P @ omega
             if np.any(A <= 0):
                 return 1e300, np.zeros(len(phi))
-            pdf = np.zeros_like(a)
-            apdf = np.zeros_like(a)
-            inner = a[:, 1:-1]
+            pdf = np.zeros_like(cdf)
+            apdf = np.zeros_like(cdf)
             pdf[:, 1:-1] = np.exp(-0.5 * inner * inner) / math.sqrt(2.0 * math.pi)
             apdf[:, 1:-1] = inner * pdf[:, 1:-1]
             dP_mu = -(pdf[:, :-1] - pdf[:, 1:]) / st[:, None]
@@ -189,6 +190,24 @@ class _Model:
             g_w = self.counts[1:] - share[:, 1:].sum(axis=0)
         grad = np.concatenate([[g_mu.sum(), g_t2.sum()], g_w])
         return float(-ll.sum()), -grad
+
+
+def selection_large_note(k: int) -> str:
+    """What :func:`selection_model` says when it thins its search for a large review."""
+    from .sensitivity import LARGE_K
+
+    return (
+        f"With {k:,} studies (more than {LARGE_K:,}), the selection model was fitted from one "
+        "starting point (the random-effects estimate with equal weights) and a restart from "
+        "its result, not also from a second starting point."
+    )
+
+
+def selection_fit_note(result) -> str:
+    """The large-review note of a selection model result ("" when it has none)."""
+    k, note = getattr(result, "k", 0), getattr(result, "note", "")
+    large = selection_large_note(k) if k else ""
+    return large if large and large in note else ""
 
 
 #: L-BFGS-B options: with the exact gradient the fit can be taken much closer to the
@@ -324,12 +343,16 @@ def selection_model(
             + dir_used
             + " direction); use fewer cut-points"
         )
-    fits = _maximise(model, sign * re.estimate, re.tau2, se, labels)
+    from .sensitivity import LARGE_K
+
+    # many studies: one starting point and the restart (the note says so)
+    few_starts = k > LARGE_K
+    fits = _maximise(model, sign * re.estimate, re.tau2, se, labels, few_starts=few_starts)
     if isinstance(fits, NotComputable):
         return fits
     fit, null, x = fits
     logw = x[2:]
-    note_parts = []
+    note_parts = [selection_large_note(k)] if few_starts else []
     se_x = _standard_errors(model, x, se, note_parts)
     if isinstance(se_x, NotComputable):
         return se_x
@@ -403,9 +426,10 @@ def _direction(estimate: float, direction: str) -> tuple[str, str]:
     )
 
 
-def _maximise(model: _Model, mu0: float, tau2: float, se: np.ndarray, labels):
+def _maximise(model: _Model, mu0: float, tau2: float, se: np.ndarray, labels, *, few_starts=False):
     """The fits with and without selection, and the parameters with it (mu, tau, log
-    weights), or NotComputable when either fit fails or a weight runs to its bound."""
+    weights), or NotComputable when either fit fails or a weight runs to its bound.
+    ``few_starts`` leaves out the second starting point of the fit with selection."""
     J = len(labels)
     tau0 = math.sqrt(tau2) if tau2 > 0 else 0.1 * float(np.median(se))
     bounds_null = [(None, None), (0.0, None)]
@@ -415,6 +439,8 @@ def _maximise(model: _Model, mu0: float, tau2: float, se: np.ndarray, labels):
         np.concatenate([[mu0, tau0], np.zeros(J - 1)]),
         np.concatenate([[0.5 * mu0, tau0], np.full(J - 1, math.log(0.5))]),
     ]
+    if few_starts:
+        starts = starts[:1]
     fit, ok = _fit(model, starts, bounds, selection=True)
     if not (ok and ok_null):
         return NotComputable(

@@ -131,7 +131,7 @@ def _labels_for(data: StudyData, by: str) -> tuple[str, ...] | NotComputable:
         return NotComputable(
             f"no study has a {GROUPINGS[by]} entry; fill in the {by} column to group studies"
         )
-    return tuple(str(x).strip() for x in raw)
+    return tuple(map(str.strip, map(str, raw)))
 
 
 def _level_order(labels: tuple[str, ...], by: str) -> list[str]:
@@ -197,7 +197,7 @@ def subgroup_analysis(
             SubgroupLevel(
                 level=name,
                 k=int(idx.size),
-                indices=tuple(int(i) for i in idx),
+                indices=tuple(idx.tolist()),
                 fixed=fe,
                 random=re,
                 tau2=re.tau2,

@@ -381,7 +381,7 @@ def _grid_scale_batch(y, v, mask, rows, start):
 
 
 @_quietly
-def tau2_reml_batch(y, v, mask, *, max_iter: int = _MAX_ITER) -> Tau2Batch:
+def tau2_reml_batch(y, v, mask, *, max_iter: int = _MAX_ITER, grid: bool = True) -> Tau2Batch:
     """:func:`tau2_reml` of each subset (the global maximiser, with the same safeguard).
 
     Parameters
@@ -392,6 +392,11 @@ def tau2_reml_batch(y, v, mask, *, max_iter: int = _MAX_ITER) -> Tau2Batch:
         Row b selects the studies of subset b.
     max_iter : int
         Cap on the scoring iterations, as in :func:`tau2_reml`.
+    grid : bool
+        Check each scoring result against the safeguard grid of :func:`tau2_reml` (the
+        default). False keeps the scoring result of rows that converged without that
+        search for a higher maximum (much faster for many long rows; a caller that
+        chooses it must say so in its result).
 
     Returns
     -------
@@ -413,7 +418,7 @@ def tau2_reml_batch(y, v, mask, *, max_iter: int = _MAX_ITER) -> Tau2Batch:
             yc[c], v[c], mb, dl[r], min(max_iter, _SCORING_ITER)
         )
     good = rows[ok[rows]]
-    if good.size:
+    if good.size and grid:
         scale = _grid_scale_batch(y, v, mask, good, dl[good])
         ok[good] = _reml_certify(y, v, mask, good, tau2[good], ll[good], mag[good], scale)
     converged = np.ones(nsub, bool)
@@ -506,14 +511,14 @@ def tau2_pm_batch(y, v, mask) -> Tau2Batch:
     return Tau2Batch("PM", tau2, converged, iters, tuple(notes))
 
 
-def tau2_batch(y, v, mask, method: str) -> Tau2Batch:
-    """:func:`estimate_tau2` of each subset."""
+def tau2_batch(y, v, mask, method: str, *, reml_grid: bool = True) -> Tau2Batch:
+    """:func:`estimate_tau2` of each subset (``reml_grid``: see :func:`tau2_reml_batch`)."""
     if method == "DL":
         return tau2_dl_batch(y, v, mask)
     if method == "PM":
         return tau2_pm_batch(y, v, mask)
     if method == "REML":
-        return tau2_reml_batch(y, v, mask)
+        return tau2_reml_batch(y, v, mask, grid=reml_grid)
     raise ValueError(f"unknown tau^2 method {method!r}; use one of {TAU2_METHODS}")
 
 
@@ -576,30 +581,41 @@ def fixed_effect_batch(
 
 
 def _fixed_results(est, sw, n, weights, confidence_level):
-    """PooledEstimate per row from the estimate and sum of weights of each subset."""
+    """PooledEstimate per row from the estimate and sum of weights of each subset.
+
+    The arithmetic is done on whole arrays (the same operations as the scalar code, so the
+    same numbers) and the rows are built from Python lists: at k = 3,000 indexing arrays
+    element by element cost more than the pooling itself.
+    """
     from scipy.special import ndtr
 
     se = 1.0 / np.sqrt(sw)
     stat = est / se
     p = 2.0 * ndtr(-np.abs(stat))
     z = _norm_ppf(0.5 + confidence_level / 2.0)
+    lo, hi = (est - z * se).tolist(), (est + z * se).tolist()
+    new, CI = tuple.__new__, ConfidenceInterval  # the named tuple without its Python __new__
     out: list[PooledEstimate | NotComputable] = []
-    for b in range(n.size):
-        if n[b] == 0:
+    rows = zip(n.tolist(), est.tolist(), se.tolist(), stat.tolist(), p.tolist(), lo, hi, weights)
+    for nb, e, s, st, pb, a, b, wts in rows:
+        if nb == 0:
             out.append(NotComputable("no study has a usable effect and standard error"))
             continue
-        e, s = float(est[b]), float(se[b])
         out.append(
             PooledEstimate(
-                model="FE-IV",
-                estimate=e,
-                se=s,
-                ci=ConfidenceInterval(e - z * s, e + z * s),
-                statistic=float(stat[b]),
-                pvalue=float(p[b]),
-                confidence_level=confidence_level,
-                k=int(n[b]),
-                weights=weights[b],
+                "FE-IV",
+                e,
+                s,
+                new(CI, (a, b)),
+                st,
+                pb,
+                confidence_level,
+                0.0,
+                None,
+                False,
+                int(nb),
+                None,
+                wts,
             )
         )
     return tuple(out)
@@ -616,6 +632,7 @@ def random_effects_batch(
     confidence_level: float = 0.95,
     tau2=None,
     with_weights: bool = True,
+    reml_grid: bool = True,
 ) -> tuple[PooledEstimate | NotComputable, ...]:
     """:func:`random_effects` of each subset (row of ``mask``), in row order.
 
@@ -633,6 +650,8 @@ def random_effects_batch(
         Pool at these between-study variances (one, or one per row) instead of estimating.
     with_weights : bool
         As in :func:`fixed_effect_batch`.
+    reml_grid : bool
+        As ``grid`` in :func:`tau2_reml_batch` (REML only).
 
     Returns
     -------
@@ -642,7 +661,7 @@ def random_effects_batch(
     nsub = mask.shape[0]
     n = mask.sum(axis=1)
     if tau2 is None:
-        t2 = tau2_batch(y, v, mask, method)
+        t2 = tau2_batch(y, v, mask, method, reml_grid=reml_grid)
         tau2_arr, converged, notes = t2.tau2, t2.converged, t2.notes
     else:
         tau2_arr = np.broadcast_to(np.asarray(tau2, dtype=float), (nsub,)).copy()
@@ -653,63 +672,86 @@ def random_effects_batch(
     )
 
 
+def _per_distinct(fn, x: np.ndarray, *args) -> np.ndarray:
+    """fn(x, *args) elementwise, evaluated once per distinct value of x."""
+    u, inv = np.unique(x, return_inverse=True)
+    return fn(u, *args)[inv.reshape(x.shape)]
+
+
 def _random_results(
     method, est, sw, rq, n, tau2_arr, converged, notes, weights, hksj, confidence_level
 ):
     """PooledEstimate per row from each subset's estimate, sum of weights, HKSJ numerator
-    and tau^2 (the same arithmetic as :func:`random_effects`)."""
+    and tau^2 (the same arithmetic as :func:`random_effects`, done on whole arrays; the
+    rows are built from Python lists, see :func:`_fixed_results`)."""
     from scipy.special import ndtr, stdtr, stdtrit
 
-    nsub = n.size
     alpha_half = 0.5 + confidence_level / 2.0
     use_t = hksj & (n >= 2)
     se = 1.0 / np.sqrt(sw)
     df = (n - 1).astype(float)
     q = rq / df
-    se_h = np.sqrt(np.maximum(1.0, q) / sw)
-    crit_t = stdtrit(df, alpha_half)
-    stat_t = est / se_h
-    p_t = 2.0 * stdtr(df, -np.abs(stat_t))
     stat_z = est / se
     p_z = 2.0 * ndtr(-np.abs(stat_z))
-    tq = stdtrit(n - 2.0, alpha_half)
+    # t quantiles once per distinct df (leave-one-out rows share one): each costs a search
+    tq = _per_distinct(stdtrit, n - 2.0, alpha_half)
     half = tq * np.sqrt(tau2_arr + se**2)
     z = _norm_ppf(alpha_half)
+    # the chosen interval of each row: t with HKSJ (two or more studies), otherwise z
+    s_out, crit, stat, p = se, np.full(n.shape, z), stat_z, p_z
+    if np.any(use_t):
+        se_h = np.sqrt(np.maximum(1.0, q) / sw)
+        crit_t = _per_distinct(stdtrit, df, alpha_half)
+        stat_t = est / se_h
+        p_t = 2.0 * stdtr(df, -np.abs(stat_t))
+        s_out = np.where(use_t, se_h, se)
+        crit = np.where(use_t, crit_t, z)
+        stat = np.where(use_t, stat_t, stat_z)
+        p = np.where(use_t, p_t, p_z)
+    lo, hi = (est - crit * s_out).tolist(), (est + crit * s_out).tolist()
+    pi_lo, pi_hi = (est - half).tolist(), (est + half).tolist()
+    df_l = df.tolist()
+    hksj_note = "HKSJ needs two or more studies: z interval"
+    new, CI = tuple.__new__, ConfidenceInterval  # the named tuple without its Python __new__
+    cols = zip(
+        n.tolist(),
+        est.tolist(),
+        s_out.tolist(),
+        stat.tolist(),
+        p.tolist(),
+        lo,
+        hi,
+        pi_lo,
+        pi_hi,
+        use_t.tolist(),
+        tau2_arr.tolist(),
+        np.asarray(converged, dtype=bool).tolist(),
+    )
     out: list[PooledEstimate | NotComputable] = []
-    for b in range(nsub):
-        k = int(n[b])
+    for b, (k, e, s, st, pb, a, c, pl, ph, t, t2, conv) in enumerate(cols):
         if k == 0:
             out.append(NotComputable("no study has a usable effect and standard error"))
             continue
-        e = float(est[b])
         note = notes[b]
-        if use_t[b]:
-            s_out, crit, stat, p = float(se_h[b]), float(crit_t[b]), float(stat_t[b]), p_t[b]
-            dfb: float | None = float(df[b])
-        else:
-            if hksj:
-                note = (note + "; " if note else "") + "HKSJ needs two or more studies: z interval"
-            s_out, crit, stat, p, dfb = float(se[b]), z, float(stat_z[b]), p_z[b], None
-        pi = None
-        if k >= 3:
-            pi = ConfidenceInterval(e - float(half[b]), e + float(half[b]))
+        if not t and hksj:
+            note = (note + "; " if note else "") + hksj_note
         out.append(
             PooledEstimate(
-                model=method,
-                estimate=e,
-                se=s_out,
-                ci=ConfidenceInterval(e - crit * s_out, e + crit * s_out),
-                statistic=stat,
-                pvalue=float(p),
-                confidence_level=confidence_level,
-                tau2=float(tau2_arr[b]),
-                df=dfb,
-                hksj=bool(use_t[b]),
-                k=k,
-                pi=pi,
-                weights=weights[b],
-                converged=bool(converged[b]),
-                note=note,
+                method,
+                e,
+                s,
+                new(CI, (a, c)),
+                st,
+                pb,
+                confidence_level,
+                t2,
+                df_l[b] if t else None,
+                t,
+                int(k),
+                new(CI, (pl, ph)) if k >= 3 else None,
+                weights[b],
+                conv,
+                note,
             )
         )
     return tuple(out)

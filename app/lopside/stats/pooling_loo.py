@@ -26,6 +26,25 @@ _SERIES_TERMS = 32
 
 _SERIES_RATIO = 0.25
 
+#: the sums of sw^p y^q the series can give, in this order
+_ALL_SUMS = ((1, 0), (1, 1), (1, 2), (2, 0), (2, 1), (2, 2), (3, 0))
+#: the ones REML scoring and PM Newton steps use
+_REML_SUMS = ((1, 0), (1, 1), (2, 0), (2, 1), (2, 2), (3, 0))
+_PM_SUMS = ((1, 0), (1, 1), (1, 2), (2, 0), (2, 1), (2, 2))
+
+
+def _terms_needed(ratio: float) -> int:
+    """Terms of the series for a ratio |d| max u: the fewest M whose tail bound
+    C(M + 2, 2) ratio^M (the largest power, p = 3) is below that of _SERIES_TERMS terms at
+    _SERIES_RATIO (3e-17 of each study's leading term)."""
+    if ratio <= 0.0:
+        return 1
+    bound = 0.5 * (_SERIES_TERMS + 1) * (_SERIES_TERMS + 2) * _SERIES_RATIO**_SERIES_TERMS
+    for m in range(1, _SERIES_TERMS):
+        if 0.5 * (m + 1) * (m + 2) * ratio**m <= bound:
+            return m
+    return _SERIES_TERMS
+
 
 def _others(x: np.ndarray) -> np.ndarray:
     """For each row i of x (studies x columns), the column sums over the other rows."""
@@ -40,37 +59,57 @@ class _LooSeries:
 
     def __init__(self, yc: np.ndarray, v: np.ndarray, t0: float):
         self.s = 1.0 / (float(v.min()) + t0)  # the largest u_j
-        x = 1.0 / (v + t0) / self.s  # u_j / s, in (0, 1]
-        powers = x[:, None] ** np.arange(1, _SERIES_TERMS + 4)[None, :]  # r = 1 .. M + 3
-        # P[q][i, r - 1] = sum over j != i of yc_j^q x_j^r
-        self.p = [_others(powers * (yc**q)[:, None]) for q in range(3)]
+        self.x = 1.0 / (v + t0) / self.s  # u_j / s, in (0, 1]
+        self.yc = yc
+        self.p: list[np.ndarray] = []
+        self._powers(4)
         self.t0 = t0
         m = np.arange(_SERIES_TERMS)
         from scipy.special import comb
 
         self.comb = {p: comb(p + m - 1, m) for p in (1, 2, 3)}
 
-    def sums(self, rows: np.ndarray, t: np.ndarray):
+    def _powers(self, n: int) -> None:
+        """P[q][i, r - 1] = sum over j != i of yc_j^q x_j^r for r = 1 .. at least n (formed
+        for as many powers as the steps so far needed; each column is the same whatever
+        the number of columns)."""
+        if self.p and self.p[0].shape[1] >= n:
+            return
+        have = self.p[0].shape[1] if self.p else 0
+        n = min(_SERIES_TERMS + 3, max(n, 2 * have))
+        powers = self.x[:, None] ** np.arange(1, n + 1)[None, :]
+        self.p = [_others(powers * (self.yc**q)[:, None]) for q in range(3)]
+
+    def sums(self, rows: np.ndarray, t: np.ndarray, need=_ALL_SUMS):
         """sum w^p y^q over subset rows[b] at t[b], for (p, q) in the order
-        (1,0) (1,1) (1,2) (2,0) (2,1) (2,2) (3,0); and the ratio |d| max u."""
+        (1,0) (1,1) (1,2) (2,0) (2,1) (2,2) (3,0) (None for a pair not in ``need``); and
+        the ratio |d| max u.
+
+        Only as many terms are summed as the largest ratio of these rows needs (near
+        convergence the steps are small and a few terms reach the same 1e-17)."""
         eps = (t - self.t0) * self.s
+        ratio = np.abs(eps)
+        m = _terms_needed(float(ratio.max()) if ratio.size else 0.0)
+        self._powers(m + 2)  # powers up to p + m - 1 with p <= 3
         # (-eps)^m for m = 0 .. M - 1, by running products
-        powers = np.empty((rows.size, _SERIES_TERMS))
+        powers = np.empty((rows.size, m))
         powers[:, 0] = 1.0
-        np.cumprod(
-            np.broadcast_to(-eps[:, None], (rows.size, _SERIES_TERMS - 1)),
-            axis=1,
-            out=powers[:, 1:],
-        )
+        if m > 1:
+            np.cumprod(
+                np.broadcast_to(-eps[:, None], (rows.size, m - 1)), axis=1, out=powers[:, 1:]
+            )
         whole = rows.size == self.p[0].shape[0]
+        coef = {p: powers * self.comb[p][:m] for p in {p for p, _ in need}}
         out = []
-        for p, q in ((1, 0), (1, 1), (1, 2), (2, 0), (2, 1), (2, 2), (3, 0)):
-            coef = powers * self.comb[p]
-            part = self.p[q][:, p - 1 : p - 1 + _SERIES_TERMS]
+        for p, q in _ALL_SUMS:
+            if (p, q) not in need:
+                out.append(None)
+                continue
+            part = self.p[q][:, p - 1 : p - 1 + m]
             if not whole:
                 part = part[rows]
-            out.append(np.einsum("ij,ij->i", coef, part) * self.s**p)
-        return out, np.abs(eps)
+            out.append(np.einsum("ij,ij->i", coef[p], part) * self.s**p)
+        return out, ratio
 
 
 def _loo_tau2_series(ser, yc, v, method, max_iter=100):
@@ -86,7 +125,8 @@ def _loo_tau2_series(ser, yc, v, method, max_iter=100):
     t = tau2.copy()
     target = k - 2.0  # PM: generalised Q of k - 1 studies equals k - 2
     for it in range(1, max_iter + 1):
-        (sw, swy, swy2, s2, s2y, s2y2, s3), ratio = ser.sums(act, t)
+        need = _REML_SUMS if method == "REML" else _PM_SUMS
+        (sw, swy, swy2, s2, s2y, s2y2, s3), ratio = ser.sums(act, t, need)
         bad = ratio > _SERIES_RATIO
         mu = swy / sw
         s2r2 = s2y2 - 2.0 * mu * s2y + mu * mu * s2
@@ -156,7 +196,7 @@ def leave_one_out_large(
     swr = np.empty(k)
     rq = np.zeros(k)
     rows = np.flatnonzero(ok)
-    (s_w, s_wy, s_wy2, *_), ratio = ser.sums(rows, tau2[rows])
+    (s_w, s_wy, s_wy2, *_), ratio = ser.sums(rows, tau2[rows], _ALL_SUMS[:3])
     near = ratio <= _SERIES_RATIO
     r = rows[near]
     est[r] = centre + s_wy[near] / s_w[near]

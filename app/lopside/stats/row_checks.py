@@ -162,6 +162,28 @@ def _natural(y: np.ndarray, measure: str) -> np.ndarray:
     return np.exp(y) if measure in RATIO_MEASURES else y
 
 
+#: two numbers printed alike to 12 significant digits differ by less than 1e-11 of their
+#: size; a wider margin only prints a few more numbers
+_NEAR = 1e-10
+
+
+def _near_another(x: np.ndarray) -> np.ndarray:
+    """Finite entries of x with another entry within :data:`_NEAR` of their size (a
+    superset of those that print alike to 12 significant digits: whatever lies between
+    two such numbers in sorted order is nearer still)."""
+    out = np.zeros(x.size, bool)
+    fin = np.flatnonzero(np.isfinite(x))
+    if fin.size < 2:
+        return out
+    order = fin[np.argsort(x[fin], kind="mergesort")]
+    xs = x[order]
+    gap = np.diff(xs)
+    ok = gap <= _NEAR * np.maximum(np.abs(xs[:-1]), np.abs(xs[1:]))
+    out[order[:-1][ok]] = True
+    out[order[1:][ok]] = True
+    return out
+
+
 def duplicate_reasons(data: StudyData) -> dict[int, list[Reason]]:
     """Pairs of rows that may report the same trial twice (never merged).
 
@@ -209,17 +231,21 @@ def duplicate_reasons(data: StudyData) -> dict[int, list[Reason]]:
     # identical counts
     if data.a.size == k:
         cells = np.column_stack([data.a, data.b, data.c, data.d])
-        keys = [tuple(r) if np.all(np.isfinite(r)) else None for r in cells.tolist()]
+        whole = np.isfinite(cells).all(axis=1).tolist()
+        keys = [tuple(r) if ok else None for r, ok in zip(cells.tolist(), whole)]
         for members in groups(keys):
             i = members[0]
             a, b, c, d = cells[i]
             fmt = {"a": _count(a), "n1": _count(a + b), "c": _count(c), "n0": _count(c + d)}
             for j in members[1:]:
                 add(i, j, "duplicate_counts", fmt, {"counts": [int(round(x)) for x in cells[i]]})
-    # identical estimate and SE (12 significant digits absorb float noise only)
+    # identical estimate and SE (12 significant digits absorb float noise only); the
+    # digits are printed only for rows with a near neighbour in both (the others cannot
+    # share a key), which at k = 3,000 is most of the time saved
+    near = _near_another(data.y) & _near_another(data.se)
     keys = [
-        (float(f"{y:.12g}"), float(f"{s:.12g}")) if math.isfinite(y) and math.isfinite(s) else None
-        for y, s in zip(data.y.tolist(), data.se.tolist())
+        (float(f"{y:.12g}"), float(f"{s:.12g}")) if ok else None
+        for y, s, ok in zip(data.y.tolist(), data.se.tolist(), near.tolist())
     ]
     for members in groups(keys):
         i = members[0]
@@ -237,15 +263,15 @@ def duplicate_reasons(data: StudyData) -> dict[int, list[Reason]]:
         np.isfinite(data.a) & np.isfinite(data.c) if data.a.size == k else np.zeros(k, bool)
     )
     if data.n.size == k:
-        nat = _natural(data.y, data.measure)
+        nat = _natural(data.y, data.measure).tolist()
         keys = [int(round(n)) if math.isfinite(n) and n > 0 else None for n in data.n.tolist()]
         for members in groups(keys):
             # neighbours in estimate order only: many rows of one size stay O(m log m)
-            members = sorted(members, key=lambda m: (float(nat[m]), m))
+            members = sorted(members, key=lambda m: (nat[m], m))
             for i, j in zip(members, members[1:]):
                 if has_counts[i] and has_counts[j]:
                     continue  # two different 2x2 tables: the counts say more than rounding
-                ei, ej = float(nat[i]), float(nat[j])
+                ei, ej = nat[i], nat[j]
                 if abs(ei - ej) > ROUNDING * max(1.0, abs(ei), abs(ej)):
                     continue
                 add(

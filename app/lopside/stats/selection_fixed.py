@@ -99,6 +99,26 @@ class _Batch:
         self.counts = np.bincount(self.interval, minlength=len(cutpoints) + 1).astype(float)
         self._ndtr = ndtr
 
+    def _selection_sums(self, mu, st, steps, n):
+        """Σ_m Δω_m a_mʲ φ(a_m) (and Σ_m Δω_m Φ(a_m) first), per point and study."""
+        dwb = steps[None, :, :, None]
+        a = self.inner[None, :, :] - mu[:, None, None]
+        a /= st[:, :, None]  # B,k,J-1
+        T = np.empty((n, *a.shape))  # Φ(a), φ(a), aφ(a) [, a²φ(a), a³φ(a)]
+        self._ndtr(a, out=T[0])
+        np.multiply(a, a, out=T[1])
+        if n == 5:
+            np.multiply(T[1], a, out=T[4])  # a³ for now
+        T[1] *= -0.5
+        np.exp(T[1], out=T[1])
+        T[1] *= 1.0 / math.sqrt(2.0 * math.pi)
+        np.multiply(a, T[1], out=T[2])
+        if n == 5:
+            np.multiply(a, T[2], out=T[3])
+            T[4] *= T[1]
+        # sums over the inner bounds in one batched matrix product: (n,B,k,m) @ (1,B,m,1)
+        return (T @ dwb)[..., 0]
+
     def __call__(self, mu: np.ndarray, t2: np.ndarray, logw: np.ndarray, *, hessian=False):
         """f (B,), grad (B, 2) [and Hessian (B, 2, 2)] of the negative log-likelihood at B
         points; ``logw`` is B x J with logw[:, 0] = 0.
@@ -114,24 +134,14 @@ class _Batch:
         r = self.y[None, :] - mu[:, None]
         z2 = r * r / st2
         omega = np.exp(logw)
-        dwb = (omega[:, 1:] - omega[:, :-1])[None, :, :, None]  # weight step per inner bound
-        a = self.inner[None, :, :] - mu[:, None, None]
-        a /= st[:, :, None]  # B,k,J-1
+        steps = omega[:, 1:] - omega[:, :-1]  # weight step per inner bound
         n = 5 if hessian else 3
-        T = np.empty((n, *a.shape))  # Φ(a), φ(a), aφ(a) [, a²φ(a), a³φ(a)]
-        self._ndtr(a, out=T[0])
-        np.multiply(a, a, out=T[1])
-        if hessian:
-            np.multiply(T[1], a, out=T[4])  # a³ for now
-        T[1] *= -0.5
-        np.exp(T[1], out=T[1])
-        T[1] *= 1.0 / math.sqrt(2.0 * math.pi)
-        np.multiply(a, T[1], out=T[2])
-        if hessian:
-            np.multiply(a, T[2], out=T[3])
-            T[4] *= T[1]
-        # sums over the inner bounds in one batched matrix product: (n,B,k,m) @ (1,B,m,1)
-        Ssum = (T @ dwb)[..., 0]
+        # a set of equal weights (the unadjusted model) has no selection term: its sums
+        # below are exactly 0 (a product with 0 weight steps), so they are not formed
+        sel = np.flatnonzero(np.any(steps != 0.0, axis=1))
+        Ssum = np.zeros((n, mu.size, self.y.size))
+        if sel.size:
+            Ssum[:, sel] = self._selection_sums(mu[sel], st[sel], steps[sel], n)
         A = omega[:, :1] + Ssum[0]
         S0, S1 = Ssum[1], Ssum[2]
         dA_mu = -S0 / st

@@ -28,6 +28,11 @@ def adjustments_section(result) -> Section:
         "Each answers 'what if?' under its own assumptions: read them as a range, not as a "
         "corrected result.",
     )
+    # how a large review's selection model was fitted (also in the result's notes)
+    from ..stats.adjust_selection import selection_fit_note
+
+    fit = selection_fit_note(result.selection)
+    notes += (fit,) if fit else ()
     return Section(
         "adjustments",
         "Sensitivity of the estimate to small-study effects",
