@@ -311,3 +311,21 @@ def test_figures_are_drawn_as_vector_text_without_the_svg_detour(r14, monkeypatc
     reader = pypdf.PdfReader(io.BytesIO(pdf))
     xobjects = reader.pages[1]["/Resources"].get("/XObject") or {}
     assert not any(x.get_object()["/Subtype"] == "/Image" for x in xobjects.values())
+
+
+@pytest.mark.parametrize("fixture", ["r14", "r120"])
+def test_paragraphs_kept_by_width_give_the_same_sheet_as_reportlabs_own(
+    fixture, request, monkeypatch
+):
+    """The sheet's paragraphs remember their line breaks per width (issue 16: tables wrap
+    each cell several times); the PDF must be byte for byte the one reportlab's own
+    Paragraph gives (the reference: reportlab.platypus.Paragraph, unmodified)."""
+    from reportlab.platypus import Paragraph
+
+    from lopside.sheet import layout
+
+    result = request.getfixturevalue(fixture)
+    kept = sheet_bytes(result, date="2026-01-01")
+    monkeypatch.setattr(layout, "paragraph_class", lambda: Paragraph)
+    plain = sheet_bytes(result, date="2026-01-01")
+    assert kept == plain

@@ -159,7 +159,7 @@ def _section(sec, st, title: str | None = None, **kw) -> list:
 
 def _glance(assessment, st) -> list:
     """The key messages box on page 1: the rows of :func:`lopside.summary.glance_section`."""
-    from reportlab.platypus import Paragraph
+    Paragraph = layout.paragraph_class()  # noqa: N806 - reportlab's class, kept by width
 
     sec = glance_section(assessment)
     items = [

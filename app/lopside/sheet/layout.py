@@ -105,10 +105,42 @@ def markup(text: str, *, bold_prefix: bool = False) -> str:
     return "<br/>".join(out)
 
 
-def para(text: str, style, **kw):
-    from reportlab.platypus import Paragraph
+_PARAGRAPH = None
 
-    return Paragraph(markup(text, **kw), style)
+
+def paragraph_class():
+    """reportlab's Paragraph, remembering its line breaks per width.
+
+    A table wraps every cell several times at the same width (to size its rows, to try a
+    split, to draw), and Paragraph.wrap breaks the lines afresh each time; its result
+    depends on the width alone (reportlab 4's wrap reads the height only to give up below
+    a minimal width), so the first answer is kept. The sheet's bytes are unchanged.
+    """
+    global _PARAGRAPH
+    if _PARAGRAPH is None:
+        from reportlab.platypus import Paragraph
+        from reportlab.platypus.paragraph import _FUZZ
+
+        class SheetParagraph(Paragraph):
+            def wrap(self, availWidth, availHeight):  # noqa: N803 - reportlab's names
+                if availWidth < _FUZZ:
+                    return Paragraph.wrap(self, availWidth, availHeight)
+                memo = self.__dict__.setdefault("_lopside_wraps", {})
+                hit = memo.get(availWidth)
+                if hit is None:
+                    size = Paragraph.wrap(self, availWidth, availHeight)
+                    memo[availWidth] = (size, self.blPara, self._wrapWidths)
+                    return size
+                size, self.blPara, self._wrapWidths = hit
+                self.width, self.height = size
+                return size
+
+        _PARAGRAPH = SheetParagraph
+    return _PARAGRAPH
+
+
+def para(text: str, style, **kw):
+    return paragraph_class()(markup(text, **kw), style)
 
 
 def section_table(section, st: dict, width: float = FRAME_W, *, label_width: float = 118.0):
