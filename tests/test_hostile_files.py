@@ -607,3 +607,30 @@ def test_lopside_check_reads_formula_like_csv_safely(tmp_path):
         "@SUM(A1)",
     ]
     assert [s["y"] for s in out["studies"]] == [0.5, -0.2, 0.1]
+
+
+@pytest.mark.parametrize(
+    "text, named",
+    [
+        # columns named in a way the table does not read: the error names them
+        ("study,events_int,total_int\nA,5,40\nB,3,41\n", "events_int, total_int"),
+        # counts of one arm only: nothing to analyse, no column to blame
+        ("study,int_events,int_total,ctl_events\nA,1,10,2\nB,2,20,3\n", None),
+    ],
+)
+def test_a_table_without_any_effect_is_not_told_to_add_a_measure(tmp_path, text, named):
+    """Before: 'the rows give effect estimates but the file does not say which measure',
+    which sent the user to --measure for a file whose columns were the problem."""
+    from lopside.cli_common import InputError, load_review_file
+
+    path = tmp_path / "misnamed.csv"
+    path.write_text(text, encoding="utf-8")
+    with pytest.raises(InputError) as err:
+        load_review_file(path)
+    msg = str(err.value)
+    assert msg.startswith("misnamed.csv: no row gives an effect to analyse")
+    assert "--measure" not in msg
+    if named:
+        assert f"Columns not read: {named}." in msg
+    else:
+        assert "Columns not read" not in msg

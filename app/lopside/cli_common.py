@@ -89,7 +89,13 @@ MEASURE_ASSUMED = {
 
 
 def review_from_rows(
-    rows, measure: str | None, name: str, *, hint: str | None = None, why: str = ""
+    rows,
+    measure: str | None,
+    name: str,
+    *,
+    hint: str | None = None,
+    why: str = "",
+    unknown_columns: tuple[str, ...] = (),
 ) -> Review:
     """A review of ``rows``; the measure is the one given, else the file's, else guessed.
 
@@ -102,6 +108,16 @@ def review_from_rows(
     else:
         m = guess_measure(tuple(rows))
         how = MEASURE_ASSUMED.get(m or "", "")
+    if m is None and not any(r.estimate is not None for r in rows):
+        # e.g. columns named in a way we do not read: asking for --measure would send the
+        # user the wrong way
+        unread = [*unknown_columns, *sorted({f for r in rows for f, _ in r.unread})]
+        hint_cols = f" Columns not read: {', '.join(unread)}." if unread else ""
+        raise InputError(
+            f"{name}: no row gives an effect to analyse (an estimate, events and totals of "
+            f"both arms, or means, SDs and sizes of both arms).{hint_cols} Name the columns "
+            "as the README lists them."
+        )
     if m is None:
         looks = f" They look like: {why}." if why else ""
         raise InputError(
@@ -228,7 +244,13 @@ def load_review_file(
         table = read_table(p, measure, decimal)
         if table.undecided and not decimal:
             raise _undecided_error(p.name, table.undecided, "row")
-        review = review_from_rows(table.rows, measure, p.name, hint=table.measure_hint)
+        review = review_from_rows(
+            table.rows,
+            measure,
+            p.name,
+            hint=table.measure_hint,
+            unknown_columns=table.unknown_columns,
+        )
         review = replace(review, intake=table.intake_account(review.intake.measure_how))
         return _with_favours(review, favours, table.favours), {}
     if suffix == ".txt":

@@ -31,11 +31,12 @@ from . import messages as M
 #: the view's columns: heading, the row value it sorts by, and which printed cells it
 #: shows one under the other (indices into printed_cells, the exports' own cells; the
 #: printed table is too wide for the window's view pane, so its nine cells are stacked
-#: into three). Cell 1 ("k · people") is spelt out by _people().
+#: into three). Cell 1 ("k · people") is spelt out by _people(). The headings break in two
+#: lines: on one, they are wider than their columns at 1366 x 768 and were cut at both ends.
 COLUMNS = (
-    ("Outcome and pooled result", "outcome", ((0, "{}"), (1, "{}"), (2, "{}"), (3, "I² {}"))),
-    ("Small-study evidence", "test_p", ((4, "{}"), (5, "power: {}"), (6, "adjusted: {}"))),
-    ("Rating: suggested / accepted", "rating_suggested", ((7, "{}"), (8, "{}"))),
+    ("Outcome and\npooled result", "outcome", ((0, "{}"), (1, "{}"), (2, "{}"), (3, "I² {}"))),
+    ("Small-study\nevidence", "test_p", ((4, "{}"), (5, "power: {}"), (6, "adjusted: {}"))),
+    ("Rating: suggested\n/ accepted", "rating_suggested", ((7, "{}"), (8, "{}"))),
 )
 THUMB_W, THUMB_H = 96, 84
 
