@@ -86,6 +86,11 @@ def test_rows_equal_the_analysis(summary):
         assert r["test_p"] == pytest.approx(res.tests[res.recommendation.key].pvalue, rel=1e-12)
         assert r["rating_suggested"] == appraise(res).rating.suggested
         assert r["fingerprint"] == res.fingerprint
+        # the reasons as one line: each reason once, in order, single spaces (the lines
+        # under "Signals for publication bias:" are indented on the sheet, not here)
+        reasons = appraise(res).rating.reasons
+        assert r["reason"] == " ".join(x.strip() for x in reasons)
+        assert "  " not in r["reason"]
 
 
 def test_xlsx_and_csv_read_back(summary, tmp_path):

@@ -142,6 +142,8 @@ def outcome_row(result, appraisal, outcome: str) -> dict[str, Any]:
     rating = appraisal.rating
     row["rating_suggested"] = rating.suggested
     row["rating_accepted"] = rating.override or None
-    row["reason"] = rating.override_reason if rating.override else " ".join(rating.reasons)
+    row["reason"] = (
+        rating.override_reason if rating.override else " ".join(x.strip() for x in rating.reasons)
+    )
     row["fingerprint"] = result.fingerprint
     return row

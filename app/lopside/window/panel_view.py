@@ -36,7 +36,7 @@ from . import messages as M
 COLUMNS = (
     ("Outcome and\npooled result", "outcome", ((0, "{}"), (1, "{}"), (2, "{}"), (3, "I² {}"))),
     ("Small-study\nevidence", "test_p", ((4, "{}"), (5, "power: {}"), (6, "adjusted: {}"))),
-    ("Rating: suggested\n/ accepted", "rating_suggested", ((7, "{}"), (8, "{}"))),
+    ("Suggested /\naccepted rating", "rating_suggested", ((7, "{}"), (8, "{}"))),
 )
 THUMB_W, THUMB_H = 96, 84
 
