@@ -146,3 +146,40 @@ def test_core_stage_reading_says_what_is_still_coming_not_that_it_could_not_be_r
     assert "Only one adjustment could be run" not in core_rows["Adjusted"]
     assert "the others are being updated" in core_rows["Other tests"]
     assert "being updated" not in full_rows["Adjusted"] + full_rows["Other tests"]
+
+
+def test_panel_reports_each_outcome_by_number_and_name(tmp_path):
+    """panel analyses several outcomes one after another: its progress line says which
+    (before, it had no progress at all and refused --quiet)."""
+    from lopside.panel import OutcomeInput, build_panel
+    from lopside.settings import AnalysisSettings
+
+    review = load_review_file(str(sample_reviews_dir() / "delirium_vantoprine.lopside"))[0]
+    inputs = [OutcomeInput(n, review, AnalysisSettings()) for n in ("Delirium", "Falls")]
+    log = io.StringIO()  # a log file: lines, as for a large review
+    made = []
+
+    def progress_for(inp, number, total):
+        p = ConsoleProgress(
+            PROGRESS_MIN_STUDIES, stream=log, label=f"{number}/{total} {inp.name}: "
+        )
+        made.append(p)
+        return p
+
+    summary = build_panel("Invented", inputs, progress_for=progress_for)
+    assert len(summary.outcomes) == 2 and len(made) == 2
+    lines = log.getvalue().splitlines()
+    assert lines[0] == (
+        f"lopside: 1/2 Delirium: analysing {PROGRESS_MIN_STUDIES:,} studies - "
+        f"{STAGES[0]} (1/{len(STAGES)})"
+    )
+    assert [ln.split(":")[1].strip() for ln in lines] == ["1/2 Delirium"] * (len(STAGES) - 1) + [
+        "2/2 Falls"
+    ] * (len(STAGES) - 1)
+
+
+def test_panel_and_slide_take_quiet_and_keep_stderr_empty(tmp_path, capsys):
+    path = str(sample_reviews_dir() / "delirium_vantoprine.lopside")
+    assert main(["panel", path, "-o", str(tmp_path / "p.csv"), "--quiet"]) == 0
+    assert main(["slide", path, "-o", str(tmp_path / "s.png"), "--quiet"]) == 0
+    assert capsys.readouterr().err == ""

@@ -235,13 +235,16 @@ class ConsoleProgress:
     silent.
     """
 
-    def __init__(self, k: int, stream=None) -> None:
+    def __init__(self, k: int, stream=None, *, label: str = "", start: float | None = None) -> None:
         import time
 
         self.k = k
         self.stream = stream or sys.stderr
         self.tty = bool(getattr(self.stream, "isatty", lambda: False)())
-        self.start = time.monotonic()
+        #: e.g. "outcome 2/5: " when one command analyses several outcomes
+        self.label = label
+        #: when the command started (several outcomes share one clock)
+        self.start = time.monotonic() if start is None else start
         self.shown = False
         self.enabled = self.tty or k >= PROGRESS_MIN_STUDIES
 
@@ -252,7 +255,7 @@ class ConsoleProgress:
             return True
         if self.tty and not self.shown and time.monotonic() - self.start < PROGRESS_AFTER:
             return True
-        text = f"lopside: analysing {self.k:,} studies - {stage} ({index + 1}/{total})"
+        text = f"lopside: {self.label}analysing {self.k:,} studies - {stage} ({index + 1}/{total})"
         if self.tty:
             self.stream.write("\r" + text.ljust(78)[:78])
         else:
@@ -263,7 +266,8 @@ class ConsoleProgress:
 
     def power(self, done: int, total: int) -> bool:
         if self.enabled and self.tty:
-            self.stream.write(f"\rlopside: power simulation {done:,}/{total:,}".ljust(79))
+            text = f"\rlopside: {self.label}power simulation {done:,}/{total:,}"
+            self.stream.write(text.ljust(79)[:79])
             self.stream.flush()
             self.shown = True
         return True
@@ -274,10 +278,12 @@ class ConsoleProgress:
             self.stream.flush()
 
 
-def _progress_for(args, review) -> ConsoleProgress | None:
+def _progress_for(args, review, **where) -> ConsoleProgress | None:
+    """The progress line for one analysis of ``review`` (None with ``--quiet``);
+    ``where`` (label, start) places it among several outcomes."""
     if getattr(args, "quiet", False):
         return None
-    return ConsoleProgress(len(review.studies))
+    return ConsoleProgress(len(review.studies), **where)
 
 
 def _fail(message: str) -> int:

@@ -152,6 +152,11 @@ def build_parser() -> argparse.ArgumentParser:
     pn.add_argument("--title", default="", help="title of the summary (default: Panel summary)")
     pn.add_argument("--power", action="store_true", help="simulate each test's power (slower)")
     pn.add_argument(
+        "--quiet",
+        action="store_true",
+        help="no progress line on stderr while outcomes are analysed",
+    )
+    pn.add_argument(
         "--skip-bad",
         action="store_true",
         help="list a file that cannot be read as skipped, instead of stopping",

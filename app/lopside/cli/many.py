@@ -10,6 +10,7 @@ import sys
 from ..cli_options import (
     _fail,
     _load,
+    _progress_for,
     check_output_arg,
 )
 from ..fileio import OutputRefused
@@ -176,9 +177,19 @@ def cmd_panel(args) -> int:
         check_output_arg(args, ("pdf", "docx", "xlsx", "results"), args.files)
     except OutputRefused as exc:
         return _fail(str(exc))
+    import time
+
+    start = time.monotonic()
+
+    def progress_for(inp, number, total):
+        where = f"outcome {number}/{total} ({inp.name}): " if total > 1 else ""
+        return _progress_for(args, inp.review, label=where, start=start)
+
     try:
         inputs = _outcome_inputs(args)
-        summary = build_panel(args.title or "Panel summary", inputs, with_power=args.power)
+        summary = build_panel(
+            args.title or "Panel summary", inputs, with_power=args.power, progress_for=progress_for
+        )
     except INPUT_ERRORS as exc:
         return _fail(str(exc).splitlines()[0])
     except ValueError as exc:
@@ -218,7 +229,10 @@ def cmd_slide(args) -> int:
     if args.favours:
         review = review.with_details(favours=args.favours)
     name = review.details.outcome or review.details.title or Path(args.file).stem
-    result = analyse(review, settings)
+    progress = _progress_for(args, review)
+    result = analyse(review, settings, progress=progress)
+    if progress:
+        progress.done()
     try:
         write_slide(result, assessment_of(result).appraisal, out, title=name)
     except ValueError as exc:

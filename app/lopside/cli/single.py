@@ -73,7 +73,13 @@ def cmd_sheet(args) -> int:
     from ..sheet import write_sheet
 
     progress = _progress_for(args, review)
-    assessment = assess(review, settings, with_power=args.power, progress=progress)
+    assessment = assess(
+        review,
+        settings,
+        with_power=args.power,
+        power_progress=progress.power if progress else None,
+        progress=progress,
+    )
     if progress:
         progress.done()
     try:

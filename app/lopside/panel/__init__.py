@@ -137,20 +137,37 @@ def check_names(inputs: Sequence[OutcomeInput]) -> None:
         seen[key] = o.name
 
 
-def build_panel(title: str, inputs: Sequence[OutcomeInput], *, with_power: bool = False):
-    """Analyse each outcome once and lay the rows side by side (see the module notes)."""
+def build_panel(
+    title: str, inputs: Sequence[OutcomeInput], *, with_power: bool = False, progress_for=None
+):
+    """Analyse each outcome once and lay the rows side by side (see the module notes).
+
+    ``progress_for(input, number, total)``, if given, returns the progress reporter of
+    that outcome's analysis (called with each stage, ``.power`` with the simulation's
+    steps, ``.done()`` at the end; see :class:`lopside.cli_options.ConsoleProgress`) or
+    None.
+    """
     from ..assessment import assess
     from ..outcome_row import outcome_row
 
     check_names(inputs)
     summary = PanelSummary(title=title)
-    for inp in inputs:
+    for number, inp in enumerate(inputs, start=1):
         if inp.skipped:
             row = dict.fromkeys(PANEL_COLUMNS)
             row.update(outcome=inp.name, status="skipped", reason=f"skipped: {inp.skipped}")
             summary.outcomes.append(PanelOutcome(inp.name, row))
             continue
-        assessment = assess(inp.review, inp.settings, with_power=with_power)
+        progress = progress_for(inp, number, len(inputs)) if progress_for else None
+        assessment = assess(
+            inp.review,
+            inp.settings,
+            with_power=with_power,
+            progress=progress,
+            power_progress=progress.power if progress else None,
+        )
+        if progress:
+            progress.done()
         result, appraisal = assessment.analysis, assessment.appraisal
         row = outcome_row(result, appraisal, inp.name)
         if result.k == 0:
