@@ -237,3 +237,22 @@ def test_cli_panel_tables_named_by_file_and_bad_file(tmp_path):
     assert proc.returncode == 0, proc.stderr
     proc = _cli("slide", str(mortality), "--measure", "OR", "-o", str(tmp_path / "s.doc"))
     assert proc.returncode == 2
+
+
+def test_cli_panel_of_a_project_is_titled_by_the_project(tmp_path):
+    """Without --title the summary of a project carries the review's title (as the
+    window's does), not the placeholder; files of different reviews get the placeholder, said once (it
+    read 'Panel summary: Panel summary')."""
+    import openpyxl
+
+    from lopside.cli import main
+
+    workbook = ROOT / "sample_reviews" / "heart_failure_workbook.lopside"
+    title = load_review_file(workbook, outcome="All-cause mortality at 90 days")[0].details.title
+    assert title  # the sample has one: the check below can fail
+    out = tmp_path / "p.xlsx"
+    assert main(["panel", str(workbook), "-o", str(out), "--quiet"]) == 0
+    assert openpyxl.load_workbook(out)["about"]["A1"].value == f"Panel summary: {title}"
+    mixed = tmp_path / "m.xlsx"
+    assert main(["panel", str(SAMPLES[0]), str(SAMPLES[1]), "-o", str(mixed), "--quiet"]) == 0
+    assert openpyxl.load_workbook(mixed)["about"]["A1"].value == "Panel summary"

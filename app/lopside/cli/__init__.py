@@ -149,7 +149,11 @@ def build_parser() -> argparse.ArgumentParser:
     pn.add_argument(
         "--favours", choices=("lower", "higher"), help="which values favour the intervention"
     )
-    pn.add_argument("--title", default="", help="title of the summary (default: Panel summary)")
+    pn.add_argument(
+        "--title",
+        default="",
+        help="title of the summary (default: the project's title, else Panel summary)",
+    )
     pn.add_argument("--power", action="store_true", help="simulate each test's power (slower)")
     pn.add_argument(
         "--quiet",

@@ -163,6 +163,14 @@ def _outcome_inputs(args):
     return inputs
 
 
+def _panel_title(inputs) -> str:
+    """The review's title when every outcome shares one (a project), as the window uses."""
+    titles = {(i.review.details.title or "").strip() for i in inputs if i.review is not None}
+    if len(titles) == 1 and (title := titles.pop()):
+        return title
+    return "Panel summary"
+
+
 def cmd_panel(args) -> int:
     from pathlib import Path
 
@@ -188,7 +196,10 @@ def cmd_panel(args) -> int:
     try:
         inputs = _outcome_inputs(args)
         summary = build_panel(
-            args.title or "Panel summary", inputs, with_power=args.power, progress_for=progress_for
+            args.title or _panel_title(inputs),
+            inputs,
+            with_power=args.power,
+            progress_for=progress_for,
         )
     except INPUT_ERRORS as exc:
         return _fail(str(exc).splitlines()[0])

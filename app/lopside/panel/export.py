@@ -37,6 +37,13 @@ PRINTED = (
 FORMATS = (".pdf", ".docx", ".xlsx", ".csv")
 
 
+def _document_title(title: str) -> str:
+    """'Panel summary: <title>', without saying 'Panel summary' twice."""
+    if title.strip().casefold() in ("", "panel summary"):
+        return "Panel summary"
+    return f"Panel summary: {title}"
+
+
 def _atomic(path: Path, write: Callable[[Path], None]) -> None:
     tmp = path.with_name(f".{path.name}.{os.getpid()}.tmp")
     try:
@@ -140,7 +147,7 @@ def _xlsx(summary: PanelSummary, tmp: Path, date: str) -> None:
         st.append([_safe(row.get(c)) for c in STUDY_COLUMNS])
     about = wb.create_sheet("about")
     for line in (
-        f"Panel summary: {summary.title}",
+        _document_title(summary.title),
         f"Made by Lopside {__version__} on {date}. Estimates on the natural scale.",
         f"Caution: {CAUTION}",
     ):
@@ -268,7 +275,7 @@ def _pdf(summary: PanelSummary, tmp: Path, date: str) -> None:
         rightMargin=1.5 * cm,
         topMargin=1.3 * cm,
         bottomMargin=1.5 * cm,
-        title=f"Panel summary: {summary.title}",
+        title=_document_title(summary.title),
         author="Lopside",
     )
     doc.build(story, onFirstPage=on_page, onLaterPages=on_page)
