@@ -172,6 +172,38 @@ def test_long_names_are_elided_in_the_middle_with_a_tooltip(make_window):
     assert t.columnWidth(m.column_of("study")) < t.fontMetrics().horizontalAdvance(long)
 
 
+def test_long_numbers_lose_their_end_not_their_middle(make_window):
+    """A full-precision number from a spreadsheet showed as '0.56…2289', which reads as
+    another number; it keeps its leading digits ('0.5628…') and its full text is the
+    tooltip. Names still lose their middle (their year stays)."""
+    from PySide6.QtCore import Qt
+    from PySide6.QtWidgets import QStyleOptionViewItem
+
+    from lopside import edits as ed
+    from lopside.model.review import Review, ReviewDetails, StudyRow
+
+    rows = tuple(  # INVENTED: odds ratios with their standard errors
+        StudyRow(study=f"Invented {i} 20{10 + i}", estimate=0.5 + i / 10, se=0.2 + i / 20)
+        for i in range(6)
+    )
+    w = make_window(Review(details=ReviewDetails(measure="OR"), studies=rows))
+    w.wait_for_analysis()
+    field, value = "estimate", "0.5628372289"
+    w.stack.push_edit(ed.SetCell(0, field, value))
+    w.wait_for_analysis()
+    t, m = w.studies.table, w.studies.model
+    number, name = m.index(0, m.column_of(field)), m.index(0, m.column_of("study"))
+    assert m.data(number, Qt.ToolTipRole) == value
+    for idx, mode in ((number, Qt.ElideRight), (name, Qt.ElideMiddle)):
+        delegate = t.itemDelegateForIndex(idx)
+        option = QStyleOptionViewItem()
+        option.textElideMode = Qt.ElideMiddle  # what the view hands every cell
+        delegate.initStyleOption(option, idx)
+        assert option.textElideMode == mode
+    shown = t.fontMetrics().elidedText(value, Qt.ElideRight, 60)
+    assert shown.startswith(value[:3]) and shown.endswith("\u2026")  # the leading digits
+
+
 def test_problems_box_is_one_line_when_empty(make_window):
     from lopside import edits as ed
 

@@ -59,6 +59,15 @@ def _typed_in(editor) -> bool:
     return isinstance(line, QLineEdit) and line.isModified()
 
 
+def _elide_for_column(option, index) -> None:
+    """A study name loses its middle (its year stays); a number or a level loses its end,
+    so what is left shows its leading digits ("0.562…", never "0.56…2289", which reads as
+    another number). The full text is the cell's tooltip."""
+    columns = getattr(index.model(), "columns", ())
+    key = columns[index.column()] if 0 <= index.column() < len(columns) else ""
+    option.textElideMode = Qt.ElideMiddle if key == "study" else Qt.ElideRight
+
+
 class KeepTypingDelegate(QStyledItemDelegate):
     """The plain cell editor, but a table refresh never resets text being typed.
 
@@ -72,6 +81,10 @@ class KeepTypingDelegate(QStyledItemDelegate):
             return
         super().setEditorData(editor, index)
 
+    def initStyleOption(self, option, index):  # noqa: N802 - Qt API
+        super().initStyleOption(option, index)
+        _elide_for_column(option, index)
+
 
 class PickListDelegate(QStyledItemDelegate):
     """An editable pick list: risk-of-bias levels, or the subgroups already in the table."""
@@ -79,6 +92,10 @@ class PickListDelegate(QStyledItemDelegate):
     def __init__(self, choices, parent=None) -> None:
         super().__init__(parent)
         self._choices = choices
+
+    def initStyleOption(self, option, index):  # noqa: N802 - Qt API
+        super().initStyleOption(option, index)
+        _elide_for_column(option, index)
 
     def createEditor(self, parent, option, index):  # noqa: N802 - Qt API
         box = QComboBox(parent)
@@ -199,7 +216,8 @@ class StudyPanel(QWidget):
         )
         self.table.setTabKeyNavigation(True)
         self.table.setAlternatingRowColors(False)
-        # long names lose their middle, not their year (the full text is the tooltip)
+        # long names lose their middle, not their year; numbers and levels their end
+        # (_elide_for_column; the full text is the tooltip)
         self.table.setTextElideMode(Qt.ElideMiddle)
         self.table.setWordWrap(False)
         self.table.setMinimumSize(200, 120)

@@ -170,6 +170,10 @@ def problems_by_row(result, studies: tuple[StudyRow, ...]) -> dict[int, list[Cel
     return out
 
 
+#: an entry longer than this many characters has its full text as the cell's tooltip
+ELIDED_FROM = 6
+
+
 class StudyTableModel(QAbstractTableModel):
     """Rows = studies; columns = the entry mode's fields, the derived values, and labels."""
 
@@ -451,6 +455,10 @@ class StudyTableModel(QAbstractTableModel):
         if not lines and key == "study":
             row = self.session.review.studies[r]
             return row.study or None  # the full label, where the column elides it
+        if not lines and key not in DERIVED:
+            text = ed.cell_text(self.session.review.studies[r], key)
+            # the full entry, where a narrow column may cut it ("0.5628…")
+            return text if len(text) > ELIDED_FROM else None
         return "\n".join(lines) if lines else None
 
     def setData(self, index, value, role=Qt.EditRole):  # noqa: N802 - Qt API
