@@ -280,3 +280,30 @@ def test_linear_ticks_of_a_narrow_cumulative_plot_never_touch(width):
     assert len(boxes) >= 2
     for (ta, a), (tb, b) in zip(boxes, boxes[1:]):
         assert b.x0 - a.x1 >= 2, f"tick labels {ta!r} and {tb!r} touch"
+
+
+@pytest.mark.parametrize("size", ["column", "page", "slide"])
+def test_a_funnel_figure_is_drawn_at_its_settled_layout_without_another_pass(size):
+    """funnel_figure settles the layout once and then fixes the axes; a constrained-layout
+    pass at each save would move nothing (a set position takes the axes out of the
+    layout), so the figure comes without a layout engine. The check: the same figure with
+    constrained layout switched back on saves to the very same SVG and PNG bytes, and the
+    axes is where the settling put it."""
+    from lopside.analysis import analyse
+    from lopside.figures.adaptors import funnel_input_from_result
+    from lopside.figures.export import figure_bytes
+    from lopside.figures.funnel import FunnelOptions, funnel_figure
+    from test_window import invented_review
+
+    result = analyse(invented_review())
+    opts = FunnelOptions(colour_by="risk_of_bias")
+    fig = funnel_figure(funnel_input_from_result(result, opts), opts, size=size)
+    from matplotlib.layout_engine import ConstrainedLayoutEngine
+
+    # "none" leaves matplotlib's placeholder, whose pass does nothing
+    assert not isinstance(fig.get_layout_engine(), ConstrainedLayoutEngine)
+    before = fig.axes[0].get_position().bounds
+    fixed = figure_bytes(fig, "svg"), figure_bytes(fig, "png")
+    fig.set_layout_engine("constrained")
+    assert (figure_bytes(fig, "svg"), figure_bytes(fig, "png")) == fixed
+    assert fig.axes[0].get_position().bounds == before

@@ -379,4 +379,8 @@ def funnel_figure(
         ax.set_position(pos)
         art = draw_funnel(ax, inp, opts, size=preset.name)
         fig.lopside_artists = art
+    # the axes now has a fixed position, which constrained layout leaves alone (a set
+    # position takes it out of the layout): another layout pass at each draw or save
+    # would only cost time (the same bytes without it, tests/test_figures_layout.py)
+    fig.set_layout_engine("none")
     return fig
