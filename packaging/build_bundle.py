@@ -92,7 +92,8 @@ REQUIRED_MODULES = (
     "pypdfium2",
     "pypdfium2_raw.bindings",
 )
-#: Files (name patterns) that must not be in the folder: Qt's network and web parts.
+#: Files (name patterns) that must not be in the folder: Qt's network and web parts
+#: (icudtl.dat: the web engine's ICU data, in the Windows wheel's resources/).
 FORBIDDEN_FILES = (
     "*Qt6Network*",
     "*QtNetwork*",
@@ -100,6 +101,7 @@ FORBIDDEN_FILES = (
     "*Qt6Qml*",
     "*qtls*",
     "*_tkinter*",
+    "icudtl.dat",
     "*libssl*",
     "_ssl*",
 )
