@@ -10,6 +10,7 @@ interval is symmetric on the plain scale (section 7.7.3.2).
 from __future__ import annotations
 
 import math
+from dataclasses import replace
 
 import pytest
 from hypothesis import given, settings
@@ -337,8 +338,29 @@ def test_printed_decimals_set_the_tolerance() -> None:
     assert _codes(check_row(row, "OR", printed=two)) == [
         ("ratio_asymmetric", "estimate", "warning")
     ]
-    # without printed text two decimals are assumed
-    assert _codes(check_row(row, "OR")) == [("ratio_asymmetric", "estimate", "warning")]
+    # without printed text the row is read as a whole: all three show one decimal, so one
+    # decimal is taken (a paper printing 0.50 (0.30 to 0.90) is the rare case this reads
+    # too leniently; see interval_decimals)
+    assert check_row(row, "OR") == ()
+    # ... and where any of them shows two, two are assumed for all: still flagged
+    assert _codes(check_row(replace(row, upper=0.91), "OR")) == [
+        ("ratio_asymmetric", "estimate", "warning")
+    ]
+
+
+def test_interval_decimals_reads_a_row_without_printed_text_as_a_whole() -> None:
+    from lopside.intake.numbers import interval_decimals
+
+    none = (None, None, None)
+    assert interval_decimals((0.9, 0.6, 1.4), none) == (1, 1, 1)
+    assert interval_decimals((5.0, 2.0, 8.0), none) == (0, 0, 0)  # an MD printed whole
+    assert interval_decimals((5.0, 2.5, 8.0), none) == (1, 1, 1)
+    assert interval_decimals((0.9, 0.6, 1.45), none) == (2, 2, 2)  # two shown: two for all
+    assert interval_decimals((0.823, 0.6, 1.4), none) == (3, 2, 2)  # more where shown
+    assert interval_decimals((1e-7, 0.5, 1.0), none) == (2, 2, 2)  # exponent form: default
+    # printed text wins wherever it was kept
+    assert interval_decimals((0.9, 0.6, 1.4), ("0.90", "0.60", "1.40")) == (2, 2, 2)
+    assert interval_decimals((0.9, 0.6, 1.4), ("0.9", None, None)) == (1, 2, 2)
 
 
 def test_narrow_interval_is_not_judged() -> None:

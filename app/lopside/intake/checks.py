@@ -9,7 +9,9 @@ Design invariants
 * Rounding tolerance comes from the decimals *as printed*: half a unit in the last
   printed place of each number. The printed text is used when the caller has it
   (the paste and table readers keep it); otherwise two decimals are assumed, the usual
-  precision of forest tables (more if the stored value itself shows more).
+  precision of forest tables (more if the stored value itself shows more), except that an
+  estimate and limits that all show at most one decimal are read as printed so
+  (:func:`lopside.intake.numbers.interval_decimals`).
 * The symmetry check uses the fact that ratio intervals (OR, RR, HR) computed the usual
   way are symmetric on the log scale, and difference intervals on the plain scale
   (Cochrane Handbook 5.1, section 7.7.7.3 for ratios; section 7.7.3.2 for differences).
@@ -29,7 +31,7 @@ from lopside.intake.clean_rows import (  # clean_count_rows is also this module'
     clean_estimate_rows,
     clean_means_rows,
 )
-from lopside.intake.numbers import count_decimals
+from lopside.intake.numbers import interval_decimals
 from lopside.intake.symmetry import Symmetry, symmetry  # noqa: F401 - part of this API
 from lopside.model.review import (
     BINARY_MEASURES,
@@ -479,10 +481,8 @@ def _symmetry_problems(
 ) -> list[Problem]:
     est, lo, hi = row.estimate, row.lower, row.upper
     assert est is not None and lo is not None and hi is not None
-    decimals = (
-        count_decimals(pr.get("estimate"), est),
-        count_decimals(pr.get("lower"), lo),
-        count_decimals(pr.get("upper"), hi),
+    decimals = interval_decimals(
+        (est, lo, hi), (pr.get("estimate"), pr.get("lower"), pr.get("upper"))
     )
     sym = symmetry(est, lo, hi, measure, decimals)
     name = MEASURE_NAMES[measure]

@@ -20,7 +20,7 @@ import math
 import operator
 from collections.abc import Mapping, Sequence
 
-from lopside.intake.numbers import count_decimals
+from lopside.intake.numbers import interval_decimals
 from lopside.intake.symmetry import symmetry
 from lopside.model.review import (
     BINARY_MEASURES,
@@ -120,17 +120,15 @@ def _count_ok(x: object) -> bool:
 
 
 def _decimals(r: StudyRow, printed: Mapping[str, str], memo: dict) -> tuple[int, int, int]:
-    """The decimals check_row's interval rule takes for the estimate and its limits."""
-    out = []
-    for fld in ("estimate", "lower", "upper"):
-        value, text = getattr(r, fld), printed.get(fld)
-        if text:
-            out.append(count_decimals(text, value))
-        else:
-            if value not in memo:  # the decimals a stored value shows
-                memo[value] = count_decimals(None, value)
-            out.append(memo[value])
-    return out[0], out[1], out[2]
+    """The decimals check_row's interval rule takes for the estimate and its limits (the
+    same function it calls), remembered per row of stored values."""
+    values = (r.estimate, r.lower, r.upper)
+    texts = (printed.get("estimate"), printed.get("lower"), printed.get("upper"))
+    if any(texts):
+        return interval_decimals(values, texts)  # type: ignore[arg-type]
+    if values not in memo:
+        memo[values] = interval_decimals(values, texts)  # type: ignore[arg-type]
+    return memo[values]
 
 
 def _symmetric(r: StudyRow, measure: str, decimals: tuple[int, int, int]) -> bool:

@@ -419,6 +419,40 @@ def parse_number(text: str | None, decimal: str | None = None) -> NumberReading:
     )
 
 
+def shown_decimals(value: float) -> int | None:
+    """Decimals a stored value shows (0.5 -> 1, 0.823 -> 3, 5.0 -> 0; None in exponent
+    form or not finite)."""
+    r = repr(float(value))
+    if "e" in r or "inf" in r or "nan" in r:
+        return None
+    return len((r.split(".")[1] if "." in r else "").rstrip("0"))
+
+
+def interval_decimals(
+    values: tuple[float, float, float], texts: tuple[str | None, str | None, str | None]
+) -> tuple[int, int, int]:
+    """Decimals printed for an estimate and its two limits (the rounding tolerance of the
+    interval checks).
+
+    Each printed text counts where the reader kept it (:func:`count_decimals`). When none
+    of the three was kept (a typed, saved or scripted row), the row is read as a whole: a
+    forest table prints an estimate and its limits to the same decimals, so when all three
+    show at most one decimal ("0.9 (0.6 to 1.4)"; "5 (2 to 8)") that is taken as the
+    printed precision. A row printed to two decimals whose three values all end in 0
+    ("0.90 (0.60 to 1.40)") is then read with the wider tolerance: about one row in a
+    thousand, against a false "check for a typo" on every row of a paper that prints one
+    decimal, which two assumed decimals gave (seen on 2026-12-03 with OR 0.9 (0.6 to
+    1.4): symmetric on the log scale within one decimal, not within two).
+    """
+    if any(texts):
+        return tuple(count_decimals(t, v) for t, v in zip(texts, values, strict=True))  # type: ignore[return-value]
+    shown = [shown_decimals(v) for v in values]
+    if all(d is not None for d in shown) and max(shown) < 2:  # type: ignore[type-var]
+        d = max(shown)  # type: ignore[type-var]
+        return d, d, d
+    return tuple(count_decimals(None, v) for v in values)  # type: ignore[return-value]
+
+
 def count_decimals(text: str | None, value: float | None = None, default: int = 2) -> int:
     """Number of decimals printed, for the rounding tolerance of the row checks.
 
