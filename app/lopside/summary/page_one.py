@@ -26,8 +26,10 @@ def _rating_line(assessment):
     r = assessment.appraisal.rating
     text = r.suggested
     if not r.assessable:
-        text += " (" + r.reasons[0].removeprefix("The data cannot support a rating: ").rstrip(".")
-        text += "; signals point towards bias)" if r.leaning else ")"
+        # a colon, not parentheses: the reasons carry parentheses of their own ("only 7
+        # studies (at least 10 advised; ...)")
+        text += ": " + r.reasons[0].removeprefix("The data cannot support a rating: ").rstrip(".")
+        text += "; even so, signals point towards bias" if r.leaning else ""
     if r.override:
         text += f"; appraiser's rating: {r.override}"
     else:
