@@ -185,3 +185,23 @@ def test_render_text_wraps_long_cells():
     lines = render_text(sec, width=60).splitlines()
     assert max(len(line) for line in lines) <= 60
     assert len(lines) > 4
+
+
+def test_a_rating_that_cannot_be_given_says_why_after_a_colon():
+    """The glance line read 'cannot be rated from these data (only 7 studies (at least 10
+    advised; ...); ...; signals point towards bias)': parentheses inside parentheses."""
+    from lopside.assessment import assess
+    from lopside.cli_common import load_review_file
+    from lopside.paths import sample_reviews_dir
+    from lopside.summary.page_one import _rating_line
+
+    review, _ = load_review_file(sample_reviews_dir() / "wound_dressings_small.lopside")
+    assessment = assess(review)
+    rating = assessment.appraisal.rating
+    assert not rating.assessable  # 7 studies: the case this test is about
+    label, text = _rating_line(assessment)
+    assert text.startswith(f"{rating.suggested}: only 7 studies (")
+    assert not text.startswith(f"{rating.suggested} (")
+    assert text.count("(") == text.count(")")
+    if rating.leaning:
+        assert "; even so, signals point towards bias;" in text
