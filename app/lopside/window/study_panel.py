@@ -59,15 +59,6 @@ def _typed_in(editor) -> bool:
     return isinstance(line, QLineEdit) and line.isModified()
 
 
-def _elide_for_column(option, index) -> None:
-    """A study name loses its middle (its year stays); a number or a level loses its end,
-    so what is left shows its leading digits ("0.562…", never "0.56…2289", which reads as
-    another number). The full text is the cell's tooltip."""
-    columns = getattr(index.model(), "columns", ())
-    key = columns[index.column()] if 0 <= index.column() < len(columns) else ""
-    option.textElideMode = Qt.ElideMiddle if key == "study" else Qt.ElideRight
-
-
 class KeepTypingDelegate(QStyledItemDelegate):
     """The plain cell editor, but a table refresh never resets text being typed.
 
@@ -81,9 +72,16 @@ class KeepTypingDelegate(QStyledItemDelegate):
             return
         super().setEditorData(editor, index)
 
+
+class NameDelegate(KeepTypingDelegate):
+    """The study column: a long name loses its middle, so its year stays in view. Every
+    other column loses its end (the table's mode), so a number keeps its leading digits
+    ("0.5628…", never "0.56…2289", which reads as another number). The full text is the
+    cell's tooltip. Only this column pays for a Python call per painted cell."""
+
     def initStyleOption(self, option, index):  # noqa: N802 - Qt API
         super().initStyleOption(option, index)
-        _elide_for_column(option, index)
+        option.textElideMode = Qt.ElideMiddle
 
 
 class PickListDelegate(QStyledItemDelegate):
@@ -92,10 +90,6 @@ class PickListDelegate(QStyledItemDelegate):
     def __init__(self, choices, parent=None) -> None:
         super().__init__(parent)
         self._choices = choices
-
-    def initStyleOption(self, option, index):  # noqa: N802 - Qt API
-        super().initStyleOption(option, index)
-        _elide_for_column(option, index)
 
     def createEditor(self, parent, option, index):  # noqa: N802 - Qt API
         box = QComboBox(parent)
@@ -216,9 +210,8 @@ class StudyPanel(QWidget):
         )
         self.table.setTabKeyNavigation(True)
         self.table.setAlternatingRowColors(False)
-        # long names lose their middle, not their year; numbers and levels their end
-        # (_elide_for_column; the full text is the tooltip)
-        self.table.setTextElideMode(Qt.ElideMiddle)
+        # numbers and levels lose their end; names their middle (NameDelegate)
+        self.table.setTextElideMode(Qt.ElideRight)
         self.table.setWordWrap(False)
         self.table.setMinimumSize(200, 120)
         self.table.verticalHeader().setDefaultSectionSize(24)
@@ -229,7 +222,7 @@ class StudyPanel(QWidget):
         self.table.verticalScrollBar().rangeChanged.connect(lambda *_a: self.fit_columns())
         rob = PickListDelegate(lambda: RISK_OF_BIAS_LEVELS, self.table)
         sub = PickListDelegate(self._subgroups, self.table)
-        self._delegates = (rob, sub)
+        self._delegates = (rob, sub, NameDelegate(self.table))
         lay.addWidget(self.table, 1)
 
         # one line when the table is clean; a short list (scrolling) when it is not
@@ -305,10 +298,10 @@ class StudyPanel(QWidget):
         self.set_mode("all" if kinds > 1 and best[0] < len(rows) else best[1])
 
     def _apply_delegates(self) -> None:
-        rob, sub = self._delegates
+        rob, sub, name = self._delegates
         for c in range(self.model.columnCount()):
             self.table.setItemDelegateForColumn(c, None)
-        for field, dlg in (("risk_of_bias", rob), ("subgroup", sub)):
+        for field, dlg in (("risk_of_bias", rob), ("subgroup", sub), ("study", name)):
             c = self.model.column_of(field)
             if c >= 0:
                 self.table.setItemDelegateForColumn(c, dlg)
