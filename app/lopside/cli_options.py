@@ -286,6 +286,24 @@ def _progress_for(args, review, **where) -> ConsoleProgress | None:
     return ConsoleProgress(len(review.studies), **where)
 
 
+def assess_with_progress(args, review, settings):
+    """The assessment (numbers and reading) of ``review``, with the progress line on
+    stderr unless ``--quiet``, and the power simulation when ``--power`` asks for it."""
+    from .assessment import assess
+
+    progress = _progress_for(args, review)
+    assessment = assess(
+        review,
+        settings,
+        with_power=getattr(args, "power", False),
+        power_progress=progress.power if progress else None,
+        progress=progress,
+    )
+    if progress:
+        progress.done()
+    return assessment
+
+
 def _fail(message: str) -> int:
     print(f"lopside: {message}", file=sys.stderr)
     return 2

@@ -11,6 +11,7 @@ from ..cli_options import (
     _fail,
     _load,
     _progress_for,
+    assess_with_progress,
     check_output_arg,
 )
 from ..fileio import OutputRefused
@@ -163,19 +164,11 @@ def _outcome_inputs(args):
     return inputs
 
 
-def _panel_title(inputs) -> str:
-    """The review's title when every outcome shares one (a project), as the window uses."""
-    titles = {(i.review.details.title or "").strip() for i in inputs if i.review is not None}
-    if len(titles) == 1 and (title := titles.pop()):
-        return title
-    return "Panel summary"
-
-
 def cmd_panel(args) -> int:
     from pathlib import Path
 
     from ..cli_common import INPUT_ERRORS
-    from ..panel import build_panel
+    from ..panel import build_panel, panel_title
     from ..panel.export import FORMATS, write_panel
 
     out = Path(args.output)
@@ -196,7 +189,8 @@ def cmd_panel(args) -> int:
     try:
         inputs = _outcome_inputs(args)
         summary = build_panel(
-            args.title or _panel_title(inputs),
+            args.title
+            or panel_title(i.review.details.title for i in inputs if i.review is not None),
             inputs,
             with_power=args.power,
             progress_for=progress_for,
@@ -221,8 +215,6 @@ def cmd_panel(args) -> int:
 def cmd_slide(args) -> int:
     from pathlib import Path
 
-    from ..analysis import analyse
-    from ..assessment import assessment_of
     from ..cli_common import INPUT_ERRORS
     from ..panel.slide import write_slide
 
@@ -240,12 +232,9 @@ def cmd_slide(args) -> int:
     if args.favours:
         review = review.with_details(favours=args.favours)
     name = review.details.outcome or review.details.title or Path(args.file).stem
-    progress = _progress_for(args, review)
-    result = analyse(review, settings, progress=progress)
-    if progress:
-        progress.done()
+    assessment = assess_with_progress(args, review, settings)
     try:
-        write_slide(result, assessment_of(result).appraisal, out, title=name)
+        write_slide(assessment.analysis, assessment.appraisal, out, title=name)
     except ValueError as exc:
         return _fail(f"{args.file}: {exc}.")
     except OSError as exc:

@@ -8,8 +8,8 @@ import sys
 from ..cli_options import (
     UnreadInput,
     _fail,
-    _progress_for,
     _unread,
+    assess_with_progress,
     check_output_arg,
     load_input,
 )
@@ -17,7 +17,6 @@ from ..fileio import OutputRefused
 
 
 def cmd_check(args) -> int:
-    from ..assessment import assess
     from ..cli_common import INPUT_ERRORS
 
     try:
@@ -26,17 +25,8 @@ def cmd_check(args) -> int:
         return _fail(str(exc))
     except UnreadInput as exc:
         return _unread(exc)
-    progress = _progress_for(args, review)
     # one assessment (numbers and reading) feeds the text and the JSON alike
-    assessment = assess(
-        review,
-        settings,
-        with_power=args.power,
-        power_progress=progress.power if progress else None,
-        progress=progress,
-    )
-    if progress:
-        progress.done()
+    assessment = assess_with_progress(args, review, settings)
     # the whole text is made before the first byte goes out, so a failure leaves an empty
     # output rather than a cut-off one
     if args.json:
@@ -69,19 +59,9 @@ def cmd_sheet(args) -> int:
         return _unread(exc)
     if args.appraiser:
         review = review.with_details(appraiser=args.appraiser)
-    from ..assessment import assess
     from ..sheet import write_sheet
 
-    progress = _progress_for(args, review)
-    assessment = assess(
-        review,
-        settings,
-        with_power=args.power,
-        power_progress=progress.power if progress else None,
-        progress=progress,
-    )
-    if progress:
-        progress.done()
+    assessment = assess_with_progress(args, review, settings)
     try:
         write_sheet(assessment, out, include_forest=args.include_forest)
     except OutputLocked as exc:

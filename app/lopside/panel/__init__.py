@@ -22,6 +22,18 @@ from ..outcome_row import OUTCOME_COLUMNS
 #: The panel's machine-readable columns (first sheet of the XLSX, the CSV), in order: the
 #: outcome columns batch writes too (one list, lopside.outcome_row), without the
 #: trim-and-fill details, then the row's status and the data fingerprint.
+#: the summary's title when the review has none (several files of different reviews)
+DEFAULT_TITLE = "Panel summary"
+
+
+def panel_title(titles) -> str:
+    """The review's title when the outcomes share one (a project), else DEFAULT_TITLE."""
+    found = {(t or "").strip() for t in titles}
+    if len(found) == 1 and (title := found.pop()):
+        return title
+    return DEFAULT_TITLE
+
+
 PANEL_COLUMNS: tuple[str, ...] = (
     *(c for c in OUTCOME_COLUMNS if not c.startswith("trim_fill_") and c != "fingerprint"),
     "status",

@@ -20,7 +20,7 @@ from pathlib import Path
 from typing import Any
 
 from .. import CAUTION, __version__
-from . import PANEL_COLUMNS, STUDY_COLUMNS, PanelSummary, fmt_cell
+from . import DEFAULT_TITLE, PANEL_COLUMNS, STUDY_COLUMNS, PanelSummary, fmt_cell
 
 #: Columns of the printed table (PDF and DOCX): (heading, columns shown in that cell)
 PRINTED = (
@@ -39,9 +39,9 @@ FORMATS = (".pdf", ".docx", ".xlsx", ".csv")
 
 def _document_title(title: str) -> str:
     """'Panel summary: <title>', without saying 'Panel summary' twice."""
-    if title.strip().casefold() in ("", "panel summary"):
-        return "Panel summary"
-    return f"Panel summary: {title}"
+    if title.strip().casefold() in ("", DEFAULT_TITLE.casefold()):
+        return DEFAULT_TITLE
+    return f"{DEFAULT_TITLE}: {title}"
 
 
 def _atomic(path: Path, write: Callable[[Path], None]) -> None:

@@ -16,6 +16,7 @@ from PySide6.QtWidgets import (
 )
 
 from ..fileio import KINDS, OutputLocked, OutputRefused, check_output, kind_for_suffix
+from ..panel import panel_title
 from ..panel.export import FORMATS
 from . import messages as M
 from .errors import plain
@@ -67,7 +68,7 @@ def panel_to_file(window, path: str | None = None) -> Path | None:
         return None
     QApplication.setOverrideCursor(Qt.WaitCursor)
     try:
-        title = window.session.review.details.title or "Panel summary"
+        title = panel_title([window.session.review.details.title])
         write_panel(build_panel(title, window.panel_view.inputs()), out)
     except (OSError, ValueError) as exc:
         window.say(M.PANEL_EXPORT_FAILED.format(error=exc), 0)

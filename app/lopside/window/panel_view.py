@@ -23,7 +23,7 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
-from ..panel import OutcomeInput
+from ..panel import OutcomeInput, panel_title
 from ..panel.export import printed_cells
 from ..session import Session
 from . import messages as M
@@ -174,7 +174,7 @@ class PanelSummaryPanel(QWidget):
         self.table.setRowCount(0)  # never a mix of old and new rows
         self.summary = None
         self.state.setText(M.PANEL_UPDATING.format(n=len(key) - 1))
-        title = self.session.review.details.title or "Panel summary"
+        title = panel_title([self.session.review.details.title])
         w = PanelWorker(title, self.inputs(), key, parent=self)
         w.finished_with.connect(self._done)
         w.failed.connect(self._failed)
