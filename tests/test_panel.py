@@ -256,3 +256,19 @@ def test_cli_panel_of_a_project_is_titled_by_the_project(tmp_path):
     mixed = tmp_path / "m.xlsx"
     assert main(["panel", str(SAMPLES[0]), str(SAMPLES[1]), "-o", str(mixed), "--quiet"]) == 0
     assert openpyxl.load_workbook(mixed)["about"]["A1"].value == "Panel summary"
+
+
+def test_slide_says_why_a_rating_cannot_be_given():
+    """The slide said only 'cannot be rated from these data'; a journal club needs the
+    reason (too few studies, nothing significant), worded as on the sheet's glance line."""
+    from lopside.appraise.rating import CANNOT_RATE, unrated_because
+    from lopside.panel.slide import slide_texts
+
+    review, saved = load_review_file(ROOT / "sample_reviews" / "wound_dressings_small.lopside")
+    result = analyse(review, AnalysisSettings.from_dict(saved))
+    appraisal = appraise(result)
+    assert appraisal.rating.suggested == CANNOT_RATE  # 7 studies: the case under test
+    why = unrated_because(appraisal.rating)
+    assert why.startswith("only 7 studies (at least 10 advised")
+    text = slide_texts(result, appraisal, "Invented", "2026-01-01")["rating"]
+    assert text == f"Suggested rating of the publication-bias domain: {CANNOT_RATE}: {why}"

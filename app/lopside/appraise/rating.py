@@ -75,6 +75,18 @@ RATING_NOTE = (
 )
 
 
+#: the first reason of a rating the data cannot support begins so
+UNRATED_PREFIX = "The data cannot support a rating: "
+
+
+def unrated_because(rating: DomainRating) -> str:
+    """Why the data cannot support a rating ("only 7 studies (at least 10 advised; ...)"),
+    or "" when they can: the one wording for the glance line, the slide and the panel."""
+    if rating.assessable or not rating.reasons:
+        return ""
+    return rating.reasons[0].removeprefix(UNRATED_PREFIX).rstrip(".")
+
+
 def strong_signal(e: Evidence, alpha: float) -> bool:
     """A line "for" publication bias backed by a p-value below the threshold."""
     p = e.number("p")
@@ -138,7 +150,7 @@ def suggest_rating(result, ss: SmallStudyReading, causes: tuple[CauseReading, ..
 
     if not assessable:
         suggested = CANNOT_RATE
-        reasons.insert(0, "The data cannot support a rating: " + "; ".join(not_ok) + ".")
+        reasons.insert(0, UNRATED_PREFIX + "; ".join(not_ok) + ".")
         if for_items:
             leaning = "towards bias"
             reasons.append(

@@ -13,6 +13,7 @@ import os
 from pathlib import Path
 
 from .. import CAUTION, __version__
+from ..appraise.rating import unrated_because
 from . import reading_lines
 from .export import _atomic
 
@@ -45,6 +46,7 @@ def slide_texts(result, appraisal, title: str, date: str) -> dict[str, object]:
         "lines": list(zip(HEADINGS, reading_lines(result, appraisal))),
         "rating": (
             f"Suggested rating of the publication-bias domain: {rating.suggested}"
+            + (f": {why}" if (why := unrated_because(rating)) else "")
             + (f"; the appraiser's: {rating.override}" if rating.override else "")
         ),
         "caution": CAUTION,

@@ -23,12 +23,14 @@ def _flagged_rows_line(assessment):
 
 
 def _rating_line(assessment):
+    from ..appraise.rating import unrated_because
+
     r = assessment.appraisal.rating
     text = r.suggested
     if not r.assessable:
         # a colon, not parentheses: the reasons carry parentheses of their own ("only 7
         # studies (at least 10 advised; ...)")
-        text += ": " + r.reasons[0].removeprefix("The data cannot support a rating: ").rstrip(".")
+        text += ": " + unrated_because(r)
         text += "; even so, signals point towards bias" if r.leaning else ""
     if r.override:
         text += f"; appraiser's rating: {r.override}"
