@@ -182,3 +182,53 @@ def test_funnel_with_ticks_beyond_its_limits_settles(make_window, qtbot):
     assert w.funnel.draw_count == count
     w.funnel.draw_now()
     assert np.asarray(w.funnel.canvas.buffer_rgba())[..., :3].mean() < 250  # not blank
+
+
+# --------------------------------------------------------------------------------------
+# Exports never print the core stage: they wait for the full analysis
+
+
+def _edited_with_full_stage_pending(make_window):
+    """A window whose review was just edited: the core stage is shown and the full stage
+    has not started yet (its start is queued), as when the user exports at once."""
+    from lopside import edits as ed
+
+    w = _window_with_sample(make_window)
+    row = w.session.review.studies[0]
+    field = next(f for f in ("int_events", "estimate", "int_mean") if getattr(row, f) is not None)
+    value = getattr(row, field) + (1 if isinstance(getattr(row, field), int) else 0.01)
+    w.stack.push_edit(ed.SetCell(0, field, str(value)))
+    w._timer.stop()  # the debounce: run now, as its timeout would
+    w.refresh_soon()
+    assert w.result is not None and w.result.stage == "core"  # the case under test
+    return w
+
+
+def test_sheet_export_right_after_an_edit_prints_the_full_analysis(make_window, qtbot, tmp_path):
+    """The sheet was handed the core-stage result shown at that moment: its adjustments,
+    leave-one-out and other tests would have read 'updating…' on paper."""
+    w = _edited_with_full_stage_pending(make_window)
+    worker = w.export_sheet(str(tmp_path / "sheet.pdf"))
+    assert worker is not None
+    assert worker.result.stage == "full"
+    assert worker.result.review is w.session.review  # the edited review, not the one before
+    with qtbot.waitSignal(worker.finished_with, timeout=60000):
+        pass
+
+
+def test_slide_and_figure_exports_right_after_an_edit_use_the_full_analysis(
+    make_window, tmp_path, monkeypatch
+):
+    from lopside.panel import slide as slide_module
+
+    w = _edited_with_full_stage_pending(make_window)
+    seen = []
+    real = slide_module.write_slide
+
+    def spy(result, appraisal, path, **kw):
+        seen.append(result.stage)
+        return real(result, appraisal, path, **kw)
+
+    monkeypatch.setattr(slide_module, "write_slide", spy)
+    assert w.export_slide(str(tmp_path / "s.png")) is not None
+    assert seen == ["full"]

@@ -84,8 +84,8 @@ def slide_to_file(window, path: str | None = None) -> Path | None:
     from ..assessment import assessment_of
     from ..panel.slide import write_slide
 
-    window.update_views()
-    if window.result is None or window.result.k == 0:
+    result = window.full_result()
+    if result is None or result.k == 0:
         window.say(M.SLIDE_FAILED.format(error=window.analysis_error or M.NO_ANALYSIS))
         return None
     stem = window.session.path.stem if window.session.path else "review"
@@ -98,7 +98,7 @@ def slide_to_file(window, path: str | None = None) -> Path | None:
     s = window.session
     name = s.outcome_names[s.outcome_index]
     try:
-        write_slide(window.result, assessment_of(window.result).appraisal, out, title=name)
+        write_slide(result, assessment_of(result).appraisal, out, title=name)
     except (OSError, ValueError) as exc:
         window.say(M.SLIDE_FAILED.format(error=exc), 0)
         return None
@@ -106,15 +106,43 @@ def slide_to_file(window, path: str | None = None) -> Path | None:
     return out
 
 
+#: how long an export waits for the worker's full stage before computing it itself (ms)
+FULL_STAGE_WAIT_MS = 120_000
+
+
 class ExportActions:
     """The main window's exports (a mixin: ``self`` is the window): the sheet, figures,
     the funnel as an image or on paper, the panel summary and the slide."""
 
+    def full_result(self):
+        """The full analysis of the review shown, for an export: an edit's core stage
+        (drawn at once, its other numbers "updating…") is never what goes on paper. Waits
+        for the worker's full stage when it is under way; computes it here when the
+        worker did not deliver it (cancelled, failed). None when there is no analysis."""
+        w = self.analysis_worker
+        busy = w is not None and (w.isRunning() or getattr(self, "_worker_starting", False))
+        if busy or getattr(self, "_awaiting_full", False):
+            self.say(M.EXPORT_WAITS, 0)
+            QApplication.setOverrideCursor(Qt.WaitCursor)
+            try:
+                self.wait_for_analysis(timeout_ms=FULL_STAGE_WAIT_MS)
+            finally:
+                QApplication.restoreOverrideCursor()
+        self.update_views()
+        result = self.result
+        if result is not None and result.stage != "full":
+            try:
+                result = self.session.analyse()  # cached, or the full analysis now
+            except Exception as exc:  # noqa: BLE001 - said to the user, as update_views does
+                self.analysis_error = M.ANALYSIS_FAILED.format(error=plain(str(exc)))
+                return None
+        return result
+
     def export_sheet(self, path: str | None = None) -> SheetWorker | None:
         """Write the PDF sheet in a worker; returns the worker (started)."""
         self.causes.flush()
-        self.update_views()
-        if self.result is None:
+        result = self.full_result()
+        if result is None:
             self.say(M.SHEET_FAILED.format(error=self.analysis_error or M.NO_ANALYSIS))
             return None
         if path is None:
@@ -129,7 +157,7 @@ class ExportActions:
                 return None
         elif self._refuse_export(path, "pdf"):
             return None
-        w = SheetWorker(self.result, path, parent=self)
+        w = SheetWorker(result, path, parent=self)
         w.finished_with.connect(self._sheet_done)
         w.failed.connect(lambda msg: self._sheet_failed(w, msg))
         self.sheet_worker = w
@@ -210,7 +238,8 @@ class ExportActions:
 
     def export_figure(self, path: str | None = None) -> bool:
         panel = self._current_figure_panel()
-        if self.result is None:
+        result = self.full_result()
+        if result is None:
             return False
         if path is None:
             path = self._ask_export_path(
@@ -229,7 +258,7 @@ class ExportActions:
             if panel is self.funnel:
                 fig = self.funnel_export_figure()
             else:
-                panel.show_result(self.result)
+                panel.show_result(result)
                 panel.draw_now()
                 fig = panel.figure
             if fig is None:

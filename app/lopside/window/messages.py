@@ -66,6 +66,8 @@ PASTE_COUNT = "{n_study} studies read · {n_skip} lines skipped · {n_nu} not un
 
 SHEET_DONE = "The appraisal sheet was written to {path}."
 SHEET_FAILED = "The appraisal sheet could not be written: {error}"
+#: an export waits for the full analysis (it never prints what is still being updated)
+EXPORT_WAITS = "Finishing the analysis before the export\u2026"
 COPIED_FUNNEL = "Funnel plot copied to the clipboard."
 EXPORTED_FIGURE = "Figure written to {path}."
 
