@@ -232,3 +232,27 @@ def test_slide_and_figure_exports_right_after_an_edit_use_the_full_analysis(
     monkeypatch.setattr(slide_module, "write_slide", spy)
     assert w.export_slide(str(tmp_path / "s.png")) is not None
     assert seen == ["full"]
+
+
+def test_causes_tab_shows_nothing_of_the_previous_reading_while_the_full_stage_runs(
+    make_window,
+):
+    """In the core stage the reading said 'being updated' while the evidence for each
+    explanation and the suggested rating still showed the data before the edit."""
+    from lopside.words.numbers import UPDATING
+
+    w = _window_with_sample(make_window)
+    w.views.setCurrentWidget(w.causes)
+    w.update_views()
+    before = w.causes.suggested.text()
+    assert before not in ("", "\u2013", UPDATING)  # a full reading was shown
+    w = _edited_with_full_stage_pending(make_window)
+    w.views.setCurrentWidget(w.causes)
+    w.causes.show_result(w.result)
+    assert w.result.stage == "core"
+    assert w.causes.suggested.text() == UPDATING
+    assert {ev.text() for ev in w.causes.evidence.values()} == {UPDATING}
+    assert w.causes.appraisal is None
+    w.wait_for_analysis()
+    w.causes.show_result(w.result)
+    assert w.result.stage == "full" and w.causes.suggested.text() not in (UPDATING, "\u2013")

@@ -24,6 +24,7 @@ from PySide6.QtWidgets import (
 from .. import edits as ed
 from ..model.review import CAUSE_TITLES, CAUSES, DOMAIN_RATINGS, JUDGEMENTS, CauseNote
 from ..session import Session
+from ..words.numbers import UPDATING
 from . import messages as M
 from .sections import WrappingPage
 
@@ -205,14 +206,15 @@ class CausesPanel(QScrollArea):
         )
         self.claim.setText(f"<table>{rows}</table>")
 
-    def show_message(self, text: str) -> None:
+    def show_message(self, text: str, blank: str = "\u2013") -> None:
+        """``text`` in place of the reading; ``blank`` in each evidence and rating field."""
         self._appraisal_for = None
         self.appraisal = None
         self.reading.setText(html.escape(text))
         self.claim_box.setVisible(False)  # no result: no comparison with the review's claim
         for ev in self.evidence.values():
-            ev.setText("\u2013")
-        self.suggested.setText("\u2013")
+            ev.setText(html.escape(blank))
+        self.suggested.setText(html.escape(blank))
 
     def reset(self) -> None:
         """The review changed completely: no readings of the old one, back to the top."""
@@ -226,9 +228,10 @@ class CausesPanel(QScrollArea):
             self.show_message(M.NO_ANALYSIS)
             return
         if getattr(result, "stage", "full") != "full":
-            # a partial analysis would give a partial reading that the full one may contradict
-            self.reading.setText(html.escape(M.READING_UPDATING))
-            self._appraisal_for = None
+            # a partial analysis would give a partial reading that the full one may contradict;
+            # nothing of the reading before the edit stays up beside it either (the evidence
+            # and the suggested rating were left showing the previous data)
+            self.show_message(M.READING_UPDATING, UPDATING)
             return
         # the readings depend on the statistics, not on the notes: skip when only notes moved
         key = (result.data, result.settings, result.power, result.review.details)
