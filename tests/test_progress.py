@@ -183,3 +183,23 @@ def test_panel_and_slide_take_quiet_and_keep_stderr_empty(tmp_path, capsys):
     assert main(["panel", path, "-o", str(tmp_path / "p.csv"), "--quiet"]) == 0
     assert main(["slide", path, "-o", str(tmp_path / "s.png"), "--quiet"]) == 0
     assert capsys.readouterr().err == ""
+
+
+def test_core_stage_adjustments_say_updating_not_not_computed():
+    """The Adjust view in the core stage read 'not computed' beside 'being updated (the
+    full analysis follows in a moment)' for PET-PEESE, the limit and the selection model,
+    and 'How strong selection would have to be was not computed: being updated (...)'."""
+    from lopside.summary.adjustments import adjustments_section
+    from lopside.words.numbers import UPDATING
+    from lopside.words.selection import selection_sentence
+
+    review = _sample()
+    core = analyse(review, stage="core")
+    rows = {r[0]: r for r in adjustments_section(core).rows}
+    pending = [r for name, r in rows.items() if name.startswith(("PET", "Limit", "Selection"))]
+    assert pending and all(r[1:] == (UPDATING, "", "") for r in pending), pending
+    assert not any("not computed" in " ".join(r) for r in rows.values())
+    assert selection_sentence(core) == "How strong selection would have to be is being updated."
+    full = analyse(review)
+    full_rows = {r[0]: r for r in adjustments_section(full).rows}
+    assert all(UPDATING not in " ".join(r) for r in full_rows.values())

@@ -4,7 +4,17 @@ the text and window, brief for the sheet)."""
 
 from __future__ import annotations
 
-from ..words.numbers import MISSING, fmt_ci, fmt_effect, fmt_effect_ci, is_ok, plural, why_not
+from ..stats.results import CORE_PENDING
+from ..words.numbers import (
+    MISSING,
+    UPDATING,
+    fmt_ci,
+    fmt_effect,
+    fmt_effect_ci,
+    is_ok,
+    plural,
+    why_not,
+)
 from ..words.rows import adjustment_rows
 from ..words.selection import fmt_eta, missing_trials_sentence, selection_sentence, short_reason
 from ..words.sentences import trim_fill_range
@@ -16,7 +26,11 @@ def adjustments_section(result) -> Section:
     m = result.measure
     rows = []
     for name, est, lo, hi, note in adjustment_rows(result):
-        if est is None:
+        if est is None and note == CORE_PENDING:
+            # the full stage is still running: said once in the estimate column, as the
+            # pooled and tests tables do, not "not computed" with the reason beside it
+            rows.append((name, UPDATING, "", ""))
+        elif est is None:
             rows.append((name, "not computed", "", note))
         else:
             rows.append((name, fmt_effect(est, m), fmt_ci(lo, hi, m), note))

@@ -6,7 +6,7 @@ from __future__ import annotations
 from typing import Any
 
 from ..model.review import RATIO_MEASURES
-from ..stats.results import NotComputable
+from ..stats.results import NotComputable, is_pending
 from .numbers import fmt_effect, fmt_effect_ci, fmt_int, fmt_num, is_finite, is_ok, plural, why_not
 
 MISSING = "\u2013"
@@ -46,6 +46,8 @@ def selection_sentence(result, *, brief: bool = False) -> str | None:
     ss = getattr(result, "selection_sensitivity", None)
     if ss is None:
         return None
+    if is_pending(ss):
+        return "How strong selection would have to be is being updated."
     if isinstance(ss, NotComputable):
         return f"How strong selection would have to be was not computed: {ss.reason}."
     m = result.measure
