@@ -162,3 +162,29 @@ def test_a_slide_of_an_outcome_without_studies_says_why(book_window, tmp_path):
     assert w.export_slide(str(tmp_path / "e.pptx")) is None
     assert w.last_message.startswith("The slide could not be written:")
     assert not (tmp_path / "e.pptx").exists()
+
+
+def test_closing_while_the_panel_is_being_made_stops_its_worker(book_window, monkeypatch):
+    """Closing the window while the Panel view was analysing the outcomes left its thread
+    running; when Python then freed it, Qt aborted the program ('QThread: Destroyed while
+    thread is still running', exit 134; seen with a slow analysis on 2026-12-03)."""
+    import time
+
+    from lopside import analysis
+
+    real = analysis._full_stage
+
+    def slow(*args, **kwargs):
+        time.sleep(0.5)  # each outcome's full stage: five outcomes, 2.5 s in all
+        return real(*args, **kwargs)
+
+    w, _ = book_window
+    monkeypatch.setattr(analysis, "_full_stage", slow)
+    w._show_view(w.view_panels.index(w.panel_view))
+    worker = w.panel_view.worker
+    assert worker is not None and worker.isRunning()  # the case under test
+    started = time.monotonic()
+    w._closing_ok = True
+    w.close()
+    assert not worker.isRunning()  # stopped and waited for, not left to be destroyed
+    assert time.monotonic() - started < 2.0  # stopped at its next stage, not run to the end

@@ -155,9 +155,10 @@ def build_panel(
     """Analyse each outcome once and lay the rows side by side (see the module notes).
 
     ``progress_for(input, number, total)``, if given, returns the progress reporter of
-    that outcome's analysis (called with each stage, ``.power`` with the simulation's
-    steps, ``.done()`` at the end; see :class:`lopside.cli_options.ConsoleProgress`) or
-    None.
+    that outcome's analysis (called with each stage, as ``analyse``'s ``progress``: False
+    stops it with AnalysisCancelled; its ``.power``, if any, with the simulation's steps,
+    its ``.done()``, if any, at the end; see :class:`lopside.cli_options.ConsoleProgress`)
+    or None.
     """
     from ..assessment import assess
     from ..outcome_row import outcome_row
@@ -176,9 +177,9 @@ def build_panel(
             inp.settings,
             with_power=with_power,
             progress=progress,
-            power_progress=progress.power if progress else None,
+            power_progress=getattr(progress, "power", None),
         )
-        if progress:
+        if hasattr(progress, "done"):
             progress.done()
         result, appraisal = assessment.analysis, assessment.appraisal
         row = outcome_row(result, appraisal, inp.name)

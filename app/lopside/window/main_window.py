@@ -646,7 +646,9 @@ class MainWindow(MenuActions, FileActions, ExportActions, QMainWindow):
             event.ignore()
             return
         self.power.shutdown()
+        self.panel_view.shutdown()
         if self.analysis_worker is not None and self.analysis_worker.isRunning():
+            self.analysis_worker.cancel()  # nobody will see its result
             self.analysis_worker.wait(30000)
         if self.sheet_worker is not None and self.sheet_worker.isRunning():
             self.sheet_worker.wait(15000)

@@ -9,6 +9,8 @@ column; a click on a row opens that outcome.
 
 from __future__ import annotations
 
+import threading
+
 from PySide6.QtCore import QByteArray, Qt, QThread, Signal
 from PySide6.QtGui import QPixmap
 from PySide6.QtWidgets import (
@@ -50,17 +52,28 @@ class PanelWorker(QThread):
     def __init__(self, title: str, inputs: list[OutcomeInput], key, parent=None) -> None:
         super().__init__(parent)
         self.title, self.inputs, self.key = title, inputs, key
+        self._cancel = threading.Event()
+
+    def cancel(self) -> None:
+        """Stop at the next stage of the outcome being analysed (the window is closing)."""
+        self._cancel.set()
+
+    def _go_on(self, *_stage) -> bool:
+        return not self._cancel.is_set()  # False stops the analysis (AnalysisCancelled)
 
     def run(self) -> None:
+        from ..analysis import AnalysisCancelled
         from ..panel import build_panel
         from ..panel.export import thumbnail_png
 
         try:
-            summary = build_panel(self.title, self.inputs)
+            summary = build_panel(self.title, self.inputs, progress_for=lambda *_: self._go_on)
             thumbs = [
                 thumbnail_png(o.result) if o.result is not None and o.result.k > 0 else None
                 for o in summary.outcomes
             ]
+        except AnalysisCancelled:
+            return  # nobody waits for these rows
         except Exception as exc:  # noqa: BLE001 - shown in the view
             self.failed.emit(f"{type(exc).__name__}: {exc}", self.key)
             return
@@ -195,6 +208,15 @@ class PanelSummaryPanel(QWidget):
     def show_message(self, text: str) -> None:
         self.table.setRowCount(0)
         self.state.setText(text)
+
+    def shutdown(self, timeout_ms: int = 30000) -> None:
+        """Stop a running worker and wait for its thread (the window is closing): a
+        QThread destroyed while it runs aborts the whole program."""
+        w = self.worker
+        if w is not None and w.isRunning():
+            self._pending = False
+            w.cancel()
+            w.wait(timeout_ms)
 
     def wait(self, timeout_ms: int = 60000) -> None:
         """Until the rows are made (tests, screenshots)."""
