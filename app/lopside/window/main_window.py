@@ -650,8 +650,14 @@ class MainWindow(MenuActions, FileActions, ExportActions, QMainWindow):
         if self.analysis_worker is not None and self.analysis_worker.isRunning():
             self.analysis_worker.cancel()  # nobody will see its result
             self.analysis_worker.wait(30000)
+        pdf = getattr(self, "pdf_worker", None)
+        if pdf is not None and pdf.isRunning():
+            pdf.cancel()  # stops after the page being read (intake.pdf.PAGE_SECONDS at most)
+            pdf.wait(60000)
         if self.sheet_worker is not None and self.sheet_worker.isRunning():
-            self.sheet_worker.wait(15000)
+            # the sheet the user asked for is finished, not cut off (nor its thread freed
+            # while it runs, which aborts the program)
+            self.sheet_worker.wait(120000)
         self._save_prefs()
         if self.autosaver is not None:
             self.autosaver.close()
