@@ -256,3 +256,23 @@ def test_causes_tab_shows_nothing_of_the_previous_reading_while_the_full_stage_r
     w.wait_for_analysis()
     w.causes.show_result(w.result)
     assert w.result.stage == "full" and w.causes.suggested.text() not in (UPDATING, "\u2013")
+
+
+def test_funnel_copied_right_after_an_edit_is_drawn_from_the_full_analysis(
+    make_window, monkeypatch
+):
+    """Copy and print draw a fresh funnel; with 'adjusted estimates' shown, a core-stage
+    result would lack PET-PEESE, the limit and the selection model."""
+    from lopside.figures import adaptors
+
+    w = _edited_with_full_stage_pending(make_window)
+    seen = []
+    real = adaptors.funnel_input_from_result
+
+    def spy(result, opts):
+        seen.append(result.stage)
+        return real(result, opts)
+
+    monkeypatch.setattr(adaptors, "funnel_input_from_result", spy)
+    assert w.funnel_image() is not None
+    assert seen == ["full"]

@@ -227,14 +227,16 @@ class ExportActions:
         return w if w in (self.funnel, self.forest, self.companions) else self.funnel
 
     def funnel_export_figure(self):
-        """A fresh funnel Figure at the sheet's size (not the window's canvas size)."""
-        if self.result is None:
+        """A fresh funnel Figure at the sheet's size (not the window's canvas size), of
+        the full analysis (the adjusted estimates the funnel can show come with it)."""
+        result = self.full_result()
+        if result is None:
             return None
         from ..figures.adaptors import funnel_input_from_result as adaptor
         from ..figures.funnel import funnel_figure
 
-        opts = self.funnel.funnel_options(self.result)
-        return funnel_figure(adaptor(self.result, opts), opts, size="page")
+        opts = self.funnel.funnel_options(result)
+        return funnel_figure(adaptor(result, opts), opts, size="page")
 
     def export_figure(self, path: str | None = None) -> bool:
         panel = self._current_figure_panel()
