@@ -522,6 +522,28 @@ def test_dropping_a_file_opens_it(make_window, qtbot, tmp_path):
     assert any("dropped.lopside" in a.text() for a in w.recent_menu.actions())
 
 
+def test_dropping_several_files_opens_the_first_and_names_the_rest(make_window, qtbot, tmp_path):
+    """Only the first file of a drop was opened; the others were ignored without a word."""
+    from PySide6.QtCore import QMimeData, QPointF, QUrl
+    from PySide6.QtGui import QDropEvent
+
+    first = tmp_path / "first.lopside"
+    project_file.save(ci_review(), first)
+    table = tmp_path / "second.csv"
+    table.write_text("study,estimate,se\nA,0.8,0.2\n", encoding="utf-8")
+    notes = tmp_path / "notes.docx"
+    notes.write_bytes(b"not a review")
+    w = make_window()
+    mime = QMimeData()
+    mime.setUrls([QUrl.fromLocalFile(str(p)) for p in (first, table, notes)])
+    event = QDropEvent(QPointF(50, 50), Qt.CopyAction, mime, Qt.LeftButton, Qt.NoModifier)
+    w.dropEvent(event)
+    qtbot.waitUntil(lambda: w.session.path == first, timeout=5000)
+    qtbot.waitUntil(lambda: "Not opened" in w.last_message, timeout=5000)
+    assert "second.csv" in w.last_message and "notes.docx" in w.last_message
+    assert "first.lopside" in w.last_message
+
+
 def test_every_control_has_an_accessible_name_or_a_label(make_window):
     from PySide6.QtWidgets import (
         QAbstractButton,

@@ -417,9 +417,17 @@ class FileActions:
             event.ignore()
 
     def dropEvent(self, event) -> None:  # noqa: N802 - Qt API
-        for u in event.mimeData().urls():
-            p = Path(u.toLocalFile())
-            if p.suffix.lower() in ACCEPTED_SUFFIXES:
-                event.acceptProposedAction()
-                QTimer.singleShot(0, lambda p=p: self.open_path(p))
-                return
+        paths = [Path(u.toLocalFile()) for u in event.mimeData().urls() if u.isLocalFile()]
+        accepted = [p for p in paths if p.suffix.lower() in ACCEPTED_SUFFIXES]
+        if not accepted:
+            return
+        event.acceptProposedAction()
+        first, others = accepted[0], [p.name for p in paths if p != accepted[0]]
+
+        def open_first() -> None:
+            opened = self.open_path(first)
+            if opened and others:
+                # one review is opened at a time: the rest of the drop is said, not lost
+                self.say(M.DROPPED_OTHERS.format(name=first.name, others=", ".join(others)), 0)
+
+        QTimer.singleShot(0, open_first)

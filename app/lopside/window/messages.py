@@ -66,6 +66,11 @@ PASTE_COUNT = "{n_study} studies read · {n_skip} lines skipped · {n_nu} not un
 
 SHEET_DONE = "The appraisal sheet was written to {path}."
 SHEET_FAILED = "The appraisal sheet could not be written: {error}"
+#: several files dropped on the window: the first readable one is opened
+DROPPED_OTHERS = (
+    "Opened {name}. Not opened: {others} (one review at a time; to add a file's rows as "
+    "another outcome, use Outcome > Add outcomes from a file)."
+)
 #: an export waits for the full analysis (it never prints what is still being updated)
 EXPORT_WAITS = "Finishing the analysis before the export\u2026"
 COPIED_FUNNEL = "Funnel plot copied to the clipboard."
