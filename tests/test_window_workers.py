@@ -232,6 +232,9 @@ def test_slide_and_figure_exports_right_after_an_edit_use_the_full_analysis(
     monkeypatch.setattr(slide_module, "write_slide", spy)
     assert w.export_slide(str(tmp_path / "s.png")) is not None
     assert seen == ["full"]
+    from lopside.window import messages as M
+
+    assert w.statusBar().currentMessage() != M.EXPORT_WAITS  # the wait is over: not left up
 
 
 def test_causes_tab_shows_nothing_of_the_previous_reading_while_the_full_stage_runs(

@@ -128,6 +128,8 @@ class ExportActions:
                 self.wait_for_analysis(timeout_ms=FULL_STAGE_WAIT_MS)
             finally:
                 QApplication.restoreOverrideCursor()
+                if self.statusBar().currentMessage() == M.EXPORT_WAITS:
+                    self.statusBar().clearMessage()  # done waiting (the export says the rest)
         self.update_views()
         result = self.result
         if result is not None and result.stage != "full":
