@@ -286,6 +286,10 @@ def _caption(opts: ForestOptions, pooled: ForestPooled, k: int) -> str:
     if is_ratio(opts.measure):
         parts[0] += " (values on the natural scale)"
     parts.append(f"k = {k}")
+    # the study intervals are y ± z·SE from the SE the analysis used, so a limit can differ
+    # from the paper's in its last digit: said, so that a check against the paper does
+    # not take it for a typing error
+    parts.append("study CIs recomputed from the SE used")
     if opts.weight_model:
         parts.append(f"weights: {opts.weight_model}")
     if pooled.subtotals and pooled.subtotal_model:
