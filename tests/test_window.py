@@ -749,3 +749,21 @@ def test_preferences_read_back_from_disk_keep_their_types(user_state, tmp_path):
     assert p.recent_files() == [str((tmp_path / "only.lopside").resolve())]
     assert p.get_bool("funnel/egger_line") is True
     assert p.get_int("window/view_tab") == 3
+
+
+def test_figure_exports_of_an_empty_review_say_why(make_window, tmp_path):
+    """Export, copy and print of a review with no usable study returned without a word."""
+    from lopside.window import messages as M
+
+    w = make_window()  # a new, empty review
+    w.wait_for_analysis()
+    w.say("")
+    assert w.export_figure(str(tmp_path / "f.png")) is False
+    # it said "The appraisal sheet could not be written: ..." for a figure
+    assert w.last_message.startswith("The figure could not be written: ")
+    assert "needs at least one study" in w.last_message
+    assert not (tmp_path / "f.png").exists()
+    w.say("")
+    assert w.copy_funnel() is False
+    assert w.last_message  # copy said why too
+    assert w.last_message != M.NOTHING_TO_EXPORT.format(why="")

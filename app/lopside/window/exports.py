@@ -140,6 +140,11 @@ class ExportActions:
                 return None
         return result
 
+    def _say_nothing_to_export(self) -> None:
+        """A figure export with no analysis to draw: why, in the status bar (it returned
+        without a word)."""
+        self.say(M.NOTHING_TO_EXPORT.format(why=self.analysis_error or M.NO_ANALYSIS), 0)
+
     def export_sheet(self, path: str | None = None) -> SheetWorker | None:
         """Write the PDF sheet in a worker; returns the worker (started)."""
         self.causes.flush()
@@ -244,6 +249,7 @@ class ExportActions:
         panel = self._current_figure_panel()
         result = self.full_result()
         if result is None:
+            self._say_nothing_to_export()
             return False
         if path is None:
             path = self._ask_export_path(
@@ -272,7 +278,7 @@ class ExportActions:
 
             write_atomic(path, figure_bytes(fig, format_for(path)))
         except (OSError, ValueError) as exc:
-            self.say(M.SHEET_FAILED.format(error=plain(str(exc), str(path))))
+            self.say(M.FIGURE_FAILED.format(error=plain(str(exc), str(path))), 0)
             return False
         self.say(M.EXPORTED_FIGURE.format(path=path))
         return True
@@ -293,6 +299,7 @@ class ExportActions:
             self.say(str(exc))
             return False
         if img is None:
+            self._say_nothing_to_export()
             return False
         QGuiApplication.clipboard().setImage(img)
         self.say(M.COPIED_FUNNEL)
@@ -309,6 +316,7 @@ class ExportActions:
                 return False
         img = self.funnel_image(dpi=300)
         if img is None:
+            self._say_nothing_to_export()
             return False
         painter = QPainter(printer)
         try:

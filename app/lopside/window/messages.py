@@ -71,10 +71,14 @@ DROPPED_OTHERS = (
     "Opened {name}. Not opened: {others} (one review at a time; to add a file's rows as "
     "another outcome, use Outcome > Add outcomes from a file)."
 )
+#: a figure export (file, clipboard, printer) with no analysis to draw
+NOTHING_TO_EXPORT = "Nothing to export yet: {why}"
 #: an export waits for the full analysis (it never prints what is still being updated)
 EXPORT_WAITS = "Finishing the analysis before the export\u2026"
 COPIED_FUNNEL = "Funnel plot copied to the clipboard."
 EXPORTED_FIGURE = "Figure written to {path}."
+#: a figure export that failed (it said "the appraisal sheet could not be written")
+FIGURE_FAILED = "The figure could not be written: {error}"
 
 ABOUT_TEXT = (
     "<h3>Lopside {version}</h3>"
