@@ -143,3 +143,31 @@ def test_an_int_beyond_the_float_range_is_a_problem_not_a_crash(row):
     result = analyse(review)
     assert result.k == 3 and [e.row for e in result.excluded] == [0]
     assert any(p.row == 0 and p.code == "not_finite" for p in result.problems)
+
+
+def test_fingerprint_is_computed_when_asked_and_follows_the_review(monkeypatch):
+    """The data fingerprint is SHA-256 (hashlib, the standard library) of the JSON of the
+    measure and every row's set fields (sorted keys, ASCII): computed when an output first
+    asks, not by the analysis an edit runs, and never kept for another review."""
+    import dataclasses
+    import hashlib
+    import json
+
+    import lopside.analysis as analysis
+    from lopside.model.review import Review, ReviewDetails, StudyRow
+
+    rows = tuple(StudyRow(study=f"Invented {i}", estimate=1.0 + i / 10, se=0.2) for i in range(6))
+    review = Review(details=ReviewDetails(measure="OR"), studies=rows)
+    calls = []
+    real = analysis.fingerprint
+    monkeypatch.setattr(analysis, "fingerprint", lambda *a: calls.append(a) or real(*a))
+    result = analysis.analyse(review)
+    assert calls == []
+    payload = {"measure": "OR", "studies": [r.to_dict() for r in rows]}
+    text = json.dumps(payload, sort_keys=True, ensure_ascii=True)
+    assert result.fingerprint == hashlib.sha256(text.encode("ascii")).hexdigest()
+    assert result.fingerprint == result.fingerprint and len(calls) == 1
+    other = dataclasses.replace(review, studies=rows[:5])
+    moved = dataclasses.replace(result, review=other)
+    assert moved.fingerprint != result.fingerprint
+    assert moved.fingerprint == real(other, "OR")

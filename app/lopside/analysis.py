@@ -81,15 +81,28 @@ class AnalysisResult:
     #: rows worth checking against the paper (stats.diagnostics.RowFlags): implausible
     #: arms, outliers and influential studies, heterogeneity drivers, possible duplicates
     row_flags: Any = None
-    fingerprint: str = ""
     notes: tuple[str, ...] = field(default_factory=tuple)
     #: "full", or "core" while only the core stage is ready (effects, pooling,
     #: heterogeneity, tests, trim and fill); the other fields then say CORE_PENDING
     stage: str = "full"
+    #: the fingerprint once computed, with the review and measure it was computed for
+    _fingerprint_memo: list = field(default_factory=list, init=False, repr=False)
 
     @property
     def k(self) -> int:
         return self.data.k
+
+    @property
+    def fingerprint(self) -> str:
+        """SHA-256 of the entered study data and measure (:func:`fingerprint`), computed
+        when an output first asks for it: an edit in the window does not pay for it (about
+        10 ms at 3,000 studies)."""
+        memo = self._fingerprint_memo
+        entry = memo[0] if memo else None
+        if entry is None or entry[0] is not self.review or entry[1] != self.measure:
+            entry = (self.review, self.measure, fingerprint(self.review, self.measure))
+            memo[:] = [entry]
+        return entry[2]
 
     @property
     def is_ratio(self) -> bool:
@@ -734,6 +747,5 @@ def _core_result(review, settings, **core: Any) -> AnalysisResult:
         selection_sensitivity=pending,
         selection_fixed_weights=pending,
         unreported_trials=pending if any(not r.reported for r in review.studies) else None,
-        fingerprint=fingerprint(review, core["measure"]),
         stage="core",
     )
