@@ -197,6 +197,46 @@ def test_batched_results_are_built_with_the_same_bits_as_before():
                 assert repr(_random_results(*args)) == repr(random_before(*args))
 
 
+def test_rows_built_without_the_dataclass_init_are_the_same_objects():
+    # Reference: the dataclass's own __init__ (Python's dataclasses), given the same
+    # values: type, repr, equality, hash, pickling and frozenness must all be the same
+    import pickle
+    from itertools import repeat
+
+    from lopside.stats.pooling_batch import instances
+    from lopside.stats.results import ConfidenceInterval, PooledEstimate
+    from lopside.stats.sensitivity import CumulativeStep, LeaveOneOutRow
+
+    ci = ConfidenceInterval(-0.5, 0.25)
+    cols = [["REML", "DL"], [0.1, -0.2], [0.3, 0.4], [ci, ci], [1.0, -2.0], [0.3, 0.04]]
+    cols += [[0.9, 0.9], [0.0, 0.02], [None, 7.0], [False, True], [3, 8], [None, ci]]
+    cols += [[(), (50.0, 50.0)], [True, False], ["", "did not converge"]]
+    plain = [PooledEstimate(*row) for row in zip(*cols)]
+    fast = instances(PooledEstimate, *cols[:6], repeat(0.9), *cols[7:])  # a shared value
+    assert [type(x) for x in fast] == [PooledEstimate, PooledEstimate]
+    assert repr(fast) == repr(plain) and fast == plain
+    assert [hash(x) for x in fast] == [hash(x) for x in plain]
+    assert pickle.loads(pickle.dumps(fast)) == plain
+    with pytest.raises(dataclasses.FrozenInstanceError):
+        fast[0].estimate = 1.0
+    row = instances(LeaveOneOutRow, ["S1"], [0], fast[:1], fast[1:], [0.02], [12.5], [3.1])
+    assert row == [LeaveOneOutRow("S1", 0, fast[0], fast[1], 0.02, 12.5, 3.1)]
+    step = instances(CumulativeStep, ["S2"], [4], [2], [0.1], fast[:1], fast[1:])
+    assert step == [CumulativeStep("S2", 4, 2, 0.1, fast[0], fast[1])]
+    with pytest.raises(TypeError):  # a missing column is an error, not a short row
+        instances(LeaveOneOutRow, ["S1"], [0], fast[:1], fast[1:], [0.02], [12.5])
+
+    @dataclasses.dataclass(frozen=True, slots=True)
+    class Checked:
+        x: float
+
+        def __post_init__(self):
+            assert self.x > 0
+
+    with pytest.raises(TypeError):  # a class with its own checks is not built this way
+        instances(Checked, [1.0])
+
+
 def test_selection_likelihood_has_the_same_bits_as_before():
     import full_stage_before as before
     from lopside.stats.adjust_selection import _Model

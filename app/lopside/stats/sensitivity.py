@@ -25,6 +25,7 @@ from .pooling import (
     random_effects,
     random_effects_batch,
 )
+from .pooling_batch import instances
 from .results import NotComputable, PooledEstimate
 
 FAIL_SAFE_CAUTION = (
@@ -69,12 +70,6 @@ def cumulative_large_note(k: int, steps: int, tau2_method: str = "REML") -> str:
         f"{steps:,} steps (after each of the first {CUMULATIVE_EVERY_UP_TO} studies, then at "
         "evenly spaced steps on a log scale, and with all studies), not after every study." + grid
     )
-
-
-def _i2_from_q(q: float, k: int) -> float | NotComputable:
-    if k < 2:
-        return NotComputable("I² needs at least two studies")
-    return max(0.0, (q - (k - 1)) / q) * 100.0 if q > 0 else 0.0
 
 
 def _labels(data: StudyData) -> tuple[str, ...]:
@@ -180,10 +175,20 @@ def leave_one_out(
             with_weights=False,
         )
         q = cochran_q_batch(y, v, keep)
-    rows = [
-        LeaveOneOutRow(labels[i], i, fe, re, re.tau2, _i2_from_q(qi, k - 1), qi)
-        for i, (fe, re, qi) in enumerate(zip(fixed, random, np.asarray(q, dtype=float).tolist()))
-    ]
+    q = np.asarray(q, dtype=float)
+    # I² (percent) of the k - 1 studies left: max(0, (Q - (k - 2))/Q) 100, 0 when Q = 0
+    with np.errstate(invalid="ignore", divide="ignore"):
+        i2 = np.where(q > 0, np.maximum(0.0, (q - (k - 2)) / q) * 100.0, 0.0)
+    rows = instances(
+        LeaveOneOutRow,
+        labels,
+        range(k),
+        fixed,
+        random,
+        [re.tau2 for re in random],
+        i2.tolist(),
+        q.tolist(),
+    )
     return LeaveOneOutResult(
         rows=tuple(rows),
         full_fixed=fixed_effect(y, v, confidence_level=confidence_level),
@@ -267,19 +272,16 @@ def cumulative(
         # many studies: REML by scoring alone (the note says so)
         reml_grid=k <= LARGE_K,
     )
-    steps = []
-    for row, m in enumerate(sizes.tolist()):
-        j = int(order[m - 1])
-        steps.append(
-            CumulativeStep(
-                added=labels[j],
-                index=j,
-                k=m,
-                se_added=float(se[j]),
-                fixed=fixed[row],
-                random=random[row],
-            )
-        )
+    added = order[sizes - 1].tolist()
+    steps = instances(
+        CumulativeStep,
+        [labels[j] for j in added],
+        added,
+        sizes.tolist(),
+        se[order[sizes - 1]].tolist(),
+        fixed,
+        random,
+    )
     return CumulativeResult(
         steps=tuple(steps),
         order="most precise (smallest SE) first",
