@@ -197,6 +197,46 @@ def test_batched_results_are_built_with_the_same_bits_as_before():
                 assert repr(_random_results(*args)) == repr(random_before(*args))
 
 
+def test_rows_built_without_the_dataclass_init_are_the_same_objects():
+    # Reference: the dataclass's own __init__ (Python's dataclasses), given the same
+    # values: type, repr, equality, hash, pickling and frozenness must all be the same
+    import pickle
+    from itertools import repeat
+
+    from lopside.stats.pooling_batch import instances
+    from lopside.stats.results import ConfidenceInterval, PooledEstimate
+    from lopside.stats.sensitivity import CumulativeStep, LeaveOneOutRow
+
+    ci = ConfidenceInterval(-0.5, 0.25)
+    cols = [["REML", "DL"], [0.1, -0.2], [0.3, 0.4], [ci, ci], [1.0, -2.0], [0.3, 0.04]]
+    cols += [[0.9, 0.9], [0.0, 0.02], [None, 7.0], [False, True], [3, 8], [None, ci]]
+    cols += [[(), (50.0, 50.0)], [True, False], ["", "did not converge"]]
+    plain = [PooledEstimate(*row) for row in zip(*cols)]
+    fast = instances(PooledEstimate, *cols[:6], repeat(0.9), *cols[7:])  # a shared value
+    assert [type(x) for x in fast] == [PooledEstimate, PooledEstimate]
+    assert repr(fast) == repr(plain) and fast == plain
+    assert [hash(x) for x in fast] == [hash(x) for x in plain]
+    assert pickle.loads(pickle.dumps(fast)) == plain
+    with pytest.raises(dataclasses.FrozenInstanceError):
+        fast[0].estimate = 1.0
+    row = instances(LeaveOneOutRow, ["S1"], [0], fast[:1], fast[1:], [0.02], [12.5], [3.1])
+    assert row == [LeaveOneOutRow("S1", 0, fast[0], fast[1], 0.02, 12.5, 3.1)]
+    step = instances(CumulativeStep, ["S2"], [4], [2], [0.1], fast[:1], fast[1:])
+    assert step == [CumulativeStep("S2", 4, 2, 0.1, fast[0], fast[1])]
+    with pytest.raises(TypeError):  # a missing column is an error, not a short row
+        instances(LeaveOneOutRow, ["S1"], [0], fast[:1], fast[1:], [0.02], [12.5])
+
+    @dataclasses.dataclass(frozen=True, slots=True)
+    class Checked:
+        x: float
+
+        def __post_init__(self):
+            assert self.x > 0
+
+    with pytest.raises(TypeError):  # a class with its own checks is not built this way
+        instances(Checked, [1.0])
+
+
 def test_selection_likelihood_has_the_same_bits_as_before():
     import full_stage_before as before
     from lopside.stats.adjust_selection import _Model
@@ -295,24 +335,75 @@ def test_series_terms_bound_is_the_full_series_bound():
     assert pl._terms_needed(0.0) == 1
 
 
+@pytest.mark.parametrize("hksj", [False, True])
+@pytest.mark.parametrize("kind", ["plain", "misfit", "no_tau2", "large_tau2"])
 @pytest.mark.parametrize("method", ["REML", "DL", "PM"])
-def test_large_cumulative_agrees_with_the_exact_steps_and_says_how(monkeypatch, method):
+def test_large_cumulative_agrees_with_the_exact_steps_and_says_how(monkeypatch, method, kind, hksj):
     # Reference: the cumulative analysis at every step with the grid safeguard of
     # tau2_reml (below the threshold), itself checked against the scalar functions in
-    # test_pooling_batch.py
+    # test_pooling_batch.py. Above the threshold the steps come from running sums and
+    # power series (rows out of the series' range from the batched functions): the
+    # agreement is the one the note states (about 1e-8)
     import lopside.stats.sensitivity as sens
 
-    d = _heterogeneous(260, 0.05, seed=4)
-    full = sens.cumulative(d, tau2_method=method)
+    tau2, misfit = {"plain": (0.05, False), "misfit": (0.04, True)}.get(kind, (0.0, False))
+    tau2 = 0.5 if kind == "large_tau2" else tau2
+    d = _heterogeneous(260, tau2, seed=4, misfit=misfit)
+    full = sens.cumulative(d, tau2_method=method, hksj=hksj)
     monkeypatch.setattr(sens, "LARGE_K", 100)
     monkeypatch.setattr(sens, "CUMULATIVE_MORE_STEPS", 30)
-    thin = sens.cumulative(d, tau2_method=method)
-    assert "not after every study" in thin.note
+    thin = sens.cumulative(d, tau2_method=method, hksj=hksj)
+    assert "not after every study" in thin.note and "running sums" in thin.note
     assert ("second maximum on a grid" in thin.note) == (method == "REML")
     for s in thin.steps:
         ref = full.steps[s.k - 1]
+        assert (s.added, s.index, s.se_added) == (ref.added, ref.index, ref.se_added)
         assert s.random.tau2 == pytest.approx(ref.random.tau2, rel=1e-8, abs=1e-9)
-        assert s.random.estimate == pytest.approx(ref.random.estimate, rel=1e-9, abs=1e-12)
+        for a, b in ((s.random, ref.random), (s.fixed, ref.fixed)):
+            assert a.estimate == pytest.approx(b.estimate, rel=1e-9, abs=1e-12)
+            assert a.se == pytest.approx(b.se, rel=1e-8)
+            assert a.ci == pytest.approx(b.ci, rel=1e-8, abs=1e-11)
+            assert (a.model, a.k, a.df, a.hksj, a.converged) == (
+                b.model,
+                b.k,
+                b.df,
+                b.hksj,
+                b.converged,
+            )
+            assert (a.pi is None) == (b.pi is None)
+        if s.random.pi is not None:
+            assert s.random.pi == pytest.approx(ref.random.pi, rel=1e-8, abs=1e-11)
+
+
+def test_large_cumulative_reml_solves_the_reml_equation():
+    # Reference: the REML estimating equation of Viechtbauer 2005 (J Educ Behav Stat 30:
+    # 261-293, eq. for the REML estimator, from memory), tau2 = sum w^2 ((y - mu)^2 - v) /
+    # sum w^2 + 1 / sum w with w = 1/(v + tau2), solved for each step by scipy's brentq
+    from scipy.optimize import brentq
+
+    from lopside.stats.pooling_loo import cumulative_large
+    from lopside.stats.sensitivity import cumulative_steps
+
+    rng = np.random.default_rng(31)
+    k = 1200
+    v = np.sort(rng.uniform(0.05, 0.6, k)) ** 2
+    y = rng.normal(-0.2, np.sqrt(v + 0.03))
+    sizes = cumulative_steps(k)
+    _, random = cumulative_large(y, v, sizes, method="REML")
+
+    def g(t, m):
+        w = 1.0 / (v[:m] + t)
+        mu = (w * y[:m]).sum() / w.sum()
+        return (w * w * ((y[:m] - mu) ** 2 - v[:m])).sum() / (w * w).sum() + 1 / w.sum() - t
+
+    checked = 0
+    for m, r in zip(sizes.tolist(), random):
+        if m < 60 or g(0.0, m) <= 0:  # the large steps, with a root inside (0, inf)
+            continue
+        root = brentq(g, 0.0, 10.0, args=(m,), xtol=1e-15, rtol=1e-14)
+        assert r.tau2 == pytest.approx(root, rel=1e-9)
+        checked += 1
+    assert checked > 200
 
 
 @pytest.mark.parametrize("seed", [10919, 11211])

@@ -1,4 +1,5 @@
-"""Leave-one-out for many studies in O(k) memory (the note below says how)."""
+"""Leave-one-out and cumulative analyses for many studies in O(k) memory (the note below
+says how)."""
 
 from __future__ import annotations
 
@@ -20,6 +21,11 @@ from lopside.stats.tau2 import _TOL, TAU2_METHODS, estimate_tau2, tau2_dl
 # whose power sums sum_j y_j^q u_j^r are formed once. The series is used only where
 # |d| max u_j <= _SERIES_RATIO (error below 1e-18 relative with _SERIES_TERMS terms); a
 # subset outside that range, or not converged, is pooled by the scalar functions.
+#
+# The prefixes of a cumulative analysis (studies in precision order) are handled the same
+# way, with running sums over the first m studies in place of "before i + after i"; the
+# most precise study is in every prefix, so max u_j is the same for all of them. A prefix
+# outside the range of the series is pooled by the batched functions on its own mask.
 
 _SERIES_TERMS = 32
 
@@ -54,13 +60,22 @@ def _others(x: np.ndarray) -> np.ndarray:
     return before + after
 
 
-class _LooSeries:
-    """Sums over each leave-one-out subset at tau^2 near t0, from power series."""
+def _prefixes(sizes: np.ndarray):
+    """For each of the increasing sizes m, the column sums over the first m rows (a
+    cumulative analysis): the rows between sizes summed, then running sums of those."""
+    starts = np.concatenate([[0], sizes[:-1]])
+    return lambda x: np.cumsum(np.add.reduceat(x[: sizes[-1]], starts, axis=0), axis=0)
 
-    def __init__(self, yc: np.ndarray, v: np.ndarray, t0: float):
+
+class _LooSeries:
+    """Sums over each subset at tau^2 near t0, from power series: the leave-one-out subsets
+    (``reduce`` = :func:`_others`) or the prefixes of a cumulative analysis."""
+
+    def __init__(self, yc: np.ndarray, v: np.ndarray, t0: float, reduce=_others):
         self.s = 1.0 / (float(v.min()) + t0)  # the largest u_j
         self.x = 1.0 / (v + t0) / self.s  # u_j / s, in (0, 1]
         self.yc = yc
+        self.reduce = reduce
         self.p: list[np.ndarray] = []
         self._powers(4)
         self.t0 = t0
@@ -70,7 +85,8 @@ class _LooSeries:
         self.comb = {p: comb(p + m - 1, m) for p in (1, 2, 3)}
 
     def _powers(self, n: int) -> None:
-        """P[q][i, r - 1] = sum over j != i of yc_j^q x_j^r for r = 1 .. at least n (formed
+        """P[q][i, r - 1] = sum over the studies j of subset i of yc_j^q x_j^r for
+        r = 1 .. at least n (formed
         for as many powers as the steps so far needed; each column is the same whatever
         the number of columns)."""
         if self.p and self.p[0].shape[1] >= n:
@@ -78,7 +94,7 @@ class _LooSeries:
         have = self.p[0].shape[1] if self.p else 0
         n = min(_SERIES_TERMS + 3, max(n, 2 * have))
         powers = self.x[:, None] ** np.arange(1, n + 1)[None, :]
-        self.p = [_others(powers * (self.yc**q)[:, None]) for q in range(3)]
+        self.p = [self.reduce(powers * (self.yc**q)[:, None]) for q in range(3)]
 
     def sums(self, rows: np.ndarray, t: np.ndarray, need=_ALL_SUMS):
         """sum w^p y^q over subset rows[b] at t[b], for (p, q) in the order
@@ -112,18 +128,21 @@ class _LooSeries:
         return out, ratio
 
 
-def _loo_tau2_series(ser, yc, v, method, max_iter=100):
-    """tau^2 of every leave-one-out subset by scoring (REML) or Newton (PM) steps from t0.
+def _loo_tau2_series(ser, yc, v, method, max_iter=100, *, n=None, start=None):
+    """tau^2 of every subset by scoring (REML) or Newton (PM) steps from ``start`` (t0
+    when not given); ``n`` studies per subset (k - 1 when not given: leave-one-out).
 
     Returns tau^2, a flag per subset (False: use the scalar function) and the step counts.
     """
     k = yc.size
-    tau2 = np.full(k, ser.t0)
-    iters = np.zeros(k, int)
-    ok = np.zeros(k, bool)
-    act = np.arange(k)
+    rows = ser.p[0].shape[0]
+    n = np.full(rows, k - 1) if n is None else n
+    tau2 = np.full(rows, ser.t0) if start is None else np.array(start, dtype=float)
+    iters = np.zeros(rows, int)
+    ok = np.zeros(rows, bool)
+    act = np.arange(rows)
     t = tau2.copy()
-    target = k - 2.0  # PM: generalised Q of k - 1 studies equals k - 2
+    target = n - 1.0  # PM: generalised Q of n studies equals n - 1
     for it in range(1, max_iter + 1):
         need = _REML_SUMS if method == "REML" else _PM_SUMS
         (sw, swy, swy2, s2, s2y, s2y2, s3), ratio = ser.sums(act, t, need)
@@ -136,7 +155,7 @@ def _loo_tau2_series(ser, yc, v, method, max_iter=100):
             bad |= ~(info > 0)
             new = np.maximum(0.0, t + score / info)
         else:
-            f = swy2 - mu * swy - target
+            f = swy2 - mu * swy - target[act]
             # Q(t) decreases: a root at the boundary when Q(0) <= target is left to Newton
             # steps clamped at 0 (a step to 0 with f(0) < 0 ends there)
             new = np.maximum(0.0, t + f / s2r2)
@@ -221,3 +240,93 @@ def leave_one_out_large(
         method, est, swr, rq, n, tau2, converged, tuple(notes), [()] * k, hksj, confidence_level
     )
     return fixed, random, q
+
+
+@_quietly
+def cumulative_large(
+    y, v, sizes, *, method: str, hksj: bool = False, confidence_level: float = 0.95
+):
+    """Fixed- and random-effects pooling of the first ``sizes[b]`` studies, O(k) memory.
+
+    The same quantities as :func:`fixed_effect_batch` and :func:`random_effects_batch`
+    (``reml_grid=False``, without percent weights) on the prefix mask
+    ``arange(k) < sizes[:, None]``, found from running sums: the fixed effect and DL
+    exactly; REML (scoring from each prefix's DL value, as the batch does) and PM (Newton
+    steps from the DL value) with the sums at each step from the power series around the
+    tau^2 of all studies (see the note at the top). A prefix whose steps leave the range
+    of the series, or do not settle, is pooled by the batched functions on its own mask.
+
+    Returns
+    -------
+    (fixed, random) : tuple of PooledEstimate, tuple of PooledEstimate
+    """
+    from lopside.stats.pooling_batch import _one_study_notes, _pool_rows, tau2_batch
+    from lopside.stats.tau2 import _reml_scoring, tau2_pm
+
+    y, v = _as_arrays(y, v)
+    sizes = np.asarray(sizes, dtype=int)
+    k = y.size
+    centre = float(np.median(y))
+    yc = y - centre
+    w = 1.0 / v
+    sw, swy, swy2, s2 = _prefixes(sizes)(np.stack([w, w * yc, w * yc * yc, w * w], axis=1)).T
+    mu = swy / sw
+    fixed = _fixed_results(centre + mu, sw, sizes, [()] * sizes.size, confidence_level)
+    # DL of each prefix, as tau2_dl_batch
+    q = np.maximum(swy2 - mu * swy, 0.0)
+    cc = sw - s2 / sw
+    dl = np.where((sizes >= 2) & (cc > 0), np.maximum(0.0, (q - (sizes - 1)) / cc), 0.0)
+    converged = np.ones(sizes.size, bool)
+    notes = _one_study_notes(sizes)
+    if method == "DL":
+        tau2, t0, ok = dl, float(dl[-1]), np.ones(sizes.size, bool)
+    elif method in ("REML", "PM"):
+        if method == "REML":  # all studies, by the same scoring from DL (no grid)
+            t0 = _reml_scoring(y, v, tau2_dl(y, v).tau2, 100)[0].tau2
+        else:
+            t0 = tau2_pm(y, v).tau2
+        ser = _LooSeries(yc, v, t0, _prefixes(sizes))
+        many = sizes >= 2
+        tau2 = np.zeros(sizes.size)
+        ok = ~many  # one study: tau^2 = 0
+        t_m, ok_m, _ = _loo_tau2_series(ser, yc, v, method, n=sizes, start=dl)
+        tau2[many], ok[many] = t_m[many], ok_m[many]
+        redo = np.flatnonzero(~ok)
+        if redo.size:
+            mask = np.arange(k)[None, :] < sizes[redo, None]
+            t2 = tau2_batch(y, v, mask, method, reml_grid=False)
+            tau2[redo], converged[redo] = t2.tau2, t2.converged
+            for j, b in enumerate(redo.tolist()):
+                notes[b] = t2.notes[j]
+    else:
+        raise ValueError(f"unknown tau^2 method {method!r}; use one of {TAU2_METHODS}")
+    if method == "DL":
+        ser = _LooSeries(yc, v, t0, _prefixes(sizes))
+    est = np.empty(sizes.size)
+    swr = np.empty(sizes.size)
+    rq = np.zeros(sizes.size)
+    rows = np.arange(sizes.size)
+    (s_w, s_wy, s_wy2, *_), ratio = ser.sums(rows, tau2, _ALL_SUMS[:3])
+    near = ratio <= _SERIES_RATIO
+    est[near] = centre + s_wy[near] / s_w[near]
+    swr[near] = s_w[near]
+    rq[near] = np.maximum(s_wy2[near] - s_wy[near] ** 2 / s_w[near], 0.0)
+    far = np.flatnonzero(~near)
+    if far.size:
+        mask = np.arange(k)[None, :] < sizes[far, None]
+        e, sw_f, rq_f, _ = _pool_rows(y, v, mask, tau2[far], hksj=True, with_weights=False)
+        est[far], swr[far], rq[far] = e, sw_f, rq_f
+    random = _random_results(
+        method,
+        est,
+        swr,
+        rq,
+        sizes,
+        tau2,
+        converged,
+        tuple(notes),
+        [()] * sizes.size,
+        hksj,
+        confidence_level,
+    )
+    return fixed, random
