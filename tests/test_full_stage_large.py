@@ -360,6 +360,64 @@ def test_large_selection_model_from_one_start_agrees_and_says_so(monkeypatch):
     assert one.omega[1] == pytest.approx(both.omega[1], rel=1e-4)
 
 
+def _floats(obj, path=""):
+    """(path, value) of every number in a result, in field order."""
+    if dataclasses.is_dataclass(obj) and not isinstance(obj, type):
+        for f in dataclasses.fields(obj):
+            yield from _floats(getattr(obj, f.name), f"{path}.{f.name}")
+    elif isinstance(obj, (tuple, list)):
+        for i, x in enumerate(obj):
+            yield from _floats(x, f"{path}[{i}]")
+    else:
+        yield path, obj
+
+
+def _agree(fast, exact, *, rel, scale_of=None):
+    """Every field equal, numbers within ``rel`` of the exact ones (relative to the size of
+    the number, or of ``scale_of(path)`` for one that may cross 0)."""
+    a, b = list(_floats(fast)), list(_floats(exact))
+    assert [p for p, _ in a] == [p for p, _ in b]
+    for (path, x), (_, z) in zip(a, b):
+        if isinstance(z, float) and isinstance(x, float) and math.isfinite(z):
+            scale = max(abs(z), scale_of(path) if scale_of else 0.0)
+            assert x == pytest.approx(z, rel=rel, abs=rel * scale), path
+        else:
+            assert repr(x) == repr(z), path
+
+
+@pytest.mark.parametrize("seed", range(8))
+def test_large_selection_sensitivity_from_group_sums_agrees_with_every_row(monkeypatch, seed):
+    # Reference: the row-by-row estimates, CR2 variance and Satterthwaite df of
+    # selection_sensitivity (below the threshold; checked against explicit CR2 matrices
+    # and statsmodels in test_selection_first_principles.py / test_selection_sensitivity.py).
+    # Above the threshold the same formulas are summed per group: equal to rounding.
+    import lopside.stats.sensitivity as sens
+    from lopside.stats import pooling
+    from lopside.stats.selection_sensitivity import selection_sensitivity
+
+    rng = np.random.default_rng(100 + seed)
+    k = int(rng.choice([40, 150, 320]))
+    se = rng.uniform(0.05, 0.6, k) * float(rng.choice([1.0, 10.0]))
+    tau2 = float(rng.choice([0.0, 0.03, 0.3]))
+    y = rng.normal(rng.normal(-0.3, 0.3) - rng.uniform(0, 1.5) * se, np.sqrt(se**2 + tau2))
+    y = y + float(rng.choice([0.0, 0.0, 20.0]))  # a mean far from 0 as well
+    from lopside.stats.data import StudyData
+
+    d = StudyData.from_arrays("OR", y, se)
+    re = pooling.random_effects(d.y, d.v, method="REML")
+    exact = selection_sensitivity(d, pooled_estimate=re.estimate, tau2=re.tau2)
+    monkeypatch.setattr(sens, "LARGE_K", 10)
+    fast = selection_sensitivity(d, pooled_estimate=re.estimate, tau2=re.tau2)
+    # an estimate or limit near 0 is compared on the scale of the uncorrected SE
+    spread = float(np.max(np.abs(y))) + float(np.max(se))
+    _agree(
+        fast,
+        exact,
+        rel=1e-9,
+        scale_of=lambda p: spread if "curve" in p or "ci_" in p or "estimate" in p else 0.0,
+    )
+
+
 @pytest.mark.parametrize("key", ["FE-IV", "REML+HKSJ", "DL", "PM"])
 def test_large_reconciliation_leave_one_out_agrees_with_the_mask(monkeypatch, key):
     # Reference: the batched pooling on a leave-one-out mask (checked against the scalar
