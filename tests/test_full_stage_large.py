@@ -418,6 +418,62 @@ def test_large_selection_sensitivity_from_group_sums_agrees_with_every_row(monke
     )
 
 
+@pytest.mark.parametrize("seed", range(6))
+def test_large_fixed_weight_fit_from_a_warm_start_agrees_with_the_plain_fit(monkeypatch, seed):
+    # Reference: the fixed-weight selection models fitted by the exact Newton steps from
+    # the uncorrected estimate (below the threshold; each pattern checked against scipy's
+    # maximisation of the same likelihood in test_selection_sensitivity.py). Above it the
+    # same exact steps start where the interpolated likelihood peaks: the same maximum to
+    # the Newton stopping rule (a last step below 1e-6 of the parameters' size lands
+    # within about 1e-12 of it), asked here to 1e-9 of that size.
+    import lopside.stats.selection_fixed as sf
+    import lopside.stats.sensitivity as sens
+    from lopside.stats import pooling
+    from lopside.stats.data import StudyData
+
+    rng = np.random.default_rng(200 + seed)
+    k = int(rng.choice([60, 200, 400]))
+    se = np.exp(rng.uniform(math.log(0.02), math.log(float(rng.choice([0.3, 3.0]))), k))
+    tau2 = float(rng.choice([0.0, 0.01, 0.3]))
+    y = rng.normal(rng.normal(-0.3, 0.3) - rng.uniform(0, 1.5) * se, np.sqrt(se**2 + tau2))
+    d = StudyData.from_arrays("OR", y, se)
+    re = pooling.random_effects(d.y, d.v, method="REML")
+    exact = sf.fixed_weight_selection(d, pooled_estimate=re.estimate, tau2=re.tau2)
+    calls = []
+    smooth = sf._SmoothBatch.__init__
+    monkeypatch.setattr(sf._SmoothBatch, "__init__", lambda s, *a: calls.append(1) or smooth(s, *a))
+    monkeypatch.setattr(sens, "LARGE_K", 10)
+    fast = sf.fixed_weight_selection(d, pooled_estimate=re.estimate, tau2=re.tau2)
+    assert calls == [1]  # the warm start was used
+    pairs = [(fast.unadjusted, exact.unadjusted), (fast.unadjusted_tau2, exact.unadjusted_tau2)]
+    for a, b in zip(fast.estimates, exact.estimates):
+        assert type(a) is type(b)
+        if isinstance(b, sf.FixedWeightEstimate):
+            pairs += [(a.estimate, b.estimate), (a.tau2, b.tau2)]
+    size = max(1.0, *(abs(b) for _, b in pairs))
+    for a, b in pairs:
+        assert a == pytest.approx(b, rel=1e-9, abs=1e-9 * size)
+
+
+def test_interpolated_selection_sums_are_close_to_the_exact_ones():
+    # Reference: _Batch's sums for every study (the exact model); the interpolated ones
+    # (a starting point only; 32 nodes over two decades of SE) are that model's sums to
+    # 1e-6, close enough that the exact Newton steps from their maximum need one step
+    from lopside.stats.selection_fixed import CUTPOINTS, PATTERNS, _Batch, _SmoothBatch
+
+    rng = np.random.default_rng(9)
+    se = np.exp(rng.uniform(math.log(0.02), math.log(2.0), 700))
+    y = rng.normal(0.3, 0.5, 700)
+    exact, smooth = _Batch(y, se, CUTPOINTS), _SmoothBatch(y, se, CUTPOINTS)
+    logw = np.log(np.array([PATTERNS[p] for p in PATTERNS]))
+    steps = np.exp(logw)[:, 1:] - np.exp(logw)[:, :-1]
+    mu, t2 = rng.normal(0.3, 0.3, 4), rng.uniform(0.0, 0.2, 4)
+    st = np.sqrt(se[None, :] ** 2 + t2[:, None])
+    a = exact._selection_sums(mu, st, steps, 5, t2)
+    b = smooth._selection_sums(mu, st, steps, 5, t2)
+    assert np.max(np.abs(a - b)) < 1e-6 * max(1.0, np.max(np.abs(a)))
+
+
 @pytest.mark.parametrize("key", ["FE-IV", "REML+HKSJ", "DL", "PM"])
 def test_large_reconciliation_leave_one_out_agrees_with_the_mask(monkeypatch, key):
     # Reference: the batched pooling on a leave-one-out mask (checked against the scalar
