@@ -474,24 +474,6 @@ def test_interpolated_selection_sums_are_close_to_the_exact_ones():
     assert np.max(np.abs(a - b)) < 1e-6 * max(1.0, np.max(np.abs(a)))
 
 
-def test_selection_hessian_from_one_array_evaluation_agrees_with_point_by_point():
-    # Reference: the central-difference Hessian with the likelihood evaluated point by
-    # point (the code below the threshold); above it all the points in one array
-    # evaluation, the same arithmetic per study (equal to rounding, asked to 1e-9)
-    from lopside.stats.adjust_selection import _hessian, _Model
-
-    rng = np.random.default_rng(11)
-    for cuts in ((0.025,), (0.025, 0.5)):
-        se = rng.uniform(0.05, 0.7, 700)
-        model = _Model(rng.normal(0.3, 0.5, 700), se, cuts)
-        x = np.concatenate([[0.25, 0.2], rng.normal(-0.3, 0.2, len(cuts))])
-        for free in (np.ones(x.size, bool), np.arange(x.size) != 1):
-            one = _hessian(model.negll, x, free)  # selection=True by default
-            many = _hessian(model.negll, x, free, f_many=model.negll_many)
-            assert many == pytest.approx(one, rel=1e-9, abs=1e-9 * np.abs(one).max())
-        assert model.negll_many(x[None, :])[0] == pytest.approx(model.negll(x), rel=1e-13)
-
-
 @pytest.mark.parametrize("key", ["FE-IV", "REML+HKSJ", "DL", "PM"])
 def test_large_reconciliation_leave_one_out_agrees_with_the_mask(monkeypatch, key):
     # Reference: the batched pooling on a leave-one-out mask (checked against the scalar

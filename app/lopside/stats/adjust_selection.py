@@ -143,30 +143,6 @@ class _Model:
             ll = ll + logw[self.interval] - np.log(A)
         return float(-ll.sum())
 
-    def negll_many(self, thetas: np.ndarray) -> np.ndarray:
-        """:meth:`negll` (with selection) at each row of ``thetas`` in one array evaluation;
-        the same arithmetic per study, summed in another order (equal to rounding)."""
-        mu, tau = thetas[:, 0], thetas[:, 1]
-        st2 = self.v[None, :] + (tau * tau)[:, None]
-        st = np.sqrt(st2)
-        r = self.y[None, :] - mu[:, None]
-        ll = -0.5 * np.log(2.0 * np.pi * st2) - 0.5 * r * r / st2
-        logw = np.concatenate([np.zeros((thetas.shape[0], 1)), thetas[:, 2:]], axis=1)
-        cdf = np.empty((thetas.shape[0], *self.bounds.shape))
-        cdf[:, :, 0] = 1.0
-        cdf[:, :, -1] = 0.0
-        self._ndtr(
-            (self.bounds[None, :, 1:-1] - mu[:, None, None]) / st[:, :, None], out=cdf[:, :, 1:-1]
-        )
-        P = cdf[:, :, :-1] - cdf[:, :, 1:]
-        A = (P @ np.exp(logw)[:, :, None])[:, :, 0]
-        bad = np.any(A <= 0, axis=1)
-        with np.errstate(divide="ignore", invalid="ignore"):
-            ll = ll + logw[:, self.interval] - np.log(A)
-        f = -ll.sum(axis=1)
-        f[bad] = 1e300
-        return f
-
     def negll_grad(self, phi: np.ndarray, *, selection: bool = True):
         """Negative log-likelihood and its exact gradient at phi = (mu, tau², log ω_2..J).
 
@@ -282,29 +258,12 @@ def _fit(model: _Model, starts: list[np.ndarray], bounds, selection: bool):
     return best, ok
 
 
-def _hessian(f, x: np.ndarray, free: np.ndarray, *, f_many=None) -> np.ndarray:
-    """Central-difference Hessian of f over the coordinates ``free``. ``f_many``, if
-    given, evaluates f at the rows of a matrix: every point is then evaluated at once."""
+def _hessian(f, x: np.ndarray, free: np.ndarray) -> np.ndarray:
+    """Central-difference Hessian of f over the coordinates ``free``."""
     idx = np.flatnonzero(free)
     m = idx.size
     h = 1e-4 * np.maximum(1.0, np.abs(x))
     H = np.empty((m, m))
-    if f_many is not None:
-        points: list[np.ndarray] = []
-        where: dict[bytes, int] = {}
-
-        def at(p):
-            where.setdefault(p.tobytes(), len(points))
-            if where[p.tobytes()] == len(points):
-                points.append(p)
-            return 0.0
-
-        _hessian(at, x, free)  # collect the points (these values are not used)
-        values = f_many(np.array(points))
-
-        def f(p):
-            return float(values[where[p.tobytes()]])
-
     f0 = f(x)
     for a in range(m):
         i = idx[a]
@@ -509,11 +468,7 @@ def _standard_errors(model: _Model, x: np.ndarray, se: np.ndarray, note_parts: l
         x[1] = 0.0
         free[1] = False
         note_parts.append("τ² was estimated at 0 (boundary); the SEs treat it as fixed")
-    from .sensitivity import LARGE_K
-
-    # many studies: the points of the difference quotients in one array evaluation
-    many = model.negll_many if model.y.size > LARGE_K else None
-    H = _hessian(lambda t: model.negll(t, selection=True), x, free, f_many=many)
+    H = _hessian(lambda t: model.negll(t, selection=True), x, free)
     eig = np.linalg.eigvalsh(0.5 * (H + H.T))
     if not np.all(np.isfinite(eig)) or eig.min() <= 1e-8 * max(1.0, abs(eig.max())):
         return NotComputable(
