@@ -451,6 +451,120 @@ def test_large_selection_model_from_one_start_agrees_and_says_so(monkeypatch):
     assert one.omega[1] == pytest.approx(both.omega[1], rel=1e-4)
 
 
+def _floats(obj, path=""):
+    """(path, value) of every number in a result, in field order."""
+    if dataclasses.is_dataclass(obj) and not isinstance(obj, type):
+        for f in dataclasses.fields(obj):
+            yield from _floats(getattr(obj, f.name), f"{path}.{f.name}")
+    elif isinstance(obj, (tuple, list)):
+        for i, x in enumerate(obj):
+            yield from _floats(x, f"{path}[{i}]")
+    else:
+        yield path, obj
+
+
+def _agree(fast, exact, *, rel, scale_of=None):
+    """Every field equal, numbers within ``rel`` of the exact ones (relative to the size of
+    the number, or of ``scale_of(path)`` for one that may cross 0)."""
+    a, b = list(_floats(fast)), list(_floats(exact))
+    assert [p for p, _ in a] == [p for p, _ in b]
+    for (path, x), (_, z) in zip(a, b):
+        if isinstance(z, float) and isinstance(x, float) and math.isfinite(z):
+            scale = max(abs(z), scale_of(path) if scale_of else 0.0)
+            assert x == pytest.approx(z, rel=rel, abs=rel * scale), path
+        else:
+            assert repr(x) == repr(z), path
+
+
+@pytest.mark.parametrize("seed", range(8))
+def test_large_selection_sensitivity_from_group_sums_agrees_with_every_row(monkeypatch, seed):
+    # Reference: the row-by-row estimates, CR2 variance and Satterthwaite df of
+    # selection_sensitivity (below the threshold; checked against explicit CR2 matrices
+    # and statsmodels in test_selection_first_principles.py / test_selection_sensitivity.py).
+    # Above the threshold the same formulas are summed per group: equal to rounding.
+    import lopside.stats.sensitivity as sens
+    from lopside.stats import pooling
+    from lopside.stats.selection_sensitivity import selection_sensitivity
+
+    rng = np.random.default_rng(100 + seed)
+    k = int(rng.choice([40, 150, 320]))
+    se = rng.uniform(0.05, 0.6, k) * float(rng.choice([1.0, 10.0]))
+    tau2 = float(rng.choice([0.0, 0.03, 0.3]))
+    y = rng.normal(rng.normal(-0.3, 0.3) - rng.uniform(0, 1.5) * se, np.sqrt(se**2 + tau2))
+    y = y + float(rng.choice([0.0, 0.0, 20.0]))  # a mean far from 0 as well
+    from lopside.stats.data import StudyData
+
+    d = StudyData.from_arrays("OR", y, se)
+    re = pooling.random_effects(d.y, d.v, method="REML")
+    exact = selection_sensitivity(d, pooled_estimate=re.estimate, tau2=re.tau2)
+    monkeypatch.setattr(sens, "LARGE_K", 10)
+    fast = selection_sensitivity(d, pooled_estimate=re.estimate, tau2=re.tau2)
+    # an estimate or limit near 0 is compared on the scale of the uncorrected SE
+    spread = float(np.max(np.abs(y))) + float(np.max(se))
+    _agree(
+        fast,
+        exact,
+        rel=1e-9,
+        scale_of=lambda p: spread if "curve" in p or "ci_" in p or "estimate" in p else 0.0,
+    )
+
+
+@pytest.mark.parametrize("seed", range(6))
+def test_large_fixed_weight_fit_from_a_warm_start_agrees_with_the_plain_fit(monkeypatch, seed):
+    # Reference: the fixed-weight selection models fitted by the exact Newton steps from
+    # the uncorrected estimate (below the threshold; each pattern checked against scipy's
+    # maximisation of the same likelihood in test_selection_sensitivity.py). Above it the
+    # same exact steps start where the interpolated likelihood peaks: the same maximum to
+    # the Newton stopping rule (a last step below 1e-6 of the parameters' size lands
+    # within about 1e-12 of it), asked here to 1e-9 of that size.
+    import lopside.stats.selection_fixed as sf
+    import lopside.stats.sensitivity as sens
+    from lopside.stats import pooling
+    from lopside.stats.data import StudyData
+
+    rng = np.random.default_rng(200 + seed)
+    k = int(rng.choice([60, 200, 400]))
+    se = np.exp(rng.uniform(math.log(0.02), math.log(float(rng.choice([0.3, 3.0]))), k))
+    tau2 = float(rng.choice([0.0, 0.01, 0.3]))
+    y = rng.normal(rng.normal(-0.3, 0.3) - rng.uniform(0, 1.5) * se, np.sqrt(se**2 + tau2))
+    d = StudyData.from_arrays("OR", y, se)
+    re = pooling.random_effects(d.y, d.v, method="REML")
+    exact = sf.fixed_weight_selection(d, pooled_estimate=re.estimate, tau2=re.tau2)
+    calls = []
+    smooth = sf._SmoothBatch.__init__
+    monkeypatch.setattr(sf._SmoothBatch, "__init__", lambda s, *a: calls.append(1) or smooth(s, *a))
+    monkeypatch.setattr(sens, "LARGE_K", 10)
+    fast = sf.fixed_weight_selection(d, pooled_estimate=re.estimate, tau2=re.tau2)
+    assert calls == [1]  # the warm start was used
+    pairs = [(fast.unadjusted, exact.unadjusted), (fast.unadjusted_tau2, exact.unadjusted_tau2)]
+    for a, b in zip(fast.estimates, exact.estimates):
+        assert type(a) is type(b)
+        if isinstance(b, sf.FixedWeightEstimate):
+            pairs += [(a.estimate, b.estimate), (a.tau2, b.tau2)]
+    size = max(1.0, *(abs(b) for _, b in pairs))
+    for a, b in pairs:
+        assert a == pytest.approx(b, rel=1e-9, abs=1e-9 * size)
+
+
+def test_interpolated_selection_sums_are_close_to_the_exact_ones():
+    # Reference: _Batch's sums for every study (the exact model); the interpolated ones
+    # (a starting point only; 32 nodes over two decades of SE) are that model's sums to
+    # 1e-6, close enough that the exact Newton steps from their maximum need one step
+    from lopside.stats.selection_fixed import CUTPOINTS, PATTERNS, _Batch, _SmoothBatch
+
+    rng = np.random.default_rng(9)
+    se = np.exp(rng.uniform(math.log(0.02), math.log(2.0), 700))
+    y = rng.normal(0.3, 0.5, 700)
+    exact, smooth = _Batch(y, se, CUTPOINTS), _SmoothBatch(y, se, CUTPOINTS)
+    logw = np.log(np.array([PATTERNS[p] for p in PATTERNS]))
+    steps = np.exp(logw)[:, 1:] - np.exp(logw)[:, :-1]
+    mu, t2 = rng.normal(0.3, 0.3, 4), rng.uniform(0.0, 0.2, 4)
+    st = np.sqrt(se[None, :] ** 2 + t2[:, None])
+    a = exact._selection_sums(mu, st, steps, 5, t2)
+    b = smooth._selection_sums(mu, st, steps, 5, t2)
+    assert np.max(np.abs(a - b)) < 1e-6 * max(1.0, np.max(np.abs(a)))
+
+
 @pytest.mark.parametrize("key", ["FE-IV", "REML+HKSJ", "DL", "PM"])
 def test_large_reconciliation_leave_one_out_agrees_with_the_mask(monkeypatch, key):
     # Reference: the batched pooling on a leave-one-out mask (checked against the scalar

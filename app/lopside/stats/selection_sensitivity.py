@@ -50,6 +50,7 @@ import numpy as np
 
 from .data import StudyData
 from .results import NotComputable
+from .selection_two_groups import TwoGroups
 
 #: the η values every analysis reports (the user may add one more)
 DEFAULT_ETAS: tuple[float, ...] = (1.0, 2.0, 5.0, 10.0, 20.0, 50.0)
@@ -265,19 +266,31 @@ def _model(
     n_aff = int(aff.sum())
     n_non = k - n_aff
 
-    def evaluate_a(a: np.ndarray):
+    from .sensitivity import LARGE_K
+
+    # many studies: the same formulas from sums over the two groups (see
+    # selection_two_groups; equal to rounding, nothing left out)
+    groups = TwoGroups(yy, w, aff, phi) if k > LARGE_K else None
+
+    def with_crit(est, se, df):
         if robust:
-            est, se, df = _robust(yy, w, a, phi)
             with np.errstate(invalid="ignore"):
                 crit = np.where(np.isfinite(df) & (df > 0), stdtrit(df, q), np.nan)
             return est, se, df, crit
+        return est, se, df, np.full(est.shape, z)
+
+    def evaluate_a(a: np.ndarray):
+        if robust:
+            return with_crit(*_robust(yy, w, a, phi))
         est, se = _fe(yy, w, a)
-        return est, se, np.full(est.shape, np.nan), np.full(est.shape, z)
+        return with_crit(est, se, np.full(est.shape, np.nan))
 
     def weights_for(eta_arr: np.ndarray) -> np.ndarray:
         return np.where(aff[None, :], 1.0, eta_arr[:, None])
 
     def evaluate(eta_arr: np.ndarray):
+        if groups is not None:
+            return with_crit(*groups.evaluate(np.ones(eta_arr.size), eta_arr))
         return evaluate_a(weights_for(eta_arr))
 
     # One array evaluation for what every call needs: the reported η, the first grid of
@@ -291,11 +304,20 @@ def _model(
     search0 = _geom(1.0, ETA_SEARCH_MAX, SEARCH_POINTS)
     curve_top = _curve_top(guess, None)
     curve_grid = _geom(1.0, curve_top, CURVE_POINTS)
-    rows = [weights_for(np.concatenate([eta_arr, search0, curve_grid]))]
+    first_etas = np.concatenate([eta_arr, search0, curve_grid])
     worst_row = n_non > 0 and (not robust or n_non >= 2)
-    if worst_row:
-        rows.append((~aff).astype(float)[None, :])
-    est_all, se_all, df_all, crit_all = evaluate_a(np.vstack(rows) if worst_row else rows[0])
+    if groups is not None:
+        # the rows as (α, β): α = 1, β = η; the worst case α = 0, β = 1
+        alpha = np.ones(first_etas.size + worst_row)
+        beta = np.concatenate([first_etas, [1.0]]) if worst_row else first_etas
+        if worst_row:
+            alpha[-1] = 0.0
+        est_all, se_all, df_all, crit_all = with_crit(*groups.evaluate(alpha, beta))
+    else:
+        rows = [weights_for(first_etas)]
+        if worst_row:
+            rows.append((~aff).astype(float)[None, :])
+        est_all, se_all, df_all, crit_all = evaluate_a(np.vstack(rows) if worst_row else rows[0])
     n_e, n_s = eta_arr.size, search0.size
     est, se, df, crit = (x[:n_e] for x in (est_all, se_all, df_all, crit_all))
     cut = slice(n_e + n_s, n_e + n_s + curve_grid.size)
