@@ -643,3 +643,68 @@ def test_a_large_review_says_what_was_thinned_in_the_result_json_and_sections(mo
 
 if __name__ == "__main__" and "--record" in sys.argv:
     _record()
+
+
+def test_large_leave_one_out_rows_are_made_only_when_listed(monkeypatch):
+    """Above the threshold the analysis reads the leave-one-out numbers as arrays (the
+    influence diagnostics, the summary) and the rows are made when an output lists them
+    (the JSON). Reference: random_effects and the influence measures computed from rows
+    made at once (the code below the threshold), and pickle/json from the standard
+    library."""
+    import pickle
+
+    import lopside.stats.sensitivity as sens
+    from lopside.report import plain
+    from lopside.stats.influence import influence
+    from lopside.stats.pooling import random_effects
+    from lopside.stats.results import RowsOnDemand
+    from lopside.summary.pooled import sensitivity_section
+
+    d = _heterogeneous(240, 0.04, seed=5)
+    monkeypatch.setattr(sens, "LARGE_K", 100)
+    loo = sens.leave_one_out(d, tau2_method="REML")
+    assert isinstance(loo.rows, RowsOnDemand) and len(loo.rows) == d.k
+    infl = influence(d, loo)
+    section = sensitivity_section(
+        type(
+            "R", (), {"measure": "OR", "leave_one_out": loo, "cumulative": None, "failsafe": None}
+        )()
+    )
+    assert not loo.rows.made  # neither the diagnostics nor the summary made the rows
+    cols = loo.rows.columns
+    with pytest.raises(ValueError):
+        cols.estimate[0] = 0.0  # what the rows will be made from cannot change
+    rows = list(loo.rows)
+    assert loo.rows.made and [r.index for r in rows] == list(range(d.k))
+    assert [r.random.estimate for r in rows] == cols.estimate.tolist()
+    assert [r.random.se for r in rows] == cols.se.tolist()
+    assert [r.tau2 for r in rows] == cols.tau2.tolist() and [r.q for r in rows] == cols.q.tolist()
+    for r in rows[::29]:
+        keep = np.arange(d.k) != r.index
+        ref = random_effects(d.y[keep], d.v[keep], method="REML")
+        assert r.random.estimate == pytest.approx(ref.estimate, rel=1e-9, abs=1e-12)
+    # the diagnostics and the summary from rows made at once: the same numbers
+    eager = sens.LeaveOneOutResult(
+        tuple(rows),
+        *(
+            getattr(loo, f)
+            for f in (
+                "full_fixed",
+                "full_random",
+                "tau2_method",
+                "hksj",
+                "confidence_level",
+                "note",
+            )
+        ),
+    )
+    assert eager == loo and loo == eager
+    again = influence(d, eager)
+    for name in ("rstudent", "dffits", "cooks", "tau2_del", "q_del", "i2_del"):
+        assert np.array_equal(getattr(infl, name), getattr(again, name), equal_nan=True)
+    lo = min((r.random.estimate, r.omitted) for r in rows)
+    assert lo[1] in section.rows[0][1]
+    listed = plain(loo)["rows"]
+    assert len(listed) == d.k and listed[3]["random"]["estimate"] == rows[3].random.estimate
+    back = pickle.loads(pickle.dumps(loo))
+    assert back == loo and isinstance(back.rows, tuple)

@@ -15,7 +15,7 @@ from typing import Any
 import numpy as np
 
 from . import __version__
-from .stats.results import ConfidenceInterval, NotComputable, PooledEstimate
+from .stats.results import ConfidenceInterval, NotComputable, PooledEstimate, RowsOnDemand
 
 #: per dataclass type: the names of the fields that plain() writes
 _FIELDS: dict[type, tuple[str, ...]] = {}
@@ -62,6 +62,8 @@ def plain(obj: Any) -> Any:
         return [plain(v) for v in obj]
     if isinstance(obj, np.ndarray):
         return [plain(v) for v in obj.tolist()]
+    if isinstance(obj, RowsOnDemand):  # a large review's rows, made now
+        return [plain(v) for v in obj]
     if isinstance(obj, (np.floating, float)):
         return _plain_float(obj)
     if isinstance(obj, (np.integer,)):

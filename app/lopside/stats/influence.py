@@ -138,15 +138,17 @@ def influence(data: StudyData, loo) -> Influence | NotComputable:
     k = data.k
     if len(loo.rows) != k:
         return NotComputable("the leave-one-out results do not match the studies")
+    from lopside.stats.sensitivity import leave_one_out_columns
+
     full = loo.full_random
-    rows = loo.rows
-    if not all(hasattr(r.random, "estimate") for r in rows) or not hasattr(full, "estimate"):
+    cols = leave_one_out_columns(loo)
+    if cols is None or not hasattr(full, "estimate"):
         return NotComputable("a study left out could not be pooled")
-    mu_del = np.array([r.random.estimate for r in rows])
-    var_del = np.array([r.random.se for r in rows]) ** 2
-    tau2_del = np.array([r.tau2 for r in rows])
-    q_del = np.array([r.q for r in rows])
-    i2_del = np.array([r.i2 if isinstance(r.i2, (int, float)) else np.nan for r in rows])
+    mu_del = cols.estimate
+    var_del = cols.se**2
+    tau2_del = cols.tau2
+    q_del = cols.q
+    i2_del = cols.i2
     m = influence_measures(
         data.y, data.v, full.tau2, full.estimate, full.se**2, mu_del, var_del, tau2_del
     )

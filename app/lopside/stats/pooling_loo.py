@@ -3,11 +3,24 @@ says how)."""
 
 from __future__ import annotations
 
+from functools import partial
+from typing import NamedTuple
+
 import numpy as np
 
 from lopside.stats.pooling_base import _as_arrays
 from lopside.stats.pooling_batch import _BLOCK, _fixed_results, _quietly, _random_results
 from lopside.stats.tau2 import _TOL, TAU2_METHODS, estimate_tau2, tau2_dl
+
+
+class LooArrays(NamedTuple):
+    """The random-effects numbers of each leave-one-out row, as arrays (row i without
+    study i): estimate, model-based SE (without HKSJ) and tau^2."""
+
+    estimate: np.ndarray
+    se: np.ndarray
+    tau2: np.ndarray
+
 
 # Pooling k subsets of k - 1 studies as pooling_batch does costs k x k work per iteration. For large k
 # every sum over a subset is taken instead as (sum of the studies before i) + (sum of the
@@ -172,7 +185,14 @@ def _loo_tau2_series(ser, yc, v, method, max_iter=100, *, n=None, start=None):
 
 @_quietly
 def leave_one_out_large(
-    y, v, *, method: str, hksj: bool = False, confidence_level: float = 0.95, tau2_full=None
+    y,
+    v,
+    *,
+    method: str,
+    hksj: bool = False,
+    confidence_level: float = 0.95,
+    tau2_full=None,
+    deferred: bool = False,
 ):
     """Fixed- and random-effects pooling without each study in turn, O(k) memory.
 
@@ -186,6 +206,9 @@ def leave_one_out_large(
     Returns
     -------
     (fixed, random, q) : tuple of PooledEstimate, tuple of PooledEstimate, ndarray
+        With ``deferred``, ``fixed`` and ``random`` are functions that make those tuples,
+        and a fourth item holds the arrays they are made from: ``LooArrays`` (the random
+        effects' estimate, model-based SE and tau^2 of each row).
     """
     y, v = _as_arrays(y, v)
     k = y.size
@@ -196,7 +219,6 @@ def leave_one_out_large(
     sw, swy, swy2, s2 = _others(np.stack([w, w * yc, w * yc * yc, w * w], axis=1)).T
     mu = swy / sw
     q = np.maximum(swy2 - mu * swy, 0.0)
-    fixed = _fixed_results(centre + mu, sw, n, [()] * k, confidence_level)
     converged = np.ones(k, bool)
     notes = [""] * k
     if method == "DL":
@@ -236,10 +258,26 @@ def leave_one_out_large(
         res = yc[None, :] - e[:, None]
         est[r], swr[r] = centre + e, s_w
         rq[r] = (wb * res * res).sum(axis=1)
-    random = _random_results(
-        method, est, swr, rq, n, tau2, converged, tuple(notes), [()] * k, hksj, confidence_level
+    # made now or, deferred, when first read: with division warnings off either way
+    fixed = partial(_quietly(_fixed_results), centre + mu, sw, n, [()] * k, confidence_level)
+    random = partial(
+        _quietly(_random_results),
+        method,
+        est,
+        swr,
+        rq,
+        n,
+        tau2,
+        converged,
+        tuple(notes),
+        [()] * k,
+        hksj,
+        confidence_level,
     )
-    return fixed, random, q
+    if deferred:
+        # 1/sqrt(sum of weights): the same operation as _random_results' model-based SE
+        return fixed, random, q, LooArrays(est, 1.0 / np.sqrt(swr), tau2)
+    return fixed(), random(), q
 
 
 @_quietly

@@ -8,6 +8,7 @@ instead of raising or returning NaN; the window, CLI and sheet show the reason.
 from __future__ import annotations
 
 import math
+from collections.abc import Sequence
 from dataclasses import dataclass
 from typing import NamedTuple
 
@@ -67,3 +68,61 @@ class PooledEstimate:
     weights: tuple[float, ...] = ()
     converged: bool = True
     note: str = ""
+
+
+class RowsOnDemand(Sequence):
+    """The rows of a result, made when first read (a read-only sequence, equal to the
+    tuple of its rows).
+
+    For a large review the rows of leave-one-out are thousands of result objects that the
+    analysis itself never reads (it reads ``columns``, the arrays they are made from);
+    only an output that lists them (the JSON) pays for making them. ``make()`` returns the
+    rows in order; it is called once (twice at worst, when two threads ask at the same
+    moment: the same rows either way). Pickled as the tuple of its rows.
+    """
+
+    __slots__ = ("_n", "_make", "_rows", "columns")
+
+    def __init__(self, n: int, make, columns=None) -> None:
+        self._n = int(n)
+        self._make = make
+        self._rows: tuple | None = None
+        #: the numbers the rows are made from, for readers that need only those
+        self.columns = columns
+
+    def _all(self) -> tuple:
+        rows = self._rows
+        if rows is None:
+            rows = tuple(self._make())
+            if len(rows) != self._n:
+                raise RuntimeError(f"{len(rows)} rows made where {self._n} were expected")
+            self._rows = rows
+        return rows
+
+    @property
+    def made(self) -> bool:
+        """Whether the rows have been made (for tests and benchmarks)."""
+        return self._rows is not None
+
+    def __len__(self) -> int:
+        return self._n
+
+    def __getitem__(self, i):
+        return self._all()[i]
+
+    def __iter__(self):
+        return iter(self._all())
+
+    def __eq__(self, other) -> bool:
+        if isinstance(other, (tuple, RowsOnDemand)):
+            return self._all() == tuple(other)
+        return NotImplemented
+
+    def __hash__(self) -> int:
+        return hash(self._all())
+
+    def __repr__(self) -> str:
+        return repr(self._all())
+
+    def __reduce__(self):
+        return (tuple, (self._all(),))

@@ -12,6 +12,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+from typing import NamedTuple
 
 import numpy as np
 
@@ -27,7 +28,7 @@ from .pooling import (
 )
 from .pooling_batch import instances
 from .pooling_loo import cumulative_large
-from .results import NotComputable, PooledEstimate
+from .results import NotComputable, PooledEstimate, RowsOnDemand
 
 FAIL_SAFE_CAUTION = (
     "Fail-safe N is not recommended (Cochrane Handbook 5.1, section 10.4.4.3): the number "
@@ -102,8 +103,23 @@ class LeaveOneOutRow:
     q: float = float("nan")
 
 
+class LeaveOneOutColumns(NamedTuple):
+    """The leave-one-out rows' random-effects numbers as arrays (row i without study i):
+    what the influence diagnostics and the summary read, without making each row."""
+
+    omitted: tuple[str, ...]
+    estimate: np.ndarray
+    #: model-based SE (without HKSJ)
+    se: np.ndarray
+    tau2: np.ndarray
+    q: np.ndarray
+    i2: np.ndarray
+
+
 @dataclass(frozen=True, slots=True)
 class LeaveOneOutResult:
+    #: a tuple; above LARGE_K a RowsOnDemand (equal to the tuple, made when first read)
+    #: whose ``columns`` hold the arrays
     rows: tuple[LeaveOneOutRow, ...]
     full_fixed: PooledEstimate
     full_random: PooledEstimate
@@ -147,18 +163,32 @@ def leave_one_out(
     full_random = random_effects(
         y, v, method=tau2_method, hksj=hksj, confidence_level=confidence_level
     )
-    note = ""
+    full_fixed = fixed_effect(y, v, confidence_level=confidence_level)
     if k > LARGE_K:
-        # O(k) memory: running sums and warm starts instead of a k x k mask
-        fixed, random, q = leave_one_out_large(
+        # O(k) memory: running sums and warm starts instead of a k x k mask; the rows are
+        # made when an output first lists them
+        make_fixed, make_random, q, arrays = leave_one_out_large(
             y,
             v,
             method=tau2_method,
             hksj=hksj,
             confidence_level=confidence_level,
             tau2_full=getattr(full_random, "tau2", None),
+            deferred=True,
         )
-        note = loo_large_note(k)
+        q, i2 = _q_and_i2(q, k)
+
+        def make():
+            random = make_random()
+            return _loo_rows(labels, make_fixed(), random, i2, q)
+
+        columns = LeaveOneOutColumns(labels, arrays.estimate, arrays.se, arrays.tau2, q, i2)
+        for a in columns[1:]:
+            a.setflags(write=False)  # the rows are made from these later: kept as they are
+        rows = RowsOnDemand(k, make, columns)
+        return LeaveOneOutResult(
+            rows, full_fixed, full_random, tau2_method, hksj, confidence_level, loo_large_note(k)
+        )
     else:
         # all k subsets pooled at once (row i leaves study i out); same numbers as pooling
         # each subset on its own, see tests/test_pooling_batch.py
@@ -178,28 +208,56 @@ def leave_one_out(
             with_weights=False,
         )
         q = cochran_q_batch(y, v, keep)
+    q, i2 = _q_and_i2(q, k)
+    return LeaveOneOutResult(
+        tuple(_loo_rows(labels, fixed, random, i2, q)),
+        full_fixed,
+        full_random,
+        tau2_method,
+        hksj,
+        confidence_level,
+    )
+
+
+def _q_and_i2(q, k: int) -> tuple[np.ndarray, np.ndarray]:
+    """Cochran's Q of each subset of k - 1 studies, and its I² in percent."""
     q = np.asarray(q, dtype=float)
     # I² (percent) of the k - 1 studies left: max(0, (Q - (k - 2))/Q) 100, 0 when Q = 0
     with np.errstate(invalid="ignore", divide="ignore"):
         i2 = np.where(q > 0, np.maximum(0.0, (q - (k - 2)) / q) * 100.0, 0.0)
-    rows = instances(
+    return q, i2
+
+
+def _loo_rows(labels, fixed, random, i2: np.ndarray, q: np.ndarray) -> list:
+    return instances(
         LeaveOneOutRow,
         labels,
-        range(k),
+        range(len(labels)),
         fixed,
         random,
         [re.tau2 for re in random],
         i2.tolist(),
         q.tolist(),
     )
-    return LeaveOneOutResult(
-        rows=tuple(rows),
-        full_fixed=fixed_effect(y, v, confidence_level=confidence_level),
-        full_random=full_random,
-        tau2_method=tau2_method,
-        hksj=hksj,
-        confidence_level=confidence_level,
-        note=note,
+
+
+def leave_one_out_columns(loo: LeaveOneOutResult) -> LeaveOneOutColumns | None:
+    """The rows' random-effects numbers as arrays (None when a study left out could not
+    be pooled): from the arrays the rows are made from when the result keeps them, else
+    read off the rows (the same numbers either way)."""
+    columns = getattr(loo.rows, "columns", None)
+    if columns is not None:
+        return columns
+    rows = loo.rows
+    if not all(hasattr(r.random, "estimate") for r in rows):
+        return None
+    return LeaveOneOutColumns(
+        tuple(r.omitted for r in rows),
+        np.array([r.random.estimate for r in rows]),
+        np.array([r.random.se for r in rows]),
+        np.array([r.tau2 for r in rows]),
+        np.array([r.q for r in rows]),
+        np.array([r.i2 if isinstance(r.i2, (int, float)) else np.nan for r in rows]),
     )
 
 

@@ -200,9 +200,15 @@ def sensitivity_section(result) -> Section:
     rows: list[tuple[str, str]] = []
     loo = result.leave_one_out
     if is_ok(loo) and loo.rows:
-        pairs = [
-            (r.random.estimate, r.omitted) for r in loo.rows if isinstance(r.random, PooledEstimate)
-        ]
+        columns = getattr(loo.rows, "columns", None)  # a large review's rows, not yet made
+        if columns is not None:
+            pairs = list(zip(columns.estimate.tolist(), columns.omitted))
+        else:
+            pairs = [
+                (r.random.estimate, r.omitted)
+                for r in loo.rows
+                if isinstance(r.random, PooledEstimate)
+            ]
         if pairs:
             lo = min(pairs)
             hi = max(pairs)
