@@ -9,8 +9,7 @@ From there the score equation is solved by Newton's method (the observed informa
 from a nearby start it settles in two or three steps, where scoring takes six or more);
 if a step is not clearly uphill it falls back on the scoring of :func:`tau2.tau2_reml`.
 The grid and the rule that picks between it and the local maximum are those of
-:func:`tau2.tau2_reml`, reused from it; the grid is evaluated a few rows at a time (the
-same numbers, without its large temporaries). Where the restricted likelihood has one
+:func:`tau2.tau2_reml`, reused from it. Where the restricted likelihood has one
 maximum on tau² >= 0 both reach it: Newton's root is exact to rounding, tau2_reml's
 stops when its steps fall below 1e-10·max(1, tau²), so they agree to 1e-9 relative or
 1e-10 absolute (tests/test_trimfill_speed.py).
@@ -34,10 +33,6 @@ from .tau2 import (
     tau2_reml,
 )
 
-#: grid rows evaluated at once (8 x k values per temporary instead of 50 x k)
-_GRID_ROWS = 8
-
-
 def reml_from(y: np.ndarray, v: np.ndarray, start: float, *, grid: bool) -> Tau2Estimate:
     """REML tau² by Fisher scoring from ``start``; with ``grid``, tau2_reml's safeguard.
 
@@ -55,9 +50,7 @@ def reml_from(y: np.ndarray, v: np.ndarray, start: float, *, grid: bool) -> Tau2
         return est
     # the grid of tau2_reml: its scale uses the DerSimonian-Laird value
     g = np.concatenate(([0.0], _grid_scale(y, v, tau2_dl(y, v).tau2) * _GRID_UNIT))
-    lls = np.concatenate(
-        [_restricted_loglik_grid(y, v, g[i : i + _GRID_ROWS]) for i in range(0, g.size, _GRID_ROWS)]
-    )
+    lls = _restricted_loglik_grid(y, v, g)
     best = int(np.argmax(lls))
     if lls[best] > ll_est + 1e-10:
         est, ll_est = _reml_scoring(y, v, float(g[best]), _MAX_ITER)
