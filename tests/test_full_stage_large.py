@@ -635,14 +635,15 @@ def test_a_large_review_says_what_was_thinned_in_the_result_json_and_sections(mo
     assert "running sums" in loo and "second maximum on a grid" in cum
     assert "one starting point" in sel
     fit = [n for n in result.notes if "selection model" in n]
-    assert len(result.notes) == 3 and len(fit) == 1 and fit[0] in sel
+    # trim and fill (REML by Newton steps above the threshold): one note for its settings
+    tf = [n for n in result.notes if "trim and fill" in n]
+    assert len(result.notes) == 4 and len(fit) == 1 and fit[0] in sel and len(tf) == 1
+    warm = [t for t in (result.trim_fill, *result.trim_fill_variants.values()) if tf[0] in t.note]
+    assert len(warm) >= 2  # the settings that trim or fill by random effects
     assert json.loads(json.dumps(to_json(result)))["notes"] == list(result.notes)
-    assert fit[0] in adjustments_section(result).notes  # the sheet prints this section
+    adjust_notes = adjustments_section(result).notes  # the sheet prints this section
+    assert fit[0] in adjust_notes and tf[0] in adjust_notes
     assert {loo, cum} <= set(sensitivity_section(result).notes)
-
-
-if __name__ == "__main__" and "--record" in sys.argv:
-    _record()
 
 
 def test_large_leave_one_out_rows_are_made_only_when_listed(monkeypatch):
@@ -708,3 +709,7 @@ def test_large_leave_one_out_rows_are_made_only_when_listed(monkeypatch):
     assert len(listed) == d.k and listed[3]["random"]["estimate"] == rows[3].random.estimate
     back = pickle.loads(pickle.dumps(loo))
     assert back == loo and isinstance(back.rows, tuple)
+
+
+if __name__ == "__main__" and "--record" in sys.argv:
+    _record()

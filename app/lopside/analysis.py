@@ -604,6 +604,7 @@ def _full_stage(review, settings, base, with_power, power_progress, progress) ->
     """The rest of the analysis, as the fields of the full result."""
     from .stats import adjust, sensitivity
     from .stats.adjust_selection import selection_fit_note
+    from .stats.adjust_trimfill import trim_fill_fit_notes
     from .stats.diagnostics import flag_rows
 
     data = base.data
@@ -628,7 +629,8 @@ def _full_stage(review, settings, base, with_power, power_progress, progress) ->
     power = _power(data, settings, power_progress, progress) if with_power else None
     # work thinned or done another way for a large review is said in the result (DESIGN 8)
     thinned = (getattr(loo, "note", ""), getattr(cumulative, "note", ""))
-    notes = tuple(n for n in (*thinned, selection_fit_note(selection)) if n)
+    trim_fill = trim_fill_fit_notes((base.trim_fill, *variants.values()))
+    notes = tuple(n for n in (*thinned, *trim_fill, selection_fit_note(selection)) if n)
     return dict(
         reconciliation=recon,
         trim_fill_variants=variants,

@@ -327,30 +327,34 @@ def _choose_side(y: np.ndarray, se: np.ndarray, side: str) -> tuple[str, str] | 
 
 
 def trim_fill_large_note(k: int, trimming: bool, filling: bool) -> str:
-    """What trim and fill did another way for a review of ``k`` studies (empty if nothing)."""
+    """What trim and fill did another way for a review of ``k`` studies ("" if nothing).
+
+    One wording whichever part was done this way (trimming, filling or both), so that
+    the analysis' six settings give one note."""
     from .sensitivity import LARGE_K
 
-    parts = []
-    if trimming:
-        parts.append(
-            "at each trimming step the between-study variance (REML) of the kept studies "
-            "was found by Newton steps from the previous step's value, without the search "
-            "for a second maximum on a grid"
-        )
-    if filling:
-        parts.append(
-            "after filling it was found by Newton steps from the all-study value, then "
-            "checked on the usual grid"
-        )
-    if not parts:
+    if not (trimming or filling):
         return ""
     return (
-        f"With {k:,} studies (more than {LARGE_K:,}), "
-        + "; ".join(parts)
-        + "; the between-study variances agree with those found from the "
-        "DerSimonian-Laird start to about 1e-9, the estimates to within 1e-7 of their "
-        "standard error"
+        f"With {k:,} studies (more than {LARGE_K:,}), trim and fill found the between-study "
+        "variance (REML) by Newton steps: while trimming, from the previous step's value, "
+        "without the search for a second maximum on a grid; after filling, from the "
+        "all-study value, then checked on the usual grid. The variances agree with the "
+        "usual fit to about 1e-9, the estimates to within 1e-7 of their standard error."
     )
+
+
+def trim_fill_fit_notes(results) -> tuple[str, ...]:
+    """The large-review notes (:func:`trim_fill_large_note`) of these trim-and-fill
+    results, each once, in order ("" parts and other notes left out)."""
+    import re
+
+    found: list[str] = []
+    for r in results:
+        m = re.search(r"With [\d,]+ studies \(more than [\d,]+\), .*$", getattr(r, "note", ""))
+        if m and m.group(0) not in found:
+            found.append(m.group(0))
+    return tuple(found)
 
 
 def _pool_re_from(y, v, start, level):

@@ -42,9 +42,12 @@ def adjustments_section(result) -> Section:
         "Each answers 'what if?' under its own assumptions: read them as a range, not as a "
         "corrected result.",
     )
-    # how a large review's selection model was fitted (also in the result's notes)
+    # how a large review's trim and fill and selection model were fitted (also in the
+    # result's notes)
     from ..stats.adjust_selection import selection_fit_note
+    from ..stats.adjust_trimfill import trim_fill_fit_notes
 
+    notes += trim_fill_fit_notes((result.trim_fill, *result.trim_fill_variants.values()))
     fit = selection_fit_note(result.selection)
     notes += (fit,) if fit else ()
     return Section(
