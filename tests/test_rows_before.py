@@ -21,7 +21,10 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 import rows_before
+import rows_checks_before
 from lopside.analysis import build_study_data
+from lopside.intake.checks import LEVEL_MAX, LEVEL_MIN, check_rows, entered_twice
+from lopside.intake.clean_rows import clean_count_rows, clean_estimate_rows, clean_means_rows
 from lopside.model.review import MEASURES, Review, ReviewDetails, StudyRow
 from lopside.stats.derived import Derived
 from lopside.stats.derived_batch import counts_batch, derive_batch
@@ -127,6 +130,46 @@ def test_derivation_is_as_before(measure, data):
                 assert a.tobytes() == b.tobytes(), f.name
             else:
                 assert a == b, f.name
+
+
+def _outcome(run):
+    """What a call gives, or the kind of exception it raises (10**400 in a number field
+    makes check_row raise OverflowError; the new code must raise it too)."""
+    try:
+        return run()
+    except Exception as exc:  # noqa: BLE001 - compared, not swallowed
+        return type(exc).__name__
+
+
+@pytest.mark.parametrize("measure", MEASURES)
+@settings(max_examples=100, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(data=st.data())
+def test_checks_are_as_before(measure, data):
+    rows = data.draw(mixed_review(measure))
+    level = data.draw(st.sampled_from([95.0, 90, 99.995, 40.0]))
+    printed = places = None
+    if data.draw(st.booleans()):  # numbers as printed: the rounding follows them
+        fields = st.sets(st.sampled_from(["estimate", "lower", "upper"]))
+        text = st.sampled_from(["1.0", "0.83", "2", "0.8312", "1,5", ""])
+        printed = [{f: data.draw(text) for f in data.draw(fields)} for _ in rows]
+        printed = printed[: data.draw(st.integers(0, len(rows)))]
+    if data.draw(st.booleans()):
+        places = [f"pasted line {i + 3}" for i in range(len(rows))]
+    bounds = (LEVEL_MIN, LEVEL_MAX)
+    for new, old in (
+        (clean_count_rows, rows_checks_before.clean_count_rows),
+        (clean_means_rows, rows_checks_before.clean_means_rows),
+    ):
+        assert _outcome(lambda f=new: f(rows, measure)) == _outcome(lambda f=old: f(rows, measure))
+    assert _outcome(lambda: clean_estimate_rows(rows, measure, level, bounds, printed)) == _outcome(
+        lambda: rows_checks_before.clean_estimate_rows(rows, measure, level, bounds, printed)
+    )
+    assert entered_twice(rows) == rows_checks_before.entered_twice(rows)
+    got = _outcome(lambda: check_rows(rows, measure, level, printed=printed, places=places))
+    want = _outcome(
+        lambda: rows_checks_before.check_rows(rows, measure, level, printed=printed, places=places)
+    )
+    assert got == want
 
 
 def test_derived_many_makes_what_derived_makes():

@@ -146,7 +146,96 @@ def _nan_columns(derived, columns: dict[str, str]) -> dict[str, np.ndarray]:
 
 
 def build_study_data(review: Review, measure: str, derived) -> tuple[StudyData, tuple]:
-    """Arrays of the included, usable studies, and the list of those left out (with why)."""
+    """Arrays of the included, usable studies, and the list of those left out (with why).
+
+    Read column by column (each field of all rows at once); rows whose effect or SE is not
+    a float or None take :func:`_build_study_data_by_row`, which gives the same."""
+    studies = tuple(review.studies)
+    derived = tuple(derived)
+    size = min(len(studies), len(derived))
+    studies, derived = studies[:size], derived[:size]
+    ys = list(map(_GET_Y, derived))
+    ses = list(map(_GET_SE, derived))
+    if not (_floats_or_none(ys) and _floats_or_none(ses)):
+        return _build_study_data_by_row(review, measure, derived)
+    y, se = np.array(ys, dtype=float), np.array(ses, dtype=float)  # None -> nan
+    reported = np.fromiter(map(bool, map(_GET_REPORTED, studies)), bool, size)
+    exclude = np.fromiter(map(bool, map(_GET_EXCLUDE, studies)), bool, size)
+    with np.errstate(invalid="ignore"):
+        usable = np.isfinite(y) & (se > 0)
+    keep_mask = reported & ~exclude & usable
+    keep = np.flatnonzero(keep_mask).tolist()
+    excluded = [
+        _excluded(i, studies[i], derived[i], bool(usable[i]))
+        for i in np.flatnonzero(~keep_mask).tolist()
+    ]
+
+    def kept(col: list) -> list:
+        return col if len(keep) == size else [col[i] for i in keep]
+
+    cols = {}
+    for key, attr in _OPTIONAL_COLUMNS.items():
+        col = list(map(operator.attrgetter(attr), derived))
+        if col and col[0] is None and col.count(None) == size:
+            cols[key] = np.full(len(keep), np.nan)
+        else:
+            cols[key] = np.array(kept(col), dtype=float).reshape(-1)
+    labels = kept(list(map(_GET_STUDY, studies)))
+    if not all(labels):
+        labels = [s or f"Row {i + 1}" for i, s in zip(keep, labels, strict=True)]
+    data = StudyData(
+        measure=measure,
+        y=y[keep] if keep else np.array([], dtype=float),
+        se=se[keep] if keep else np.array([], dtype=float),
+        labels=tuple(labels),
+        rows=tuple(keep),
+        **cols,
+        risk_of_bias=_texts(kept(list(map(_GET_ROB, studies))), lambda v: v.strip().lower()),
+        subgroup=_texts(kept(list(map(_GET_SUBGROUP, studies))), lambda v: v.strip()),
+    )
+    return data, tuple(excluded)
+
+
+_GET_Y, _GET_SE = operator.attrgetter("y"), operator.attrgetter("se")
+_GET_REPORTED, _GET_EXCLUDE = operator.attrgetter("reported"), operator.attrgetter("exclude")
+_GET_STUDY, _GET_ROB = operator.attrgetter("study"), operator.attrgetter("risk_of_bias")
+_GET_SUBGROUP = operator.attrgetter("subgroup")
+
+
+def _floats_or_none(col: list) -> bool:
+    """True when every value is a float or None."""
+    types = list(map(type, col))
+    return types.count(float) + types.count(type(None)) == len(col)
+
+
+def _texts(col: list, tidy) -> tuple[str, ...]:
+    """``tidy(v or "")`` of each value, worked out once per distinct value."""
+    try:
+        once = {v: tidy(v or "") for v in set(col)}
+    except TypeError:  # a value that cannot be a key: one by one
+        return tuple(tidy(v or "") for v in col)
+    return tuple(map(once.__getitem__, col))
+
+
+def _excluded(i: int, row, d, usable: bool) -> ExcludedStudy:
+    """A row left out of the analysis, and why."""
+    label = row.study or f"Row {i + 1}"
+    if not row.reported:
+        return ExcludedStudy(i, label, UNREPORTED_REASON)
+    if row.exclude:
+        return ExcludedStudy(
+            i,
+            label,
+            "excluded by the appraiser",
+            d.y if usable else None,
+            d.se if usable else None,
+        )
+    why = "; ".join(d.problems) if d.problems else "no usable effect and standard error"
+    return ExcludedStudy(i, label, why)
+
+
+def _build_study_data_by_row(review: Review, measure: str, derived) -> tuple[StudyData, tuple]:
+    """build_study_data row by row (for effects or SEs that are not floats or None)."""
     keep: list[int] = []
     excluded: list[ExcludedStudy] = []
     for i, (row, d) in enumerate(zip(review.studies, derived)):
