@@ -150,6 +150,8 @@ def build_study_data(review: Review, measure: str, derived) -> tuple[StudyData, 
 
     Read column by column (each field of all rows at once); rows whose effect or SE is not
     a float or None take :func:`_build_study_data_by_row`, which gives the same."""
+    from .stats.derived_rows import RowColumns, columns_of
+
     studies = tuple(review.studies)
     derived = tuple(derived)
     size = min(len(studies), len(derived))
@@ -159,8 +161,9 @@ def build_study_data(review: Review, measure: str, derived) -> tuple[StudyData, 
     if not (_floats_or_none(ys) and _floats_or_none(ses)):
         return _build_study_data_by_row(review, measure, derived)
     y, se = np.array(ys, dtype=float), np.array(ses, dtype=float)  # None -> nan
-    reported = np.fromiter(map(bool, map(_GET_REPORTED, studies)), bool, size)
-    exclude = np.fromiter(map(bool, map(_GET_EXCLUDE, studies)), bool, size)
+    cols = columns_of(review.studies) if size == len(review.studies) else RowColumns(studies)
+    reported = np.fromiter(map(bool, cols.raw("reported")), bool, size)
+    exclude = np.fromiter(map(bool, cols.raw("exclude")), bool, size)
     with np.errstate(invalid="ignore"):
         usable = np.isfinite(y) & (se > 0)
     keep_mask = reported & ~exclude & usable
@@ -173,14 +176,14 @@ def build_study_data(review: Review, measure: str, derived) -> tuple[StudyData, 
     def kept(col: list) -> list:
         return col if len(keep) == size else [col[i] for i in keep]
 
-    cols = {}
+    optional = {}
     for key, attr in _OPTIONAL_COLUMNS.items():
         col = list(map(operator.attrgetter(attr), derived))
         if col and col[0] is None and col.count(None) == size:
-            cols[key] = np.full(len(keep), np.nan)
+            optional[key] = np.full(len(keep), np.nan)
         else:
-            cols[key] = np.array(kept(col), dtype=float).reshape(-1)
-    labels = kept(list(map(_GET_STUDY, studies)))
+            optional[key] = np.array(kept(col), dtype=float).reshape(-1)
+    labels = kept(cols.raw("study"))
     if not all(labels):
         labels = [s or f"Row {i + 1}" for i, s in zip(keep, labels, strict=True)]
     data = StudyData(
@@ -189,17 +192,14 @@ def build_study_data(review: Review, measure: str, derived) -> tuple[StudyData, 
         se=se[keep] if keep else np.array([], dtype=float),
         labels=tuple(labels),
         rows=tuple(keep),
-        **cols,
-        risk_of_bias=_texts(kept(list(map(_GET_ROB, studies))), lambda v: v.strip().lower()),
-        subgroup=_texts(kept(list(map(_GET_SUBGROUP, studies))), lambda v: v.strip()),
+        **optional,
+        risk_of_bias=_texts(kept(cols.raw("risk_of_bias")), lambda v: v.strip().lower()),
+        subgroup=_texts(kept(cols.raw("subgroup")), lambda v: v.strip()),
     )
     return data, tuple(excluded)
 
 
 _GET_Y, _GET_SE = operator.attrgetter("y"), operator.attrgetter("se")
-_GET_REPORTED, _GET_EXCLUDE = operator.attrgetter("reported"), operator.attrgetter("exclude")
-_GET_STUDY, _GET_ROB = operator.attrgetter("study"), operator.attrgetter("risk_of_bias")
-_GET_SUBGROUP = operator.attrgetter("subgroup")
 
 
 def _floats_or_none(col: list) -> bool:

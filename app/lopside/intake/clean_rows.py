@@ -76,10 +76,11 @@ def clean_count_rows(rows: Sequence[StudyRow], measure: str) -> list[bool]:
 
 
 def _columns(rows: Sequence[StudyRow]):
-    """The rows' fields read once each, for all rows (the effect derivation's reader)."""
-    from lopside.stats.derived_rows import RowColumns
+    """The rows' fields read once each, for all rows (the effect derivation's reader,
+    shared with it for the same tuple of rows)."""
+    from lopside.stats.derived_rows import columns_of
 
-    return RowColumns(rows)
+    return columns_of(rows)
 
 
 def _labelled_rows(cols):

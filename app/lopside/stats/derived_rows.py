@@ -32,7 +32,14 @@ from itertools import repeat
 
 import numpy as np
 
-from lopside.model.review import CONTINUOUS_MEASURES, MEASURES, RATIO_MEASURES
+from lopside.model.review import (
+    CONTINUOUS_MEASURES,
+    MEASURES,
+    NUMERIC_FIELDS,
+    RATIO_MEASURES,
+    TEXT_FIELDS,
+    StudyRow,
+)
 
 from .derived import (
     ASYMMETRY_NOTE,
@@ -91,7 +98,8 @@ class RowColumns:
         """The field of every row, as entered."""
         col = self._raw.get(name)
         if col is None:
-            col = self._raw[name] = list(map(operator.attrgetter(name), self.rows))
+            get = _GETTERS.get(name) or operator.attrgetter(name)
+            col = self._raw[name] = list(map(get, self.rows))
         return col
 
     def blank(self, name: str) -> bool:
@@ -174,6 +182,27 @@ class RowColumns:
         return ok, ns
 
 
+_GETTERS = {name: operator.attrgetter(name) for name in (*NUMERIC_FIELDS, *TEXT_FIELDS)}
+_last: tuple = ()  # (rows, their RowColumns): the last tuple of study rows read
+
+
+def columns_of(rows: Sequence) -> RowColumns:
+    """A reader of these rows' columns, the same one again for the same tuple of
+    :class:`~lopside.model.review.StudyRow` (frozen rows in a tuple cannot change), so
+    that deriving the effects, checking the rows and building the arrays of one analysis
+    read each field once."""
+    global _last
+    if type(rows) is not tuple:
+        return RowColumns(rows)
+    last = _last
+    if last and last[0] is rows:
+        return last[1]
+    cols = RowColumns(rows)
+    if set(map(type, rows)) == {StudyRow}:
+        _last = (rows, cols)
+    return cols
+
+
 # --------------------------------------------------------------------------------------
 # many Derived at once
 
@@ -202,7 +231,7 @@ def derived_many(count: int, **columns: object) -> list[Derived]:
             raise TypeError(f"Derived has no field {name!r}")
         if isinstance(col, list) and len(col) != count:
             raise ValueError(f"{name}: {len(col)} values for {count} results")
-    if not _DIRECT:
+    if not _DIRECT or count < 8:  # a few: Derived() is quicker than 20 passes
         return [
             Derived(**{k: v[i] if isinstance(v, list) else v for k, v in columns.items()})  # type: ignore[arg-type]
             for i in range(count)

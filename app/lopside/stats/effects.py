@@ -83,7 +83,7 @@ from .derived import (  # noqa: F401 - Derived, hedges_j and the limits are this
     hedges_j,
 )
 from .derived_batch import batch_rows
-from .derived_rows import RowColumns
+from .derived_rows import columns_of
 
 ROUTES: tuple[str, ...] = ("counts", "means", "ci", "se", "p")
 ROUTE_NAMES: dict[str, str] = {
@@ -730,7 +730,7 @@ def derive_all(rows: Iterable[StudyRow], measure: str, **kw: object) -> tuple[De
         return ()
     first = derive(rows[0], measure, **kw)  # type: ignore[arg-type]
     out: list[Derived | None] = [None] * len(rows)
-    for idx, made in batch_rows(RowColumns(rows), measure, **kw):  # type: ignore[arg-type]
+    for idx, made in batch_rows(columns_of(rows), measure, **kw):  # type: ignore[arg-type]
         for i, d in zip(idx.tolist(), made, strict=True):
             out[i] = d
     out[0] = first
