@@ -207,3 +207,20 @@ def test_counts_that_underflow_are_left_to_the_one_row_path():
     one = derive(row, "OR")
     assert one.y is None and "2x2 counts not used" in one.problems[0]
     assert derive_all([row, row], "OR") == (one, one)
+
+
+def test_one_reader_per_tuple_of_study_rows():
+    """The same tuple of StudyRows is read once (derivation, checks and arrays share the
+    reader); a list, another tuple or rows of another type get a reader of their own, and
+    what the reader gives is the rows' own fields."""
+    from lopside.stats.derived_rows import columns_of
+
+    rows = (StudyRow(study="A", estimate=1.2, se=0.3), StudyRow(study="B", estimate=0.8))
+    cols = columns_of(rows)
+    assert columns_of(rows) is cols
+    assert columns_of(tuple(list(rows))) is not cols
+    assert columns_of(list(rows)) is not columns_of(list(rows))
+    assert cols.raw("se") == [0.3, None] and cols.given("se").tolist() == [True, False]
+    plain, vals = cols.number("estimate")
+    assert plain.tolist() == [True, True] and vals.tolist() == [1.2, 0.8]
+    assert cols.blank("lower") and not cols.blank("se")
