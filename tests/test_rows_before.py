@@ -209,17 +209,28 @@ def test_counts_that_underflow_are_left_to_the_one_row_path():
     assert derive_all([row, row], "OR") == (one, one)
 
 
-def test_one_reader_per_tuple_of_study_rows():
-    """The same tuple of StudyRows is read once (derivation, checks and arrays share the
-    reader); a list, another tuple or rows of another type get a reader of their own, and
-    what the reader gives is the rows' own fields."""
-    from lopside.stats.derived_rows import columns_of
+def test_one_reader_per_tuple_of_study_rows_within_one_analysis(monkeypatch):
+    """Within one analysis the same tuple of StudyRows is read once (derivation, checks
+    and arrays share the reader); another tuple or a list gets a reader of its own, and
+    nothing is kept once the analysis is over. What the reader gives is the rows' own
+    fields."""
+    import lopside.stats.derived_rows as dr
+    from lopside.analysis import analyse
+    from lopside.model.review import Review, ReviewDetails
 
     rows = (StudyRow(study="A", estimate=1.2, se=0.3), StudyRow(study="B", estimate=0.8))
-    cols = columns_of(rows)
-    assert columns_of(rows) is cols
-    assert columns_of(tuple(list(rows))) is not cols
-    assert columns_of(list(rows)) is not columns_of(list(rows))
+    with dr.shared_columns(rows):
+        cols = dr.columns_of(rows)
+        assert dr.columns_of(rows) is cols
+        assert dr.columns_of(tuple(list(rows))) is not cols
+        assert dr.columns_of(list(rows)) is not dr.columns_of(list(rows))
+    assert dr.columns_of(rows) is not cols  # no state after the block
+    made = []
+    real = dr.RowColumns
+    monkeypatch.setattr(dr, "RowColumns", lambda r: made.append(r) or real(r))
+    review = Review(details=ReviewDetails(measure="OR"), studies=rows * 3)
+    analyse(review, stage="core")
+    assert made == [review.studies]  # one reader for the whole analysis
     assert cols.raw("se") == [0.3, None] and cols.given("se").tolist() == [True, False]
     plain, vals = cols.number("estimate")
     assert plain.tolist() == [True, True] and vals.tolist() == [1.2, 0.8]

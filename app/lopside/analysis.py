@@ -535,20 +535,23 @@ def _core_stage(review, settings, measure, progress) -> AnalysisResult:
 def _read_rows(review, settings, measure):
     """Each row's effect and SE, the entry checks, and the arrays the statistics read."""
     from .intake.checks import check_rows
+    from .stats.derived_rows import shared_columns
     from .stats.effects import derive_all
 
     level = review.details.ci_level
-    derived = derive_all(
-        review.studies,
-        measure,
-        ci_level=level,
-        ci_method=settings.ci_method,
-        smd_correction=settings.smd_correction,
-    )
-    problems = check_rows(
-        review.studies, measure, level, places=review.intake.places(review.studies)
-    )
-    data, excluded = build_study_data(review, measure, derived)
+    # the three read the same fields: one reader for this analysis
+    with shared_columns(review.studies):
+        derived = derive_all(
+            review.studies,
+            measure,
+            ci_level=level,
+            ci_method=settings.ci_method,
+            smd_correction=settings.smd_correction,
+        )
+        problems = check_rows(
+            review.studies, measure, level, places=review.intake.places(review.studies)
+        )
+        data, excluded = build_study_data(review, measure, derived)
     return derived, problems, data, excluded
 
 

@@ -28,6 +28,8 @@ import math
 import operator
 from collections import deque
 from collections.abc import Sequence
+from contextlib import contextmanager
+from contextvars import ContextVar
 from itertools import repeat
 
 import numpy as np
@@ -38,7 +40,6 @@ from lopside.model.review import (
     NUMERIC_FIELDS,
     RATIO_MEASURES,
     TEXT_FIELDS,
-    StudyRow,
 )
 
 from .derived import (
@@ -183,24 +184,30 @@ class RowColumns:
 
 
 _GETTERS = {name: operator.attrgetter(name) for name in (*NUMERIC_FIELDS, *TEXT_FIELDS)}
-_last: tuple = ()  # (rows, their RowColumns): the last tuple of study rows read
+#: (rows, their RowColumns) while one analysis reads them (see :func:`shared_columns`)
+_SHARED: ContextVar[tuple | None] = ContextVar("lopside_row_columns", default=None)
+
+
+@contextmanager
+def shared_columns(rows: Sequence):
+    """Within this block :func:`columns_of` gives one reader for this tuple of rows, so
+    that deriving the effects, checking the rows and building the arrays of one analysis
+    read each field once. Nothing is kept after the block (no state between analyses;
+    each thread has its own)."""
+    token = _SHARED.set((rows, RowColumns(rows)) if type(rows) is tuple else None)
+    try:
+        yield
+    finally:
+        _SHARED.reset(token)
 
 
 def columns_of(rows: Sequence) -> RowColumns:
-    """A reader of these rows' columns, the same one again for the same tuple of
-    :class:`~lopside.model.review.StudyRow` (frozen rows in a tuple cannot change), so
-    that deriving the effects, checking the rows and building the arrays of one analysis
-    read each field once."""
-    global _last
-    if type(rows) is not tuple:
-        return RowColumns(rows)
-    last = _last
-    if last and last[0] is rows:
-        return last[1]
-    cols = RowColumns(rows)
-    if set(map(type, rows)) == {StudyRow}:
-        _last = (rows, cols)
-    return cols
+    """A reader of these rows' columns: the shared one inside :func:`shared_columns` for
+    the same tuple, else a new one."""
+    shared = _SHARED.get()
+    if shared is not None and shared[0] is rows:
+        return shared[1]
+    return RowColumns(rows)
 
 
 # --------------------------------------------------------------------------------------
