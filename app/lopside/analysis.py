@@ -159,7 +159,96 @@ def _nan_columns(derived, columns: dict[str, str]) -> dict[str, np.ndarray]:
 
 
 def build_study_data(review: Review, measure: str, derived) -> tuple[StudyData, tuple]:
-    """Arrays of the included, usable studies, and the list of those left out (with why)."""
+    """Arrays of the included, usable studies, and the list of those left out (with why).
+
+    Read column by column (each field of all rows at once); rows whose effect or SE is not
+    a float or None take :func:`_build_study_data_by_row`, which gives the same."""
+    from .stats.derived_rows import RowColumns, columns_of
+
+    studies = tuple(review.studies)
+    derived = tuple(derived)
+    size = min(len(studies), len(derived))
+    studies, derived = studies[:size], derived[:size]
+    ys = list(map(_GET_Y, derived))
+    ses = list(map(_GET_SE, derived))
+    if not (_floats_or_none(ys) and _floats_or_none(ses)):
+        return _build_study_data_by_row(review, measure, derived)
+    y, se = np.array(ys, dtype=float), np.array(ses, dtype=float)  # None -> nan
+    cols = columns_of(review.studies) if size == len(review.studies) else RowColumns(studies)
+    reported = np.fromiter(map(bool, cols.raw("reported")), bool, size)
+    exclude = np.fromiter(map(bool, cols.raw("exclude")), bool, size)
+    with np.errstate(invalid="ignore"):
+        usable = np.isfinite(y) & (se > 0)
+    keep_mask = reported & ~exclude & usable
+    keep = np.flatnonzero(keep_mask).tolist()
+    excluded = [
+        _excluded(i, studies[i], derived[i], bool(usable[i]))
+        for i in np.flatnonzero(~keep_mask).tolist()
+    ]
+
+    def kept(col: list) -> list:
+        return col if len(keep) == size else [col[i] for i in keep]
+
+    optional = {}
+    for key, attr in _OPTIONAL_COLUMNS.items():
+        col = list(map(operator.attrgetter(attr), derived))
+        if col and col[0] is None and col.count(None) == size:
+            optional[key] = np.full(len(keep), np.nan)
+        else:
+            optional[key] = np.array(kept(col), dtype=float).reshape(-1)
+    labels = kept(cols.raw("study"))
+    if not all(labels):
+        labels = [s or f"Row {i + 1}" for i, s in zip(keep, labels, strict=True)]
+    data = StudyData(
+        measure=measure,
+        y=y[keep] if keep else np.array([], dtype=float),
+        se=se[keep] if keep else np.array([], dtype=float),
+        labels=tuple(labels),
+        rows=tuple(keep),
+        **optional,
+        risk_of_bias=_texts(kept(cols.raw("risk_of_bias")), lambda v: v.strip().lower()),
+        subgroup=_texts(kept(cols.raw("subgroup")), lambda v: v.strip()),
+    )
+    return data, tuple(excluded)
+
+
+_GET_Y, _GET_SE = operator.attrgetter("y"), operator.attrgetter("se")
+
+
+def _floats_or_none(col: list) -> bool:
+    """True when every value is a float or None."""
+    types = list(map(type, col))
+    return types.count(float) + types.count(type(None)) == len(col)
+
+
+def _texts(col: list, tidy) -> tuple[str, ...]:
+    """``tidy(v or "")`` of each value, worked out once per distinct value."""
+    try:
+        once = {v: tidy(v or "") for v in set(col)}
+    except TypeError:  # a value that cannot be a key: one by one
+        return tuple(tidy(v or "") for v in col)
+    return tuple(map(once.__getitem__, col))
+
+
+def _excluded(i: int, row, d, usable: bool) -> ExcludedStudy:
+    """A row left out of the analysis, and why."""
+    label = row.study or f"Row {i + 1}"
+    if not row.reported:
+        return ExcludedStudy(i, label, UNREPORTED_REASON)
+    if row.exclude:
+        return ExcludedStudy(
+            i,
+            label,
+            "excluded by the appraiser",
+            d.y if usable else None,
+            d.se if usable else None,
+        )
+    why = "; ".join(d.problems) if d.problems else "no usable effect and standard error"
+    return ExcludedStudy(i, label, why)
+
+
+def _build_study_data_by_row(review: Review, measure: str, derived) -> tuple[StudyData, tuple]:
+    """build_study_data row by row (for effects or SEs that are not floats or None)."""
     keep: list[int] = []
     excluded: list[ExcludedStudy] = []
     for i, (row, d) in enumerate(zip(review.studies, derived)):
@@ -459,20 +548,23 @@ def _core_stage(review, settings, measure, progress) -> AnalysisResult:
 def _read_rows(review, settings, measure):
     """Each row's effect and SE, the entry checks, and the arrays the statistics read."""
     from .intake.checks import check_rows
+    from .stats.derived_rows import shared_columns
     from .stats.effects import derive_all
 
     level = review.details.ci_level
-    derived = derive_all(
-        review.studies,
-        measure,
-        ci_level=level,
-        ci_method=settings.ci_method,
-        smd_correction=settings.smd_correction,
-    )
-    problems = check_rows(
-        review.studies, measure, level, places=review.intake.places(review.studies)
-    )
-    data, excluded = build_study_data(review, measure, derived)
+    # the three read the same fields: one reader for this analysis
+    with shared_columns(review.studies):
+        derived = derive_all(
+            review.studies,
+            measure,
+            ci_level=level,
+            ci_method=settings.ci_method,
+            smd_correction=settings.smd_correction,
+        )
+        problems = check_rows(
+            review.studies, measure, level, places=review.intake.places(review.studies)
+        )
+        data, excluded = build_study_data(review, measure, derived)
     return derived, problems, data, excluded
 
 

@@ -22,6 +22,7 @@ Design invariants
 from __future__ import annotations
 
 import math
+import operator
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, fields, replace
 
@@ -544,7 +545,9 @@ def check_rows(
     ):
         clean = [a or b for a, b in zip(clean, other, strict=True)]
     twice = entered_twice(rows)
-    for i, row in enumerate(rows):
+    # only the rows with something to say: not cleared together, or a repeat
+    for i in sorted({i for i, ok in enumerate(clean) if not ok}.union(twice)):
+        row = rows[i]
         place = places[i] if places is not None and i < len(places) else ""
         if not clean[i]:
             pr = printed[i] if printed is not None and i < len(printed) else None
@@ -580,21 +583,31 @@ def _entry_key(row: StudyRow) -> tuple:
 def entered_twice(rows: Sequence[StudyRow]) -> dict[int, int]:
     """Row -> the earlier row it repeats (same entry in every field; a row with neither a
     label nor an estimate is never called a repeat)."""
-    # rows can be the same entry only if these few fields print the same: compare whole
-    # entries only within such groups
-    groups: dict[tuple, list[int]] = {}
-    for i, r in enumerate(rows):
-        quick = (r.study, repr(r.int_events), repr(r.estimate), repr(r.int_total))
-        groups.setdefault(quick, []).append(i)
+    # rows can be the same entry only if they have the same label and these few fields
+    # print the same: compare whole entries only within such groups
+    by_label: dict[object, list[int]] = {}
+    for i, study in enumerate(map(_study, rows)):
+        by_label.setdefault(study, []).append(i)
     out: dict[int, int] = {}
-    for members in groups.values():
-        if len(members) < 2:
+    for same_label in by_label.values():
+        if len(same_label) < 2:
             continue
-        seen: dict[tuple, int] = {}
-        for i in members:
-            key = _entry_key(rows[i])
-            if key in seen and (rows[i].study or rows[i].estimate is not None):
-                out[i] = seen[key]
-            else:
-                seen.setdefault(key, i)
+        groups: dict[tuple, list[int]] = {}
+        for i in same_label:
+            r = rows[i]
+            quick = (repr(r.int_events), repr(r.estimate), repr(r.int_total))
+            groups.setdefault(quick, []).append(i)
+        for members in groups.values():
+            if len(members) < 2:
+                continue
+            seen: dict[tuple, int] = {}
+            for i in members:
+                key = _entry_key(rows[i])
+                if key in seen and (rows[i].study or rows[i].estimate is not None):
+                    out[i] = seen[key]
+                else:
+                    seen.setdefault(key, i)
     return out
+
+
+_study = operator.attrgetter("study")

@@ -30,7 +30,6 @@ from lopside.model.review import (
     RATIO_MEASURES,
     RISK_OF_BIAS_LEVELS,
     StudyRow,
-    plain_number,
 )
 
 _COUNTS = ("int_events", "int_total", "ctl_events", "ctl_total")
@@ -51,43 +50,80 @@ def clean_count_rows(rows: Sequence[StudyRow], measure: str) -> list[bool]:
     False means only "check this row one by one": a row with anything else entered, or
     any value the arrays cannot vouch for, is left to :func:`check_row`.
     """
-    flags = [False] * len(rows)
-    if measure not in BINARY_MEASURES:
-        return flags
-    idx, vals = [], []
-    for i, r in enumerate(rows):
-        if r.unread or not r.reported or not isinstance(r.study, str) or not r.study.strip():
-            continue
-        if _blank(r).count(None) != len(_BLANK):
-            continue
-        v = [getattr(r, f) for f in _COUNTS] + [r.n]
-        if not all(plain_number(x) for x in v[:4]) or (v[4] is not None and not plain_number(v[4])):
-            continue
-        rob = r.risk_of_bias
-        if rob is not None and rob.strip().casefold() not in RISK_OF_BIAS_LEVELS:
-            continue
-        idx.append(i)
-        vals.append([math.nan if x is None else x for x in v])
-    if not idx:
-        return flags
+    if measure not in BINARY_MEASURES or not rows:
+        return [False] * len(rows)
     import numpy as np  # here, not at the top: the readers import this module
 
-    a = np.array(vals, dtype=float).reshape(-1, 5)
-    e1, t1, e0, t0, n = a.T
-    counts = a[:, :4]
+    cols = _columns(rows)
+    if cols.blank("int_events"):
+        return [False] * len(rows)
+    ok = _labelled_rows(cols) & cols.none_of(_BLANK)
+    vals = []
+    for name in _COUNTS:
+        plain, v = cols.number(name)
+        ok &= plain
+        vals.append(v)
+    e1, t1, e0, t0 = vals
     with np.errstate(invalid="ignore"):
-        ok = np.isfinite(counts).all(axis=1) & (counts >= 0).all(axis=1)
-        ok &= (np.trunc(counts) == counts).all(axis=1)  # whole numbers
+        for v in vals:
+            ok &= (v >= 0) & (np.trunc(v) == v)  # whole numbers
         ok &= (e1 <= t1) & (e0 <= t0) & (t1 > 0) & (t0 > 0)
-        ok &= np.isnan(n) | (np.isfinite(n) & (n >= 0) & (np.trunc(n) == n))
+        ok &= _count_ok_rows(cols, "n")
         if measure in ("OR", "RR"):
             ok &= ~((e1 == 0) & (e0 == 0))  # no events in either arm
             ok &= ~((e1 == t1) & (e0 == t0))  # every participant had the event
-    # a value typed as nan is not blank: it is reported (np.nan marks a blank n only)
-    for j in np.flatnonzero(ok).tolist():
-        if rows[idx[j]].n is None or math.isfinite(rows[idx[j]].n):
-            flags[idx[j]] = True
-    return flags
+    return ok.tolist()
+
+
+def _columns(rows: Sequence[StudyRow]):
+    """The rows' fields read once each, for all rows (the effect derivation's reader,
+    shared with it for the same tuple of rows)."""
+    from lopside.stats.derived_rows import columns_of
+
+    return columns_of(rows)
+
+
+def _labelled_rows(cols):
+    """For each row, :func:`_labelled` (a value it cannot judge: False, checked one by one)."""
+    import numpy as np
+
+    n = cols.size
+    ok = cols.flag("reported", True)
+    unread = cols.raw("unread")
+    if any(unread):
+        ok &= ~np.fromiter(map(bool, unread), bool, n)
+    study = cols.raw("study")
+    if list(map(type, study)).count(str) == n:
+        ok &= np.fromiter(map(bool, study), bool, n)
+        ok &= ~np.fromiter(map(str.isspace, study), bool, n)  # strip() leaves nothing
+    else:
+        ok &= np.array([isinstance(x, str) and bool(x.strip()) for x in study], dtype=bool)
+    if not cols.blank("risk_of_bias"):
+        rob = cols.raw("risk_of_bias")
+        try:
+            reads = {v: _rob_reads(v) for v in set(rob)}
+            ok &= np.fromiter(map(reads.__getitem__, rob), bool, n)
+        except TypeError:  # a value that cannot be a key
+            ok &= np.array([_rob_reads(v) for v in rob], dtype=bool)
+    return ok
+
+
+def _rob_reads(value: object) -> bool:
+    """A blank risk of bias, or one of the levels (anything else: checked one by one)."""
+    if value is None:
+        return True
+    return isinstance(value, str) and value.strip().casefold() in RISK_OF_BIAS_LEVELS
+
+
+def _count_ok_rows(cols, name: str):
+    """For each row, :func:`_count_ok` of the field."""
+    import numpy as np
+
+    if cols.blank(name):
+        return np.ones(cols.size, dtype=bool)
+    plain, v = cols.number(name)
+    with np.errstate(invalid="ignore"):
+        return ~cols.given(name) | (plain & (v >= 0) & (np.trunc(v) == v))
 
 
 def _labelled(r: StudyRow) -> bool:
@@ -141,7 +177,18 @@ def _symmetric(r: StudyRow, measure: str, decimals: tuple[int, int, int]) -> boo
 
 def _surely_symmetric(cand: list[tuple], measure: str) -> list[bool]:
     """For each (est, lower, upper, decimals), True when the interval rule surely finds
-    nothing; False means "ask :func:`_symmetric`".
+    nothing; False means "ask :func:`_symmetric`" (see :func:`_surely_symmetric_arrays`)."""
+    import numpy as np
+
+    cols = list(zip(*cand, strict=True))
+    e, lo, hi = (np.array(c, dtype=float) for c in cols[:3])
+    decimals = tuple(np.array([ds[k] for ds in cols[3]], dtype=int) for k in range(3))
+    return _surely_symmetric_arrays(e, lo, hi, decimals, measure)
+
+
+def _surely_symmetric_arrays(e, lo, hi, decimals, measure: str) -> list[bool]:
+    """For each estimate and limits (arrays) with their decimals (three int arrays), True
+    when the interval rule surely finds nothing; False means "ask :func:`_symmetric`".
 
     The rule (:func:`lopside.intake.symmetry.symmetry`) asks whether
     f(e) - (f(lo) + f(hi)) / 2 can be 0 within the rounding box. On the plain scale the
@@ -151,12 +198,11 @@ def _surely_symmetric(cand: list[tuple], measure: str) -> list[bool]:
     """
     import numpy as np
 
-    halves: dict[int, float] = {}
-    cols = list(zip(*cand, strict=True))
-    e, lo, hi = (np.array(c, dtype=float) for c in cols[:3])
-    for d in {d for ds in cols[3] for d in ds}:
-        halves[d] = 0.5 * 10.0 ** (-d)
-    he, hl, hu = (np.array([halves[ds[k]] for ds in cols[3]]) for k in range(3))
+    # half a unit in the last place, 0.5 * 10.0 ** -d as the rule computes it
+    halves = {d: 0.5 * 10.0 ** (-d) for d in set().union(*(set(x.tolist()) for x in decimals))}
+    he, hl, hu = (
+        np.array(list(map(halves.__getitem__, x.tolist())), dtype=float) for x in decimals
+    )
     with np.errstate(all="ignore"):
         if measure not in RATIO_MEASURES:
             low = (e - he) - ((lo + hl) + (hi + hu)) / 2.0
@@ -184,56 +230,86 @@ def clean_estimate_rows(
     """For each row, True when it is entered as an estimate with its SE or CI (no counts,
     means or P value) and :func:`~lopside.intake.checks.check_row` would find nothing wrong
     with it. ``level_bounds`` are the usable CI levels (both excluded)."""
-    flags = [False] * len(rows)
-    if measure not in MEASURES:
-        return flags  # check_row refuses it
+    if measure not in MEASURES or not rows:
+        return [False] * len(rows)  # check_row refuses an unknown measure
+    import numpy as np
+
+    cols = _columns(rows)
+    if cols.blank("estimate"):
+        return [False] * len(rows)
     low, high = level_bounds
-    review_level_ok: bool | None = None
-    ratio, rd = measure in RATIO_MEASURES, measure == "RD"
-    memo: dict[object, int] = {}
-    intervals: list[tuple] = []  # (index, est, lower, upper, decimals) to check for symmetry
-    for i, r in enumerate(rows):
-        if r.estimate is None or r.p is not None or not _labelled(r):
-            continue
-        if _arms(r).count(None) != 10 or not _count_ok(r.n):
-            continue
-        est, se = _value(r.estimate), None if r.se is None else _value(r.se)
-        if est is None or (r.se is not None and not (se is not None and se > 0)):
-            continue
-        if r.level is not None:
-            level = _value(r.level)
-            if level is None or not low < level < high:
-                continue
-        if r.lower is None and r.upper is None:
-            ends: tuple[float, ...] = (est,)
-            if se is None:
-                continue  # nothing to analyse
-        elif r.lower is not None and r.upper is not None:
-            lo, hi = _value(r.lower), _value(r.upper)
-            if lo is None or hi is None or not lo < hi or not lo <= est <= hi:
-                continue
-            if r.level is None:
-                if review_level_ok is None:
-                    review_level_ok = low < ci_level < high
-                if not review_level_ok:
-                    continue
-            ends = (est, lo, hi)
-        else:
-            continue  # half an interval
-        if ratio and not min(ends) > 0:
-            continue
-        if rd and not max(abs(v) for v in ends) <= 1.0:
-            continue
-        if len(ends) == 3:
-            pr = (printed[i] if printed is not None and i < len(printed) else None) or {}
-            intervals.append((i, *ends, _decimals(r, pr, memo)))
-            continue
-        flags[i] = True
-    if intervals:
-        sure = _surely_symmetric([c[1:] for c in intervals], measure)
-        for (i, *_, decimals), ok in zip(intervals, sure, strict=True):
-            flags[i] = ok or _symmetric(rows[i], measure, decimals)
+    ok = cols.given("estimate") & ~cols.given("p") & _labelled_rows(cols)
+    ok &= cols.none_of(_COUNTS + _MEANS) & _count_ok_rows(cols, "n")
+    plain_e, e = cols.number("estimate")
+    ok &= plain_e
+    with np.errstate(invalid="ignore"):
+        se_g = cols.given("se")
+        if se_g.any():
+            plain_s, se = cols.number("se")
+            ok &= ~se_g | (plain_s & (se > 0))
+        lv_g = cols.given("level")
+        if lv_g.any():
+            plain_l, lv = cols.number("level")
+            ok &= ~lv_g | (plain_l & (low < lv) & (lv < high))
+        lo_g, hi_g = cols.given("lower"), cols.given("upper")
+        single = ok & ~lo_g & ~hi_g & se_g  # an estimate and its SE
+        both = ok & lo_g & hi_g
+        if measure in RATIO_MEASURES:
+            single &= e > 0
+        elif measure == "RD":
+            single &= np.abs(e) <= 1.0
+        lo = hi = e
+        if both.any():
+            plain_lo, lo = cols.number("lower")
+            plain_hi, hi = cols.number("upper")
+            both &= plain_lo & plain_hi & (lo < hi) & (lo <= e) & (e <= hi)
+            if (both & ~lv_g).any() and not low < ci_level < high:
+                both &= lv_g  # the review's level is not usable
+            if measure in RATIO_MEASURES:
+                both &= (e > 0) & (lo > 0) & (hi > 0)
+            elif measure == "RD":
+                both &= (np.abs(e) <= 1.0) & (np.abs(lo) <= 1.0) & (np.abs(hi) <= 1.0)
+    flags = single.tolist()
+    at = np.flatnonzero(both)
+    if not at.size:
+        return flags
+    e, lo, hi = e[at], lo[at], hi[at]
+    decimals = _interval_decimals(rows, at, e, lo, hi, printed)
+    sure = _surely_symmetric_arrays(e, lo, hi, decimals, measure)
+    for i, d, ok_i in zip(at.tolist(), zip(*(d.tolist() for d in decimals)), sure, strict=True):
+        flags[i] = ok_i or _symmetric(rows[i], measure, d)
     return flags
+
+
+def _interval_decimals(rows, at, e, lo, hi, printed):
+    """The decimals check_row's interval rule takes for each row's estimate and limits
+    (three int arrays): :func:`interval_decimals` as it reads stored values, worked out
+    once per distinct value; rows with numbers as printed ask it row by row."""
+    import numpy as np
+
+    from lopside.intake.numbers import count_decimals, shown_decimals
+
+    vals = (e.tolist(), lo.tolist(), hi.tolist())
+    shown: dict = {}
+    counted: dict = {}
+    for v in set().union(*vals):
+        s = shown_decimals(v)
+        shown[v] = 99 if s is None else s  # None (exponent form): never "at most one"
+        counted[v] = count_decimals(None, v)
+    sh = np.array([list(map(shown.__getitem__, c)) for c in vals], dtype=int)
+    co = np.array([list(map(counted.__getitem__, c)) for c in vals], dtype=int)
+    top = sh.max(axis=0)
+    one = top < 2  # all three show at most one decimal: read as printed so
+    out = np.where(one, top, co)
+    if printed is not None:
+        for k, i in enumerate(at.tolist()):
+            pr = (printed[i] if i < len(printed) else None) or {}
+            texts = (pr.get("estimate"), pr.get("lower"), pr.get("upper"))
+            if any(texts):
+                r = rows[i]
+                got = interval_decimals((r.estimate, r.lower, r.upper), texts)  # type: ignore[arg-type]
+                out[:, k] = got
+    return out[0], out[1], out[2]
 
 
 def clean_means_rows(rows: Sequence[StudyRow], measure: str) -> list[bool]:

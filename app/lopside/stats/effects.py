@@ -82,7 +82,8 @@ from .derived import (  # noqa: F401 - Derived, hedges_j and the limits are this
     _z_quantile,
     hedges_j,
 )
-from .derived_batch import derive_batch
+from .derived_batch import batch_rows
+from .derived_rows import columns_of
 
 ROUTES: tuple[str, ...] = ("counts", "means", "ci", "se", "p")
 ROUTE_NAMES: dict[str, str] = {
@@ -721,16 +722,18 @@ def derive_all(rows: Iterable[StudyRow], measure: str, **kw: object) -> tuple[De
 
     Rows entered by one clean route (2x2 counts, an estimate with its SE or CI, or means
     and SDs) are derived together over arrays
-    (:func:`lopside.stats.derived_batch.derive_batch`, the same numbers); the first row
+    (:func:`lopside.stats.derived_batch.batch_rows`, the same numbers); the first row
     always takes the one-row path, so bad keyword arguments raise as before.
     """
     rows = tuple(rows)
     if not rows:
         return ()
     first = derive(rows[0], measure, **kw)  # type: ignore[arg-type]
-    fast = derive_batch(rows[1:], measure, **kw)  # type: ignore[arg-type]
-    rest = (
-        f if f is not None else derive(row, measure, **kw)  # type: ignore[arg-type]
-        for row, f in zip(rows[1:], fast, strict=True)
-    )
-    return (first, *rest)
+    out: list[Derived | None] = [None] * len(rows)
+    for idx, made in batch_rows(columns_of(rows), measure, **kw):  # type: ignore[arg-type]
+        for i, d in zip(idx.tolist(), made, strict=True):
+            out[i] = d
+    out[0] = first
+    for i in [i for i, d in enumerate(out) if d is None]:
+        out[i] = derive(rows[i], measure, **kw)  # type: ignore[arg-type]
+    return tuple(out)  # type: ignore[arg-type]
