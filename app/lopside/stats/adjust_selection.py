@@ -366,11 +366,10 @@ def selection_model(
 
     # many studies: Newton steps from one starting point, or when they cannot be trusted
     # L-BFGS-B from that point and the restart (the note says which)
-    few_starts = k > LARGE_K
-    fits = _maximise_newton(model, sign * re.estimate, re.tau2, se) if few_starts else None
+    few_starts, mu0 = k > LARGE_K, sign * re.estimate
+    fits = _maximise_newton(model, mu0, re.tau2, se) if few_starts else None
     newton = fits is not None
-    if fits is None:
-        fits = _maximise(model, sign * re.estimate, re.tau2, se, labels, few_starts=few_starts)
+    fits = fits or _maximise(model, mu0, re.tau2, se, labels, few_starts=few_starts)
     if isinstance(fits, NotComputable):
         return fits
     fit, null, x = fits
