@@ -116,7 +116,8 @@ def _root_reference(model, phi, selection):
     return out
 
 
-@pytest.mark.parametrize("seed", range(10))
+# seed 4 leaves a p-interval empty: not estimable by either path, so no fit to compare
+@pytest.mark.parametrize("seed", [s for s in range(11) if s != 4])
 def test_newton_maximum_is_where_the_gradient_vanishes(seed):
     y, se = _review(seed)
     cuts = CUTS[seed % 3]
@@ -124,8 +125,7 @@ def test_newton_maximum_is_where_the_gradient_vanishes(seed):
     sign = -1.0 if re.estimate < 0 else 1.0
     model = asel._Model(sign * y, se, cuts)
     labels = asel._interval_labels(cuts)
-    if np.any(model.counts == 0):
-        pytest.skip("an empty p-interval: not estimable by either path")
+    assert np.all(model.counts > 0)
     exact = asel._maximise(model, sign * re.estimate, re.tau2, se, labels)
     newton = asel._maximise_newton(model, sign * re.estimate, re.tau2, se)
     assert not isinstance(exact, asel.NotComputable) and newton is not None
@@ -156,7 +156,7 @@ def test_newton_declines_a_weight_at_its_limit():
     model = asel._Model(y, se, (0.025,))
     assert asel._maximise_newton(model, 0.5, 0.01, se) is None
     labels = asel._interval_labels((0.025,))
-    assert isinstance(asel._maximise(model, 0.5, 0.01, se, labels), asel.NotComputable)
+    assert "runs to its limit" in asel._maximise(model, 0.5, 0.01, se, labels).reason
 
 
 def test_falling_back_to_lbfgsb_says_so(monkeypatch):
