@@ -13,7 +13,10 @@ for any data, so a search that reached that bound would stay there even when the
 likelihood rises inside.
 
 Standard errors are Wald, from a central-difference numerical Hessian of the
-log-likelihood at the maximum. The likelihood-ratio test compares with the same model
+log-likelihood at the maximum. Above ``sensitivity.LARGE_K`` studies the fit is Newton
+steps with the exact gradient and Hessian (selection_newton.py) from the first starting
+point and the SEs come from that exact Hessian (L-BFGS-B as below when Newton cannot be
+trusted); the result's note and ``se_method`` say which. The likelihood-ratio test compares with the same model
 with every ω = 1 (plain ML random effects), χ² on J − 1 df.
 
 Cautions (methods.md 5.4): the LRT is very sensitive to a misspecified random-effects
