@@ -451,6 +451,64 @@ def test_large_selection_model_from_one_start_agrees_and_says_so(monkeypatch):
     assert one.omega[1] == pytest.approx(both.omega[1], rel=1e-4)
 
 
+@pytest.mark.parametrize("seed", range(10))
+def test_large_selection_model_by_newton_agrees_with_the_exact_fit(monkeypatch, seed):
+    # Reference: the exact path below the threshold (L-BFGS-B from two starts and a
+    # restart, central-difference Hessian; checked against scipy in test_selection.py).
+    # Above it Newton steps with the exact Hessian find the same maximum: the point where
+    # scipy.optimize.root zeroes the gradient, to 1e-9 (test_selection_newton.py). The
+    # exact path's L-BFGS-B stops on a relative fall of 1e-13 in the likelihood, with its
+    # gradient still up to about 1e-6 (seed 8: ω_3 off the root by 4e-7 of its SE), so the
+    # optimiser results are compared with it to 1e-6 of their size or SE, whichever is
+    # larger, and the log-likelihoods to 1e-9. The SEs and what follows from them to 1e-5:
+    # the exact path's central differences (step 1e-4) are off by about h² times the
+    # fourth derivatives. Estimable or not as the former large path (L-BFGS-B from the
+    # first start only).
+    import lopside.stats.adjust_selection as asel
+    import lopside.stats.sensitivity as sens
+    from lopside.stats.data import StudyData
+
+    rng = np.random.default_rng(600 + seed)
+    k = int(rng.choice([40, 150, 400]))
+    se = np.exp(rng.uniform(math.log(0.03), math.log(float(rng.choice([0.4, 3.0]))), k))
+    tau2 = float(rng.choice([0.0, 0.02, 0.3]))
+    y = rng.normal(rng.normal(-0.3, 0.4) - rng.uniform(0, 1.5) * se, np.sqrt(se**2 + tau2))
+    cuts = [(0.025,), (0.025, 0.5), (0.01, 0.05, 0.5)][seed % 3]
+    d = StudyData.from_arrays("OR", y, se)
+    exact = asel.selection_model(d, cutpoints=cuts)
+    monkeypatch.setattr(sens, "LARGE_K", 10)
+    fast = asel.selection_model(d, cutpoints=cuts)
+    monkeypatch.setattr(asel, "_maximise_newton", lambda *a: None)
+    former = asel.selection_model(d, cutpoints=cuts)
+    assert type(fast) is type(former)
+    if isinstance(former, asel.NotComputable):
+        assert fast.reason == former.reason
+        return
+    assert asel.selection_fit_note(fast) == asel.selection_large_note(k, newton=True)
+    assert fast.se_method == asel.SE_METHOD_EXACT and former.se_method == asel.SE_METHOD
+    # the two-start fit where it converges; else the one-start one (to 1e-5: its restart
+    # agrees with its first run only to a relative 1e-5 in the likelihood)
+    ref, opt = (exact, 1e-6) if not isinstance(exact, asel.NotComputable) else (former, 1e-5)
+    optimum = {".mu": ref.se, ".tau2": 0.0, ".unadjusted_mu": ref.se, ".unadjusted_tau2": 0.0}
+    optimum.update({f".omega[{j}]": ref.omega_se[j] or 0.0 for j in range(len(cuts) + 1)})
+    fields = {".loglik": 1e-9, ".loglik_unadjusted": 1e-9, ".lrt_statistic": 1e-9}
+    for (path, x), (_, z) in zip(_floats(fast), _floats(ref)):
+        if path == ".note":  # the exact path's notes (k < 20), after the large-review one
+            assert x.endswith(z.removeprefix(asel.selection_large_note(k)))
+        elif path == ".se_method" or z is None:
+            assert path == ".se_method" or x is None
+        elif path in optimum:
+            assert x == pytest.approx(z, rel=opt, abs=opt * optimum[path]), path
+        elif path in fields:
+            assert x == pytest.approx(z, abs=fields[path]), path
+        elif path.startswith((".se", ".omega_se", ".ci", ".statistic")):
+            assert x == pytest.approx(z, rel=max(opt, 1e-5), abs=1e-5 * ref.se), path
+        elif path in (".pvalue", ".lrt_pvalue"):  # through Φ of the statistic
+            assert x == pytest.approx(z, rel=1e-5 * (1.0 + ref.statistic**2), abs=1e-300)
+        else:
+            assert repr(x) == repr(z), path
+
+
 def _floats(obj, path=""):
     """(path, value) of every number in a result, in field order."""
     if dataclasses.is_dataclass(obj) and not isinstance(obj, type):

@@ -13,7 +13,10 @@ for any data, so a search that reached that bound would stay there even when the
 likelihood rises inside.
 
 Standard errors are Wald, from a central-difference numerical Hessian of the
-log-likelihood at the maximum. The likelihood-ratio test compares with the same model
+log-likelihood at the maximum. Above ``sensitivity.LARGE_K`` studies the fit is Newton
+steps with the exact gradient and Hessian (selection_newton.py) from the first starting
+point and the SEs come from that exact Hessian (L-BFGS-B as below when Newton cannot be
+trusted); the result's note and ``se_method`` say which. The likelihood-ratio test compares with the same model
 with every ω = 1 (plain ML random effects), χ² on J − 1 df.
 
 Cautions (methods.md 5.4): the LRT is very sensitive to a misspecified random-effects
@@ -39,6 +42,11 @@ SE_METHOD = (
     "Wald standard errors from a numerical (central-difference) Hessian of the "
     "log-likelihood at its maximum; normal (z) interval for μ; SE of ω by the delta "
     "method from log ω."
+)
+#: the same for a large review fitted by Newton steps (selection_newton.py)
+SE_METHOD_EXACT = (
+    "Wald standard errors from the exact (analytic) Hessian of the log-likelihood at its "
+    "maximum; normal (z) interval for μ; SE of ω by the delta method from log ω."
 )
 
 
@@ -192,22 +200,36 @@ class _Model:
         return float(-ll.sum()), -grad
 
 
-def selection_large_note(k: int) -> str:
-    """What :func:`selection_model` says when it thins its search for a large review."""
+def selection_large_note(k: int, *, newton: bool = False) -> str:
+    """What :func:`selection_model` says when it thins its search for a large review:
+    ``newton`` for the fit by Newton steps with the exact Hessian (the usual one above
+    LARGE_K), otherwise the L-BFGS-B fit it falls back to."""
     from .sensitivity import LARGE_K
 
-    return (
-        f"With {k:,} studies (more than {LARGE_K:,}), the selection model was fitted from one "
-        "starting point (the random-effects estimate with equal weights) and a restart from "
-        "its result, not also from a second starting point."
+    head = f"With {k:,} studies (more than {LARGE_K:,}), the selection model was fitted "
+    if newton:
+        return head + (
+            "by Newton steps with the exact gradient and Hessian from one starting point "
+            "(the random-effects estimate with equal weights), not also from a second "
+            "starting point; its standard errors come from that exact Hessian, not a "
+            "numerical one."
+        )
+    return head + (
+        "from one starting point (the random-effects estimate with equal weights) and a "
+        "restart from its result, not also from a second starting point."
     )
 
 
 def selection_fit_note(result) -> str:
     """The large-review note of a selection model result ("" when it has none)."""
     k, note = getattr(result, "k", 0), getattr(result, "note", "")
-    large = selection_large_note(k) if k else ""
-    return large if large and large in note else ""
+    if not k:
+        return ""
+    for newton in (True, False):
+        large = selection_large_note(k, newton=newton)
+        if large in note:
+            return large
+    return ""
 
 
 #: L-BFGS-B options: with the exact gradient the fit can be taken much closer to the
@@ -345,15 +367,18 @@ def selection_model(
         )
     from .sensitivity import LARGE_K
 
-    # many studies: one starting point and the restart (the note says so)
-    few_starts = k > LARGE_K
-    fits = _maximise(model, sign * re.estimate, re.tau2, se, labels, few_starts=few_starts)
+    # many studies: Newton steps from one starting point, or when they cannot be trusted
+    # L-BFGS-B from that point and the restart (the note says which)
+    few_starts, mu0 = k > LARGE_K, sign * re.estimate
+    fits = _maximise_newton(model, mu0, re.tau2, se) if few_starts else None
+    newton = fits is not None
+    fits = fits or _maximise(model, mu0, re.tau2, se, labels, few_starts=few_starts)
     if isinstance(fits, NotComputable):
         return fits
     fit, null, x = fits
     logw = x[2:]
-    note_parts = [selection_large_note(k)] if few_starts else []
-    se_x = _standard_errors(model, x, se, note_parts)
+    note_parts = [selection_large_note(k, newton=newton)] if few_starts else []
+    se_x = _standard_errors(model, x, se, note_parts, exact=newton)
     if isinstance(se_x, NotComputable):
         return se_x
 
@@ -394,6 +419,7 @@ def selection_model(
         lrt_pvalue=float(chdtrc(J - 1, lrt)),
         converged=True,
         k=int(k),
+        se_method=SE_METHOD_EXACT if newton else SE_METHOD,
         confidence_level=confidence_level,
         note="; ".join(note_parts),
     )
@@ -431,7 +457,7 @@ def _maximise(model: _Model, mu0: float, tau2: float, se: np.ndarray, labels, *,
     weights), or NotComputable when either fit fails or a weight runs to its bound.
     ``few_starts`` leaves out the second starting point of the fit with selection."""
     J = len(labels)
-    tau0 = math.sqrt(tau2) if tau2 > 0 else 0.1 * float(np.median(se))
+    tau0 = _start_tau(tau2, se)
     bounds_null = [(None, None), (0.0, None)]
     null, ok_null = _fit(model, [np.array([mu0, tau0])], bounds_null, selection=False)
     bounds = bounds_null + [(-_LOGW_BOUND, _LOGW_BOUND)] * (J - 1)
@@ -459,16 +485,48 @@ def _maximise(model: _Model, mu0: float, tau2: float, se: np.ndarray, labels, *,
     return fit, null, x
 
 
-def _standard_errors(model: _Model, x: np.ndarray, se: np.ndarray, note_parts: list[str]):
-    """SEs of the parameters from the Hessian; τ at its boundary is held fixed (set to 0
-    in ``x``, said in ``note_parts``). NotComputable when the likelihood is flat."""
+def _start_tau(tau2: float, se: np.ndarray) -> float:
+    """τ at the start of the fits: from the random-effects τ², or a tenth of the median SE."""
+    return math.sqrt(tau2) if tau2 > 0 else 0.1 * float(np.median(se))
+
+
+def _maximise_newton(model: _Model, mu0: float, tau2: float, se: np.ndarray):
+    """As :func:`_maximise` from its first starting point, by Newton steps with the exact
+    Hessian (selection_newton.py); ``None`` when they cannot be trusted or a weight comes
+    near its bound (the caller then runs :func:`_maximise`, which also reports that)."""
+    from .selection_newton import newton_fit
+
+    t0 = _start_tau(tau2, se) ** 2
+    J = model.J
+    null = newton_fit(model, np.array([mu0, t0]), selection=False, logw_bound=_LOGW_BOUND)
+    start = np.concatenate([[mu0, t0], np.zeros(J - 1)])
+    fit = newton_fit(model, start, selection=True, logw_bound=_LOGW_BOUND)
+    if null is None or fit is None or np.any(np.abs(fit[0][2:]) > _LOGW_BOUND - 1e-2):
+        return None
+    fits = []
+    for phi, fun in (fit, null):
+        x = np.array(phi, dtype=float)
+        x[1] = math.sqrt(x[1])
+        fits.append(_Fit(x, float(fun), True))
+    return fits[0], fits[1], fits[0].x
+
+
+def _standard_errors(model: _Model, x, se: np.ndarray, note_parts: list[str], exact=False):
+    """SEs of the parameters from the Hessian (numerical, or ``exact`` from
+    selection_newton.py); τ at its boundary is held fixed (set to 0 in ``x``, said in
+    ``note_parts``). NotComputable when the likelihood is flat."""
     tau_zero = x[1] <= 1e-6 * max(1.0, float(np.median(se)))
     free = np.ones(x.size, dtype=bool)
     if tau_zero:
         x[1] = 0.0
         free[1] = False
         note_parts.append("τ² was estimated at 0 (boundary); the SEs treat it as fixed")
-    H = _hessian(lambda t: model.negll(t, selection=True), x, free)
+    if exact:
+        from .selection_newton import hessian_in_tau
+
+        H = hessian_in_tau(model, x, free)
+    else:
+        H = _hessian(lambda t: model.negll(t, selection=True), x, free)
     eig = np.linalg.eigvalsh(0.5 * (H + H.T))
     if not np.all(np.isfinite(eig)) or eig.min() <= 1e-8 * max(1.0, abs(eig.max())):
         return NotComputable(
