@@ -448,15 +448,15 @@ def derive_all(rows: Iterable[StudyRow], measure: str, **kw: object) -> tuple[De
     return (first, *rest)
 
 
-# -- analysis.build_study_data -------------------------------------------------------
+# -- study_arrays.build_study_data (formerly in analysis) ----------------------------
 
-from lopside.analysis import (  # noqa: E402
+from lopside.stats.data import StudyData  # noqa: E402
+from lopside.study_arrays import (  # noqa: E402
     _OPTIONAL_COLUMNS,
     UNREPORTED_REASON,
     ExcludedStudy,
     _nan_columns,
 )
-from lopside.stats.data import StudyData  # noqa: E402
 
 
 def build_study_data(review: Review, measure: str, derived) -> tuple[StudyData, tuple]:

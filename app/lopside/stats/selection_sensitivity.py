@@ -321,22 +321,7 @@ def _model(
     n_e, n_s = eta_arr.size, search0.size
     est, se, df, crit = (x[:n_e] for x in (est_all, se_all, df_all, crit_all))
     cut = slice(n_e + n_s, n_e + n_s + curve_grid.size)
-    by_eta = []
-    for i, eta in enumerate(etas):
-        lo, hi = _limits(est[i], se[i], crit[i])
-        ok = math.isfinite(lo) and math.isfinite(hi)
-        if sign < 0:
-            lo, hi = -hi, -lo
-        by_eta.append(
-            CorrectedEstimate(
-                eta=float(eta),
-                estimate=float(sign * est[i]),
-                se=float(se[i]),
-                ci_low=float(lo) if ok else None,
-                ci_high=float(hi) if ok else None,
-                df=float(df[i]) if robust and math.isfinite(df[i]) else None,
-            )
-        )
+    by_eta = _by_eta(etas, est, se, df, crit, sign, robust)
 
     # worst case: the non-affirmative studies alone (the last row above)
     last = (float(est_all[-1]), float(se_all[-1]), df_all[-1], crit_all[-1])
@@ -359,22 +344,47 @@ def _model(
     else:
         grid = _geom(1.0, top, CURVE_POINTS)
         ce, cs, _, cc = evaluate(grid)
-    lo_c, hi_c = ce - cc * cs, ce + cc * cs
-    if sign < 0:
-        lo_c, hi_c = -hi_c, -lo_c
-    curve = tuple(map(tuple, np.column_stack([grid, sign * ce, lo_c, hi_c]).tolist()))
     return SensitivityModel(
         model=name,
         method=ROBUST_METHOD if robust else FIXED_METHOD,
         tau2=float(tau2),
-        by_eta=tuple(by_eta),
+        by_eta=by_eta,
         s_value=s_value,
         s_value_reason=s_reason,
         s_value_ci=s_ci,
         s_value_ci_reason=ci_reason,
         worst_case=worst,
-        curve=curve,
+        curve=_curve(grid, ce, cs, cc, sign),
     )
+
+
+def _by_eta(etas, est, se, df, crit, sign: int, robust: bool) -> tuple[CorrectedEstimate, ...]:
+    """The corrected estimate at each reported η, on the review's own side."""
+    out = []
+    for i, eta in enumerate(etas):
+        lo, hi = _limits(est[i], se[i], crit[i])
+        ok = math.isfinite(lo) and math.isfinite(hi)
+        if sign < 0:
+            lo, hi = -hi, -lo
+        out.append(
+            CorrectedEstimate(
+                eta=float(eta),
+                estimate=float(sign * est[i]),
+                se=float(se[i]),
+                ci_low=float(lo) if ok else None,
+                ci_high=float(hi) if ok else None,
+                df=float(df[i]) if robust and math.isfinite(df[i]) else None,
+            )
+        )
+    return tuple(out)
+
+
+def _curve(grid, ce, cs, cc, sign: int) -> tuple:
+    """The figure's curve: (η, estimate, low, high) on the review's own side."""
+    lo_c, hi_c = ce - cc * cs, ce + cc * cs
+    if sign < 0:
+        lo_c, hi_c = -hi_c, -lo_c
+    return tuple(map(tuple, np.column_stack([grid, sign * ce, lo_c, hi_c]).tolist()))
 
 
 def _worst_case(yy, w, aff, sign: int, robust: bool, last) -> WorstCase | NotComputable:
