@@ -203,7 +203,7 @@ def test_rows_built_without_the_dataclass_init_are_the_same_objects():
     import pickle
     from itertools import repeat
 
-    from lopside.stats.pooling_batch import instances
+    from lopside.stats.results import instances
     from lopside.stats.results import ConfidenceInterval, PooledEstimate
     from lopside.stats.sensitivity import CumulativeStep, LeaveOneOutRow
 

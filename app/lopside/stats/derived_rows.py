@@ -26,7 +26,6 @@ from __future__ import annotations
 import dataclasses
 import math
 import operator
-from collections import deque
 from collections.abc import Sequence
 from contextlib import contextmanager
 from contextvars import ContextVar
@@ -215,7 +214,6 @@ def columns_of(rows: Sequence) -> RowColumns:
 
 _FIELDS = tuple(f.name for f in dataclasses.fields(Derived))
 _DEFAULTS = {f.name: f.default for f in dataclasses.fields(Derived)}
-_SETTERS = {name: getattr(Derived, name).__set__ for name in _FIELDS}
 #: set the slots directly only while Derived is what this relies on: slots in field
 #: order, a plain default for each field and no __post_init__ (else call Derived())
 _DIRECT = (
@@ -230,7 +228,7 @@ def derived_many(count: int, **columns: object) -> list[Derived]:
     else is the value of every result; fields not named keep their defaults.
 
     The objects are those ``Derived(**fields)`` makes (equal, same repr; tested), made by
-    setting each field for all results at once, without a call of the generated
+    :func:`~lopside.stats.pooling_batch.instances`, without a call of the generated
     ``__init__`` (20 frozen-attribute writes) per row.
     """
     for name, col in columns.items():
@@ -243,11 +241,10 @@ def derived_many(count: int, **columns: object) -> list[Derived]:
             Derived(**{k: v[i] if isinstance(v, list) else v for k, v in columns.items()})  # type: ignore[arg-type]
             for i in range(count)
         ]
-    out = list(map(object.__new__, repeat(Derived, count)))
-    for name in _FIELDS:
-        col = columns.get(name, _DEFAULTS[name])
-        deque(map(_SETTERS[name], out, col if isinstance(col, list) else repeat(col)), maxlen=0)
-    return out
+    from .results import instances
+
+    values = (columns.get(name, _DEFAULTS[name]) for name in _FIELDS)
+    return instances(Derived, *(c if isinstance(c, list) else repeat(c, count) for c in values))
 
 
 def _inside(y: np.ndarray, var: np.ndarray) -> tuple[np.ndarray, np.ndarray]:

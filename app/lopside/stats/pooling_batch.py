@@ -5,8 +5,7 @@
 from __future__ import annotations
 
 import math
-from collections import deque
-from dataclasses import dataclass, fields
+from dataclasses import dataclass
 from itertools import repeat
 
 import numpy as np
@@ -23,7 +22,7 @@ from lopside.stats.tau2 import (
     tau2_reml,
 )
 
-from .results import ConfidenceInterval, NotComputable, PooledEstimate
+from .results import ConfidenceInterval, NotComputable, PooledEstimate, instances
 
 # Leave-one-out and cumulative analyses pool k subsets of one set of studies. The batched
 # functions take the studies once and a boolean ``mask`` with one row per subset and give,
@@ -580,38 +579,6 @@ def fixed_effect_batch(
         y, v, mask, np.zeros(mask.shape[0]), hksj=False, with_weights=with_weights
     )
     return _fixed_results(est, sw, n, weights, confidence_level)
-
-
-def instances(cls, *columns) -> list:
-    """Instances of a frozen, slotted dataclass, one per row of ``columns`` (one iterable
-    per field, in field order; ``itertools.repeat`` for a value shared by every row).
-
-    The same objects as ``cls(*row)`` (same type, fields, equality, hash and pickling),
-    built about four times faster: the dataclass ``__init__`` of a frozen class sets each
-    field through ``object.__setattr__``, which at k = 3,000 leave-one-out rows (two
-    pooled estimates each) cost more than the pooling. Each row is made as an instance
-    of a plain class with the same slots and then given ``cls`` as its class (Python
-    allows that only between classes of the same layout, else TypeError). Only for
-    classes whose ``__init__`` just stores its arguments (no ``__post_init__``).
-    """
-    maker = _TWINS.get(cls)
-    if maker is None:
-        names = cls.__slots__
-        if hasattr(cls, "__post_init__") or tuple(f.name for f in fields(cls)) != names:
-            raise TypeError(f"{cls.__name__} cannot be built without its __init__")
-        code = f"def __init__(self, {', '.join(names)}):\n" + "".join(
-            f"    self.{n} = {n}\n" for n in names
-        )
-        space: dict = {}
-        exec(code, space)  # noqa: S102 - a fixed template over the class's own field names
-        maker = type(f"_Plain{cls.__name__}", (), {"__slots__": names, **space})
-        _TWINS[cls] = maker
-    objs = list(map(maker, *columns))
-    deque(map(setattr, objs, repeat("__class__"), repeat(cls)), maxlen=0)
-    return objs
-
-
-_TWINS: dict[type, type] = {}
 
 
 def _intervals(lo: list, hi: list) -> list:

@@ -26,9 +26,8 @@ from .pooling import (
     random_effects,
     random_effects_batch,
 )
-from .pooling_batch import instances
 from .pooling_loo import cumulative_large
-from .results import NotComputable, PooledEstimate, RowsOnDemand
+from .results import NotComputable, PooledEstimate, RowsOnDemand, instances
 
 FAIL_SAFE_CAUTION = (
     "Fail-safe N is not recommended (Cochrane Handbook 5.1, section 10.4.4.3): the number "
