@@ -203,8 +203,7 @@ def test_rows_built_without_the_dataclass_init_are_the_same_objects():
     import pickle
     from itertools import repeat
 
-    from lopside.stats.results import instances
-    from lopside.stats.results import ConfidenceInterval, PooledEstimate
+    from lopside.stats.results import ConfidenceInterval, PooledEstimate, instances
     from lopside.stats.sensitivity import CumulativeStep, LeaveOneOutRow
 
     ci = ConfidenceInterval(-0.5, 0.25)

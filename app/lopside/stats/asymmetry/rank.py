@@ -194,17 +194,41 @@ def _kendall_sorted(x: np.ndarray, y: np.ndarray):
     """
     n = x.size
     n0 = n * (n - 1) // 2
+    xt = _tie_group_sums(x)
+    yt = _tie_group_sums(y)
+    s = _s_from_tau_b(x, y, n0 - xt[0] / 2.0, n0 - yt[0] / 2.0)
+    if s is not None:
+        return s, xt, yt
     order = np.lexsort((y, x))
     xs, ys = x[order], y[order]
     y_rank = np.unique(ys, return_inverse=True)[1].reshape(-1)
     dis = _count_inversions(y_rank)
     x_rank = np.unique(xs, return_inverse=True)[1].reshape(-1)
     both = x_rank.astype(np.int64) * (int(y_rank.max()) + 1) + y_rank
-    xt = _tie_group_sums(xs)
-    yt = _tie_group_sums(ys)
     bt = _tie_group_sums(both)
     s = n0 - xt[0] / 2.0 - yt[0] / 2.0 + bt[0] / 2.0 - 2.0 * dis
     return float(s), xt, yt
+
+
+def _s_from_tau_b(x: np.ndarray, y: np.ndarray, untied_x: float, untied_y: float):
+    """Kendall's S from scipy's tau-b (None when it is not defined or S not recovered).
+
+    tau-b = S / sqrt(untied_x untied_y) (the pairs not tied in x, in y); S is an integer
+    and scipy's count (a merge sort in compiled code) carries it to a few ulps, so
+    rounding S = tau-b sqrt(untied_x untied_y) gives it exactly (|S| <= k(k-1)/2; an
+    error of 0.5 would need k near 10^7). Its count is about five times quicker than
+    :func:`_count_inversions`.
+    """
+    from scipy.stats import kendalltau
+
+    if untied_x <= 0 or untied_y <= 0:
+        return None
+    tau = float(kendalltau(x, y, method="asymptotic").statistic)
+    if not math.isfinite(tau):
+        return None
+    scaled = tau * math.sqrt(untied_x) * math.sqrt(untied_y)
+    s = float(round(scaled))
+    return s if abs(scaled - s) < 1e-3 else None
 
 
 def _begg_single_sorted(tstar: np.ndarray, vv: np.ndarray, ok: np.ndarray):
