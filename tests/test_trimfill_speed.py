@@ -264,3 +264,33 @@ def test_warm_reml_is_the_root_of_the_score_and_tau2_reml_within_its_tolerance()
         else:
             assert _reml_score(y, v, 0.0) <= 0  # a maximum at the boundary
     assert checked > 20
+
+
+def test_settings_that_differ_in_the_fill_model_trim_once_in_an_analysis(monkeypatch):
+    """Trimming does not depend on the fill model (Duval & Tweedie 2000: the fill model
+    only pools the filled data), so within one analysis trim FE / fill FE and trim FE /
+    fill RE trim once; each result equals trim and fill run on its own, outside any
+    analysis (no memo)."""
+    import lopside.stats.adjust_trimfill as tf
+    from lopside.stats.data import StudyData
+    from lopside.stats.tau2 import reuse_tau2
+
+    rng = np.random.default_rng(3)
+    se = rng.uniform(0.1, 0.6, 40)
+    y = rng.normal(-0.3 - 0.8 * se, np.sqrt(se**2 + 0.02))
+    data = StudyData.from_arrays("OR", y, se)
+    calls = []
+    real = tf._trim
+    monkeypatch.setattr(tf, "_trim", lambda *a, **k: calls.append(a[3:5]) or real(*a, **k))
+    settings = [(e, t, f) for e in ("L0", "R0") for t, f in (("FE", "FE"), ("FE", "RE"))]
+    with reuse_tau2():
+        shared = [
+            tf.trim_and_fill(data, estimator=e, trim_model=t, fill_model=f) for e, t, f in settings
+        ]
+    assert sorted(calls) == [("L0", "FE"), ("R0", "FE")]
+    alone = [
+        tf.trim_and_fill(data, estimator=e, trim_model=t, fill_model=f) for e, t, f in settings
+    ]
+    assert len(calls) == 2 + len(settings)  # outside an analysis nothing is kept
+    assert shared == alone
+    assert any(r.k0 > 0 for r in shared)  # the data did need filling

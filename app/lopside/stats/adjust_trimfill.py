@@ -36,6 +36,7 @@ from .data import StudyData
 from .pooling import TAU2_METHODS, estimate_tau2, fixed_effect, random_effects
 from .pooling_base import TOO_EXTREME, _too_extreme
 from .results import NotComputable, PooledEstimate
+from .tau2 import analysis_memo
 from .trimfill_tau2 import reml_from
 
 ESTIMATORS: tuple[str, ...] = ("L0", "R0")
@@ -227,19 +228,30 @@ def trim_and_fill(
     sign = 1.0 if side_used == "left" else -1.0
     yw = sign * y
     v = se**2
-    trim_order = _trim_order(yw, se)
-    trimming = _trim(
-        yw,
-        v,
-        trim_order,
-        estimator,
-        trim_model,
-        tau2_method,
-        max_iter,
-        confidence_level,
-        y=y,
-        warm=warm and trim_model == "RE",
-    )
+    # the trimming does not depend on the fill model: within one analysis, the settings
+    # that differ only in it (trim FE, fill FE or RE) trim once
+    memo = analysis_memo()
+    key = ("trim and fill: trimming", estimator, trim_model, tau2_method, max_iter)
+    key += (confidence_level, warm, sign, y.tobytes(), se.tobytes())
+    found = memo.get(key) if memo is not None else None
+    if found is None:
+        trim_order = _trim_order(yw, se)
+        trimming = _trim(
+            yw,
+            v,
+            trim_order,
+            estimator,
+            trim_model,
+            tau2_method,
+            max_iter,
+            confidence_level,
+            y=y,
+            warm=warm and trim_model == "RE",
+        )
+        found = (trim_order, trimming)
+        if memo is not None:
+            memo[key] = found
+    trim_order, trimming = found
     if isinstance(trimming, NotComputable):
         return trimming
     k0, centre, sequence, iterations, converged, note = trimming

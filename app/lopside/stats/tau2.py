@@ -284,6 +284,15 @@ def reuse_tau2():
         _REUSE.reset(token)
 
 
+def analysis_memo() -> dict | None:
+    """The memo of the current :func:`reuse_tau2` block (None outside one).
+
+    Other deterministic steps of the same analysis may keep their results there, under
+    keys of their own (a tuple whose first item names the step): trim and fill's
+    trimming, which two of its settings share."""
+    return _REUSE.get()
+
+
 def estimate_tau2(y, v, method: str) -> Tau2Estimate:
     """tau^2 by ``method`` ("DL", "PM" or "REML"); see :func:`reuse_tau2`."""
     memo = _REUSE.get()
