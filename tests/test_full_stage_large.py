@@ -603,10 +603,11 @@ def test_large_fixed_weight_fit_from_a_warm_start_agrees_with_the_plain_fit(monk
         assert a == pytest.approx(b, rel=1e-9, abs=1e-9 * size)
 
 
-def test_interpolated_selection_sums_are_close_to_the_exact_ones():
-    # Reference: _Batch's sums for every study (the exact model); the interpolated ones
-    # (a starting point only; 32 nodes over two decades of SE) are that model's sums to
-    # 1e-6, close enough that the exact Newton steps from their maximum need one step
+def test_selection_terms_by_quadrature_are_close_to_the_exact_ones():
+    # Reference: _Batch's objective, gradient and Hessian (the exact model, each study's
+    # terms summed); the quadrature over 32 Chebyshev nodes in log SE (a starting point
+    # only, over two decades of SE) gives them to 1e-6 of their size, close enough that
+    # the exact Newton steps from its maximum need one or two evaluations
     from lopside.stats.selection_fixed import CUTPOINTS, PATTERNS, _Batch, _SmoothBatch
 
     rng = np.random.default_rng(9)
@@ -614,12 +615,11 @@ def test_interpolated_selection_sums_are_close_to_the_exact_ones():
     y = rng.normal(0.3, 0.5, 700)
     exact, smooth = _Batch(y, se, CUTPOINTS), _SmoothBatch(y, se, CUTPOINTS)
     logw = np.log(np.array([PATTERNS[p] for p in PATTERNS]))
-    steps = np.exp(logw)[:, 1:] - np.exp(logw)[:, :-1]
-    mu, t2 = rng.normal(0.3, 0.3, 4), rng.uniform(0.0, 0.2, 4)
-    st = np.sqrt(se[None, :] ** 2 + t2[:, None])
-    a = exact._selection_sums(mu, st, steps, 5, t2)
-    b = smooth._selection_sums(mu, st, steps, 5, t2)
-    assert np.max(np.abs(a - b)) < 1e-6 * max(1.0, np.max(np.abs(a)))
+    mu, t2 = rng.normal(0.3, 0.3, len(logw)), rng.uniform(0.0, 0.2, len(logw))
+    for a, b in zip(exact(mu, t2, logw, hessian=True), smooth(mu, t2, logw, hessian=True)):
+        assert np.all(np.isfinite(a))
+        assert np.max(np.abs(a - b)) < 1e-6 * max(1.0, np.max(np.abs(a)))
+    assert not np.allclose(exact(mu, t2, logw)[1], exact(mu + 0.01, t2, logw)[1], rtol=1e-4)
 
 
 @pytest.mark.parametrize("key", ["FE-IV", "REML+HKSJ", "DL", "PM"])

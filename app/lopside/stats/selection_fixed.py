@@ -99,11 +99,12 @@ class _Batch:
         self.counts = np.bincount(self.interval, minlength=len(cutpoints) + 1).astype(float)
         self._ndtr = ndtr
 
-    def _selection_sums(self, mu, st, steps, n, t2=None):
-        """Σ_m Δω_m a_mʲ φ(a_m) (and Σ_m Δω_m Φ(a_m) first), per point and study
-        (``t2``, the points' τ², is for :class:`_SmoothBatch`)."""
+    def _selection_sums(self, mu, st, steps, n, inner=None):
+        """Σ_m Δω_m a_mʲ φ(a_m) (and Σ_m Δω_m Φ(a_m) first), per point and study (or per
+        point and SE of ``inner``, the inner bounds on the effect scale of those SEs)."""
         dwb = steps[None, :, :, None]
-        a = self.inner[None, :, :] - mu[:, None, None]
+        inner = self.inner if inner is None else inner
+        a = inner[None, :, :] - mu[:, None, None]
         a /= st[:, :, None]  # B,k,J-1
         T = np.empty((n, *a.shape))  # Φ(a), φ(a), aφ(a) [, a²φ(a), a³φ(a)]
         self._ndtr(a, out=T[0])
@@ -142,7 +143,7 @@ class _Batch:
         sel = np.flatnonzero(np.any(steps != 0.0, axis=1))
         Ssum = np.zeros((n, mu.size, self.y.size))
         if sel.size:
-            Ssum[:, sel] = self._selection_sums(mu[sel], st[sel], steps[sel], n, t2[sel])
+            Ssum[:, sel] = self._selection_sums(mu[sel], st[sel], steps[sel], n)
         A = omega[:, :1] + Ssum[0]
         S0, S1 = Ssum[1], Ssum[2]
         dA_mu = -S0 / st
@@ -175,15 +176,18 @@ class _Batch:
 
 
 class _SmoothBatch(_Batch):
-    """The same likelihood with its selection sums interpolated over the studies' SEs: a
-    cheap model to find the starting point of the exact fit of a large review.
+    """The same likelihood with its selection terms summed by quadrature over the
+    studies' SEs: a cheap model to find the starting point of the exact fit of a large
+    review.
 
-    Given (μ, τ², ω) a study's selection sums depend on the study only through its SE, as
-    a smooth function of log SE (analytic in the strip |Im| < π/2, where
-    SE² + τ² stays away from 0). They are computed at ``nodes`` Chebyshev points spanning
-    the SEs and interpolated (barycentric formula) to every study. Its maximum is only a
-    starting point: the fit itself is the exact Newton iteration of :class:`_Batch` from
-    there, which stops by the same rule as from any other start.
+    Given (μ, τ², ω) a study's selection terms (log A and its derivatives) depend on the
+    study only through its SE, as a smooth function of log SE (analytic in the strip
+    |Im| < π/2, where SE² + τ² stays away from 0). Interpolated from ``nodes`` Chebyshev
+    points spanning the SEs (barycentric weights L_n), their sum over the studies is
+    Σ_n f(node_n) Σ_i L_n(SE_i): they are evaluated at the nodes only. The terms in y are
+    summed over every study as in :class:`_Batch`. Its maximum is only a starting point:
+    the fit itself is the exact Newton iteration of :class:`_Batch` from there, which
+    stops by the same rule as from any other start.
     """
 
     def __init__(self, y, se, cutpoints, nodes: int = 32):
@@ -206,17 +210,53 @@ class _SmoothBatch(_Batch):
             C = bw[None, :] / diff
         on_node = hit.any(axis=1)
         C[on_node] = hit[on_node]
-        self.interp = (C / C.sum(axis=1, keepdims=True)).T  # nodes x k
+        #: Σ_i L_n(SE_i): the quadrature weight of each node
+        self.node_weight = (C / C.sum(axis=1, keepdims=True)).sum(axis=0)
 
-    def _selection_sums(self, mu, st, steps, n, t2=None):
-        st_n = np.sqrt(self.node_v[None, :] + t2[:, None])
-        exact_inner, self.inner = self.inner, self.node_inner
-        try:
-            sums = super()._selection_sums(mu, st_n, steps, n)  # n x B x nodes
-        finally:
-            self.inner = exact_inner
-        shape = sums.shape
-        return (sums.reshape(-1, shape[-1]) @ self.interp).reshape(*shape[:-1], -1)
+    def __call__(self, mu: np.ndarray, t2: np.ndarray, logw: np.ndarray, *, hessian=False):
+        """f, grad [and Hessian] as :meth:`_Batch.__call__`, with the selection terms by
+        quadrature (the expressions are those of :meth:`_Batch.__call__`, split into the
+        terms in y and the terms in SE alone)."""
+        st2 = self.v[None, :] + t2[:, None]
+        r = self.y[None, :] - mu[:, None]
+        z2 = r * r / st2
+        omega = np.exp(logw)
+        steps = omega[:, 1:] - omega[:, :-1]
+        n = 5 if hessian else 3
+        nv = self.node_v[None, :] + t2[:, None]  # σ² at the nodes
+        ns = np.sqrt(nv)
+        sel = np.flatnonzero(np.any(steps != 0.0, axis=1))
+        S = np.zeros((n, mu.size, self.node_v.size))
+        if sel.size:
+            S[:, sel] = self._selection_sums(mu[sel], ns[sel], steps[sel], n, self.node_inner)
+        W = self.node_weight
+        A = omega[:, :1] + S[0]
+        with np.errstate(divide="ignore", invalid="ignore"):
+            q_mu = -S[1] / ns / A
+            q_t2 = -0.5 * S[2] / nv / A
+            ll = -0.5 * np.log(2.0 * np.pi * st2).sum(axis=1) - 0.5 * z2.sum(axis=1)
+            ll -= np.log(A) @ W
+            g_mu = (r / st2).sum(axis=1) - q_mu @ W
+            g_t2 = (0.5 * (z2 - 1.0) / st2).sum(axis=1) - q_t2 @ W
+        f = -ll - logw @ self.counts
+        f[~np.isfinite(f) | np.any(A <= 0, axis=1)] = np.inf
+        grad = -np.stack([g_mu, g_t2], axis=1)
+        if not hessian:
+            return f, grad
+        st4 = st2 * st2
+        nv2 = nv * nv
+        with np.errstate(divide="ignore", invalid="ignore"):
+            a_mm = -S[2] / nv / A - q_mu * q_mu
+            a_mt = -(S[3] - S[1]) / (2.0 * nv * ns) / A - q_mu * q_t2
+            a_tt = (3.0 * S[2] - S[4]) / (4.0 * nv2) / A - q_t2 * q_t2
+            h_mm = (-1.0 / st2).sum(axis=1) - a_mm @ W
+            h_mt = (-r / st4).sum(axis=1) - a_mt @ W
+            h_tt = (-(r * r) / (st4 * st2) + 0.5 / st4).sum(axis=1) - a_tt @ W
+        H = np.empty((f.size, 2, 2))
+        H[:, 0, 0] = -h_mm
+        H[:, 0, 1] = H[:, 1, 0] = -h_mt
+        H[:, 1, 1] = -h_tt
+        return f, grad, H
 
 
 #: A full Newton step (exact Hessian) shorter than this, relative to the parameters' size,
