@@ -99,6 +99,14 @@ def test_derivation_is_as_before(measure, data):
     rows = data.draw(mixed_review(measure))
     opts = data.draw(st.sampled_from(OPTIONS))
     level, method = opts["ci_level"], opts["ci_method"]
+    try:
+        rows_before.derive_all(rows, measure, **opts)
+    except ValueError:
+        # the former code raised (math.log of an odds ratio that underflows to 0); the new
+        # one leaves such a row to the one-row path, which reports it: every row as
+        # effects.derive gives it alone
+        assert derive_all(rows, measure, **opts) == tuple(derive(r, measure, **opts) for r in rows)
+        return
     # each batch path: the former one vouched for exactly the rows the new one vouches for
     for new, old in (
         (counts_batch(rows, measure), rows_before.counts_batch(rows, measure)),

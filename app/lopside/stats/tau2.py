@@ -145,7 +145,15 @@ def tau2_reml(y, v, *, max_iter: int = _MAX_ITER) -> Tau2Estimate:
         return Tau2Estimate("REML", 0.0, note="one study: no between-study variance")
     start = tau2_dl(y, v).tau2
     est, ll_est = _reml_scoring(y, v, start, max_iter)
-    grid = np.concatenate(([0.0], _grid_scale(y, v, start) * _GRID_UNIT))
+    return checked_on_grid(y, v, est, ll_est, start, max_iter)
+
+
+def checked_on_grid(y, v, est: Tau2Estimate, ll_est: float, dl: float, max_iter: int):
+    """``est`` (restricted log-likelihood ``ll_est``), or the maximum scored from the best
+    point of the safeguard grid when the likelihood there is higher: the check of
+    :func:`tau2_reml` for a second, higher maximum (the grid's scale uses ``dl``, the
+    DerSimonian-Laird value)."""
+    grid = np.concatenate(([0.0], _grid_scale(y, v, dl) * _GRID_UNIT))
     lls = _restricted_loglik_grid(y, v, grid)
     best = int(np.argmax(lls))
     if lls[best] > ll_est + 1e-10:

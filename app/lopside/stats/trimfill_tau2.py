@@ -22,13 +22,11 @@ import math
 import numpy as np
 
 from .tau2 import (
-    _GRID_UNIT,
     _MAX_ITER,
     Tau2Estimate,
-    _grid_scale,
     _reml_point,
     _reml_scoring,
-    _restricted_loglik_grid,
+    checked_on_grid,
     tau2_dl,
     tau2_reml,
 )
@@ -49,15 +47,8 @@ def reml_from(y: np.ndarray, v: np.ndarray, start: float, *, grid: bool) -> Tau2
         ll_est = _reml_point(y, v, est.tau2)[0]
     if not grid:
         return est
-    # the grid of tau2_reml: its scale uses the DerSimonian-Laird value
-    g = np.concatenate(([0.0], _grid_scale(y, v, tau2_dl(y, v).tau2) * _GRID_UNIT))
-    lls = _restricted_loglik_grid(y, v, g)
-    best = int(np.argmax(lls))
-    if lls[best] > ll_est + 1e-10:
-        est, ll_est = _reml_scoring(y, v, float(g[best]), _MAX_ITER)
-        if ll_est < lls[best]:
-            est = Tau2Estimate("REML", float(g[best]), est.converged, est.iterations, est.note)
-    return est
+    # the grid check of tau2_reml (its scale uses the DerSimonian-Laird value)
+    return checked_on_grid(y, v, est, ll_est, tau2_dl(y, v).tau2, _MAX_ITER)
 
 
 #: Newton steps before falling back on scoring
