@@ -330,17 +330,18 @@ def rules_reading(result) -> tuple[tuple[str, ...], str]:
             f"All {len(result.applicability)} conditions for a meaningful test are met "
             "(Ioannidis & Trikalinos 2007)."
         )
+    # each rule with its detail after a dash: the detail has parentheses of its own
     parts = []
     if failed:
         parts.append(
             "Not met: "
-            + "; ".join(f"{r.title.lower()} ({rule_detail(r, result)})" for r in failed)
+            + "; ".join(f"{r.title.lower()} \u2013 {rule_detail(r, result)}" for r in failed)
             + "."
         )
     if unknown:
         parts.append(
             "Cannot tell: "
-            + "; ".join(f"{r.title.lower()} ({rule_detail(r, result)})" for r in unknown)
+            + "; ".join(f"{r.title.lower()} \u2013 {rule_detail(r, result)}" for r in unknown)
             + "."
         )
     parts.append("Read the tests and trim and fill with extra caution.")
